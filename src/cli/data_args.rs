@@ -1,0 +1,118 @@
+//! The data options every command that reads a training file shares.
+
+use clap::Args as ClapArgs;
+
+use crate::data::options::{MissingPolicy, ReadOptions, DEFAULT_NA_TOKENS};
+use crate::error::{Error, Result};
+
+/// `--missing` values.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum MissingArg {
+    /// Stop at the first missing feature value, naming file, line and column.
+    Error,
+    /// Numeric: training median plus an indicator input; categorical: a level of its own.
+    Impute,
+    /// Drop rows with a missing feature value (the count is reported).
+    DropRows,
+}
+
+/// Options describing a data file.
+#[derive(Debug, Clone, ClapArgs)]
+pub struct DataArgs {
+    /// The class label column.
+    #[arg(long, value_name = "COL")]
+    pub target: String,
+    /// Field delimiter: one character, or `tab`.
+    #[arg(long, value_name = "C", default_value = ",")]
+    pub delimiter: String,
+    /// Columns passed through to outputs (comma-separated; repeatable).
+    #[arg(long = "id", value_name = "COLS", value_delimiter = ',')]
+    pub ids: Vec<String>,
+    /// Column of non-negative frequency weights.
+    #[arg(long, value_name = "COL")]
+    pub weight: Option<String>,
+    /// Columns to ignore (comma-separated; repeatable).
+    #[arg(long, value_name = "COLS", value_delimiter = ',')]
+    pub exclude: Vec<String>,
+    /// Columns to read as categorical whatever their values.
+    #[arg(long, value_name = "COLS", value_delimiter = ',')]
+    pub categorical: Vec<String>,
+    /// Columns that must be numeric (a non-number is then an error).
+    #[arg(long, value_name = "COLS", value_delimiter = ',')]
+    pub numeric: Vec<String>,
+    /// Missing-value tokens, replacing the default list NA,N/A,null,? (an empty field is always missing).
+    #[arg(long, value_name = "TOKENS", value_delimiter = ',', allow_hyphen_values = true)]
+    pub na: Option<Vec<String>>,
+    /// What to do with missing feature values.
+    #[arg(long, value_enum, default_value = "error")]
+    pub missing: MissingArg,
+    /// The event class (default: the minority class, stated in the output).
+    #[arg(long, value_name = "CLASS")]
+    pub positive: Option<String>,
+}
+
+/// Parses `--delimiter`: a single byte character, or `tab` / `\t`.
+pub fn parse_delimiter(text: &str) -> Result<u8> {
+    match text {
+        "tab" | "\\t" | "\t" => Ok(b'\t'),
+        t if t.len() == 1 && t.is_ascii() => Ok(t.as_bytes()[0]),
+        t => Err(Error::Usage(format!(
+            "--delimiter takes one ASCII character or 'tab', not '{t}'"
+        ))),
+    }
+}
+
+impl DataArgs {
+    /// Turns the raw arguments into the library's read options.
+    pub fn to_options(&self) -> Result<ReadOptions> {
+        let mut options = ReadOptions::new(self.target.clone());
+        options.delimiter = parse_delimiter(&self.delimiter)?;
+        options.ids = self.ids.clone();
+        options.weight = self.weight.clone();
+        options.exclude = self.exclude.clone();
+        options.categorical = self.categorical.clone();
+        options.numeric = self.numeric.clone();
+        options.na_tokens = match &self.na {
+            Some(tokens) => tokens.iter().filter(|t| !t.is_empty()).cloned().collect(),
+            None => DEFAULT_NA_TOKENS.iter().map(|s| s.to_string()).collect(),
+        };
+        options.missing = match self.missing {
+            MissingArg::Error => MissingPolicy::Error,
+            MissingArg::Impute => MissingPolicy::Impute,
+            MissingArg::DropRows => MissingPolicy::DropRows,
+        };
+        options.positive = self.positive.clone();
+        Ok(options)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use clap::Parser;
+
+    #[derive(Parser)]
+    struct Wrapper {
+        #[command(flatten)]
+        data: DataArgs,
+    }
+
+    #[test]
+    fn raw_arguments_become_options() {
+        let w = Wrapper::parse_from([
+            "x", "--target", "y", "--id", "a,b", "--id", "c", "--delimiter", "tab", "--na", "-999,NA", "--missing",
+            "drop-rows",
+        ]);
+        let o = w.data.to_options().unwrap();
+        assert_eq!(o.ids, vec!["a", "b", "c"]);
+        assert_eq!(o.delimiter, b'\t');
+        assert_eq!(o.na_tokens, vec!["-999", "NA"]);
+        assert_eq!(o.missing, MissingPolicy::DropRows);
+    }
+
+    #[test]
+    fn rejects_a_long_delimiter() {
+        assert!(matches!(parse_delimiter(";;"), Err(Error::Usage(_))));
+        assert_eq!(parse_delimiter(";").unwrap(), b';');
+    }
+}

@@ -1,0 +1,87 @@
+//! The command line: one file per command, each with an `Args` struct whose
+//! field docs are the `--help` text, and a `run` that calls the library.
+//!
+//! This is the only part of the crate that knows about terminals, files on
+//! disk and exit codes (see the command-line contract: 0 success, 1 data or
+//! model error, 2 usage error, 3 limit breached, 4 internal error).
+
+use std::io::Write;
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+
+pub mod data_args;
+pub mod demo;
+pub mod describe;
+pub mod output;
+
+/// Bayes-rule classifiers for credit and fraud work, with base-rate
+/// correction and expected-cost decisions. Decision support, not a decision.
+#[derive(Debug, Parser)]
+#[command(name = "baserate", version, about, long_about = None)]
+pub struct Cli {
+    /// The command to run.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The commands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Generate the invented demo scenarios and run the job on them.
+    Demo(demo::Args),
+    /// Read a file as a training file would be read and show its schema.
+    Describe(describe::Args),
+}
+
+/// What a command failed with: a library error, or an internal one.
+#[derive(Debug)]
+pub enum Failure {
+    /// A data, model or usage error, with its own exit code.
+    Library(crate::Error),
+    /// Writing to stdout failed because the reader went away: not an error.
+    BrokenPipe,
+}
+
+impl From<crate::Error> for Failure {
+    fn from(e: crate::Error) -> Self {
+        Failure::Library(e)
+    }
+}
+
+impl From<std::io::Error> for Failure {
+    fn from(e: std::io::Error) -> Self {
+        if e.kind() == std::io::ErrorKind::BrokenPipe {
+            Failure::BrokenPipe
+        } else {
+            Failure::Library(crate::Error::io("<stdout>", e))
+        }
+    }
+}
+
+/// Runs a parsed command line.
+pub fn run(cli: Cli) -> Result<ExitCode, Failure> {
+    match cli.command {
+        Command::Demo(args) => demo::run(args),
+        Command::Describe(args) => describe::run(args),
+    }
+}
+
+/// The binary's whole life: parse, run, report, exit.
+pub fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(e) => {
+            let _ = e.print();
+            return ExitCode::from(if e.use_stderr() { 2 } else { 0 });
+        }
+    };
+    match run(cli) {
+        Ok(code) => code,
+        Err(Failure::BrokenPipe) => ExitCode::SUCCESS,
+        Err(Failure::Library(error)) => {
+            let _ = writeln!(std::io::stderr(), "error: {error}");
+            ExitCode::from(error.exit_code())
+        }
+    }
+}

@@ -1,0 +1,76 @@
+//! What the user says about a file before it is read: delimiter, column
+//! roles and kinds, missing-value tokens and policy.
+
+use serde::{Deserialize, Serialize};
+
+/// The missing-value tokens used when `--na` is not given. An empty field is
+/// always missing, whatever the tokens.
+pub const DEFAULT_NA_TOKENS: [&str; 4] = ["NA", "N/A", "null", "?"];
+
+/// What to do with a missing feature value.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "kebab-case")]
+pub enum MissingPolicy {
+    /// Stop with an error naming file, line and column (the default).
+    #[default]
+    Error,
+    /// Numeric: replace by the training median and add a 0/1 indicator
+    /// column; categorical: a level of its own.
+    Impute,
+    /// Drop every row with a missing feature value (the count is reported).
+    DropRows,
+}
+
+impl MissingPolicy {
+    /// The name used on the command line.
+    pub fn name(self) -> &'static str {
+        match self {
+            MissingPolicy::Error => "error",
+            MissingPolicy::Impute => "impute",
+            MissingPolicy::DropRows => "drop-rows",
+        }
+    }
+}
+
+/// How a file is to be read.
+#[derive(Debug, Clone)]
+pub struct ReadOptions {
+    /// Field delimiter (one byte).
+    pub delimiter: u8,
+    /// Tokens that mean "missing" besides the empty field.
+    pub na_tokens: Vec<String>,
+    /// The class label column.
+    pub target: String,
+    /// Columns passed through to outputs untouched.
+    pub ids: Vec<String>,
+    /// A column of non-negative frequency weights.
+    pub weight: Option<String>,
+    /// Columns to ignore.
+    pub exclude: Vec<String>,
+    /// Columns forced to be categorical.
+    pub categorical: Vec<String>,
+    /// Columns forced to be numeric (a non-number is then an error).
+    pub numeric: Vec<String>,
+    /// Missing-value policy for features.
+    pub missing: MissingPolicy,
+    /// The event class; default: the minority class.
+    pub positive: Option<String>,
+}
+
+impl ReadOptions {
+    /// Options with the defaults for everything but the target column.
+    pub fn new(target: impl Into<String>) -> Self {
+        ReadOptions {
+            delimiter: b',',
+            na_tokens: DEFAULT_NA_TOKENS.iter().map(|s| s.to_string()).collect(),
+            target: target.into(),
+            ids: Vec::new(),
+            weight: None,
+            exclude: Vec::new(),
+            categorical: Vec::new(),
+            numeric: Vec::new(),
+            missing: MissingPolicy::Error,
+            positive: None,
+        }
+    }
+}

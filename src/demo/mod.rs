@@ -1,0 +1,104 @@
+//! The invented demo scenarios and their seeded generators.
+//!
+//! - [`lending`]: applications to an invented lender, a training year at a
+//!   10% default rate and an unlabelled new portfolio at 3%;
+//! - [`payments`]: card-not-present transactions of an invented merchant
+//!   network at a 0.5% fraud rate, with an amount for row-dependent costs.
+//!
+//! Every random step draws from [`rng::Rng`] seeded from the one demo seed,
+//! so the same seed gives the same bytes on every run and every machine of
+//! the same platform. `demo-data/` in the repository holds the output for
+//! [`DEFAULT_SEED`]; a test keeps the two equal.
+
+pub mod gaussian;
+pub mod lending;
+pub mod payments;
+pub mod rng;
+
+/// The seed of the committed demo data.
+pub const DEFAULT_SEED: u64 = 20_261_201;
+
+/// The seed of one generator stream of a scenario, derived from the demo
+/// seed so that streams are independent of each other.
+pub fn stream_seed(seed: u64, stream: u64) -> u64 {
+    rng::Rng::new(seed ^ stream.wrapping_mul(0x9E37_79B9_7F4A_7C15)).next_u64()
+}
+
+/// One generated file: its path relative to the demo folder and its text.
+#[derive(Debug, Clone)]
+pub struct DemoFile {
+    /// Relative path, e.g. `lending/train.csv`.
+    pub path: &'static str,
+    /// The CSV text.
+    pub contents: String,
+    /// What the file is, for people.
+    pub description: &'static str,
+}
+
+/// How many rows each scenario gets.
+#[derive(Debug, Clone, Copy)]
+pub struct DemoSize {
+    /// Lending training rows.
+    pub lending_training: usize,
+    /// Lending new-portfolio rows.
+    pub lending_new: usize,
+    /// Payments rows.
+    pub payments: usize,
+}
+
+impl DemoSize {
+    /// The committed size: 5,000 + 5,000 lending rows, 50,000 payments rows.
+    pub fn standard() -> Self {
+        DemoSize {
+            lending_training: 5_000,
+            lending_new: 5_000,
+            payments: 50_000,
+        }
+    }
+
+    /// Every file gets `rows` rows (for benchmarks).
+    pub fn uniform(rows: usize) -> Self {
+        DemoSize {
+            lending_training: rows,
+            lending_new: rows,
+            payments: rows,
+        }
+    }
+}
+
+/// Generates every demo file for a seed and size.
+pub fn generate(seed: u64, size: DemoSize) -> Vec<DemoFile> {
+    let (lending_files, payments_file) = rayon::join(
+        || {
+            lending::Lending {
+                seed,
+                training_rows: size.lending_training,
+                new_rows: size.lending_new,
+            }
+            .generate()
+        },
+        || payments::Payments { seed, rows: size.payments }.generate(),
+    );
+    vec![
+        DemoFile {
+            path: "lending/train.csv",
+            contents: lending_files.training,
+            description: "Quillmere Lending applications, 2025, with outcomes (target `outcome`)",
+        },
+        DemoFile {
+            path: "lending/new_portfolio.csv",
+            contents: lending_files.new_portfolio,
+            description: "applications from the new channel, 2026, outcomes withheld",
+        },
+        DemoFile {
+            path: "lending/new_portfolio_answers.csv",
+            contents: lending_files.answers,
+            description: "the withheld outcomes, to check base-rate estimates against",
+        },
+        DemoFile {
+            path: "payments/transactions.csv",
+            contents: payments_file,
+            description: "Tarnwick Pay card-not-present transactions, September 2026 (target `label`)",
+        },
+    ]
+}

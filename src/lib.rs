@@ -1,0 +1,17 @@
+//! baserate: Bayes-rule classifiers for credit-risk and fraud work, where the
+//! class mix of the training data is not the mix the model will meet.
+//!
+//! The library owns every computation; the `baserate` binary only parses
+//! arguments and calls [`cli::run`]. Data flows one way:
+//! [`data`] → models → priors → decisions → evaluation → reports, with the
+//! invented demo scenarios in [`demo`].
+
+#![deny(missing_docs)]
+
+pub mod cli;
+pub mod data;
+pub mod demo;
+pub mod error;
+pub mod report;
+
+pub use error::{Error, Result};

@@ -1,0 +1,6 @@
+//! The `baserate` command: parses arguments, calls the library, and turns the
+//! outcome into an exit code (see the command-line contract).
+
+fn main() -> std::process::ExitCode {
+    baserate::cli::main()
+}

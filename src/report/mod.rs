@@ -1,0 +1,67 @@
+//! Output for people: aligned terminal tables and number formatting.
+//! (JSON output is the serialization of the library's own types.)
+
+pub mod table;
+
+/// The caution printed with every report: what baserate's output is and is
+/// not, for credit and fraud decisions.
+pub const CAUTION: &str = "Caution: baserate gives decision support, not a decision. Credit and fraud decisions \
+affect people: fair-lending, anti-discrimination, adverse-action and model-governance rules apply. \
+A model trained only on approved applications inherits their selection bias, which baserate does not correct. \
+Defer to local law and your institution's licensed practice.";
+
+/// A whole number with thousands separators: 1234567 → "1,234,567".
+pub fn count(n: usize) -> String {
+    let digits = n.to_string();
+    let mut out = String::with_capacity(digits.len() + digits.len() / 3);
+    for (i, c) in digits.chars().enumerate() {
+        if i > 0 && (digits.len() - i) % 3 == 0 {
+            out.push(',');
+        }
+        out.push(c);
+    }
+    out
+}
+
+/// A share as a percentage with one decimal: 0.1012 → "10.1%".
+pub fn percent(share: f64) -> String {
+    format!("{:.1}%", 100.0 * share)
+}
+
+/// A number with about `significant` significant digits, without
+/// exponent notation for everyday magnitudes.
+pub fn number(x: f64, significant: usize) -> String {
+    if x == 0.0 || !x.is_finite() {
+        return format!("{x}");
+    }
+    let magnitude = x.abs().log10().floor() as i32;
+    if !(-4..=9).contains(&magnitude) {
+        return format!("{:.*e}", significant.saturating_sub(1), x);
+    }
+    let decimals = (significant as i32 - 1 - magnitude).max(0) as usize;
+    let text = format!("{x:.decimals$}");
+    // Trailing zeros after the point say nothing.
+    if text.contains('.') {
+        text.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        text
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn formats() {
+        assert_eq!(count(0), "0");
+        assert_eq!(count(999), "999");
+        assert_eq!(count(1000), "1,000");
+        assert_eq!(count(1234567), "1,234,567");
+        assert_eq!(percent(0.1012), "10.1%");
+        assert_eq!(number(56432.1, 4), "56432");
+        assert_eq!(number(0.012345, 3), "0.0123");
+        assert_eq!(number(-2.5, 3), "-2.5");
+        assert_eq!(number(600.0, 4), "600");
+    }
+}
