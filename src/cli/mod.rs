@@ -76,7 +76,18 @@ pub fn main() -> ExitCode {
             return ExitCode::from(if e.use_stderr() { 2 } else { 0 });
         }
     };
-    match run(cli) {
+    // A panic is a bug: say so plainly and exit with 4, never a backtrace.
+    std::panic::set_hook(Box::new(|info| {
+        let _ = writeln!(
+            std::io::stderr(),
+            "internal error: {info}. This is a bug in baserate, not in your data; please report it with the command you ran."
+        );
+    }));
+    let outcome = match std::panic::catch_unwind(|| run(cli)) {
+        Ok(outcome) => outcome,
+        Err(_) => return ExitCode::from(4),
+    };
+    match outcome {
         Ok(code) => code,
         Err(Failure::BrokenPipe) => ExitCode::SUCCESS,
         Err(Failure::Library(error)) => {

@@ -1,26 +1,32 @@
 //! Reading a delimited text file into typed columns, in parallel.
 //!
-//! The whole file is read into memory, split into chunks at record
-//! boundaries (a newline outside quotes, found by a quote-parity scan), and
-//! each chunk is parsed on its own thread by the csv crate. Every chunk knows
-//! the line it starts on, so errors name the true line of the file.
+//! The file is memory-mapped (or read, when it is not a regular file),
+//! split into chunks at record boundaries (a newline outside quotes, found
+//! by a quote-parity scan), and the chunks are parsed in parallel
+//! ([`crate::data::csv_chunk`]). Each chunk knows the line it starts on, so
+//! errors name the true line of the file, and the number of lines it holds,
+//! so its numeric values go straight to their rows of the final
+//! column-major matrix.
 //!
 //! Kinds are settled per column: a feature column is numeric when every
-//! non-missing value parses as a finite `f64`, otherwise categorical. A chunk
-//! that meets text in a column it was parsing as numbers parses itself again
-//! with that column categorical; once every chunk is done, chunks that parsed
-//! a column as numbers which another chunk found to be text are parsed again
-//! too, so every chunk agrees on every kind. Mixed columns are rare, so the
-//! second pass costs nothing in the common case.
+//! non-missing value parses as a finite `f64`, otherwise categorical. The
+//! first chunk is read once on its own to settle the kinds it shows; then
+//! every chunk is parsed in parallel, and in the rare case that a later
+//! chunk finds text in a column so far numeric, every chunk is parsed once
+//! more under the settled kinds. At most two full passes, usually one.
 //!
 //! Errors are reported for the first offending line of the file, whatever
 //! the chunking: each chunk stops at its own first fatal problem, and the
 //! earliest one over all chunks wins.
 
 use std::collections::HashMap;
+use std::ops::Range;
 
+use ndarray::{Array2, ShapeBuilder};
 use rayon::prelude::*;
 
+pub use crate::data::csv_chunk::{ColumnFacts, MISSING_CODE};
+use crate::data::csv_chunk::{parse_chunk, slots, ChunkOut, NaMatcher, Parse, ParseContext};
 use crate::data::options::ReadOptions;
 use crate::data::schema::ColumnRole;
 use crate::error::{Error, Position, Result};
@@ -29,29 +35,16 @@ use crate::error::{Error, Position, Result};
 /// small enough that two cores stay balanced on a 200 MB file.
 const CHUNK_BYTES: usize = 4 << 20;
 
-/// Code for a missing categorical value.
-pub const MISSING_CODE: u32 = u32::MAX;
-
-/// How a column is parsed.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum Parse {
-    Skip,
-    /// Numbers; `forced` makes a non-number an error instead of a switch to
-    /// categorical.
-    Numeric {
-        forced: bool,
-    },
-    Categorical,
-    Text,
-    Target,
-    Weight,
-}
-
 /// What was read from one column.
 #[derive(Debug, Clone)]
 pub enum ColumnValues {
-    /// Numbers, `NaN` where missing.
-    Numeric(Vec<f64>),
+    /// A numeric feature: column `index` of [`ReadTable::numeric`].
+    NumericFeature {
+        /// Column of the numeric matrix.
+        index: usize,
+    },
+    /// The weight column's values.
+    Weights(Vec<f64>),
     /// Codes into `levels` (sorted), [`MISSING_CODE`] where missing.
     Categorical {
         /// Per-row level codes.
@@ -63,38 +56,6 @@ pub enum ColumnValues {
     Text(Vec<String>),
     /// Not read.
     Skipped,
-}
-
-/// Facts gathered while reading one column, used for errors and warnings.
-#[derive(Debug, Clone, Default)]
-pub struct ColumnFacts {
-    /// Count of missing values.
-    pub missing: usize,
-    /// Line of the first missing value.
-    pub first_missing_line: Option<u64>,
-    /// First `inf`/`nan` literal (line, text).
-    pub first_non_finite: Option<(u64, String)>,
-    /// First value that is not a number (line, text), for columns that
-    /// ended up categorical although they were not declared so.
-    pub first_text: Option<(u64, String)>,
-    /// Non-missing values that parse as finite numbers.
-    pub number_like: usize,
-}
-
-impl ColumnFacts {
-    fn merge(&mut self, other: &ColumnFacts) {
-        self.missing += other.missing;
-        self.number_like += other.number_like;
-        if self.first_missing_line.is_none() {
-            self.first_missing_line = other.first_missing_line;
-        }
-        if self.first_non_finite.is_none() {
-            self.first_non_finite.clone_from(&other.first_non_finite);
-        }
-        if self.first_text.is_none() {
-            self.first_text.clone_from(&other.first_text);
-        }
-    }
 }
 
 /// One column as read.
@@ -121,6 +82,9 @@ pub struct ReadTable {
     pub rows: usize,
     /// Columns in header order.
     pub columns: Vec<ReadColumn>,
+    /// The numeric features, column-major (each column contiguous), `NaN`
+    /// where missing.
+    pub numeric: Array2<f64>,
 }
 
 impl ReadTable {
@@ -131,9 +95,25 @@ impl ReadTable {
 }
 
 /// Reads a file from disk (see [`read_bytes`]).
+///
+/// A regular file is memory-mapped rather than copied into memory: the
+/// parser only reads it, and mapping saves a copy of the whole file (a
+/// quarter of the reading time at a million rows). The file must not be
+/// truncated while it is read; anything else falls back to a plain read.
 pub fn read_path(path: &std::path::Path, options: &ReadOptions) -> Result<ReadTable> {
     let shown = path.display().to_string();
-    let bytes = std::fs::read(path).map_err(|e| Error::io(&shown, e))?;
+    let file = std::fs::File::open(path).map_err(|e| Error::io(&shown, e))?;
+    let is_regular = file.metadata().map(|m| m.is_file() && m.len() > 0).unwrap_or(false);
+    if is_regular {
+        // SAFETY: the map is only read, and lives only as long as this call;
+        // the documented condition is that nobody truncates the file while
+        // baserate reads it (the same condition every mmap-based reader has).
+        if let Ok(map) = unsafe { memmap2::Mmap::map(&file) } {
+            return read_bytes(&shown, &map, options);
+        }
+    }
+    let mut bytes = Vec::new();
+    std::io::Read::read_to_end(&mut &file, &mut bytes).map_err(|e| Error::io(&shown, e))?;
     read_bytes(&shown, &bytes, options)
 }
 
@@ -172,7 +152,7 @@ pub(crate) fn read_bytes_chunked(path: &str, bytes: &[u8], options: &ReadOptions
 
     let data = &bytes[data_start..];
     let chunks = split_chunks(data, chunk_bytes);
-    let first_lines = chunk_first_lines(data, &chunks, data_first_line);
+    let (first_lines, capacities) = chunk_lines(data, &chunks, data_first_line);
     let context = ParseContext {
         path,
         names: &names,
@@ -180,44 +160,26 @@ pub(crate) fn read_bytes_chunked(path: &str, bytes: &[u8], options: &ReadOptions
         na: NaMatcher::new(&options.na_tokens),
     };
 
-    let mut outs: Vec<ChunkOut> = chunks
-        .par_iter()
-        .zip(first_lines.par_iter())
-        .map(|(range, &first_line)| parse_chunk_settling(&context, &data[range.clone()], first_line, plan.clone()))
-        .collect();
-
-    // Columns any chunk found to be text are categorical everywhere.
-    let mut flipped = vec![false; names.len()];
-    for out in &outs {
-        for (column, kind) in out.plan.iter().enumerate() {
-            if *kind == Parse::Categorical && plan[column] != Parse::Categorical {
-                flipped[column] = true;
-            }
-        }
+    // The first chunk settles the kinds it shows, so that a file whose text
+    // columns are not declared still needs only one parallel pass.
+    if let (Some(range), Some(&capacity)) = (chunks.first(), capacities.first()) {
+        let (_, width, _, _) = slots(&plan);
+        let mut scratch = vec![0.0; capacity * width];
+        let first = parse_chunk(&context, &data[range.clone()], first_lines[0], &plan, column_slices(&mut scratch, capacity));
+        plan = first.plan;
     }
-    if flipped.iter().any(|&f| f) {
-        for (column, f) in flipped.iter().enumerate() {
-            if *f {
-                plan[column] = Parse::Categorical;
-            }
-        }
-        let redo: Vec<usize> = (0..outs.len()).filter(|&i| outs[i].plan != plan).collect();
-        let redone: Vec<(usize, ChunkOut)> = redo
-            .par_iter()
-            .map(|&i| {
-                let range = chunks[i].clone();
-                (i, parse_chunk(&context, &data[range], first_lines[i], &plan))
-            })
-            .collect();
-        for (i, out) in redone {
-            outs[i] = out;
-        }
+    let (mut outs, mut matrix) = parse_all(&context, data, &chunks, &first_lines, &capacities, &plan);
+    let settled = settle(&plan, &outs);
+    if settled != plan && !outs.iter().any(|o| o.fatal.is_some()) {
+        plan = settled;
+        (outs, matrix) = parse_all(&context, data, &chunks, &first_lines, &capacities, &plan);
     }
 
     // The first fatal problem in file order: a chunk's own fatal error, or
     // an inf/nan literal in a column that turned out numeric.
     let mut problems: Vec<(u64, Error)> = outs.iter_mut().filter_map(|o| o.fatal.take()).collect();
-    for (column, kind) in plan.iter().enumerate() {
+    let final_plan = settle(&plan, &outs);
+    for (column, kind) in final_plan.iter().enumerate() {
         if let Parse::Numeric { .. } = kind {
             if let Some((line, value)) = outs.iter().find_map(|o| o.facts[column].first_non_finite.clone()) {
                 problems.push((
@@ -241,12 +203,89 @@ pub(crate) fn read_bytes_chunked(path: &str, bytes: &[u8], options: &ReadOptions
             path: path.to_string(),
         });
     }
+    let numeric = compact(&mut matrix, &capacities, &outs, rows);
     let columns = assemble(&names, &roles, &plan, outs);
     Ok(ReadTable {
         path: path.to_string(),
         rows,
         columns,
+        numeric,
     })
+}
+
+/// The plan after a pass: columns any chunk found to hold text are
+/// categorical.
+fn settle(plan: &[Parse], outs: &[ChunkOut]) -> Vec<Parse> {
+    let mut settled = plan.to_vec();
+    for out in outs {
+        for (column, kind) in out.plan.iter().enumerate() {
+            if *kind == Parse::Categorical {
+                settled[column] = Parse::Categorical;
+            }
+        }
+    }
+    settled
+}
+
+/// Splits a column-major buffer of `capacity` rows into its columns.
+fn column_slices(buffer: &mut [f64], capacity: usize) -> Vec<&mut [f64]> {
+    if capacity == 0 {
+        return Vec::new();
+    }
+    buffer.chunks_mut(capacity).collect()
+}
+
+/// Parses every chunk in parallel under `plan`, each writing its numeric
+/// values into its own rows of one column-major matrix whose columns hold
+/// `Σ capacities` rows.
+fn parse_all(
+    context: &ParseContext<'_>,
+    data: &[u8],
+    chunks: &[Range<usize>],
+    first_lines: &[u64],
+    capacities: &[usize],
+    plan: &[Parse],
+) -> (Vec<ChunkOut>, Vec<f64>) {
+    let (_, width, _, _) = slots(plan);
+    let total: usize = capacities.iter().sum();
+    let mut matrix = vec![0.0; total * width];
+    // slices[chunk][column]: the chunk's rows of each column.
+    let mut slices: Vec<Vec<&mut [f64]>> = (0..chunks.len()).map(|_| Vec::with_capacity(width)).collect();
+    for column in column_slices(&mut matrix, total) {
+        let mut rest = column;
+        for (chunk, &capacity) in capacities.iter().enumerate() {
+            let (head, tail) = std::mem::take(&mut rest).split_at_mut(capacity);
+            slices[chunk].push(head);
+            rest = tail;
+        }
+    }
+    let outs = chunks
+        .par_iter()
+        .zip(first_lines.par_iter())
+        .zip(slices.into_par_iter())
+        .map(|((range, &first_line), numeric)| parse_chunk(context, &data[range.clone()], first_line, plan, numeric))
+        .collect();
+    (outs, matrix)
+}
+
+/// Closes the gaps chunks left (fewer records than lines: quoted newlines,
+/// empty lines) and returns the matrix of `rows` rows.
+fn compact(matrix: &mut Vec<f64>, capacities: &[usize], outs: &[ChunkOut], rows: usize) -> Array2<f64> {
+    let total: usize = capacities.iter().sum();
+    let width = if total == 0 { 0 } else { matrix.len() / total };
+    if rows != total {
+        let mut destination = 0;
+        for column in 0..width {
+            let mut source = column * total;
+            for (capacity, out) in capacities.iter().zip(outs) {
+                matrix.copy_within(source..source + out.rows, destination);
+                destination += out.rows;
+                source += capacity;
+            }
+        }
+        matrix.truncate(rows * width);
+    }
+    Array2::from_shape_vec((rows, width).f(), std::mem::take(matrix)).unwrap_or_else(|_| Array2::zeros((rows, 0)))
 }
 
 /// Reads the header record; returns the names, the byte offset where data
@@ -443,364 +482,38 @@ pub(crate) fn split_chunks(data: &[u8], target: usize) -> Vec<std::ops::Range<us
     ranges
 }
 
-/// The line number each chunk starts on.
-fn chunk_first_lines(data: &[u8], chunks: &[std::ops::Range<usize>], data_first_line: u64) -> Vec<u64> {
-    let counts: Vec<u64> = chunks
+/// The line number each chunk starts on, and the most records it can hold
+/// (its newlines, plus one when it does not end with a newline).
+fn chunk_lines(data: &[u8], chunks: &[Range<usize>], data_first_line: u64) -> (Vec<u64>, Vec<usize>) {
+    let counts: Vec<usize> = chunks
         .par_iter()
-        .map(|r| memchr::memchr_iter(b'\n', &data[r.clone()]).count() as u64)
+        .map(|r| memchr::memchr_iter(b'\n', &data[r.clone()]).count())
         .collect();
     let mut lines = Vec::with_capacity(chunks.len());
     let mut line = data_first_line;
-    for count in counts {
+    for &count in &counts {
         lines.push(line);
-        line += count;
+        line += count as u64;
     }
-    lines
-}
-
-/// Recognises missing-value tokens quickly: most fields are rejected on
-/// their first byte.
-struct NaMatcher {
-    tokens: Vec<Vec<u8>>,
-    first_bytes: [bool; 256],
-}
-
-impl NaMatcher {
-    fn new(tokens: &[String]) -> Self {
-        let tokens: Vec<Vec<u8>> = tokens
-            .iter()
-            .map(|t| t.trim().as_bytes().to_vec())
-            .filter(|t| !t.is_empty())
-            .collect();
-        let mut first_bytes = [false; 256];
-        for token in &tokens {
-            first_bytes[token[0] as usize] = true;
-        }
-        NaMatcher { tokens, first_bytes }
-    }
-
-    #[inline]
-    fn is_missing(&self, field: &[u8]) -> bool {
-        match field.first() {
-            None => true,
-            Some(&b) if self.first_bytes[b as usize] => self.tokens.iter().any(|t| t == field),
-            Some(_) => false,
-        }
-    }
-}
-
-struct ParseContext<'a> {
-    path: &'a str,
-    names: &'a [String],
-    delimiter: u8,
-    na: NaMatcher,
-}
-
-impl ParseContext<'_> {
-    fn at(&self, line: u64) -> Position {
-        Position {
-            path: self.path.to_string(),
-            line,
-        }
-    }
-}
-
-/// Local dictionary of a categorical column within one chunk.
-#[derive(Default)]
-struct LocalLevels {
-    codes: Vec<u32>,
-    index: HashMap<Box<[u8]>, u32>,
-    levels: Vec<String>,
-}
-
-/// The result of parsing one chunk under one plan.
-struct ChunkOut {
-    plan: Vec<Parse>,
-    rows: usize,
-    /// Row-major values of the numeric-plan columns (and the weight).
-    numeric: Vec<f64>,
-    numeric_width: usize,
-    categorical: Vec<LocalLevels>,
-    text: Vec<Vec<String>>,
-    facts: Vec<ColumnFacts>,
-    fatal: Option<(u64, Error)>,
-}
-
-/// Each column's index within the storage its plan puts it in (numeric,
-/// categorical or text), and the number of columns of each storage.
-fn slots(plan: &[Parse]) -> (Vec<usize>, usize, usize, usize) {
-    let (mut n, mut c, mut t) = (0, 0, 0);
-    let slots = plan
+    let capacities = counts
         .iter()
-        .map(|p| {
-            let counter = match p {
-                Parse::Skip => return usize::MAX,
-                Parse::Numeric { .. } | Parse::Weight => &mut n,
-                Parse::Categorical | Parse::Target => &mut c,
-                Parse::Text => &mut t,
-            };
-            *counter += 1;
-            *counter - 1
-        })
+        .zip(chunks)
+        .map(|(&count, r)| count + usize::from(data[r.end - 1] != b'\n'))
         .collect();
-    (slots, n, c, t)
+    (lines, capacities)
 }
 
-/// Parses a chunk, switching columns that turn out to hold text to
-/// categorical and starting again until the plan holds for the chunk.
-fn parse_chunk_settling(context: &ParseContext<'_>, bytes: &[u8], first_line: u64, mut plan: Vec<Parse>) -> ChunkOut {
-    loop {
-        let out = parse_chunk(context, bytes, first_line, &plan);
-        if out.plan == plan {
-            return out;
-        }
-        plan = out.plan;
-    }
-}
-
-/// Outcome of reading one numeric field.
-enum NumberField {
-    Missing,
-    Value(f64),
-    NonFinite,
-    Text,
-}
-
-#[inline]
-fn read_number(na: &NaMatcher, field: &[u8]) -> NumberField {
-    if na.is_missing(field) {
-        return NumberField::Missing;
-    }
-    match std::str::from_utf8(field).ok().and_then(|s| s.parse::<f64>().ok()) {
-        Some(v) if v.is_finite() => NumberField::Value(v),
-        Some(_) => NumberField::NonFinite,
-        None => NumberField::Text,
-    }
-}
-
-fn lossy(field: &[u8]) -> String {
-    String::from_utf8_lossy(field).into_owned()
-}
-
-/// Parses one chunk under `plan`. When an unforced numeric column meets
-/// text, parsing stops and the returned plan has that column categorical
-/// (the caller parses again).
-fn parse_chunk(context: &ParseContext<'_>, bytes: &[u8], first_line: u64, plan: &[Parse]) -> ChunkOut {
-    let (slot_of, numeric_width, categorical_count, text_count) = slots(plan);
-    let width = plan.len();
-    let mut out = ChunkOut {
-        plan: plan.to_vec(),
-        rows: 0,
-        numeric: Vec::with_capacity(bytes.len() / (width.max(1) * 8) * numeric_width),
-        numeric_width,
-        categorical: (0..categorical_count).map(|_| LocalLevels::default()).collect(),
-        text: vec![Vec::new(); text_count],
-        facts: vec![ColumnFacts::default(); width],
-        fatal: None,
-    };
-    let mut reader = csv::ReaderBuilder::new()
-        .has_headers(false)
-        .delimiter(context.delimiter)
-        .flexible(true)
-        .from_reader(bytes);
-    let mut record = csv::ByteRecord::new();
-    loop {
-        match reader.read_byte_record(&mut record) {
-            Ok(true) => {}
-            Ok(false) => break,
-            Err(e) => {
-                let line = e.position().map_or(first_line, |p| first_line + p.line() - 1);
-                out.fatal = Some((
-                    line,
-                    Error::Malformed {
-                        at: context.at(line),
-                        column: "(row)".to_string(),
-                        message: e.to_string(),
-                    },
-                ));
-                return out;
-            }
-        }
-        let line = record.position().map_or(first_line, |p| first_line + p.line() - 1);
-        if record.len() != width {
-            // A lone empty line with a one-column header is an empty value;
-            // anything else of the wrong length is ragged.
-            out.fatal = Some((
-                line,
-                Error::RaggedRow {
-                    at: context.at(line),
-                    expected: width,
-                    found: record.len(),
-                },
-            ));
-            return out;
-        }
-        for (column, raw) in record.iter().enumerate() {
-            let field = raw.trim_ascii();
-            let facts = &mut out.facts[column];
-            let slot = slot_of[column];
-            match plan[column] {
-                Parse::Skip => {}
-                Parse::Numeric { forced } => {
-                    let value = match read_number(&context.na, field) {
-                        NumberField::Value(v) => v,
-                        NumberField::Missing => {
-                            facts.missing += 1;
-                            facts.first_missing_line.get_or_insert(line);
-                            f64::NAN
-                        }
-                        NumberField::NonFinite => {
-                            if forced {
-                                out.fatal = Some((
-                                    line,
-                                    Error::NonFiniteValue {
-                                        at: context.at(line),
-                                        column: context.names[column].clone(),
-                                        value: lossy(field),
-                                    },
-                                ));
-                                return out;
-                            }
-                            facts.first_non_finite.get_or_insert_with(|| (line, lossy(field)));
-                            f64::NAN
-                        }
-                        NumberField::Text => {
-                            if forced {
-                                out.fatal = Some((
-                                    line,
-                                    Error::NotANumber {
-                                        at: context.at(line),
-                                        column: context.names[column].clone(),
-                                        value: lossy(field),
-                                        hint: " (declared with --numeric; use --na to declare a missing-value token)"
-                                            .to_string(),
-                                    },
-                                ));
-                                return out;
-                            }
-                            out.plan[column] = Parse::Categorical;
-                            return out;
-                        }
-                    };
-                    out.numeric.push(value);
-                }
-                Parse::Weight => {
-                    let problem = match read_number(&context.na, field) {
-                        NumberField::Value(v) if v >= 0.0 => {
-                            out.numeric.push(v);
-                            None
-                        }
-                        NumberField::Value(_) => Some("weights must not be negative"),
-                        NumberField::Missing => Some("the weight is missing"),
-                        NumberField::NonFinite => Some("weights must be finite"),
-                        NumberField::Text => Some("weights must be numbers"),
-                    };
-                    if let Some(reason) = problem {
-                        out.fatal = Some((
-                            line,
-                            Error::InvalidWeight {
-                                at: context.at(line),
-                                column: context.names[column].clone(),
-                                value: lossy(field),
-                                reason: reason.to_string(),
-                            },
-                        ));
-                        return out;
-                    }
-                }
-                Parse::Categorical | Parse::Target => {
-                    let local = &mut out.categorical[slot];
-                    if context.na.is_missing(field) {
-                        if plan[column] == Parse::Target {
-                            out.fatal = Some((
-                                line,
-                                Error::MissingTarget {
-                                    at: context.at(line),
-                                    column: context.names[column].clone(),
-                                },
-                            ));
-                            return out;
-                        }
-                        facts.missing += 1;
-                        facts.first_missing_line.get_or_insert(line);
-                        local.codes.push(MISSING_CODE);
-                        continue;
-                    }
-                    let code = match local.index.get(field) {
-                        Some(&code) => code,
-                        None => {
-                            let Ok(text) = std::str::from_utf8(field) else {
-                                out.fatal = Some((
-                                    line,
-                                    Error::Malformed {
-                                        at: context.at(line),
-                                        column: context.names[column].clone(),
-                                        message: "the value is not valid UTF-8".to_string(),
-                                    },
-                                ));
-                                return out;
-                            };
-                            let code = local.levels.len() as u32;
-                            local.levels.push(text.to_string());
-                            local.index.insert(field.into(), code);
-                            code
-                        }
-                    };
-                    local.codes.push(code);
-                    if plan[column] == Parse::Categorical {
-                        match read_number(&context.na, field) {
-                            NumberField::Value(_) => facts.number_like += 1,
-                            _ => {
-                                facts.first_text.get_or_insert_with(|| (line, lossy(field)));
-                            }
-                        }
-                    }
-                }
-                Parse::Text => match std::str::from_utf8(raw) {
-                    Ok(text) => out.text[slot].push(text.to_string()),
-                    Err(_) => {
-                        out.fatal = Some((
-                            line,
-                            Error::Malformed {
-                                at: context.at(line),
-                                column: context.names[column].clone(),
-                                message: "the value is not valid UTF-8".to_string(),
-                            },
-                        ));
-                        return out;
-                    }
-                },
-            }
-        }
-        out.rows += 1;
-    }
-    out
-}
-
-/// Joins the chunks into whole columns, mapping local category codes to
-/// one sorted level list per column.
+/// Joins the chunks' categorical, text and weight columns, mapping local
+/// category codes to one sorted level list per column.
 fn assemble(
     names: &[String],
     roles: &[(ColumnRole, Option<ForcedKind>)],
     plan: &[Parse],
     mut outs: Vec<ChunkOut>,
 ) -> Vec<ReadColumn> {
-    let (slot_of, numeric_width, _, _) = slots(plan);
+    let (slot_of, _, _, _) = slots(plan);
     let rows: usize = outs.iter().map(|o| o.rows).sum();
     let mut columns = Vec::with_capacity(names.len());
-    // Numeric columns: de-interleave the row-major chunk buffers in parallel,
-    // one column per task.
-    let numeric_columns: Vec<Vec<f64>> = (0..numeric_width)
-        .into_par_iter()
-        .map(|slot| {
-            let mut column = Vec::with_capacity(rows);
-            for out in &outs {
-                column.extend(out.numeric.iter().skip(slot).step_by(out.numeric_width.max(1)).copied());
-            }
-            column
-        })
-        .collect();
-    let mut numeric_columns: Vec<Option<Vec<f64>>> = numeric_columns.into_iter().map(Some).collect();
     for (column, name) in names.iter().enumerate() {
         let mut facts = ColumnFacts::default();
         for out in &outs {
@@ -809,7 +522,8 @@ fn assemble(
         let slot = slot_of[column];
         let values = match plan[column] {
             Parse::Skip => ColumnValues::Skipped,
-            Parse::Numeric { .. } | Parse::Weight => ColumnValues::Numeric(numeric_columns[slot].take().unwrap_or_default()),
+            Parse::Numeric { .. } => ColumnValues::NumericFeature { index: slot },
+            Parse::Weight => ColumnValues::Weights(outs.iter().flat_map(|o| o.weights.iter().copied()).collect()),
             Parse::Categorical | Parse::Target => {
                 let mut all: Vec<&str> = outs
                     .iter()
@@ -862,7 +576,9 @@ mod tests {
         let table = read_bytes("t.csv", b"a,b,y\n1.5,x,0\n2,y,1\n-3e2,x,0\n", &options()).unwrap();
         assert_eq!(table.rows, 3);
         match &table.columns[0].values {
-            ColumnValues::Numeric(v) => assert_eq!(v, &vec![1.5, 2.0, -300.0]),
+            ColumnValues::NumericFeature { index } => {
+                assert_eq!(table.numeric.column(*index).to_vec(), vec![1.5, 2.0, -300.0])
+            }
             other => panic!("{other:?}"),
         }
         match &table.columns[1].values {

@@ -1,14 +1,14 @@
 //! The training dataset: a file as read, turned into model inputs under the
 //! missing-value policy, with its schema.
 
-use ndarray::Array2;
+use ndarray::{Array2, ShapeBuilder};
 use rayon::prelude::*;
 
 use crate::data::csv_read::{ColumnValues, ReadColumn, ReadTable, MISSING_CODE};
 use crate::data::options::{MissingPolicy, ReadOptions};
 use crate::data::schema::{
-    CategoricalSummary, ColumnKind, ColumnRole, ColumnSchema, Imputation, KindSource, PositiveRule, Schema,
-    TargetSchema,
+    CategoricalSummary, ColumnKind, ColumnRole, ColumnSchema, Imputation, KindSource, NumericSummary, PositiveRule,
+    Schema, TargetSchema,
 };
 use crate::data::summary::summarize;
 use crate::error::{Error, Position, Result};
@@ -25,7 +25,8 @@ pub struct Dataset {
     /// What the file held.
     pub schema: Schema,
     /// Numeric inputs, one row per training row, columns as
-    /// [`Schema::numeric_inputs`]. Never NaN.
+    /// [`Schema::numeric_inputs`], stored column-major (each column
+    /// contiguous). Never NaN.
     pub numeric: Array2<f64>,
     /// Level codes of each categorical input (in
     /// [`Schema::categorical_inputs`] order), indices into that column's
@@ -64,11 +65,16 @@ impl Dataset {
     /// Builds the dataset from a table as read: applies the missing-value
     /// policy, checks the target, and summarises every column.
     pub fn from_table(table: ReadTable, options: &ReadOptions) -> Result<(Dataset, Vec<DataNotice>)> {
-        let path = table.path.clone();
+        let ReadTable {
+            path,
+            rows: rows_read,
+            columns,
+            numeric,
+        } = table;
         let mut notices = Vec::new();
-        let features: Vec<&ReadColumn> = table.columns.iter().filter(|c| c.role == ColumnRole::Feature).collect();
+        let features: Vec<&ReadColumn> = columns.iter().filter(|c| c.role == ColumnRole::Feature).collect();
 
-        // Rows to keep under the policy.
+        // Rows to keep under the policy (None: all of them).
         let keep: Option<Vec<bool>> = match options.missing {
             MissingPolicy::Error => {
                 if let Some((line, column)) = features
@@ -84,15 +90,15 @@ impl Dataset {
                 None
             }
             MissingPolicy::Impute => None,
+            MissingPolicy::DropRows if features.iter().all(|c| c.facts.missing == 0) => None,
             MissingPolicy::DropRows => {
-                let mut keep = vec![true; table.rows];
+                let mut keep = vec![true; rows_read];
+                for column in numeric.columns() {
+                    keep.iter_mut().zip(column).for_each(|(k, x)| *k &= !x.is_nan());
+                }
                 for column in &features {
-                    match &column.values {
-                        ColumnValues::Numeric(v) => keep.iter_mut().zip(v).for_each(|(k, x)| *k &= !x.is_nan()),
-                        ColumnValues::Categorical { codes, .. } => {
-                            keep.iter_mut().zip(codes).for_each(|(k, c)| *k &= *c != MISSING_CODE)
-                        }
-                        _ => {}
+                    if let ColumnValues::Categorical { codes, .. } = &column.values {
+                        keep.iter_mut().zip(codes).for_each(|(k, c)| *k &= *c != MISSING_CODE);
                     }
                 }
                 Some(keep)
@@ -101,20 +107,45 @@ impl Dataset {
         let rows_dropped = keep.as_ref().map_or(0, |k| k.iter().filter(|&&x| !x).count());
         if rows_dropped > 0 {
             notices.push(DataNotice(format!(
-                "{rows_dropped} of {} rows dropped for missing feature values (--missing drop-rows)",
-                table.rows
+                "{rows_dropped} of {rows_read} rows dropped for missing feature values (--missing drop-rows)"
             )));
         }
-        let rows = table.rows - rows_dropped;
+        let rows = rows_read - rows_dropped;
         if rows == 0 {
             return Err(Error::HeaderOnly { path });
         }
-        let filter_f64 = |v: &[f64]| -> Vec<f64> {
-            match &keep {
-                None => v.to_vec(),
-                Some(k) => v.iter().zip(k).filter(|(_, &k)| k).map(|(x, _)| *x).collect(),
+        let kept = |i: usize| keep.as_ref().is_none_or(|k| k[i]);
+        let mut numeric = match &keep {
+            None => numeric,
+            Some(_) => {
+                let mut filtered = Array2::zeros((rows, numeric.ncols()).f());
+                for (mut to, from) in filtered.columns_mut().into_iter().zip(numeric.columns()) {
+                    let values = from.iter().enumerate().filter(|(i, _)| kept(*i)).map(|(_, v)| *v);
+                    to.iter_mut().zip(values).for_each(|(t, v)| *t = v);
+                }
+                filtered
             }
         };
+
+        // Summaries are the expensive part: all numeric features in parallel.
+        let summaries: Vec<Option<NumericSummary>> = (0..numeric.ncols())
+            .into_par_iter()
+            .map(|j| {
+                let column = numeric.column(j);
+                match column.as_slice() {
+                    Some(values) => summarize(values),
+                    None => summarize(&column.to_vec()),
+                }
+            })
+            .collect();
+
+        let header_names: Vec<String> = columns.iter().map(|c| c.name.clone()).collect();
+        let mut schema_columns = Vec::with_capacity(columns.len());
+        let mut indicator_columns: Vec<Vec<f64>> = Vec::new();
+        let mut categorical = Vec::new();
+        let mut target_info = None;
+        let mut weights = None;
+        let mut ids = Vec::new();
         let filter_codes = |v: &[u32]| -> Vec<u32> {
             match &keep {
                 None => v.to_vec(),
@@ -122,35 +153,7 @@ impl Dataset {
             }
         };
 
-        let header_names: Vec<String> = table.columns.iter().map(|c| c.name.clone()).collect();
-        let mut schema_columns = Vec::with_capacity(table.columns.len());
-        let mut numeric_columns: Vec<Vec<f64>> = Vec::new();
-        let mut indicator_columns: Vec<Vec<f64>> = Vec::new();
-        let mut categorical = Vec::new();
-        let mut target_info = None;
-        let mut weights = None;
-        let mut ids = Vec::new();
-
-        // Summaries are the expensive part: compute them for all numeric
-        // features in parallel.
-        let numeric_kept: Vec<Option<Vec<f64>>> = table
-            .columns
-            .par_iter()
-            .map(|c| match (&c.role, &c.values) {
-                (ColumnRole::Feature | ColumnRole::Weight, ColumnValues::Numeric(v)) => Some(filter_f64(v)),
-                _ => None,
-            })
-            .collect();
-        let summaries: Vec<_> = numeric_kept
-            .par_iter()
-            .zip(table.columns.par_iter())
-            .map(|(v, c)| match (v, c.role) {
-                (Some(v), ColumnRole::Feature) => summarize(v),
-                _ => None,
-            })
-            .collect();
-
-        for ((column, kept), summary) in table.columns.iter().zip(numeric_kept).zip(summaries) {
+        for column in &columns {
             let kind_source = Some(if column.kind_forced { KindSource::Declared } else { KindSource::Inferred });
             let mut entry = ColumnSchema {
                 name: column.name.clone(),
@@ -163,13 +166,15 @@ impl Dataset {
                 imputation: None,
             };
             match (column.role, &column.values) {
-                (ColumnRole::Feature, ColumnValues::Numeric(_)) => {
-                    let mut values = kept.unwrap_or_default();
+                (ColumnRole::Feature, ColumnValues::NumericFeature { index }) => {
                     entry.kind = Some(ColumnKind::Numeric);
                     entry.kind_source = kind_source;
-                    let Some(summary) = summary else {
+                    let Some(summary) = summaries[*index].clone() else {
                         return Err(Error::Malformed {
-                            at: Position { path, line: 2 },
+                            at: Position {
+                                path,
+                                line: column.facts.first_missing_line.unwrap_or(2),
+                            },
                             column: column.name.clone(),
                             message: "every value of this column is missing; exclude it with --exclude".to_string(),
                         });
@@ -188,6 +193,7 @@ impl Dataset {
                             )));
                         }
                         let median = summary.median;
+                        let mut values = numeric.column_mut(*index);
                         indicator_columns.push(values.iter().map(|v| f64::from(u8::from(v.is_nan()))).collect());
                         values.iter_mut().filter(|v| v.is_nan()).for_each(|v| *v = median);
                         entry.imputation = Some(Imputation::Median { value: median, indicator });
@@ -197,7 +203,6 @@ impl Dataset {
                         )));
                     }
                     entry.numeric = Some(summary);
-                    numeric_columns.push(values);
                 }
                 (ColumnRole::Feature, ColumnValues::Categorical { codes, levels }) => {
                     entry.kind = Some(ColumnKind::Categorical);
@@ -227,13 +232,12 @@ impl Dataset {
                 (ColumnRole::Target, ColumnValues::Categorical { codes, levels }) => {
                     target_info = Some((filter_codes(codes), levels.clone()));
                 }
-                (ColumnRole::Weight, ColumnValues::Numeric(_)) => weights = kept,
+                (ColumnRole::Weight, ColumnValues::Weights(values)) => {
+                    weights = Some(values.iter().enumerate().filter(|(i, _)| kept(*i)).map(|(_, w)| *w).collect::<Vec<f64>>())
+                }
                 (ColumnRole::Id, ColumnValues::Text(values)) => ids.push((
                     column.name.clone(),
-                    match &keep {
-                        None => values.clone(),
-                        Some(k) => values.iter().zip(k).filter(|(_, &k)| k).map(|(x, _)| x.clone()).collect(),
-                    },
+                    values.iter().enumerate().filter(|(i, _)| kept(*i)).map(|(_, x)| x.clone()).collect(),
                 )),
                 _ => {}
             }
@@ -245,8 +249,15 @@ impl Dataset {
         };
         let target = build_target(&path, &options.target, &target_codes, &classes, weights.as_deref(), options)?;
 
-        numeric_columns.extend(indicator_columns);
-        let numeric = row_major(&numeric_columns, rows);
+        if !indicator_columns.is_empty() {
+            let width = numeric.ncols();
+            let mut widened = Array2::zeros((rows, width + indicator_columns.len()).f());
+            widened.slice_mut(ndarray::s![.., ..width]).assign(&numeric);
+            for (k, indicator) in indicator_columns.iter().enumerate() {
+                widened.column_mut(width + k).iter_mut().zip(indicator).for_each(|(t, v)| *t = *v);
+            }
+            numeric = widened;
+        }
         let schema = Schema {
             columns: schema_columns,
             target,
@@ -349,22 +360,4 @@ fn build_target(
         positive,
         positive_rule,
     })
-}
-
-/// Interleaves columns into a row-major matrix, in parallel over row blocks.
-fn row_major(columns: &[Vec<f64>], rows: usize) -> Array2<f64> {
-    let width = columns.len();
-    let mut data = vec![0.0; rows * width];
-    if width > 0 {
-        const BLOCK: usize = 8192;
-        data.par_chunks_mut(BLOCK * width).enumerate().for_each(|(b, out)| {
-            let first = b * BLOCK;
-            for (r, row) in out.chunks_mut(width).enumerate() {
-                for (j, cell) in row.iter_mut().enumerate() {
-                    *cell = columns[j][first + r];
-                }
-            }
-        });
-    }
-    Array2::from_shape_vec((rows, width), data).unwrap_or_else(|_| Array2::zeros((rows, width)))
 }

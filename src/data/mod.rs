@@ -9,8 +9,10 @@
 //!
 //! This layer knows nothing of models.
 
+pub mod csv_chunk;
 pub mod csv_read;
 pub mod dataset;
+pub mod number;
 pub mod options;
 pub mod schema;
 pub mod suggest;

@@ -10,11 +10,12 @@
 
 use crate::data::schema::NumericSummary;
 
-const BUCKETS: usize = 1 << 14;
+const BUCKETS: usize = 1 << 12;
 
 /// Summarises the non-missing (non-NaN) values of a column; `None` when
 /// every value is missing.
 pub fn summarize(values: &[f64]) -> Option<NumericSummary> {
+    // Pass 1: count, sum and range.
     let mut count = 0usize;
     let mut sum = 0.0;
     let mut min = f64::INFINITY;
@@ -23,22 +24,33 @@ pub fn summarize(values: &[f64]) -> Option<NumericSummary> {
         if !v.is_nan() {
             count += 1;
             sum += v;
-            min = min.min(v);
-            max = max.max(v);
+            if v < min {
+                min = v;
+            }
+            if v > max {
+                max = v;
+            }
         }
     }
     if count == 0 {
         return None;
     }
     let rough_mean = sum / count as f64;
-    // Second pass about the first mean: the correction term keeps the
-    // result accurate when the mean is large against the spread.
+    // Pass 2: deviations about the first mean (the correction term keeps
+    // the result accurate when the mean is large against the spread), and
+    // the quantile histogram.
+    let buckets = Buckets::new(min, max);
+    let mut histogram = vec![0u32; BUCKETS];
+    let mut bucket_of = vec![u16::MAX; values.len()];
     let (mut deviation_sum, mut square_sum) = (0.0, 0.0);
-    for &v in values {
+    for (&v, bucket) in values.iter().zip(bucket_of.iter_mut()) {
         if !v.is_nan() {
             let d = v - rough_mean;
             deviation_sum += d;
             square_sum += d * d;
+            let b = buckets.of(v);
+            histogram[b] += 1;
+            *bucket = b as u16;
         }
     }
     let n = count as f64;
@@ -49,7 +61,14 @@ pub fn summarize(values: &[f64]) -> Option<NumericSummary> {
         0.0
     };
     let probabilities: Vec<f64> = (1..=9).map(|k| k as f64 / 10.0).chain([0.5]).collect();
-    let quantiles = quantiles_type7(values, count, min, max, &probabilities);
+    let ranks = type7_ranks(count, &probabilities);
+    // Pass 3: the values in the buckets that hold the wanted ranks.
+    let order = if max <= min {
+        vec![min; ranks.len()]
+    } else {
+        order_statistics(&histogram, &ranks, values.iter().zip(&bucket_of).map(|(&v, &b)| (usize::from(b), v)))
+    };
+    let quantiles = interpolate_type7(count, &probabilities, &order);
     Some(NumericSummary {
         count,
         mean,
@@ -61,18 +80,38 @@ pub fn summarize(values: &[f64]) -> Option<NumericSummary> {
     })
 }
 
-/// Type 7 quantiles (Hyndman & Fan 1996, "Sample quantiles in statistical
-/// packages", The American Statistician 50(4)): with h = (n − 1)p, the value
-/// x₍⌊h⌋₎ + (h − ⌊h⌋)(x₍⌊h⌋+1₎ − x₍⌊h⌋₎), order statistics 0-based. NaN
-/// values are ignored; `count`, `min` and `max` describe the others.
-pub fn quantiles_type7(values: &[f64], count: usize, min: f64, max: f64, probabilities: &[f64]) -> Vec<f64> {
-    let mut ranks: Vec<usize> = Vec::with_capacity(probabilities.len() * 2);
+/// Equal-width buckets between the minimum and the maximum; the map from
+/// value to bucket is monotone, so bucket order is value order.
+struct Buckets {
+    min: f64,
+    scale: f64,
+}
+
+impl Buckets {
+    fn new(min: f64, max: f64) -> Self {
+        let scale = if max > min { BUCKETS as f64 / (max - min) } else { 0.0 };
+        Buckets { min, scale }
+    }
+
+    #[inline]
+    fn of(&self, v: f64) -> usize {
+        (((v - self.min) * self.scale) as usize).min(BUCKETS - 1)
+    }
+}
+
+/// The 0-based order statistics needed for type 7 quantiles: ⌊h⌋ and ⌈h⌉
+/// for each probability, h = (n − 1)p.
+fn type7_ranks(count: usize, probabilities: &[f64]) -> Vec<usize> {
+    let mut ranks = Vec::with_capacity(probabilities.len() * 2);
     for &p in probabilities {
         let h = (count - 1) as f64 * p;
         ranks.push(h.floor() as usize);
         ranks.push((h.ceil() as usize).min(count - 1));
     }
-    let order = order_statistics(values, count, min, max, &ranks);
+    ranks
+}
+
+fn interpolate_type7(count: usize, probabilities: &[f64], order: &[f64]) -> Vec<f64> {
     probabilities
         .iter()
         .enumerate()
@@ -85,38 +124,47 @@ pub fn quantiles_type7(values: &[f64], count: usize, min: f64, max: f64, probabi
         .collect()
 }
 
-/// The values at the given 0-based ranks of the sorted non-NaN values.
-fn order_statistics(values: &[f64], count: usize, min: f64, max: f64, ranks: &[usize]) -> Vec<f64> {
-    if max <= min {
-        return vec![min; ranks.len()];
-    }
-    let scale = BUCKETS as f64 / (max - min);
-    let bucket = |v: f64| (((v - min) * scale) as usize).min(BUCKETS - 1);
-    let mut histogram = vec![0usize; BUCKETS];
-    for &v in values {
-        if !v.is_nan() {
-            histogram[bucket(v)] += 1;
+/// Type 7 quantiles (Hyndman & Fan 1996, "Sample quantiles in statistical
+/// packages", The American Statistician 50(4)): with h = (n − 1)p, the value
+/// x₍⌊h⌋₎ + (h − ⌊h⌋)(x₍⌊h⌋+1₎ − x₍⌊h⌋₎), order statistics 0-based. NaN
+/// values are ignored; `count`, `min` and `max` describe the others.
+pub fn quantiles_type7(values: &[f64], count: usize, min: f64, max: f64, probabilities: &[f64]) -> Vec<f64> {
+    let ranks = type7_ranks(count, probabilities);
+    let order = if max <= min {
+        vec![min; ranks.len()]
+    } else {
+        let buckets = Buckets::new(min, max);
+        let mut histogram = vec![0u32; BUCKETS];
+        for &v in values.iter().filter(|v| !v.is_nan()) {
+            histogram[buckets.of(v)] += 1;
         }
-    }
+        let tagged = values.iter().filter(|v| !v.is_nan()).map(|&v| (buckets.of(v), v));
+        order_statistics(&histogram, &ranks, tagged)
+    };
+    interpolate_type7(count, probabilities, &order)
+}
+
+/// The values at the given 0-based ranks, from the bucket histogram and
+/// the (bucket, value) pairs (pairs with a bucket out of range — missing
+/// values — are ignored).
+fn order_statistics(histogram: &[u32], ranks: &[usize], tagged: impl Iterator<Item = (usize, f64)>) -> Vec<f64> {
     // The first rank held by each bucket.
     let mut starts = vec![0usize; BUCKETS + 1];
     for b in 0..BUCKETS {
-        starts[b + 1] = starts[b] + histogram[b];
+        starts[b + 1] = starts[b] + histogram[b] as usize;
     }
-    debug_assert_eq!(starts[BUCKETS], count);
     let wanted_bucket = |rank: usize| starts.partition_point(|&s| s <= rank) - 1;
     let mut wanted = vec![false; BUCKETS];
     for &rank in ranks {
         wanted[wanted_bucket(rank)] = true;
     }
-    let mut gathered: Vec<(usize, f64)> = values
-        .iter()
-        .filter(|v| !v.is_nan())
-        .map(|&v| (bucket(v), v))
-        .filter(|(b, _)| wanted[*b])
-        .collect();
+    let mut gathered: Vec<(usize, f64)> = Vec::new();
+    for (b, v) in tagged {
+        if b < BUCKETS && wanted[b] {
+            gathered.push((b, v));
+        }
+    }
     gathered.sort_unstable_by(|a, b| a.0.cmp(&b.0).then(a.1.total_cmp(&b.1)));
-    // Offsets of each wanted bucket inside `gathered`.
     ranks
         .iter()
         .map(|&rank| {

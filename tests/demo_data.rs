@@ -1,0 +1,54 @@
+//! The committed demo data equals the generator's output for the default
+//! seed, and `baserate demo` gives the same bytes on every run.
+
+mod common;
+
+use baserate::demo::{generate, DemoSize, DEFAULT_SEED};
+
+#[test]
+fn committed_demo_data_matches_the_generator() {
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data");
+    for file in generate(DEFAULT_SEED, DemoSize::standard()) {
+        let committed = std::fs::read_to_string(root.join(file.path))
+            .unwrap_or_else(|e| panic!("demo-data/{}: {e} (regenerate with `cargo run --release -- demo --out demo-data`)", file.path));
+        assert!(committed == file.contents, "demo-data/{} differs from the generator's output; regenerate it", file.path);
+    }
+}
+
+#[test]
+fn demo_sizes_and_rates_are_as_documented() {
+    let files = generate(DEFAULT_SEED, DemoSize::standard());
+    let rows = |i: usize| files[i].contents.lines().count() - 1;
+    assert_eq!((rows(0), rows(1), rows(2), rows(3)), (5_000, 5_000, 5_000, 50_000));
+    let share = |text: &str, label: &str| {
+        text.lines().skip(1).filter(|l| l.ends_with(label)).count() as f64 / (text.lines().count() - 1) as f64
+    };
+    // Binomial sampling error at n = 5,000 and p = 0.10 is 0.0042; at
+    // n = 50,000 and p = 0.005 it is 0.0003. Allow four of them.
+    assert!((share(&files[0].contents, ",defaulted") - 0.10).abs() < 0.017);
+    assert!((share(&files[2].contents, ",defaulted") - 0.03).abs() < 0.01);
+    assert!((share(&files[3].contents, ",fraud") - 0.005).abs() < 0.0013);
+    assert!(!files[1].contents.lines().next().unwrap_or("").contains("outcome"), "labels are withheld");
+}
+
+#[test]
+fn the_demo_command_is_deterministic() {
+    let dir = common::temp_dir();
+    let run = |out: &str, seed: &str| {
+        let output = common::baserate(dir.path(), &["demo", "--out", out, "--seed", seed, "--rows", "300"]);
+        assert!(output.status.success(), "{}", String::from_utf8_lossy(&output.stderr));
+        String::from_utf8_lossy(&output.stdout).into_owned()
+    };
+    let first = run("a", "7");
+    let second = run("b", "7");
+    run("c", "8");
+    assert_eq!(first.replace("a/", ""), second.replace("b/", ""));
+    for path in ["lending/train.csv", "lending/new_portfolio.csv", "lending/new_portfolio_answers.csv", "payments/transactions.csv"] {
+        let a = std::fs::read(dir.path().join("a").join(path)).expect("a");
+        let b = std::fs::read(dir.path().join("b").join(path)).expect("b");
+        let c = std::fs::read(dir.path().join("c").join(path)).expect("c");
+        assert_eq!(a, b, "{path}: same seed, same bytes");
+        assert_ne!(a, c, "{path}: another seed, other data");
+    }
+    assert!(first.contains("decision support, not a decision"));
+}
