@@ -230,10 +230,7 @@ impl Error {
 
     /// Wraps an I/O error with the path it concerns.
     pub fn io(path: impl Into<String>, source: std::io::Error) -> Self {
-        Error::Io {
-            path: path.into(),
-            source,
-        }
+        Error::Io { path: path.into(), source }
     }
 }
 

@@ -165,7 +165,8 @@ fn usage_errors_exit_with_2() {
     let output = baserate(dir.path(), &["describe", "x.csv", "--target", "y", "--no-such-flag"]);
     assert_eq!(output.status.code(), Some(2));
     write(dir.path(), "data.csv", b"a,y\n1,0\n2,1\n");
-    let output = baserate(dir.path(), &["describe", "data.csv", "--target", "y", "--categorical", "a", "--numeric", "a"]);
+    let output =
+        baserate(dir.path(), &["describe", "data.csv", "--target", "y", "--categorical", "a", "--numeric", "a"]);
     assert_eq!(output.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&output.stderr).contains("'a' is named by both --categorical and --numeric"));
 }

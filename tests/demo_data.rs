@@ -9,9 +9,14 @@ use baserate::demo::{generate, DemoSize, DEFAULT_SEED};
 fn committed_demo_data_matches_the_generator() {
     let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data");
     for file in generate(DEFAULT_SEED, DemoSize::standard()) {
-        let committed = std::fs::read_to_string(root.join(file.path))
-            .unwrap_or_else(|e| panic!("demo-data/{}: {e} (regenerate with `cargo run --release -- demo --out demo-data`)", file.path));
-        assert!(committed == file.contents, "demo-data/{} differs from the generator's output; regenerate it", file.path);
+        let committed = std::fs::read_to_string(root.join(file.path)).unwrap_or_else(|e| {
+            panic!("demo-data/{}: {e} (regenerate with `cargo run --release -- demo --out demo-data`)", file.path)
+        });
+        assert!(
+            committed == file.contents,
+            "demo-data/{} differs from the generator's output; regenerate it",
+            file.path
+        );
     }
 }
 
@@ -43,7 +48,12 @@ fn the_demo_command_is_deterministic() {
     let second = run("b", "7");
     run("c", "8");
     assert_eq!(first.replace("a/", ""), second.replace("b/", ""));
-    for path in ["lending/train.csv", "lending/new_portfolio.csv", "lending/new_portfolio_answers.csv", "payments/transactions.csv"] {
+    for path in [
+        "lending/train.csv",
+        "lending/new_portfolio.csv",
+        "lending/new_portfolio_answers.csv",
+        "payments/transactions.csv",
+    ] {
         let a = std::fs::read(dir.path().join("a").join(path)).expect("a");
         let b = std::fs::read(dir.path().join("b").join(path)).expect("b");
         let c = std::fs::read(dir.path().join("c").join(path)).expect("c");

@@ -28,7 +28,8 @@ print(json.dumps({
 /// Random decimal text of the kinds found in real files: short and long
 /// significands, exponents, signs, leading zeros.
 fn random_number(rng: &mut Rng) -> String {
-    let digits = |rng: &mut Rng, n: u64| -> String { (0..n).map(|_| char::from(b'0' + (rng.next_u64() % 10) as u8)).collect() };
+    let digits =
+        |rng: &mut Rng, n: u64| -> String { (0..n).map(|_| char::from(b'0' + (rng.next_u64() % 10) as u8)).collect() };
     let sign = ["", "-", "+"][(rng.next_u64() % 3) as usize];
     let whole_len = rng.next_u64() % 12;
     let fraction_len = rng.next_u64() % 22;

@@ -49,12 +49,8 @@ pub fn workload_file(rows: usize) -> PathBuf {
     match shared_generator() {
         Some(generator) if python_has("numpy") => {
             eprintln!("generating {} with {}", path.display(), generator.display());
-            let status = Command::new("python3")
-                .arg(&generator)
-                .arg(rows.to_string())
-                .arg(&path)
-                .status()
-                .expect("run gen.py");
+            let status =
+                Command::new("python3").arg(&generator).arg(rows.to_string()).arg(&path).status().expect("run gen.py");
             assert!(status.success(), "gen.py failed");
         }
         _ => {
@@ -73,7 +69,19 @@ pub fn own_workload(rows: usize, seed: u64) -> String {
     let mut parameters = Rng::new(12345);
     let block = |rho: f64| -> Vec<Vec<f64>> {
         (0..D)
-            .map(|i| (0..D).map(|j| if i == j { 1.0 } else if i / 5 == j / 5 { rho } else { 0.0 }).collect())
+            .map(|i| {
+                (0..D)
+                    .map(|j| {
+                        if i == j {
+                            1.0
+                        } else if i / 5 == j / 5 {
+                            rho
+                        } else {
+                            0.0
+                        }
+                    })
+                    .collect()
+            })
             .collect()
     };
     let shift: Vec<f64> = (0..D).map(|_| 0.35 * parameters.normal()).collect();

@@ -56,9 +56,7 @@ pub fn parse_delimiter(text: &str) -> Result<u8> {
     match text {
         "tab" | "\\t" | "\t" => Ok(b'\t'),
         t if t.len() == 1 && t.is_ascii() => Ok(t.as_bytes()[0]),
-        t => Err(Error::Usage(format!(
-            "--delimiter takes one ASCII character or 'tab', not '{t}'"
-        ))),
+        t => Err(Error::Usage(format!("--delimiter takes one ASCII character or 'tab', not '{t}'"))),
     }
 }
 
@@ -100,7 +98,18 @@ mod tests {
     #[test]
     fn raw_arguments_become_options() {
         let w = Wrapper::parse_from([
-            "x", "--target", "y", "--id", "a,b", "--id", "c", "--delimiter", "tab", "--na", "-999,NA", "--missing",
+            "x",
+            "--target",
+            "y",
+            "--id",
+            "a,b",
+            "--id",
+            "c",
+            "--delimiter",
+            "tab",
+            "--na",
+            "-999,NA",
+            "--missing",
             "drop-rows",
         ]);
         let o = w.data.to_options().unwrap();

@@ -12,7 +12,7 @@ use crate::cli::Failure;
 use crate::data::{Dataset, MissingPolicy, ReadOptions};
 use crate::demo::{lending, payments, DemoSize, DEFAULT_SEED};
 use crate::report::table::{Align, Table};
-use crate::report::{count, percent, CAUTION};
+use crate::report::{count, percent, wrap, CAUTION};
 
 /// Monte-Carlo draws for the Bayes-error figures printed by the demo.
 const BAYES_ERROR_DRAWS: usize = 400_000;
@@ -64,34 +64,57 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
 
     let (lending_error, lending_se) =
         lending::bayes_error(lending::TRAINING_DEFAULT_RATE, BAYES_ERROR_DRAWS, args.seed);
-    let (new_error, new_se) =
-        lending::bayes_error(lending::NEW_PORTFOLIO_DEFAULT_RATE, BAYES_ERROR_DRAWS, args.seed);
+    let (new_error, new_se) = lending::bayes_error(lending::NEW_PORTFOLIO_DEFAULT_RATE, BAYES_ERROR_DRAWS, args.seed);
     let (payments_error, payments_se) = payments::bayes_error(payments::FRAUD_RATE, BAYES_ERROR_DRAWS, args.seed);
 
     let share = |d: &Dataset| {
         let t = &d.schema.target;
         t.class_mix()[t.positive_index()]
     };
-    println!(
-        "lending: {} training applications, default rate {} ({} defaults); the new portfolio's rate is withheld\n\
-         \x20        Bayes-optimal error of the true model: {:.4} ± {:.4} at the 10% training rate, {:.4} ± {:.4} at the new rate\n\
-         payments: {} transactions, fraud rate {} ({} frauds)\n\
-         \x20         Bayes-optimal error of the true model: {:.5} ± {:.5} (always saying 'genuine' errs 0.00500: rank and cost, not error rate, tell models apart)\n",
+    let events = |d: &Dataset| count(d.schema.target.counts[d.schema.target.positive_index()]);
+    let lending_text = format!(
+        "lending: {} training applications, default rate {} ({} defaults); the new portfolio's rate \
+         is withheld (the answers file holds it). Bayes-optimal error of the true model: {:.4} ± {:.4} \
+         at the {} training rate, {:.4} ± {:.4} at the new portfolio's {}.",
         count(lending.rows()),
         percent(share(&lending)),
-        count(lending.schema.target.counts[lending.schema.target.positive_index()]),
+        events(&lending),
         lending_error,
         lending_se,
+        percent(lending::TRAINING_DEFAULT_RATE),
         new_error,
         new_se,
+        percent(lending::NEW_PORTFOLIO_DEFAULT_RATE),
+    );
+    let payments_text = format!(
+        "payments: {} transactions, fraud rate {} ({} frauds). Bayes-optimal error of the true model: \
+         {:.5} ± {:.5}, against {:.5} for calling every transaction genuine: at this base rate the \
+         error rate hardly tells models apart; ranking, calibration and cost do.",
         count(payments_data.rows()),
         percent(share(&payments_data)),
-        count(payments_data.schema.target.counts[payments_data.schema.target.positive_index()]),
+        events(&payments_data),
         payments_error,
         payments_se,
+        payments::FRAUD_RATE,
     );
-    println!("(Bayes errors by Monte Carlo over {} draws of each true model; ± one standard error)", count(BAYES_ERROR_DRAWS));
-    println!("\nTry: baserate describe {} --target outcome --id application_id,application_month --missing impute", lending_training.display());
-    println!("\n{CAUTION}");
+    println!("{}\n", wrap(&lending_text, 100, 2));
+    println!("{}\n", wrap(&payments_text, 100, 2));
+    println!(
+        "{}\n",
+        wrap(
+            &format!(
+                "(Bayes errors by Monte Carlo over {} draws of each true model, ± one standard error; \
+                 the generating models are documented in the source, src/demo/.)",
+                count(BAYES_ERROR_DRAWS)
+            ),
+            100,
+            0
+        )
+    );
+    println!(
+        "Next: baserate describe {} --target outcome --id application_id,application_month --missing impute\n",
+        lending_training.display()
+    );
+    println!("{}", wrap(CAUTION, 100, 0));
     Ok(ExitCode::SUCCESS)
 }

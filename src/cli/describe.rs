@@ -124,13 +124,8 @@ pub fn render(path: &str, schema: &Schema, notices: &[String]) -> String {
                 number(s.max, 4)
             )
         } else if let Some(c) = &column.categorical {
-            let shown: Vec<String> = c
-                .levels
-                .iter()
-                .zip(&c.counts)
-                .take(6)
-                .map(|(l, n)| format!("{l} {}", count(*n)))
-                .collect();
+            let shown: Vec<String> =
+                c.levels.iter().zip(&c.counts).take(6).map(|(l, n)| format!("{l} {}", count(*n))).collect();
             let more = if c.levels.len() > 6 { format!(" (+{} more)", c.levels.len() - 6) } else { String::new() };
             format!("{} levels: {}{more}", c.levels.len(), shown.join(", "))
         } else {

@@ -25,8 +25,10 @@ pub struct Cli {
     pub command: Command,
 }
 
-/// The commands.
+/// The commands. (Each holds its parsed arguments; one lives per run, so
+/// their sizes do not matter.)
 #[derive(Debug, Subcommand)]
+#[allow(clippy::large_enum_variant)]
 pub enum Command {
     /// Generate the invented demo scenarios and run the job on them.
     Demo(demo::Args),

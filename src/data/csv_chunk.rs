@@ -77,11 +77,8 @@ pub(crate) struct NaMatcher {
 
 impl NaMatcher {
     pub(crate) fn new(tokens: &[String]) -> Self {
-        let tokens: Vec<Vec<u8>> = tokens
-            .iter()
-            .map(|t| t.trim().as_bytes().to_vec())
-            .filter(|t| !t.is_empty())
-            .collect();
+        let tokens: Vec<Vec<u8>> =
+            tokens.iter().map(|t| t.trim().as_bytes().to_vec()).filter(|t| !t.is_empty()).collect();
         let mut first_bytes = [false; 256];
         for token in &tokens {
             first_bytes[token[0] as usize] = true;
@@ -109,10 +106,7 @@ pub(crate) struct ParseContext<'a> {
 
 impl ParseContext<'_> {
     pub(crate) fn at(&self, line: u64) -> Position {
-        Position {
-            path: self.path.to_string(),
-            line,
-        }
+        Position { path: self.path.to_string(), line }
     }
 }
 
@@ -273,11 +267,7 @@ fn parse_quoted(sink: &mut RecordSink<'_, '_>, bytes: &[u8], first_line: u64) {
                 let line = e.position().map_or(first_line, |p| first_line + p.line() - 1);
                 sink.fail(
                     line,
-                    Error::Malformed {
-                        at: context.at(line),
-                        column: "(row)".to_string(),
-                        message: e.to_string(),
-                    },
+                    Error::Malformed { at: context.at(line), column: "(row)".to_string(), message: e.to_string() },
                 );
                 return;
             }
@@ -332,7 +322,8 @@ fn parse_plain(sink: &mut RecordSink<'_, '_>, bytes: &[u8], first_line: u64) {
                     position + used
                 }
                 None => {
-                    let end = memchr::memchr2(delimiter, b'\n', &bytes[position..]).map_or(bytes.len(), |o| position + o);
+                    let end =
+                        memchr::memchr2(delimiter, b'\n', &bytes[position..]).map_or(bytes.len(), |o| position + o);
                     if !sink.field(line, column, &bytes[position..end]) {
                         return;
                     }
@@ -378,11 +369,7 @@ impl RecordSink<'_, '_> {
     }
 
     fn ragged(&mut self, line: u64, found: usize) {
-        let error = Error::RaggedRow {
-            at: self.context.at(line),
-            expected: self.plan.len(),
-            found,
-        };
+        let error = Error::RaggedRow { at: self.context.at(line), expected: self.plan.len(), found };
         self.fail(line, error);
     }
 
@@ -459,10 +446,7 @@ impl RecordSink<'_, '_> {
                 let local = &mut self.out.categorical[slot];
                 if context.na.is_missing(field) {
                     if kind == Parse::Target {
-                        Some(Error::MissingTarget {
-                            at: context.at(line),
-                            column: context.names[column].clone(),
-                        })
+                        Some(Error::MissingTarget { at: context.at(line), column: context.names[column].clone() })
                     } else {
                         facts.missing += 1;
                         facts.first_missing_line.get_or_insert(line);

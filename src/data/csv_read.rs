@@ -25,8 +25,8 @@ use std::ops::Range;
 use ndarray::{Array2, ShapeBuilder};
 use rayon::prelude::*;
 
-pub use crate::data::csv_chunk::{ColumnFacts, MISSING_CODE};
 use crate::data::csv_chunk::{parse_chunk, slots, ChunkOut, NaMatcher, Parse, ParseContext};
+pub use crate::data::csv_chunk::{ColumnFacts, MISSING_CODE};
 use crate::data::options::ReadOptions;
 use crate::data::schema::ColumnRole;
 use crate::error::{Error, Position, Result};
@@ -125,12 +125,15 @@ pub fn read_bytes(path: &str, bytes: &[u8], options: &ReadOptions) -> Result<Rea
 
 /// [`read_bytes`] with a stated chunk size (tests use tiny chunks to show
 /// that chunking changes nothing).
-pub(crate) fn read_bytes_chunked(path: &str, bytes: &[u8], options: &ReadOptions, chunk_bytes: usize) -> Result<ReadTable> {
+pub(crate) fn read_bytes_chunked(
+    path: &str,
+    bytes: &[u8],
+    options: &ReadOptions,
+    chunk_bytes: usize,
+) -> Result<ReadTable> {
     let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
     if bytes.iter().all(|b| b.is_ascii_whitespace()) {
-        return Err(Error::EmptyFile {
-            path: path.to_string(),
-        });
+        return Err(Error::EmptyFile { path: path.to_string() });
     }
     let (names, data_start, data_first_line) = read_header(path, bytes, options.delimiter)?;
     let roles = settle_roles(path, &names, options)?;
@@ -153,19 +156,16 @@ pub(crate) fn read_bytes_chunked(path: &str, bytes: &[u8], options: &ReadOptions
     let data = &bytes[data_start..];
     let chunks = split_chunks(data, chunk_bytes);
     let (first_lines, capacities) = chunk_lines(data, &chunks, data_first_line);
-    let context = ParseContext {
-        path,
-        names: &names,
-        delimiter: options.delimiter,
-        na: NaMatcher::new(&options.na_tokens),
-    };
+    let context =
+        ParseContext { path, names: &names, delimiter: options.delimiter, na: NaMatcher::new(&options.na_tokens) };
 
     // The first chunk settles the kinds it shows, so that a file whose text
     // columns are not declared still needs only one parallel pass.
     if let (Some(range), Some(&capacity)) = (chunks.first(), capacities.first()) {
         let (_, width, _, _) = slots(&plan);
         let mut scratch = vec![0.0; capacity * width];
-        let first = parse_chunk(&context, &data[range.clone()], first_lines[0], &plan, column_slices(&mut scratch, capacity));
+        let first =
+            parse_chunk(&context, &data[range.clone()], first_lines[0], &plan, column_slices(&mut scratch, capacity));
         plan = first.plan;
     }
     let (mut outs, mut matrix) = parse_all(&context, data, &chunks, &first_lines, &capacities, &plan);
@@ -182,14 +182,8 @@ pub(crate) fn read_bytes_chunked(path: &str, bytes: &[u8], options: &ReadOptions
     for (column, kind) in final_plan.iter().enumerate() {
         if let Parse::Numeric { .. } = kind {
             if let Some((line, value)) = outs.iter().find_map(|o| o.facts[column].first_non_finite.clone()) {
-                problems.push((
-                    line,
-                    Error::NonFiniteValue {
-                        at: context.at(line),
-                        column: names[column].clone(),
-                        value,
-                    },
-                ));
+                problems
+                    .push((line, Error::NonFiniteValue { at: context.at(line), column: names[column].clone(), value }));
             }
         }
     }
@@ -199,18 +193,11 @@ pub(crate) fn read_bytes_chunked(path: &str, bytes: &[u8], options: &ReadOptions
 
     let rows: usize = outs.iter().map(|o| o.rows).sum();
     if rows == 0 {
-        return Err(Error::HeaderOnly {
-            path: path.to_string(),
-        });
+        return Err(Error::HeaderOnly { path: path.to_string() });
     }
     let numeric = compact(&mut matrix, &capacities, &outs, rows);
     let columns = assemble(&names, &roles, &plan, outs);
-    Ok(ReadTable {
-        path: path.to_string(),
-        rows,
-        columns,
-        numeric,
-    })
+    Ok(ReadTable { path: path.to_string(), rows, columns, numeric })
 }
 
 /// The plan after a pass: columns any chunk found to hold text are
@@ -272,7 +259,7 @@ fn parse_all(
 /// empty lines) and returns the matrix of `rows` rows.
 fn compact(matrix: &mut Vec<f64>, capacities: &[usize], outs: &[ChunkOut], rows: usize) -> Array2<f64> {
     let total: usize = capacities.iter().sum();
-    let width = if total == 0 { 0 } else { matrix.len() / total };
+    let width = matrix.len().checked_div(total).unwrap_or(0);
     if rows != total {
         let mut destination = 0;
         for column in 0..width {
@@ -291,29 +278,15 @@ fn compact(matrix: &mut Vec<f64>, capacities: &[usize], outs: &[ChunkOut], rows:
 /// Reads the header record; returns the names, the byte offset where data
 /// starts and the line number of the first data line.
 fn read_header(path: &str, bytes: &[u8], delimiter: u8) -> Result<(Vec<String>, usize, u64)> {
-    let mut reader = csv::ReaderBuilder::new()
-        .has_headers(false)
-        .delimiter(delimiter)
-        .flexible(true)
-        .from_reader(bytes);
+    let mut reader =
+        csv::ReaderBuilder::new().has_headers(false).delimiter(delimiter).flexible(true).from_reader(bytes);
     let mut record = csv::ByteRecord::new();
-    let header_at = Position {
-        path: path.to_string(),
-        line: 1,
-    };
+    let header_at = Position { path: path.to_string(), line: 1 };
     match reader.read_byte_record(&mut record) {
         Ok(true) => {}
-        Ok(false) => {
-            return Err(Error::EmptyFile {
-                path: path.to_string(),
-            })
-        }
+        Ok(false) => return Err(Error::EmptyFile { path: path.to_string() }),
         Err(e) => {
-            return Err(Error::Malformed {
-                at: header_at,
-                column: "(header)".to_string(),
-                message: e.to_string(),
-            })
+            return Err(Error::Malformed { at: header_at, column: "(header)".to_string(), message: e.to_string() })
         }
     }
     let mut names = Vec::with_capacity(record.len());
@@ -328,18 +301,10 @@ fn read_header(path: &str, bytes: &[u8], delimiter: u8) -> Result<(Vec<String>, 
             .trim()
             .to_string();
         if name.is_empty() {
-            return Err(Error::EmptyColumnName {
-                at: header_at,
-                position: i + 1,
-            });
+            return Err(Error::EmptyColumnName { at: header_at, position: i + 1 });
         }
         if let Some(&first) = seen.get(&name) {
-            return Err(Error::DuplicateColumn {
-                at: header_at,
-                column: name,
-                first: first + 1,
-                second: i + 1,
-            });
+            return Err(Error::DuplicateColumn { at: header_at, column: name, first: first + 1, second: i + 1 });
         }
         seen.insert(name.clone(), i);
         names.push(name);
@@ -356,11 +321,7 @@ enum ForcedKind {
 
 /// Turns the role and kind options into one (role, forced kind) per column,
 /// checking every named column exists and has one role and one kind.
-fn settle_roles(
-    path: &str,
-    names: &[String],
-    options: &ReadOptions,
-) -> Result<Vec<(ColumnRole, Option<ForcedKind>)>> {
+fn settle_roles(path: &str, names: &[String], options: &ReadOptions) -> Result<Vec<(ColumnRole, Option<ForcedKind>)>> {
     let mut roles: Vec<Option<(ColumnRole, &'static str)>> = vec![None; names.len()];
     let mut kinds: Vec<Option<(ForcedKind, &'static str)>> = vec![None; names.len()];
     let find = |flag: &str, column: &str| -> Result<usize> {
@@ -374,13 +335,11 @@ fn settle_roles(
     let mut assign_role = |flag: &'static str, column: &str, role: ColumnRole| -> Result<()> {
         let i = find(flag, column)?;
         match roles[i] {
-            Some((_, first)) if first != flag || role != ColumnRole::Excluded => {
-                Err(Error::ConflictingRoles {
-                    column: column.to_string(),
-                    first: first.to_string(),
-                    second: flag.to_string(),
-                })
-            }
+            Some((_, first)) if first != flag || role != ColumnRole::Excluded => Err(Error::ConflictingRoles {
+                column: column.to_string(),
+                first: first.to_string(),
+                second: flag.to_string(),
+            }),
             _ => {
                 roles[i] = Some((role, flag));
                 Ok(())
@@ -429,12 +388,7 @@ fn settle_roles(
     Ok(roles
         .into_iter()
         .zip(kinds)
-        .map(|(role, kind)| {
-            (
-                role.map_or(ColumnRole::Feature, |(r, _)| r),
-                kind.map(|(k, _)| k),
-            )
-        })
+        .map(|(role, kind)| (role.map_or(ColumnRole::Feature, |(r, _)| r), kind.map(|(k, _)| k)))
         .collect())
 }
 
@@ -485,21 +439,15 @@ pub(crate) fn split_chunks(data: &[u8], target: usize) -> Vec<std::ops::Range<us
 /// The line number each chunk starts on, and the most records it can hold
 /// (its newlines, plus one when it does not end with a newline).
 fn chunk_lines(data: &[u8], chunks: &[Range<usize>], data_first_line: u64) -> (Vec<u64>, Vec<usize>) {
-    let counts: Vec<usize> = chunks
-        .par_iter()
-        .map(|r| memchr::memchr_iter(b'\n', &data[r.clone()]).count())
-        .collect();
+    let counts: Vec<usize> = chunks.par_iter().map(|r| memchr::memchr_iter(b'\n', &data[r.clone()]).count()).collect();
     let mut lines = Vec::with_capacity(chunks.len());
     let mut line = data_first_line;
     for &count in &counts {
         lines.push(line);
         line += count as u64;
     }
-    let capacities = counts
-        .iter()
-        .zip(chunks)
-        .map(|(&count, r)| count + usize::from(data[r.end - 1] != b'\n'))
-        .collect();
+    let capacities =
+        counts.iter().zip(chunks).map(|(&count, r)| count + usize::from(data[r.end - 1] != b'\n')).collect();
     (lines, capacities)
 }
 
@@ -525,10 +473,8 @@ fn assemble(
             Parse::Numeric { .. } => ColumnValues::NumericFeature { index: slot },
             Parse::Weight => ColumnValues::Weights(outs.iter().flat_map(|o| o.weights.iter().copied()).collect()),
             Parse::Categorical | Parse::Target => {
-                let mut all: Vec<&str> = outs
-                    .iter()
-                    .flat_map(|o| o.categorical[slot].levels.iter().map(String::as_str))
-                    .collect();
+                let mut all: Vec<&str> =
+                    outs.iter().flat_map(|o| o.categorical[slot].levels.iter().map(String::as_str)).collect();
                 all.sort_unstable();
                 all.dedup();
                 let levels: Vec<String> = all.iter().map(|s| s.to_string()).collect();
@@ -592,7 +538,9 @@ mod tests {
 
     #[test]
     fn tolerates_bom_quotes_and_crlf() {
-        let table = read_bytes("t.csv", b"\xEF\xBB\xBFa,\"b c\",y\r\n\"1\",\"x, \"\"q\"\"\",0\r\n2,z,1\r\n", &options()).unwrap();
+        let table =
+            read_bytes("t.csv", b"\xEF\xBB\xBFa,\"b c\",y\r\n\"1\",\"x, \"\"q\"\"\",0\r\n2,z,1\r\n", &options())
+                .unwrap();
         assert_eq!(table.columns[0].name, "a");
         assert_eq!(table.columns[1].name, "b c");
         match &table.columns[1].values {

@@ -65,27 +65,17 @@ impl Dataset {
     /// Builds the dataset from a table as read: applies the missing-value
     /// policy, checks the target, and summarises every column.
     pub fn from_table(table: ReadTable, options: &ReadOptions) -> Result<(Dataset, Vec<DataNotice>)> {
-        let ReadTable {
-            path,
-            rows: rows_read,
-            columns,
-            numeric,
-        } = table;
+        let ReadTable { path, rows: rows_read, columns, numeric } = table;
         let mut notices = Vec::new();
         let features: Vec<&ReadColumn> = columns.iter().filter(|c| c.role == ColumnRole::Feature).collect();
 
         // Rows to keep under the policy (None: all of them).
         let keep: Option<Vec<bool>> = match options.missing {
             MissingPolicy::Error => {
-                if let Some((line, column)) = features
-                    .iter()
-                    .filter_map(|c| c.facts.first_missing_line.map(|l| (l, c.name.clone())))
-                    .min()
+                if let Some((line, column)) =
+                    features.iter().filter_map(|c| c.facts.first_missing_line.map(|l| (l, c.name.clone()))).min()
                 {
-                    return Err(Error::MissingValue {
-                        at: Position { path, line },
-                        column,
-                    });
+                    return Err(Error::MissingValue { at: Position { path, line }, column });
                 }
                 None
             }
@@ -171,10 +161,7 @@ impl Dataset {
                     entry.kind_source = kind_source;
                     let Some(summary) = summaries[*index].clone() else {
                         return Err(Error::Malformed {
-                            at: Position {
-                                path,
-                                line: column.facts.first_missing_line.unwrap_or(2),
-                            },
+                            at: Position { path, line: column.facts.first_missing_line.unwrap_or(2) },
                             column: column.name.clone(),
                             message: "every value of this column is missing; exclude it with --exclude".to_string(),
                         });
@@ -233,7 +220,8 @@ impl Dataset {
                     target_info = Some((filter_codes(codes), levels.clone()));
                 }
                 (ColumnRole::Weight, ColumnValues::Weights(values)) => {
-                    weights = Some(values.iter().enumerate().filter(|(i, _)| kept(*i)).map(|(_, w)| *w).collect::<Vec<f64>>())
+                    weights =
+                        Some(values.iter().enumerate().filter(|(i, _)| kept(*i)).map(|(_, w)| *w).collect::<Vec<f64>>())
                 }
                 (ColumnRole::Id, ColumnValues::Text(values)) => ids.push((
                     column.name.clone(),
@@ -266,17 +254,7 @@ impl Dataset {
             rows,
             rows_dropped,
         };
-        Ok((
-            Dataset {
-                schema,
-                numeric,
-                categorical,
-                target: target_codes,
-                weights,
-                ids,
-            },
-            notices,
-        ))
+        Ok((Dataset { schema, numeric, categorical, target: target_codes, weights, ids }, notices))
     }
 }
 

@@ -55,11 +55,8 @@ pub fn summarize(values: &[f64]) -> Option<NumericSummary> {
     }
     let n = count as f64;
     let mean = rough_mean + deviation_sum / n;
-    let variance = if count > 1 {
-        ((square_sum - deviation_sum * deviation_sum / n) / (n - 1.0)).max(0.0)
-    } else {
-        0.0
-    };
+    let variance =
+        if count > 1 { ((square_sum - deviation_sum * deviation_sum / n) / (n - 1.0)).max(0.0) } else { 0.0 };
     let probabilities: Vec<f64> = (1..=9).map(|k| k as f64 / 10.0).chain([0.5]).collect();
     let ranks = type7_ranks(count, &probabilities);
     // Pass 3: the values in the buckets that hold the wanted ranks.

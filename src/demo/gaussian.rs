@@ -18,9 +18,8 @@ impl Gaussian {
     /// not positive definite.
     pub fn new(mean: &[f64], std_dev: &[f64], correlation: &[&[f64]]) -> Option<Gaussian> {
         let d = mean.len();
-        let covariance: Vec<Vec<f64>> = (0..d)
-            .map(|i| (0..d).map(|j| correlation[i][j] * std_dev[i] * std_dev[j]).collect())
-            .collect();
+        let covariance: Vec<Vec<f64>> =
+            (0..d).map(|i| (0..d).map(|j| correlation[i][j] * std_dev[i] * std_dev[j]).collect()).collect();
         let mut factor = vec![vec![0.0; d]; d];
         for i in 0..d {
             for j in 0..=i {
@@ -37,20 +36,14 @@ impl Gaussian {
             }
         }
         let log_det = 2.0 * (0..d).map(|i| factor[i][i].ln()).sum::<f64>();
-        Some(Gaussian {
-            mean: mean.to_vec(),
-            factor,
-            log_det,
-        })
+        Some(Gaussian { mean: mean.to_vec(), factor, log_det })
     }
 
     /// One draw: mean + L·z with z standard normal.
     pub fn sample(&self, rng: &mut Rng) -> Vec<f64> {
         let d = self.mean.len();
         let z: Vec<f64> = (0..d).map(|_| rng.normal()).collect();
-        (0..d)
-            .map(|i| self.mean[i] + (0..=i).map(|k| self.factor[i][k] * z[k]).sum::<f64>())
-            .collect()
+        (0..d).map(|i| self.mean[i] + (0..=i).map(|k| self.factor[i][k] * z[k]).sum::<f64>()).collect()
     }
 
     /// log N(x; mean, Σ) = −½(d·ln 2π + ln|Σ| + ‖L⁻¹(x − mean)‖²).

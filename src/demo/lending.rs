@@ -51,15 +51,10 @@ pub const LATENT_CORRELATION: [[f64; 5]; 5] = [
     [0.45, 0.25, 0.10, 0.05, 1.0],
 ];
 /// `channel` levels and their probabilities given repaid / defaulted.
-pub const CHANNEL: (&[&str], [&[f64]; 2]) = (
-    &["branch", "broker", "online"],
-    [&[0.35, 0.25, 0.40], &[0.25, 0.40, 0.35]],
-);
+pub const CHANNEL: (&[&str], [&[f64]; 2]) =
+    (&["branch", "broker", "online"], [&[0.35, 0.25, 0.40], &[0.25, 0.40, 0.35]]);
 /// `housing` levels and their probabilities given repaid / defaulted.
-pub const HOUSING: (&[&str], [&[f64]; 2]) = (
-    &["mortgage", "own", "rent"],
-    [&[0.45, 0.25, 0.30], &[0.35, 0.15, 0.50]],
-);
+pub const HOUSING: (&[&str], [&[f64]; 2]) = (&["mortgage", "own", "rent"], [&[0.45, 0.25, 0.30], &[0.35, 0.15, 0.50]]);
 /// `purpose` levels and their probabilities given repaid / defaulted.
 pub const PURPOSE: (&[&str], [&[f64]; 2]) = (
     &["car", "debt_consolidation", "home_improvement", "other"],
@@ -112,11 +107,7 @@ fn draw(rng: &mut Rng, models: &[Gaussian; 2], default_rate: f64) -> Application
     let k = usize::from(defaulted);
     let latent = models[k].sample(rng);
     let categories = [rng.choose(CHANNEL.1[k]), rng.choose(HOUSING.1[k]), rng.choose(PURPOSE.1[k])];
-    Application {
-        latent,
-        categories,
-        defaulted,
-    }
+    Application { latent, categories, defaulted }
 }
 
 fn logistic(z: f64) -> f64 {
@@ -156,16 +147,9 @@ pub fn bayes_error(default_rate: f64, draws: usize, seed: u64) -> (f64, f64) {
 const HEADER: &str = "application_id,application_month,channel,housing,purpose,income,debt_to_income,revolving_utilisation,months_at_address,amount_requested";
 
 fn write_row(out: &mut String, rng: &mut Rng, id: &str, month: &str, a: &Application) {
-    let housing = if rng.bernoulli(HOUSING_MISSING_RATE) {
-        ""
-    } else {
-        HOUSING.0[a.categories[1]]
-    };
-    let months = if rng.bernoulli(MONTHS_MISSING_RATE) {
-        String::new()
-    } else {
-        format!("{}", a.latent[3].exp().floor())
-    };
+    let housing = if rng.bernoulli(HOUSING_MISSING_RATE) { "" } else { HOUSING.0[a.categories[1]] };
+    let months =
+        if rng.bernoulli(MONTHS_MISSING_RATE) { String::new() } else { format!("{}", a.latent[3].exp().floor()) };
     let z = &a.latent;
     let _ = write!(
         out,
@@ -182,11 +166,7 @@ fn write_row(out: &mut String, rng: &mut Rng, id: &str, month: &str, a: &Applica
 impl Lending {
     /// The committed demo size with the given seed.
     pub fn standard(seed: u64) -> Self {
-        Lending {
-            seed,
-            training_rows: 5_000,
-            new_rows: 5_000,
-        }
+        Lending { seed, training_rows: 5_000, new_rows: 5_000 }
     }
 
     /// Generates the three files.
@@ -211,11 +191,7 @@ impl Lending {
             new_portfolio.push('\n');
             let _ = writeln!(answers, "{id},{}", if a.defaulted { "defaulted" } else { "repaid" });
         }
-        LendingFiles {
-            training,
-            new_portfolio,
-            answers,
-        }
+        LendingFiles { training, new_portfolio, answers }
     }
 }
 

@@ -49,34 +49,19 @@ pub struct DemoSize {
 impl DemoSize {
     /// The committed size: 5,000 + 5,000 lending rows, 50,000 payments rows.
     pub fn standard() -> Self {
-        DemoSize {
-            lending_training: 5_000,
-            lending_new: 5_000,
-            payments: 50_000,
-        }
+        DemoSize { lending_training: 5_000, lending_new: 5_000, payments: 50_000 }
     }
 
     /// Every file gets `rows` rows (for benchmarks).
     pub fn uniform(rows: usize) -> Self {
-        DemoSize {
-            lending_training: rows,
-            lending_new: rows,
-            payments: rows,
-        }
+        DemoSize { lending_training: rows, lending_new: rows, payments: rows }
     }
 }
 
 /// Generates every demo file for a seed and size.
 pub fn generate(seed: u64, size: DemoSize) -> Vec<DemoFile> {
     let (lending_files, payments_file) = rayon::join(
-        || {
-            lending::Lending {
-                seed,
-                training_rows: size.lending_training,
-                new_rows: size.lending_new,
-            }
-            .generate()
-        },
+        || lending::Lending { seed, training_rows: size.lending_training, new_rows: size.lending_new }.generate(),
         || payments::Payments { seed, rows: size.payments }.generate(),
     );
     vec![

@@ -38,10 +38,8 @@ use crate::demo::rng::Rng;
 pub const FRAUD_RATE: f64 = 0.005;
 
 /// `entry_mode` levels and their probabilities given genuine / fraud.
-pub const ENTRY_MODE: (&[&str], [&[f64]; 2]) = (
-    &["manual_entry", "stored_card", "wallet"],
-    [&[0.25, 0.55, 0.20], &[0.65, 0.20, 0.15]],
-);
+pub const ENTRY_MODE: (&[&str], [&[f64]; 2]) =
+    (&["manual_entry", "stored_card", "wallet"], [&[0.25, 0.55, 0.20], &[0.65, 0.20, 0.15]]);
 /// `merchant_category` levels and their probabilities given genuine / fraud.
 pub const MERCHANT_CATEGORY: (&[&str], [&[f64]; 2]) = (
     &["digital_goods", "electronics", "fashion", "groceries", "travel"],
@@ -99,15 +97,7 @@ fn draw(rng: &mut Rng, sessions: &[Gaussian; 2], fraud_rate: f64) -> Transaction
     let session = sessions[k].sample(rng);
     let device_txn = rng.poisson(DEVICE_RATE[k]);
     let categories = [rng.choose(ENTRY_MODE.1[k]), rng.choose(MERCHANT_CATEGORY.1[k])];
-    Transaction {
-        fraud,
-        log_amount,
-        log_account_age,
-        amount_vs_usual,
-        session,
-        device_txn,
-        categories,
-    }
+    Transaction { fraud, log_amount, log_account_age, amount_vs_usual, session, device_txn, categories }
 }
 
 fn log_poisson(k: u32, lambda: f64) -> f64 {

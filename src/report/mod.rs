@@ -10,6 +10,27 @@ affect people: fair-lending, anti-discrimination, adverse-action and model-gover
 A model trained only on approved applications inherits their selection bias, which baserate does not correct. \
 Defer to local law and your institution's licensed practice.";
 
+/// Wraps `text` at word boundaries to lines of at most `width` characters,
+/// every line after the first indented by `indent` spaces.
+pub fn wrap(text: &str, width: usize, indent: usize) -> String {
+    let mut out = String::new();
+    let mut line_length = 0;
+    for word in text.split_whitespace() {
+        let length = word.chars().count();
+        if line_length > 0 && line_length + 1 + length > width {
+            out.push('\n');
+            out.push_str(&" ".repeat(indent));
+            line_length = indent;
+        } else if line_length > 0 {
+            out.push(' ');
+            line_length += 1;
+        }
+        out.push_str(word);
+        line_length += length;
+    }
+    out
+}
+
 /// A whole number with thousands separators: 1234567 → "1,234,567".
 pub fn count(n: usize) -> String {
     let digits = n.to_string();
@@ -54,6 +75,7 @@ mod tests {
 
     #[test]
     fn formats() {
+        assert_eq!(wrap("aa bb cc dd", 5, 2), "aa bb\n  cc\n  dd");
         assert_eq!(count(0), "0");
         assert_eq!(count(999), "999");
         assert_eq!(count(1000), "1,000");

@@ -67,7 +67,8 @@ impl Table {
         };
         let mut out = line(&self.headers);
         out.push('\n');
-        out.push_str(&"-".repeat(widths.iter().sum::<usize>() + 2 * widths.len().saturating_sub(1)));
+        // The rule spans the table, up to 100 columns.
+        out.push_str(&"-".repeat((widths.iter().sum::<usize>() + 2 * widths.len().saturating_sub(1)).min(100)));
         out.push('\n');
         for row in &self.rows {
             out.push_str(&line(row));

@@ -17,11 +17,7 @@ pub fn close(a: f64, b: f64, relative: f64) -> bool {
 
 /// Runs the `baserate` binary with `args` in `dir`.
 pub fn baserate(dir: &Path, args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_baserate"))
-        .args(args)
-        .current_dir(dir)
-        .output()
-        .expect("run baserate")
+    Command::new(env!("CARGO_BIN_EXE_baserate")).args(args).current_dir(dir).output().expect("run baserate")
 }
 
 /// A fresh temporary directory.
