@@ -129,19 +129,10 @@ fn log_likelihood_ratio(models: &[Gaussian; 2], a: &Application) -> f64 {
 /// under the true model, with its standard error.
 pub fn bayes_error(default_rate: f64, draws: usize, seed: u64) -> (f64, f64) {
     let models = class_models();
-    let mut rng = Rng::new(seed);
-    let prior_log_odds = (default_rate / (1.0 - default_rate)).ln();
-    let (mut sum, mut square_sum) = (0.0, 0.0);
-    for _ in 0..draws {
-        let a = draw(&mut rng, &models, default_rate);
-        let p = logistic(prior_log_odds + log_likelihood_ratio(&models, &a));
-        let error = p.min(1.0 - p);
-        sum += error;
-        square_sum += error * error;
-    }
-    let n = draws as f64;
-    let mean = sum / n;
-    (mean, ((square_sum / n - mean * mean).max(0.0) / n).sqrt())
+    crate::demo::bayes_error_by_simulation(default_rate, draws, seed, |rng| {
+        let a = draw(rng, &models, default_rate);
+        log_likelihood_ratio(&models, &a)
+    })
 }
 
 const HEADER: &str = "application_id,application_month,channel,housing,purpose,income,debt_to_income,revolving_utilisation,months_at_address,amount_requested";

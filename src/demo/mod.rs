@@ -24,6 +24,31 @@ pub fn stream_seed(seed: u64, stream: u64) -> u64 {
     rng::Rng::new(seed ^ stream.wrapping_mul(0x9E37_79B9_7F4A_7C15)).next_u64()
 }
 
+/// Monte-Carlo estimate of a scenario's Bayes-optimal error rate and its
+/// standard error: the mean over `draws` rows of min(p, 1 − p), p the true
+/// posterior of the event class. `log_likelihood_ratio` draws one row (label
+/// first, at the given base rate) and returns log p(x | event) − log p(x |
+/// other) under the true model.
+pub fn bayes_error_by_simulation(
+    base_rate: f64,
+    draws: usize,
+    seed: u64,
+    mut log_likelihood_ratio: impl FnMut(&mut rng::Rng) -> f64,
+) -> (f64, f64) {
+    let mut rng = rng::Rng::new(seed);
+    let prior_log_odds = (base_rate / (1.0 - base_rate)).ln();
+    let (mut sum, mut square_sum) = (0.0, 0.0);
+    for _ in 0..draws {
+        let p = 1.0 / (1.0 + (-(prior_log_odds + log_likelihood_ratio(&mut rng))).exp());
+        let error = p.min(1.0 - p);
+        sum += error;
+        square_sum += error * error;
+    }
+    let n = draws as f64;
+    let mean = sum / n;
+    (mean, ((square_sum / n - mean * mean).max(0.0) / n).sqrt())
+}
+
 /// One generated file: its path relative to the demo folder and its text.
 #[derive(Debug, Clone)]
 pub struct DemoFile {

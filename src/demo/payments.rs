@@ -125,19 +125,10 @@ fn log_likelihood_ratio(sessions: &[Gaussian; 2], t: &Transaction) -> f64 {
 /// true posterior over draws) and its standard error.
 pub fn bayes_error(fraud_rate: f64, draws: usize, seed: u64) -> (f64, f64) {
     let sessions = session_models();
-    let mut rng = Rng::new(seed);
-    let prior_log_odds = (fraud_rate / (1.0 - fraud_rate)).ln();
-    let (mut sum, mut square_sum) = (0.0, 0.0);
-    for _ in 0..draws {
-        let t = draw(&mut rng, &sessions, fraud_rate);
-        let p = 1.0 / (1.0 + (-(prior_log_odds + log_likelihood_ratio(&sessions, &t))).exp());
-        let error = p.min(1.0 - p);
-        sum += error;
-        square_sum += error * error;
-    }
-    let n = draws as f64;
-    let mean = sum / n;
-    (mean, ((square_sum / n - mean * mean).max(0.0) / n).sqrt())
+    crate::demo::bayes_error_by_simulation(fraud_rate, draws, seed, |rng| {
+        let t = draw(rng, &sessions, fraud_rate);
+        log_likelihood_ratio(&sessions, &t)
+    })
 }
 
 impl Payments {
