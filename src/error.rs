@@ -198,6 +198,90 @@ pub enum Error {
         classes: Vec<String>,
     },
 
+    /// A prior specification is invalid (a usage error).
+    #[error("invalid prior: {0}")]
+    InvalidPrior(String),
+
+    /// A covariance matrix is singular: constant or collinear columns, or a
+    /// class with too few rows.
+    #[error("the {family} fit failed: the covariance {whose} is singular (columns involved: {}); {hint}", .columns.join(", "))]
+    SingularCovariance {
+        /// The family being fitted.
+        family: String,
+        /// "of class 'X'" or "pooled over the classes".
+        whose: String,
+        /// The columns involved.
+        columns: Vec<String>,
+        /// What to do about it.
+        hint: String,
+    },
+
+    /// A class has too few rows for the family.
+    #[error("the {family} fit failed: class '{class}' has {rows} rows with positive weight, and needs at least {needed}; {hint}")]
+    TooFewRows {
+        /// The family being fitted.
+        family: String,
+        /// The class.
+        class: String,
+        /// Its rows.
+        rows: usize,
+        /// The minimum.
+        needed: usize,
+        /// What to do about it.
+        hint: String,
+    },
+
+    /// A fit failed for a reason stated in the message.
+    #[error("the {family} fit failed: {message}")]
+    FitFailed {
+        /// The family being fitted.
+        family: String,
+        /// What went wrong.
+        message: String,
+    },
+
+    /// A model file is unreadable, corrupt, or from a newer version.
+    #[error("{path}: {message}")]
+    ModelFile {
+        /// The file.
+        path: String,
+        /// What is wrong with it.
+        message: String,
+    },
+
+    /// A data file does not match the model's schema.
+    #[error("{path}: {message}")]
+    SchemaMismatch {
+        /// The data file.
+        path: String,
+        /// What does not match.
+        message: String,
+    },
+
+    /// A file to score has a category the training data never had.
+    #[error("{at}, column '{column}': level '{level}' was not in the training data (the model knows {}); fix the value, or refit with it in the training data", .known.join(", "))]
+    UnseenCategory {
+        /// Where it first appears.
+        at: Position,
+        /// The column.
+        column: String,
+        /// The unseen value.
+        level: String,
+        /// The levels the model knows.
+        known: Vec<String>,
+    },
+
+    /// A file to score has a missing value the model cannot fill.
+    #[error("{at}, column '{column}': the value is missing, and {reason}")]
+    UnfillableMissing {
+        /// Where it first appears.
+        at: Position,
+        /// The column.
+        column: String,
+        /// Why it cannot be filled.
+        reason: String,
+    },
+
     /// An argument value is invalid (a usage error).
     #[error("{0}")]
     Usage(String),
@@ -223,7 +307,7 @@ impl Error {
     /// 2 for usage errors, 1 for data and model errors.
     pub fn exit_code(&self) -> u8 {
         match self {
-            Error::Usage(_) | Error::ConflictingRoles { .. } => 2,
+            Error::Usage(_) | Error::ConflictingRoles { .. } | Error::InvalidPrior(_) => 2,
             _ => 1,
         }
     }

@@ -12,6 +12,8 @@ pub mod cli;
 pub mod data;
 pub mod demo;
 pub mod error;
+pub mod io;
+pub mod model;
 pub mod report;
 
 pub use error::{Error, Result};

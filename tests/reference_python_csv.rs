@@ -79,7 +79,7 @@ fn agrees_with_python_csv_and_float() {
     }
     // baserate trims surrounding whitespace of values (documented); Python
     // keeps it, so compare trimmed.
-    let ColumnValues::Categorical { codes, levels } = &table.columns[1].values else {
+    let ColumnValues::Categorical { codes, levels, .. } = &table.columns[1].values else {
         panic!("note is categorical");
     };
     for (i, theirs) in python["note"].as_array().expect("notes").iter().enumerate() {

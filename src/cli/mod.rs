@@ -13,7 +13,10 @@ use clap::{Parser, Subcommand};
 pub mod data_args;
 pub mod demo;
 pub mod describe;
+pub mod fit;
+pub mod inspect;
 pub mod output;
+pub mod score;
 
 /// Bayes-rule classifiers for credit and fraud work, with base-rate
 /// correction and expected-cost decisions. Decision support, not a decision.
@@ -34,6 +37,12 @@ pub enum Command {
     Demo(demo::Args),
     /// Read a file as a training file would be read and show its schema.
     Describe(describe::Args),
+    /// Fit one family and write a model file.
+    Fit(fit::Args),
+    /// Show what a model file holds.
+    Inspect(inspect::Args),
+    /// Posteriors for every row of a file.
+    Score(score::Args),
 }
 
 /// What a command failed with: a library error, or an internal one.
@@ -66,6 +75,9 @@ pub fn run(cli: Cli) -> Result<ExitCode, Failure> {
     match cli.command {
         Command::Demo(args) => demo::run(args),
         Command::Describe(args) => describe::run(args),
+        Command::Fit(args) => fit::run(args),
+        Command::Inspect(args) => inspect::run(args),
+        Command::Score(args) => score::run(args),
     }
 }
 

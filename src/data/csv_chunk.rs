@@ -119,6 +119,8 @@ pub(crate) struct LocalLevels {
     keys: Vec<Box<[u8]>>,
     index: HashMap<Box<[u8]>, u32>,
     pub(crate) levels: Vec<String>,
+    /// The line each level first appears on.
+    pub(crate) first_lines: Vec<u64>,
 }
 
 const LINEAR_SCAN_LEVELS: usize = 16;
@@ -127,7 +129,7 @@ impl LocalLevels {
     /// The code of a value, adding it as a new level when unseen; `None`
     /// when a new value is not valid UTF-8.
     #[inline]
-    fn code_of(&mut self, field: &[u8]) -> Option<u32> {
+    fn code_of(&mut self, field: &[u8], line: u64) -> Option<u32> {
         let found = if self.index.is_empty() {
             self.keys.iter().position(|k| **k == *field).map(|i| i as u32)
         } else {
@@ -139,6 +141,7 @@ impl LocalLevels {
         let text = std::str::from_utf8(field).ok()?;
         let code = self.levels.len() as u32;
         self.levels.push(text.to_string());
+        self.first_lines.push(line);
         self.keys.push(field.into());
         if !self.index.is_empty() {
             self.index.insert(field.into(), code);
@@ -454,7 +457,7 @@ impl RecordSink<'_, '_> {
                         None
                     }
                 } else {
-                    match local.code_of(field) {
+                    match local.code_of(field, line) {
                         None => Some(Error::Malformed {
                             at: context.at(line),
                             column: context.names[column].clone(),

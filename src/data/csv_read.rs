@@ -51,6 +51,8 @@ pub enum ColumnValues {
         codes: Vec<u32>,
         /// The distinct values, in byte order.
         levels: Vec<String>,
+        /// The line each level first appears on.
+        first_lines: Vec<u64>,
     },
     /// Raw text (identifier columns).
     Text(Vec<String>),
@@ -346,7 +348,14 @@ fn settle_roles(path: &str, names: &[String], options: &ReadOptions) -> Result<V
             }
         }
     };
-    assign_role("--target", &options.target, ColumnRole::Target)?;
+    if !options.target.is_empty() {
+        assign_role("--target", &options.target, ColumnRole::Target)?;
+    }
+    if let Some(model_columns) = &options.model_columns {
+        for column in model_columns {
+            find("the model", column)?;
+        }
+    }
     for id in &options.ids {
         assign_role("--id", id, ColumnRole::Id)?;
     }
@@ -479,6 +488,7 @@ fn assemble(
                 all.dedup();
                 let levels: Vec<String> = all.iter().map(|s| s.to_string()).collect();
                 let mut codes = Vec::with_capacity(rows);
+                let mut first_lines = vec![u64::MAX; levels.len()];
                 for out in &outs {
                     let local = &out.categorical[slot];
                     let map: Vec<u32> = local
@@ -486,9 +496,14 @@ fn assemble(
                         .iter()
                         .map(|l| levels.binary_search(l).map_or(MISSING_CODE, |i| i as u32))
                         .collect();
+                    for (&global, &line) in map.iter().zip(&local.first_lines) {
+                        if let Some(first) = first_lines.get_mut(global as usize) {
+                            *first = (*first).min(line);
+                        }
+                    }
                     codes.extend(local.codes.iter().map(|&c| if c == MISSING_CODE { c } else { map[c as usize] }));
                 }
-                ColumnValues::Categorical { codes, levels }
+                ColumnValues::Categorical { codes, levels, first_lines }
             }
             Parse::Text => {
                 let mut all = Vec::with_capacity(rows);
@@ -528,7 +543,7 @@ mod tests {
             other => panic!("{other:?}"),
         }
         match &table.columns[1].values {
-            ColumnValues::Categorical { codes, levels } => {
+            ColumnValues::Categorical { codes, levels, .. } => {
                 assert_eq!(levels, &vec!["x".to_string(), "y".to_string()]);
                 assert_eq!(codes, &vec![0, 1, 0]);
             }
@@ -578,7 +593,7 @@ mod tests {
             assert_eq!(format!("{chunked:?}"), format!("{whole:?}"), "chunk size {chunk}");
         }
         match &whole.columns[1].values {
-            ColumnValues::Categorical { levels, codes } => {
+            ColumnValues::Categorical { levels, codes, .. } => {
                 assert_eq!(levels.len(), 8);
                 assert_eq!(codes.len(), 500);
             }

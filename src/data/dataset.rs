@@ -50,7 +50,32 @@ impl std::fmt::Display for DataNotice {
     }
 }
 
+/// A view of model inputs for a set of rows: the numeric inputs (rows ×
+/// columns, any layout) and the codes of each categorical input.
+#[derive(Debug, Clone, Copy)]
+pub struct Inputs<'a> {
+    /// Numeric inputs, columns as [`Schema::numeric_inputs`].
+    pub numeric: ndarray::ArrayView2<'a, f64>,
+    /// Codes of each categorical input, in [`Schema::categorical_inputs`] order.
+    pub categorical: &'a [Vec<u32>],
+}
+
+impl Inputs<'_> {
+    /// Number of rows.
+    pub fn rows(&self) -> usize {
+        self.numeric.nrows()
+    }
+}
+
 impl Dataset {
+    /// The model inputs of every row.
+    pub fn inputs(&self) -> Inputs<'_> {
+        Inputs {
+            numeric: self.numeric.view(),
+            categorical: &self.categorical,
+        }
+    }
+
     /// Reads a training file from disk.
     pub fn read(path: &std::path::Path, options: &ReadOptions) -> Result<(Dataset, Vec<DataNotice>)> {
         let table = crate::data::csv_read::read_path(path, options)?;
@@ -191,7 +216,7 @@ impl Dataset {
                     }
                     entry.numeric = Some(summary);
                 }
-                (ColumnRole::Feature, ColumnValues::Categorical { codes, levels }) => {
+                (ColumnRole::Feature, ColumnValues::Categorical { codes, levels, .. }) => {
                     entry.kind = Some(ColumnKind::Categorical);
                     entry.kind_source = kind_source;
                     let mut codes = filter_codes(codes);
@@ -216,7 +241,7 @@ impl Dataset {
                     entry.categorical = Some(CategoricalSummary { levels, counts });
                     categorical.push(codes);
                 }
-                (ColumnRole::Target, ColumnValues::Categorical { codes, levels }) => {
+                (ColumnRole::Target, ColumnValues::Categorical { codes, levels, .. }) => {
                     target_info = Some((filter_codes(codes), levels.clone()));
                 }
                 (ColumnRole::Weight, ColumnValues::Weights(values)) => {

@@ -15,9 +15,10 @@ pub mod dataset;
 pub mod number;
 pub mod options;
 pub mod schema;
+pub mod scoring;
 pub mod suggest;
 pub mod summary;
 
-pub use dataset::{DataNotice, Dataset};
+pub use dataset::{DataNotice, Dataset, Inputs};
 pub use options::{MissingPolicy, ReadOptions};
 pub use schema::Schema;

@@ -39,7 +39,7 @@ pub struct ReadOptions {
     pub delimiter: u8,
     /// Tokens that mean "missing" besides the empty field.
     pub na_tokens: Vec<String>,
-    /// The class label column.
+    /// The class label column (empty when reading a file to score).
     pub target: String,
     /// Columns passed through to outputs untouched.
     pub ids: Vec<String>,
@@ -55,6 +55,9 @@ pub struct ReadOptions {
     pub missing: MissingPolicy,
     /// The event class; default: the minority class.
     pub positive: Option<String>,
+    /// When reading a file to score: the feature columns the model needs
+    /// (each must be present; every other column without a role is ignored).
+    pub model_columns: Option<Vec<String>>,
 }
 
 impl ReadOptions {
@@ -71,6 +74,7 @@ impl ReadOptions {
             numeric: Vec::new(),
             missing: MissingPolicy::Error,
             positive: None,
+            model_columns: None,
         }
     }
 }

@@ -1,6 +1,7 @@
 //! Output for people: aligned terminal tables and number formatting.
 //! (JSON output is the serialization of the library's own types.)
 
+pub mod model;
 pub mod table;
 
 /// The caution printed with every report: what baserate's output is and is

@@ -1,0 +1,278 @@
+//! `baserate fit DATA --target COL --family F [family options] [--prior SPEC | --base-rate P] -o MODEL`
+//!
+//! Fits one family on a training file and writes the model file (atomically).
+//! Holds the whole training file in memory.
+
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use crate::cli::data_args::DataArgs;
+use crate::cli::Failure;
+use crate::data::Dataset;
+use crate::error::Error;
+use crate::model::discriminant::{Divisor, LdaParams, QdaParams, Shrinkage};
+use crate::model::file::{ModelFile, TrainingInfo, FORMAT, FORMAT_VERSION};
+use crate::model::logistic::{ClassWeight, LogisticParams};
+use crate::model::naive_bayes::NaiveBayesParams;
+use crate::model::{Family, FamilyParams, PriorSpec};
+use crate::report::{count, number, percent, wrap, CAUTION};
+
+/// `--family` values.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum FamilyArg {
+    /// Logistic regression (posterior-direct).
+    Logistic,
+    /// Naive Bayes (Gaussian numeric, smoothed categorical).
+    NaiveBayes,
+    /// Linear discriminant analysis.
+    Lda,
+    /// Quadratic discriminant analysis.
+    Qda,
+}
+
+impl From<FamilyArg> for Family {
+    fn from(f: FamilyArg) -> Family {
+        match f {
+            FamilyArg::Logistic => Family::Logistic,
+            FamilyArg::NaiveBayes => Family::NaiveBayes,
+            FamilyArg::Lda => Family::Lda,
+            FamilyArg::Qda => Family::Qda,
+        }
+    }
+}
+
+/// `--covariance-divisor` values.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum DivisorArg {
+    /// n − K for LDA, nₖ − 1 for QDA.
+    Unbiased,
+    /// n for LDA, nₖ for QDA (maximum likelihood).
+    Rows,
+}
+
+/// Per-family options, shared by `fit` and (later) `compare`.
+#[derive(Debug, Clone, Default, clap::Args)]
+pub struct FamilyOptions {
+    /// logistic: ridge penalty λ on standardised slopes (intercept unpenalised).
+    #[arg(long, value_name = "LAMBDA")]
+    pub l2: Option<f64>,
+    /// logistic: class weights, `equal` or CLASS=W,... (multiplying row weights).
+    #[arg(long, value_name = "SPEC")]
+    pub class_weight: Option<String>,
+    /// logistic: Newton iterations at most [default: 50].
+    #[arg(long, value_name = "N")]
+    pub max_iterations: Option<usize>,
+    /// logistic: convergence tolerance on the largest standardised step [default: 1e-8].
+    #[arg(long, value_name = "T")]
+    pub tolerance: Option<f64>,
+    /// naive-bayes: additive smoothing of categorical likelihoods [default: 1].
+    #[arg(long, value_name = "ALPHA")]
+    pub smoothing: Option<f64>,
+    /// naive-bayes: floor on class variances as a share of the overall variance [default: 1e-9].
+    #[arg(long, value_name = "F")]
+    pub variance_floor: Option<f64>,
+    /// lda: none, ledoit-wolf, or α in [0, 1] (toward the diagonal of the pooled covariance).
+    #[arg(long, value_name = "S")]
+    pub shrinkage: Option<String>,
+    /// qda: weight γ of the pooled covariance in each class's, in [0, 1].
+    #[arg(long, value_name = "GAMMA")]
+    pub reg: Option<f64>,
+    /// lda, qda: covariance divisor.
+    #[arg(long, value_enum, value_name = "D")]
+    pub covariance_divisor: Option<DivisorArg>,
+}
+
+fn only_for(flag: &str, families: &str, family: Family) -> Error {
+    Error::Usage(format!("{flag} applies to {families}, not to {}", family.name()))
+}
+
+impl FamilyOptions {
+    /// The checked parameters of `family`; an option of another family is a usage error.
+    pub fn params(&self, family: Family) -> crate::Result<FamilyParams> {
+        let logistic_flags = [
+            ("--l2", self.l2.is_some()),
+            ("--class-weight", self.class_weight.is_some()),
+            ("--max-iterations", self.max_iterations.is_some()),
+            ("--tolerance", self.tolerance.is_some()),
+        ];
+        let nb_flags = [("--smoothing", self.smoothing.is_some()), ("--variance-floor", self.variance_floor.is_some())];
+        let check = |flags: &[(&str, bool)], families: &str, allowed: bool| -> crate::Result<()> {
+            match flags.iter().find(|(_, set)| *set) {
+                Some((flag, _)) if !allowed => Err(only_for(flag, families, family)),
+                _ => Ok(()),
+            }
+        };
+        check(&logistic_flags, "logistic", family == Family::Logistic)?;
+        check(&nb_flags, "naive-bayes", family == Family::NaiveBayes)?;
+        check(&[("--shrinkage", self.shrinkage.is_some())], "lda", family == Family::Lda)?;
+        check(&[("--reg", self.reg.is_some())], "qda", family == Family::Qda)?;
+        check(
+            &[("--covariance-divisor", self.covariance_divisor.is_some())],
+            "lda and qda",
+            matches!(family, Family::Lda | Family::Qda),
+        )?;
+        let divisor = match self.covariance_divisor {
+            Some(DivisorArg::Rows) => Divisor::Rows,
+            _ => Divisor::Unbiased,
+        };
+        let params = match family {
+            Family::Logistic => {
+                let defaults = LogisticParams::default();
+                FamilyParams::Logistic(LogisticParams {
+                    l2: self.l2.unwrap_or(defaults.l2),
+                    class_weight: parse_class_weight(self.class_weight.as_deref())?,
+                    max_iterations: self.max_iterations.unwrap_or(defaults.max_iterations),
+                    tolerance: self.tolerance.unwrap_or(defaults.tolerance),
+                })
+            }
+            Family::NaiveBayes => {
+                let defaults = NaiveBayesParams::default();
+                FamilyParams::NaiveBayes(NaiveBayesParams {
+                    smoothing: self.smoothing.unwrap_or(defaults.smoothing),
+                    variance_floor: self.variance_floor.unwrap_or(defaults.variance_floor),
+                })
+            }
+            Family::Lda => FamilyParams::Lda(LdaParams {
+                shrinkage: parse_shrinkage(self.shrinkage.as_deref())?,
+                divisor,
+            }),
+            Family::Qda => FamilyParams::Qda(QdaParams { reg: self.reg.unwrap_or(0.0), divisor }),
+        };
+        params.check()?;
+        Ok(params)
+    }
+}
+
+/// Parses `--shrinkage`.
+pub fn parse_shrinkage(text: Option<&str>) -> crate::Result<Shrinkage> {
+    match text {
+        None | Some("none") => Ok(Shrinkage::None),
+        Some("ledoit-wolf") => Ok(Shrinkage::LedoitWolf),
+        Some(v) => v
+            .parse::<f64>()
+            .ok()
+            .filter(|a| (0.0..=1.0).contains(a))
+            .map(Shrinkage::Value)
+            .ok_or_else(|| Error::Usage(format!("--shrinkage takes none, ledoit-wolf or a number in [0, 1], not '{v}'"))),
+    }
+}
+
+/// Parses `--class-weight`.
+pub fn parse_class_weight(text: Option<&str>) -> crate::Result<ClassWeight> {
+    match text {
+        None => Ok(ClassWeight::None),
+        Some("equal") => Ok(ClassWeight::Equal),
+        Some(spec) => spec
+            .split(',')
+            .map(|part| {
+                let (class, w) = part
+                    .rsplit_once('=')
+                    .ok_or_else(|| Error::Usage(format!("--class-weight takes equal or CLASS=W,..., not '{part}'")))?;
+                let w: f64 = w.trim().parse().map_err(|_| Error::Usage(format!("'{w}' in --class-weight is not a number")))?;
+                Ok((class.trim().to_string(), w))
+            })
+            .collect::<crate::Result<Vec<_>>>()
+            .map(ClassWeight::Explicit),
+    }
+}
+
+/// Parses `--prior` / `--base-rate` (at most one).
+pub fn prior_spec(prior: Option<&str>, base_rate: Option<f64>) -> crate::Result<Option<PriorSpec>> {
+    match (prior, base_rate) {
+        (Some(_), Some(_)) => Err(Error::Usage("give --prior or --base-rate, not both".into())),
+        (Some(p), None) => Ok(Some(p.parse()?)),
+        (None, Some(b)) => Ok(Some(PriorSpec::BaseRate(b))),
+        (None, None) => Ok(None),
+    }
+}
+
+/// Arguments of `fit`.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// The training CSV file.
+    pub data: PathBuf,
+    /// Data options.
+    #[command(flatten)]
+    pub data_args: DataArgs,
+    /// The family to fit.
+    #[arg(long, value_enum)]
+    pub family: FamilyArg,
+    /// Family options.
+    #[command(flatten)]
+    pub family_options: FamilyOptions,
+    /// The prior to score with: empirical, uniform, or CLASS=P,... [default: empirical].
+    #[arg(long, value_name = "SPEC")]
+    pub prior: Option<String>,
+    /// Binary shorthand for --prior POSITIVE=P,OTHER=1-P.
+    #[arg(long, value_name = "P")]
+    pub base_rate: Option<f64>,
+    /// Where to write the model file.
+    #[arg(long, short = 'o', value_name = "MODEL")]
+    pub out: PathBuf,
+}
+
+/// Runs `fit`.
+pub fn run(args: Args) -> Result<ExitCode, Failure> {
+    let family: Family = args.family.into();
+    let params = args.family_options.params(family)?;
+    let spec = prior_spec(args.prior.as_deref(), args.base_rate)?;
+    let options = args.data_args.to_options()?;
+    let (dataset, notices) = Dataset::read(&args.data, &options)?;
+    for n in &notices {
+        eprintln!("note: {}", wrap(&n.0, 100, 6));
+    }
+    let target = &dataset.schema.target;
+    let (model, diagnostics) = crate::model::fit(&dataset, &params)?;
+    let training_class_mix = match &model {
+        crate::model::FittedModel::Logistic(m) => m.class_mix.clone(),
+        _ => target.class_mix(),
+    };
+    let prior = spec.unwrap_or(PriorSpec::Empirical).resolve(&target.classes, &training_class_mix, target.positive_index())?;
+    let file = ModelFile {
+        format: FORMAT.to_string(),
+        format_version: FORMAT_VERSION,
+        tool_version: env!("CARGO_PKG_VERSION").to_string(),
+        created: crate::io::utc_timestamp(),
+        family,
+        params,
+        schema: dataset.schema.clone(),
+        classes: target.classes.clone(),
+        positive: target.positive.clone(),
+        prior,
+        training_class_mix,
+        training: TrainingInfo {
+            input_path: args.data.display().to_string(),
+            input_sha256: crate::io::sha256_file(&args.data)?,
+            rows: dataset.rows(),
+            class_counts: target.counts.clone(),
+            weighted_class_counts: target.weighted_counts.clone(),
+        },
+        diagnostics,
+        model,
+    };
+    file.validate().map_err(|m| Error::FitFailed { family: family.name().into(), message: m })?;
+    file.save(&args.out)?;
+
+    let mix: Vec<String> = target
+        .classes
+        .iter()
+        .zip(&target.counts)
+        .zip(&target.class_mix())
+        .map(|((c, n), s)| format!("{c} {} ({})", count(*n), percent(*s)))
+        .collect();
+    println!("fitted {} on {} rows of {}: {}", family.name(), count(dataset.rows()), args.data.display(), mix.join(", "));
+    println!(
+        "positive class: {}; {} iteration{}, {}, log-likelihood {}",
+        target.positive,
+        file.diagnostics.iterations,
+        if file.diagnostics.iterations == 1 { "" } else { "s" },
+        if file.diagnostics.converged { "converged" } else { "NOT converged" },
+        number(file.diagnostics.log_likelihood, 8)
+    );
+    for w in &file.diagnostics.warnings {
+        eprintln!("warning: {}", wrap(w, 100, 9));
+    }
+    println!("model written to {} (see it with: baserate inspect {})", args.out.display(), args.out.display());
+    println!("\n{}", wrap(CAUTION, 100, 0));
+    Ok(ExitCode::SUCCESS)
+}

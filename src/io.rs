@@ -1,0 +1,103 @@
+//! Small file-system helpers shared by the library's writers.
+
+use std::io::Write;
+use std::path::Path;
+
+use crate::error::{Error, Result};
+
+/// Writes `bytes` to `path` atomically: into a temporary file beside it,
+/// flushed to disk, then renamed over the target, so a failed or killed run
+/// never leaves half a file. `-` writes to stdout.
+pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
+    let shown = path.display().to_string();
+    if shown == "-" {
+        let mut out = std::io::stdout().lock();
+        return out.write_all(bytes).and_then(|_| out.flush()).map_err(|e| Error::io("<stdout>", e));
+    }
+    let directory = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    let file_name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    let temporary = directory.join(format!(".{file_name}.partial-{}", std::process::id()));
+    let result = (|| {
+        let mut file = std::fs::File::create(&temporary)?;
+        file.write_all(bytes)?;
+        file.sync_all()?;
+        std::fs::rename(&temporary, path)
+    })();
+    if let Err(e) = result {
+        let _ = std::fs::remove_file(&temporary);
+        return Err(Error::io(shown, e));
+    }
+    Ok(())
+}
+
+/// The SHA-256 of a file, as lowercase hex.
+pub fn sha256_file(path: &Path) -> Result<String> {
+    use sha2::Digest;
+    let shown = path.display().to_string();
+    let mut file = std::fs::File::open(path).map_err(|e| Error::io(&shown, e))?;
+    let mut hasher = sha2::Sha256::new();
+    let mut buffer = vec![0u8; 1 << 20];
+    loop {
+        let read = std::io::Read::read(&mut file, &mut buffer).map_err(|e| Error::io(&shown, e))?;
+        if read == 0 {
+            break;
+        }
+        hasher.update(&buffer[..read]);
+    }
+    Ok(hasher.finalize().iter().map(|b| format!("{b:02x}")).collect())
+}
+
+/// The current time as RFC 3339 UTC (`2026-12-01T19:15:34Z`); the
+/// `SOURCE_DATE_EPOCH` environment variable, when set, fixes it (for
+/// reproducible outputs).
+pub fn utc_timestamp() -> String {
+    let seconds = std::env::var("SOURCE_DATE_EPOCH")
+        .ok()
+        .and_then(|v| v.parse::<i64>().ok())
+        .unwrap_or_else(|| {
+            std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map_or(0, |d| d.as_secs() as i64)
+        });
+    let days = seconds.div_euclid(86_400);
+    let second_of_day = seconds.rem_euclid(86_400);
+    // Civil date from days since 1970-01-01 (Hinnant's algorithm).
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z.rem_euclid(146_097);
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let day = doy - (153 * mp + 2) / 5 + 1;
+    let month = if mp < 10 { mp + 3 } else { mp - 9 };
+    let year = yoe + era * 400 + i64::from(month <= 2);
+    format!(
+        "{year:04}-{month:02}-{day:02}T{:02}:{:02}:{:02}Z",
+        second_of_day / 3600,
+        (second_of_day / 60) % 60,
+        second_of_day % 60
+    )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn timestamps() {
+        std::env::set_var("SOURCE_DATE_EPOCH", "951782400");
+        // 951782400 s after the epoch is 2000-02-29 00:00:00 UTC.
+        assert_eq!(utc_timestamp(), "2000-02-29T00:00:00Z");
+        // Python: datetime.fromtimestamp(1795978534, UTC) is 2026-11-29 18:55:34.
+        std::env::set_var("SOURCE_DATE_EPOCH", "1795978534");
+        assert_eq!(utc_timestamp(), "2026-11-29T18:55:34Z");
+        std::env::remove_var("SOURCE_DATE_EPOCH");
+    }
+
+    #[test]
+    fn sha256_of_abc() {
+        // FIPS 180-2, appendix B.1: SHA-256("abc").
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("abc");
+        std::fs::write(&path, b"abc").unwrap();
+        assert_eq!(sha256_file(&path).unwrap(), "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
+    }
+}

@@ -1,0 +1,430 @@
+//! Linear and quadratic discriminant analysis: Gaussian classes with a
+//! shared covariance (LDA) or their own (QDA), fitted from per-class
+//! moments in one parallel pass.
+//!
+//! - LDA pools the within-class cross-products by weight, never by the
+//!   prior (priors move only the intercepts), and divides by n − K (the
+//!   unbiased pooled estimate; `Divisor::Rows` divides by n).
+//!   `--shrinkage` shrinks the pooled covariance S toward the scaled
+//!   identity on the standardised scale, i.e. toward its own diagonal D:
+//!   (1 − α)S + αD, so that changing a column's units changes nothing.
+//!   `ledoit-wolf` sets α by Ledoit & Wolf (2004), "A well-conditioned
+//!   estimator for large-dimensional covariance matrices", J. Multivariate
+//!   Analysis 88(2), applied to the standardised within-class residuals.
+//! - QDA divides each class's cross-products by nₖ − 1 (as R's MASS::qda;
+//!   `Divisor::Rows` divides by nₖ); `--reg γ` shrinks each toward the
+//!   pooled covariance, (1 − γ)Σₖ + γΣ (Friedman 1989, "Regularized
+//!   discriminant analysis", JASA 84(405)).
+//!
+//! log p(x | k) = −½(d·ln 2π + ln|Σₖ| + ‖Lₖ⁻¹(x − μₖ)‖²) through the Cholesky
+//! factor Lₖ: one triangular solve per row and class, no explicit inverse.
+
+use std::sync::OnceLock;
+
+use nalgebra::{DMatrix, DVector};
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+
+use crate::data::{Dataset, Inputs};
+use crate::error::{Error, Result};
+use crate::model::design::Encoding;
+use crate::model::linalg::{cholesky, Factor, Singularity};
+use crate::model::moments::{class_moments, Moments};
+use crate::model::{row_weights, Diagnostics};
+
+/// Shrinkage of LDA's pooled covariance.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "kebab-case")]
+pub enum Shrinkage {
+    /// The pooled covariance as estimated.
+    #[default]
+    None,
+    /// α by Ledoit & Wolf (2004).
+    LedoitWolf,
+    /// A stated α in [0, 1].
+    Value(f64),
+}
+
+/// The divisor of the covariance estimates.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "kebab-case")]
+pub enum Divisor {
+    /// n − K for LDA's pooled covariance, nₖ − 1 for QDA's class covariances.
+    #[default]
+    Unbiased,
+    /// n for LDA, nₖ for QDA (maximum likelihood).
+    Rows,
+}
+
+/// LDA hyperparameters.
+///
+/// | name | default | meaning | range |
+/// |---|---|---|---|
+/// | shrinkage | none | shrinkage of the pooled covariance | none, ledoit-wolf, [0, 1] |
+/// | divisor | unbiased | n − K, or n | |
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, Default)]
+pub struct LdaParams {
+    /// Shrinkage of the pooled covariance.
+    pub shrinkage: Shrinkage,
+    /// Divisor of the pooled covariance.
+    pub divisor: Divisor,
+}
+
+/// QDA hyperparameters.
+///
+/// | name | default | meaning | range |
+/// |---|---|---|---|
+/// | reg | 0 | weight of the pooled covariance in each class's | [0, 1] |
+/// | divisor | unbiased | nₖ − 1, or nₖ | |
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, Default)]
+pub struct QdaParams {
+    /// Friedman's γ: Σₖ(γ) = (1 − γ)Σₖ + γΣ.
+    pub reg: f64,
+    /// Divisor of the class covariances.
+    pub divisor: Divisor,
+}
+
+/// A fitted LDA or QDA model.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct DiscriminantModel {
+    /// How inputs become design columns.
+    pub encoding: Encoding,
+    /// Class names.
+    pub classes: Vec<String>,
+    /// Training weight of each class.
+    pub class_weights: Vec<f64>,
+    /// Class means of the design columns.
+    pub means: Vec<Vec<f64>>,
+    /// Covariances, row-major d × d: one (LDA) or one per class (QDA).
+    pub covariances: Vec<Vec<f64>>,
+    /// The shrinkage α applied to LDA's pooled covariance (0 when none).
+    #[serde(default)]
+    pub shrinkage: f64,
+    /// Cholesky factors, computed on first use.
+    #[serde(skip)]
+    factors: OnceLock<Vec<Factor>>,
+}
+
+impl PartialEq for DiscriminantModel {
+    fn eq(&self, other: &Self) -> bool {
+        self.encoding == other.encoding
+            && self.classes == other.classes
+            && self.class_weights == other.class_weights
+            && self.means == other.means
+            && self.covariances == other.covariances
+            && self.shrinkage == other.shrinkage
+    }
+}
+
+/// Dimension of a square matrix stored row-major.
+fn dim_of(covariance: &[f64]) -> usize {
+    (covariance.len() as f64).sqrt().round() as usize
+}
+
+fn to_matrix(covariance: &[f64]) -> DMatrix<f64> {
+    let d = dim_of(covariance);
+    DMatrix::from_row_slice(d, d, covariance)
+}
+
+impl DiscriminantModel {
+    /// The covariance factors; an error when a covariance is not positive
+    /// definite (a corrupt or hand-edited model file).
+    pub fn factors(&self) -> Result<&[Factor]> {
+        if let Some(f) = self.factors.get() {
+            return Ok(f);
+        }
+        let mut factors = Vec::with_capacity(self.covariances.len());
+        for (k, c) in self.covariances.iter().enumerate() {
+            let factor = cholesky(&to_matrix(c)).map_err(|s| Error::FitFailed {
+                family: "discriminant".into(),
+                message: format!("covariance {k} is not positive definite (columns {:?})", s.columns),
+            })?;
+            factors.push(factor);
+        }
+        Ok(self.factors.get_or_init(|| factors))
+    }
+
+    /// Checks shapes and finiteness (used when a model file is loaded).
+    pub fn validate(&self) -> std::result::Result<(), String> {
+        let d = self.encoding.width();
+        let k = self.classes.len();
+        if self.means.len() != k || self.class_weights.len() != k || self.means.iter().any(|m| m.len() != d) {
+            return Err("class means do not match the classes and inputs".into());
+        }
+        if !(self.covariances.len() == 1 || self.covariances.len() == k) {
+            return Err("the number of covariances is neither 1 nor one per class".into());
+        }
+        if self.covariances.iter().any(|c| c.len() != d * d) {
+            return Err("a covariance has the wrong size".into());
+        }
+        let all = self.means.iter().flatten().chain(self.covariances.iter().flatten());
+        if all.clone().any(|v| !v.is_finite()) {
+            return Err("a parameter is not a finite number".into());
+        }
+        self.factors().map(|_| ()).map_err(|e| e.to_string())
+    }
+
+    /// Writes log p(x | k) for `rows` into `out` (row-major, K per row).
+    pub fn log_likelihoods(&self, inputs: &Inputs<'_>, rows: std::ops::Range<usize>, out: &mut [f64]) {
+        let Ok(factors) = self.factors() else {
+            out.iter_mut().for_each(|v| *v = 0.0);
+            return;
+        };
+        let d = self.encoding.width();
+        let k = self.classes.len();
+        let constant = d as f64 * std::f64::consts::TAU.ln();
+        let mut x = vec![0.0; d];
+        let mut z = vec![0.0; d];
+        for (i, r) in rows.enumerate() {
+            self.encoding.fill_row(inputs, r, &mut x);
+            for class in 0..k {
+                let factor = &factors[if factors.len() == 1 { 0 } else { class }];
+                z.iter_mut().zip(&x).zip(&self.means[class]).for_each(|((z, x), m)| *z = x - m);
+                factor.solve_lower_in_place(&mut z);
+                let quadratic: f64 = z.iter().map(|v| v * v).sum();
+                out[i * k + class] = -0.5 * (constant + factor.log_det + quadratic);
+            }
+        }
+    }
+
+    /// LDA's linear discriminant: for each class other than `reference`, the
+    /// coefficients w = Σ⁻¹(μₖ − μ_ref) on the design columns and the
+    /// intercept −½(μₖᵀΣ⁻¹μₖ − μ_refᵀΣ⁻¹μ_ref) + log(πₖ/π_ref), so that
+    /// log p(k | x)/p(ref | x) = intercept + wᵀx.
+    pub fn linear_discriminant(&self, prior: &[f64], reference: usize) -> Result<Vec<(usize, f64, Vec<f64>)>> {
+        let factors = self.factors()?;
+        let factor = &factors[0];
+        let inverse_mean: Vec<DVector<f64>> =
+            self.means.iter().map(|m| factor.solve(&DVector::from_column_slice(m))).collect();
+        let quadratic: Vec<f64> =
+            self.means.iter().zip(&inverse_mean).map(|(m, im)| DVector::from_column_slice(m).dot(im)).collect();
+        Ok((0..self.classes.len())
+            .filter(|&c| c != reference)
+            .map(|c| {
+                let w: Vec<f64> = (0..self.encoding.width()).map(|j| inverse_mean[c][j] - inverse_mean[reference][j]).collect();
+                let intercept = -0.5 * (quadratic[c] - quadratic[reference]) + (prior[c] / prior[reference]).ln();
+                (c, intercept, w)
+            })
+            .collect())
+    }
+}
+
+fn check_classes(family: &str, dataset: &Dataset, moments: &[Moments], needed: usize, hint: &str) -> Result<()> {
+    for (k, m) in moments.iter().enumerate() {
+        if m.rows < needed {
+            return Err(Error::TooFewRows {
+                family: family.into(),
+                class: dataset.schema.target.classes[k].clone(),
+                rows: m.rows,
+                needed,
+                hint: hint.into(),
+            });
+        }
+    }
+    Ok(())
+}
+
+fn singular(family: &str, whose: String, encoding: &Encoding, s: Singularity, hint: &str) -> Error {
+    let terms = encoding.terms();
+    Error::SingularCovariance {
+        family: family.into(),
+        whose,
+        columns: s.columns.iter().map(|&c| terms.get(c).cloned().unwrap_or_else(|| format!("#{c}"))).collect(),
+        hint: hint.into(),
+    }
+}
+
+/// Σ_k M_k: the pooled within-class cross-products.
+fn pooled_scatter(moments: &[Moments], d: usize) -> DMatrix<f64> {
+    let mut w = DMatrix::zeros(d, d);
+    for m in moments {
+        for i in 0..d {
+            for j in 0..d {
+                w[(i, j)] += m.scatter_at(i, j);
+            }
+        }
+    }
+    w
+}
+
+/// Σᵢ wᵢ ‖zᵢ‖⁴ over the standardised within-class residuals zᵢ =
+/// D^{-1/2}(xᵢ − μ_{yᵢ}), for the Ledoit–Wolf shrinkage intensity.
+fn fourth_moment(encoding: &Encoding, dataset: &Dataset, means: &[Vec<f64>], scale: &[f64]) -> f64 {
+    let inputs = dataset.inputs();
+    let d = encoding.width();
+    let weights = row_weights(dataset);
+    let n = inputs.rows();
+    (0..n.div_ceil(8192))
+        .into_par_iter()
+        .map(|b| {
+            let mut x = vec![0.0; d];
+            let mut sum = 0.0;
+            for r in b * 8192..((b + 1) * 8192).min(n) {
+                let w = weights.map_or(1.0, |w| w[r]);
+                if w == 0.0 {
+                    continue;
+                }
+                encoding.fill_row(&inputs, r, &mut x);
+                let m = &means[dataset.target[r] as usize];
+                let norm: f64 = (0..d).map(|j| ((x[j] - m[j]) / scale[j]).powi(2)).sum();
+                sum += w * norm * norm;
+            }
+            sum
+        })
+        .collect::<Vec<f64>>()
+        .iter()
+        .sum()
+}
+
+/// The Ledoit–Wolf (2004) intensity for shrinking the sample covariance R
+/// (divisor n) of centred data toward μI, μ = tr(R)/d: with ‖A‖² = tr(AAᵀ)/d,
+/// δ² = ‖R − μI‖², β̄² = (1/n²)Σᵢ‖zᵢzᵢᵀ − R‖² = (Σᵢ‖zᵢ‖⁴/n − ‖R‖²_F)/(n·d),
+/// and α = min(β̄², δ²)/δ².
+pub fn ledoit_wolf_intensity(r: &DMatrix<f64>, fourth: f64, n: f64) -> f64 {
+    let d = r.nrows() as f64;
+    let mu = r.trace() / d;
+    let frobenius: f64 = r.iter().map(|v| v * v).sum();
+    let delta = (frobenius - 2.0 * mu * r.trace() + mu * mu * d) / d;
+    let beta = ((fourth / n - frobenius) / (n * d)).max(0.0);
+    if delta <= 0.0 {
+        return 0.0;
+    }
+    beta.min(delta) / delta
+}
+
+const LDA_HINT: &str =
+    "remove constant or duplicated columns (--exclude), or shrink the covariance with --shrinkage ledoit-wolf";
+const QDA_HINT: &str = "remove constant or duplicated columns (--exclude), regularise with --reg (e.g. 0.1), or use lda";
+
+/// Fits LDA.
+pub fn fit_lda(dataset: &Dataset, params: &LdaParams) -> Result<(DiscriminantModel, Diagnostics)> {
+    let encoding = Encoding::from_schema(&dataset.schema);
+    let d = encoding.width();
+    let k = dataset.schema.target.classes.len();
+    let inputs = dataset.inputs();
+    let moments = class_moments(&encoding, &inputs, &dataset.target, row_weights(dataset), k, false);
+    check_classes("lda", dataset, &moments, 1, "collect more rows of that class")?;
+    let n: f64 = moments.iter().map(|m| m.weight).sum();
+    let divisor = match params.divisor {
+        Divisor::Unbiased => n - k as f64,
+        Divisor::Rows => n,
+    };
+    if divisor <= 0.0 || d == 0 {
+        return Err(Error::FitFailed {
+            family: "lda".into(),
+            message: format!("{n} rows and {k} classes leave nothing to estimate a covariance from"),
+        });
+    }
+    let mut covariance = pooled_scatter(&moments, d) / divisor;
+    let means: Vec<Vec<f64>> = moments.iter().map(|m| m.mean.clone()).collect();
+    let mut warnings = Vec::new();
+    let alpha = match params.shrinkage {
+        Shrinkage::None => 0.0,
+        Shrinkage::Value(a) => a,
+        Shrinkage::LedoitWolf => {
+            // Residuals standardised by the pooled standard deviations
+            // (divisor n), as Ledoit & Wolf's estimator takes centred data.
+            let scatter = pooled_scatter(&moments, d);
+            let scale: Vec<f64> = (0..d).map(|j| (scatter[(j, j)] / n).sqrt()).collect();
+            if let Some(j) = (0..d).find(|&j| !(scale[j] > 0.0)) {
+                return Err(singular(
+                    "lda",
+                    "pooled over the classes".into(),
+                    &encoding,
+                    Singularity { columns: vec![j], smallest_eigenvalue: 0.0 },
+                    "a constant column cannot be shrunk; remove it with --exclude",
+                ));
+            }
+            let r = DMatrix::from_fn(d, d, |i, j| scatter[(i, j)] / n / (scale[i] * scale[j]));
+            let fourth = fourth_moment(&encoding, dataset, &means, &scale);
+            let a = ledoit_wolf_intensity(&r, fourth, n);
+            warnings.push(format!("Ledoit–Wolf shrinkage intensity {a:.4} toward the diagonal of the pooled covariance"));
+            a
+        }
+    };
+    if alpha > 0.0 {
+        let diagonal = DMatrix::from_diagonal(&covariance.diagonal());
+        covariance = covariance * (1.0 - alpha) + diagonal * alpha;
+    }
+    let factor = cholesky(&covariance).map_err(|s| singular("lda", "pooled over the classes".into(), &encoding, s, LDA_HINT))?;
+    let log_likelihood = joint_log_likelihood(&moments, &[factor.clone()], &[covariance.clone()]);
+    let model = DiscriminantModel {
+        encoding,
+        classes: dataset.schema.target.classes.clone(),
+        class_weights: moments.iter().map(|m| m.weight).collect(),
+        means,
+        covariances: vec![covariance.transpose().as_slice().to_vec()],
+        shrinkage: alpha,
+        factors: OnceLock::new(),
+    };
+    let _ = model.factors.set(vec![factor]);
+    Ok((model, Diagnostics { iterations: 1, converged: true, log_likelihood, warnings }))
+}
+
+/// Fits QDA.
+pub fn fit_qda(dataset: &Dataset, params: &QdaParams) -> Result<(DiscriminantModel, Diagnostics)> {
+    let encoding = Encoding::from_schema(&dataset.schema);
+    let d = encoding.width();
+    let k = dataset.schema.target.classes.len();
+    let inputs = dataset.inputs();
+    let moments = class_moments(&encoding, &inputs, &dataset.target, row_weights(dataset), k, false);
+    let needed = match params.divisor {
+        Divisor::Unbiased => 2,
+        Divisor::Rows => 1,
+    };
+    check_classes("qda", dataset, &moments, needed.max(if params.reg < 1.0 { d + 1 } else { needed }), QDA_HINT)?;
+    let n: f64 = moments.iter().map(|m| m.weight).sum();
+    let pooled = if params.reg > 0.0 {
+        let divisor = match params.divisor {
+            Divisor::Unbiased => n - k as f64,
+            Divisor::Rows => n,
+        };
+        pooled_scatter(&moments, d) / divisor
+    } else {
+        DMatrix::zeros(d, d)
+    };
+    let mut covariances = Vec::with_capacity(k);
+    let mut factors = Vec::with_capacity(k);
+    for (class, m) in moments.iter().enumerate() {
+        let divisor = match params.divisor {
+            Divisor::Unbiased => m.weight - 1.0,
+            Divisor::Rows => m.weight,
+        };
+        let own = DMatrix::from_fn(d, d, |i, j| m.scatter_at(i, j) / divisor);
+        let covariance = own * (1.0 - params.reg) + &pooled * params.reg;
+        let whose = format!("of class '{}'", dataset.schema.target.classes[class]);
+        let factor = cholesky(&covariance).map_err(|s| singular("qda", whose, &encoding, s, QDA_HINT))?;
+        covariances.push(covariance);
+        factors.push(factor);
+    }
+    let log_likelihood = joint_log_likelihood(&moments, &factors, &covariances);
+    let model = DiscriminantModel {
+        encoding,
+        classes: dataset.schema.target.classes.clone(),
+        class_weights: moments.iter().map(|m| m.weight).collect(),
+        means: moments.iter().map(|m| m.mean.clone()).collect(),
+        covariances: covariances.iter().map(|c| c.transpose().as_slice().to_vec()).collect(),
+        shrinkage: 0.0,
+        factors: OnceLock::new(),
+    };
+    let _ = model.factors.set(factors);
+    Ok((model, Diagnostics { iterations: 1, converged: true, log_likelihood, warnings: Vec::new() }))
+}
+
+/// Σᵢ wᵢ log N(xᵢ; μ_{yᵢ}, Σ_{yᵢ}) in closed form from the moments (the rows
+/// are centred at their own class means): −½ Σₖ [Wₖ(d ln 2π + ln|Σₖ|) +
+/// tr(Σₖ⁻¹Mₖ)]. Priors are not included: the joint depends on the prior in
+/// use, the fit does not.
+fn joint_log_likelihood(moments: &[Moments], factors: &[Factor], covariances: &[DMatrix<f64>]) -> f64 {
+    let d = covariances[0].nrows();
+    moments
+        .iter()
+        .enumerate()
+        .map(|(k, m)| {
+            let f = &factors[if factors.len() == 1 { 0 } else { k }];
+            let inverse = f.inverse();
+            let trace: f64 = (0..d).flat_map(|i| (0..d).map(move |j| (i, j))).map(|(i, j)| inverse[(i, j)] * m.scatter_at(j, i)).sum();
+            -0.5 * (m.weight * (d as f64 * std::f64::consts::TAU.ln() + f.log_det) + trace)
+        })
+        .sum()
+}

@@ -1,0 +1,168 @@
+//! The model file: versioned JSON holding everything needed to score and
+//! to audit a fit — the schema, the family and its parameters, the prior in
+//! use and the training class mix, fit diagnostics, and training metadata
+//! (rows, class counts, SHA-256 of the input, tool version, creation time).
+//!
+//! Loading validates everything and rejects a corrupt, truncated or newer
+//! file with a message that says which; writing is atomic.
+
+use std::path::Path;
+
+use serde::{Deserialize, Serialize};
+
+use crate::data::Schema;
+use crate::error::{Error, Result};
+use crate::model::prior::PRIOR_SUM_TOLERANCE;
+use crate::model::{Diagnostics, Family, FamilyParams, FittedModel};
+
+/// The format name every model file carries.
+pub const FORMAT: &str = "baserate-model";
+/// The format version this build writes, and the newest it reads.
+pub const FORMAT_VERSION: u32 = 1;
+
+/// Where the model came from.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TrainingInfo {
+    /// The training file as named on the command line.
+    pub input_path: String,
+    /// SHA-256 of the training file's bytes.
+    pub input_sha256: String,
+    /// Rows used.
+    pub rows: usize,
+    /// Rows per class.
+    pub class_counts: Vec<usize>,
+    /// Weighted rows per class (`--weight`, before class weights).
+    pub weighted_class_counts: Vec<f64>,
+}
+
+/// A model file's whole content.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ModelFile {
+    /// Always [`FORMAT`].
+    pub format: String,
+    /// The format version ([`FORMAT_VERSION`] when written by this build).
+    pub format_version: u32,
+    /// The baserate version that wrote it.
+    pub tool_version: String,
+    /// When it was written (RFC 3339, UTC).
+    pub created: String,
+    /// The family.
+    pub family: Family,
+    /// The hyperparameters used.
+    pub params: FamilyParams,
+    /// The training file's schema; scoring checks new files against it.
+    pub schema: Schema,
+    /// The classes, as written in the data, in byte order.
+    pub classes: Vec<String>,
+    /// The event class.
+    pub positive: String,
+    /// The prior applied when scoring without `--prior`: the fit-time
+    /// `--prior` (default: the training class mix).
+    pub prior: Vec<f64>,
+    /// The weighted class shares of the training rows (after `--weight` and
+    /// any class weights): the class mix logistic posteriors are
+    /// calibrated to.
+    pub training_class_mix: Vec<f64>,
+    /// Where it came from.
+    pub training: TrainingInfo,
+    /// How the fit went.
+    pub diagnostics: Diagnostics,
+    /// The fitted parameters.
+    pub model: FittedModel,
+}
+
+impl ModelFile {
+    /// The class mix the model's posteriors are calibrated to when no prior
+    /// is applied: the prior in use for class-conditional families, the
+    /// training class mix for logistic regression.
+    pub fn calibrated_to(&self) -> &[f64] {
+        if self.family.is_class_conditional() {
+            &self.prior
+        } else {
+            &self.training_class_mix
+        }
+    }
+
+    /// Serialises to pretty JSON.
+    pub fn to_json(&self) -> Result<String> {
+        serde_json::to_string_pretty(self).map_err(|e| Error::FitFailed {
+            family: self.family.name().into(),
+            message: format!("the model could not be written as JSON: {e}"),
+        })
+    }
+
+    /// Writes the file atomically.
+    pub fn save(&self, path: &Path) -> Result<()> {
+        let mut text = self.to_json()?;
+        text.push('\n');
+        crate::io::write_atomic(path, text.as_bytes())
+    }
+
+    /// Reads and validates a model file.
+    pub fn load(path: &Path) -> Result<ModelFile> {
+        let shown = path.display().to_string();
+        let text = std::fs::read_to_string(path).map_err(|e| Error::io(&shown, e))?;
+        ModelFile::from_json(&shown, &text)
+    }
+
+    /// Parses and validates model JSON; `path` is only used in messages.
+    pub fn from_json(path: &str, text: &str) -> Result<ModelFile> {
+        let bad = |message: String| Error::ModelFile { path: path.to_string(), message };
+        let value: serde_json::Value = serde_json::from_str(text).map_err(|e| {
+            if e.is_eof() {
+                bad(format!("the model file is truncated (it ends at line {}, column {})", e.line(), e.column()))
+            } else {
+                bad(format!("not a valid model file: {e}"))
+            }
+        })?;
+        if value.get("format").and_then(|f| f.as_str()) != Some(FORMAT) {
+            return Err(bad(format!("not a baserate model file (no \"format\": \"{FORMAT}\")")));
+        }
+        let version = value.get("format_version").and_then(|v| v.as_u64()).unwrap_or(0);
+        if version > u64::from(FORMAT_VERSION) {
+            return Err(bad(format!(
+                "the model file has format version {version}, written by a newer baserate; this build ({}) reads up to version {FORMAT_VERSION}",
+                env!("CARGO_PKG_VERSION")
+            )));
+        }
+        if version == 0 {
+            return Err(bad("the model file has no valid format_version".into()));
+        }
+        let file: ModelFile = serde_json::from_value(value).map_err(|e| bad(format!("the model file is corrupt: {e}")))?;
+        file.validate().map_err(|m| bad(format!("the model file is corrupt: {m}")))?;
+        Ok(file)
+    }
+
+    /// Checks internal consistency.
+    pub fn validate(&self) -> std::result::Result<(), String> {
+        let k = self.classes.len();
+        if k < 2 {
+            return Err("fewer than two classes".into());
+        }
+        if self.schema.target.classes != self.classes {
+            return Err("the classes do not match the schema's".into());
+        }
+        if !self.classes.contains(&self.positive) {
+            return Err(format!("the positive class '{}' is not one of the classes", self.positive));
+        }
+        for (name, mix) in [("prior", &self.prior), ("training_class_mix", &self.training_class_mix)] {
+            if mix.len() != k || mix.iter().any(|p| !(*p > 0.0 && *p < 1.0)) {
+                return Err(format!("{name} must give every class a probability strictly between 0 and 1"));
+            }
+            if (mix.iter().sum::<f64>() - 1.0).abs() > PRIOR_SUM_TOLERANCE {
+                return Err(format!("{name} does not sum to 1"));
+            }
+        }
+        if self.model.family() != self.family || self.params.family() != self.family {
+            return Err("the family fields disagree".into());
+        }
+        if self.model.classes() != k {
+            return Err("the fitted parameters have the wrong number of classes".into());
+        }
+        match &self.model {
+            FittedModel::Logistic(m) => m.validate(),
+            FittedModel::NaiveBayes(m) => m.validate(),
+            FittedModel::Lda(m) | FittedModel::Qda(m) => m.validate(),
+        }
+    }
+}

@@ -1,0 +1,555 @@
+//! Logistic regression, binary and multinomial, by Newton's method (IRLS)
+//! with step-halving.
+//!
+//! The objective, with N the total weight (the row count without weights,
+//! so that a weight of 2 is exactly a duplicated row), wᵢ the row weight
+//! times its class weight, and β_s the slopes of the internally
+//! standardised design columns (standard deviation with divisor N):
+//!
+//!   F(θ) = −(1/N)·Σᵢ wᵢ·log p(yᵢ | xᵢ; θ) + (λ/2)·‖β_s‖²,   intercepts unpenalised.
+//!
+//! Classes are compared with a reference class: the first class, in byte
+//! order, other than the positive class (for two classes, the negative
+//! one). log p(k | x)/p(ref | x) = β₀ₖ + βₖᵀx.
+//!
+//! Each Newton iteration is one parallel pass over row tiles accumulating
+//! the gradient and the Hessian Σ wᵢ pₖ(δₖⱼ − pⱼ) zzᵀ; the step solves a
+//! Cholesky system and is halved while the objective does not fall. The
+//! fit stops when the largest step on the standardised scale is below the
+//! tolerance. Standard errors come from the inverse of the Fisher
+//! information at the solution, carried to the original scale by the
+//! linear map that undoes the standardisation; they are not reported for
+//! penalised fits.
+
+use nalgebra::{DMatrix, DVector};
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+
+use crate::data::{Dataset, Inputs};
+use crate::error::{Error, Result};
+use crate::model::design::{tiles, Encoding, TILE_ROWS};
+use crate::model::linalg::cholesky;
+use crate::model::{normalise_log, Diagnostics};
+
+/// How classes are weighted in the fit.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "kebab-case")]
+pub enum ClassWeight {
+    /// Every row by its own weight.
+    #[default]
+    None,
+    /// Each class's total weight made equal (Wₖ·cₖ = N/K).
+    Equal,
+    /// A stated multiplier per class.
+    Explicit(Vec<(String, f64)>),
+}
+
+/// Logistic regression hyperparameters.
+///
+/// | name | default | meaning | range |
+/// |---|---|---|---|
+/// | l2 | 0 | ridge penalty λ on standardised slopes | ≥ 0 |
+/// | class_weight | none | class weights | none, equal, CLASS=W,... |
+/// | max_iterations | 50 | Newton iterations at most | ≥ 1 |
+/// | tolerance | 1e-8 | largest standardised step at convergence | > 0 |
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LogisticParams {
+    /// Ridge penalty λ.
+    pub l2: f64,
+    /// Class weights.
+    pub class_weight: ClassWeight,
+    /// Newton iterations at most.
+    pub max_iterations: usize,
+    /// Convergence tolerance on the standardised step.
+    pub tolerance: f64,
+}
+
+impl Default for LogisticParams {
+    fn default() -> Self {
+        LogisticParams {
+            l2: 0.0,
+            class_weight: ClassWeight::None,
+            max_iterations: 50,
+            tolerance: 1e-8,
+        }
+    }
+}
+
+/// One class's coefficients against the reference class, original scale.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ClassCoefficients {
+    /// Index of the class.
+    pub class: usize,
+    /// β₀ₖ.
+    pub intercept: f64,
+    /// βₖ, one per design column.
+    pub slopes: Vec<f64>,
+}
+
+/// A fitted logistic regression.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LogisticModel {
+    /// How inputs become design columns.
+    pub encoding: Encoding,
+    /// Class names.
+    pub classes: Vec<String>,
+    /// Index of the reference class.
+    pub reference: usize,
+    /// The weighted class shares of the training rows: the class mix the
+    /// posteriors are calibrated to.
+    pub class_mix: Vec<f64>,
+    /// Coefficients of every class but the reference.
+    pub coefficients: Vec<ClassCoefficients>,
+    /// Covariance of (intercept, slopes) of every non-reference class in
+    /// order, original scale, row-major; absent for penalised fits.
+    pub covariance: Option<Vec<f64>>,
+    /// The ridge penalty used.
+    pub l2: f64,
+}
+
+impl LogisticModel {
+    /// Writes log p(k | x) at the training class mix for `rows` into `out`.
+    pub fn log_posteriors_at_training_mix(&self, inputs: &Inputs<'_>, rows: std::ops::Range<usize>, out: &mut [f64]) {
+        let k = self.classes.len();
+        let d = self.encoding.width();
+        let mut x = vec![0.0; d];
+        for (i, r) in rows.enumerate() {
+            self.encoding.fill_row(inputs, r, &mut x);
+            let row = &mut out[i * k..(i + 1) * k];
+            row[self.reference] = 0.0;
+            for c in &self.coefficients {
+                row[c.class] = c.intercept + c.slopes.iter().zip(&x).map(|(b, v)| b * v).sum::<f64>();
+            }
+            normalise_log(row);
+        }
+    }
+
+    /// Standard errors of (intercept, slopes) per non-reference class.
+    pub fn standard_errors(&self) -> Option<Vec<Vec<f64>>> {
+        let covariance = self.covariance.as_ref()?;
+        let width = self.encoding.width() + 1;
+        let size = width * self.coefficients.len();
+        Some(
+            (0..self.coefficients.len())
+                .map(|q| (0..width).map(|a| covariance[(q * width + a) * size + q * width + a].max(0.0).sqrt()).collect())
+                .collect(),
+        )
+    }
+
+    /// Checks shapes and values (used when a model file is loaded).
+    pub fn validate(&self) -> std::result::Result<(), String> {
+        let k = self.classes.len();
+        let d = self.encoding.width();
+        if self.class_mix.len() != k || self.reference >= k || self.coefficients.len() + 1 != k {
+            return Err("coefficients do not match the classes".into());
+        }
+        if self.coefficients.iter().any(|c| c.slopes.len() != d || c.class >= k || c.class == self.reference) {
+            return Err("coefficients do not match the inputs".into());
+        }
+        if self.class_mix.iter().any(|p| !(*p > 0.0 && *p < 1.0)) {
+            return Err("the training class mix must lie strictly between 0 and 1".into());
+        }
+        let values = self.coefficients.iter().flat_map(|c| std::iter::once(&c.intercept).chain(&c.slopes));
+        if values.clone().any(|v| !v.is_finite()) {
+            return Err("a coefficient is not a finite number".into());
+        }
+        Ok(())
+    }
+}
+
+/// The reference class: the first class, in byte order, other than `positive`.
+pub fn reference_class(classes: usize, positive: usize) -> usize {
+    (0..classes).find(|&c| c != positive).unwrap_or(0)
+}
+
+/// Combined row weights: row weight × class weight.
+fn combined_weights(dataset: &Dataset, class_weight: &ClassWeight) -> Result<Vec<f64>> {
+    let target = &dataset.schema.target;
+    let k = target.classes.len();
+    let multipliers: Vec<f64> = match class_weight {
+        ClassWeight::None => vec![1.0; k],
+        ClassWeight::Equal => {
+            let total: f64 = target.weighted_counts.iter().sum();
+            target.weighted_counts.iter().map(|w| if *w > 0.0 { total / (k as f64 * w) } else { 0.0 }).collect()
+        }
+        ClassWeight::Explicit(entries) => {
+            let mut m = vec![1.0; k];
+            for (class, w) in entries {
+                let Some(i) = target.classes.iter().position(|c| c == class) else {
+                    return Err(Error::Usage(format!(
+                        "--class-weight names class '{class}', which is not one of {}",
+                        target.classes.join(", ")
+                    )));
+                };
+                if !(*w > 0.0 && w.is_finite()) {
+                    return Err(Error::Usage(format!("--class-weight for '{class}' must be a positive number")));
+                }
+                m[i] = *w;
+            }
+            m
+        }
+    };
+    Ok(dataset
+        .target
+        .iter()
+        .enumerate()
+        .map(|(r, &y)| dataset.weights.as_ref().map_or(1.0, |w| w[r]) * multipliers[y as usize])
+        .collect())
+}
+
+/// What one pass over the rows gives at a parameter vector.
+#[derive(Clone)]
+struct Pass {
+    log_likelihood: f64,
+    gradient: Vec<f64>,
+    hessian: Vec<f64>,
+    extreme_rows: usize,
+}
+
+impl Pass {
+    fn zero(size: usize, derivatives: bool) -> Self {
+        Pass {
+            log_likelihood: 0.0,
+            gradient: vec![0.0; if derivatives { size } else { 0 }],
+            hessian: vec![0.0; if derivatives { size * size } else { 0 }],
+            extreme_rows: 0,
+        }
+    }
+
+    fn add(&mut self, other: &Pass) {
+        self.log_likelihood += other.log_likelihood;
+        self.extreme_rows += other.extreme_rows;
+        self.gradient.iter_mut().zip(&other.gradient).for_each(|(a, b)| *a += b);
+        self.hessian.iter_mut().zip(&other.hessian).for_each(|(a, b)| *a += b);
+    }
+}
+
+/// Everything a pass needs besides the parameters.
+struct Problem<'a> {
+    encoding: &'a Encoding,
+    inputs: Inputs<'a>,
+    target: &'a [u32],
+    weights: &'a [f64],
+    /// Position of each class among the non-reference classes (None for the reference).
+    slot: Vec<Option<usize>>,
+    /// Standardisation of each design column.
+    centre: Vec<f64>,
+    scale: Vec<f64>,
+}
+
+impl Problem<'_> {
+    /// Number of non-reference classes.
+    fn q(&self) -> usize {
+        self.slot.iter().filter(|s| s.is_some()).count()
+    }
+
+    /// Parameters per class: intercept and one slope per design column.
+    fn width(&self) -> usize {
+        self.encoding.width() + 1
+    }
+
+    /// Log-likelihood (and gradient and Hessian of it when asked) at θ,
+    /// on the standardised scale.
+    fn pass(&self, theta: &[f64], derivatives: bool) -> Pass {
+        let n = self.inputs.rows();
+        let q = self.q();
+        let width = self.width();
+        let size = q * width;
+        let d = width - 1;
+        const TILES_PER_CHUNK: usize = 16;
+        let chunk_rows = TILES_PER_CHUNK * TILE_ROWS;
+        let chunks: Vec<std::ops::Range<usize>> =
+            (0..n.div_ceil(chunk_rows)).map(|c| c * chunk_rows..((c + 1) * chunk_rows).min(n)).collect();
+        let partial: Vec<Pass> = chunks
+            .par_iter()
+            .map(|chunk| {
+                let mut acc = Pass::zero(size, derivatives);
+                // Column-major tile: column 0 is the constant 1.
+                let mut z = vec![0.0; TILE_ROWS * width];
+                let mut eta = vec![0.0; TILE_ROWS * q];
+                let mut p = vec![0.0; TILE_ROWS * q];
+                let mut u = vec![0.0; TILE_ROWS];
+                let mut uz = vec![0.0; TILE_ROWS * width];
+                for range in tiles(chunk.len()) {
+                    let rows = chunk.start + range.start..chunk.start + range.end;
+                    let len = rows.len();
+                    z[..len].iter_mut().for_each(|v| *v = 1.0);
+                    self.encoding.fill_tile(&self.inputs, rows.clone(), &mut z[len..len * width]);
+                    for j in 0..d {
+                        let (c, s) = (self.centre[j], self.scale[j]);
+                        z[(j + 1) * len..(j + 2) * len].iter_mut().for_each(|v| *v = (*v - c) / s);
+                    }
+                    // Linear predictors, column by column.
+                    for c in 0..q {
+                        let e = &mut eta[c * len..(c + 1) * len];
+                        e.iter_mut().for_each(|v| *v = 0.0);
+                        for a in 0..width {
+                            let b = theta[c * width + a];
+                            if b != 0.0 {
+                                e.iter_mut().zip(&z[a * len..(a + 1) * len]).for_each(|(v, x)| *v += b * x);
+                            }
+                        }
+                    }
+                    let weights = &self.weights[rows.clone()];
+                    let target = &self.target[rows];
+                    for i in 0..len {
+                        let max = (0..q).map(|c| eta[c * len + i]).fold(0.0f64, f64::max);
+                        let mut total = (-max).exp();
+                        for c in 0..q {
+                            total += (eta[c * len + i] - max).exp();
+                        }
+                        let log_total = max + total.ln();
+                        let observed = self.slot[target[i] as usize].map_or(0.0, |c| eta[c * len + i]);
+                        acc.log_likelihood += weights[i] * (observed - log_total);
+                        let mut largest = (-log_total).exp();
+                        for c in 0..q {
+                            p[c * len + i] = (eta[c * len + i] - log_total).exp();
+                            largest = largest.max(p[c * len + i]);
+                        }
+                        if largest > 1.0 - 1e-10 {
+                            acc.extreme_rows += 1;
+                        }
+                    }
+                    if !derivatives {
+                        continue;
+                    }
+                    let dot = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(x, y)| x * y).sum::<f64>();
+                    for c in 0..q {
+                        // Gradient: Σ w (1[y = c] − p_c) z.
+                        for i in 0..len {
+                            let hit = self.slot[target[i] as usize] == Some(c);
+                            u[i] = weights[i] * (f64::from(u8::from(hit)) - p[c * len + i]);
+                        }
+                        for a in 0..width {
+                            acc.gradient[c * width + a] += dot(&u[..len], &z[a * len..(a + 1) * len]);
+                        }
+                        // Hessian blocks (c, e), e ≥ c: Σ w p_c(δ − p_e) z zᵀ.
+                        for e in c..q {
+                            for i in 0..len {
+                                let delta = if c == e { 1.0 } else { 0.0 };
+                                u[i] = weights[i] * p[c * len + i] * (delta - p[e * len + i]);
+                            }
+                            for a in 0..width {
+                                let za = &z[a * len..(a + 1) * len];
+                                uz[a * len..(a + 1) * len].iter_mut().zip(za).zip(&u[..len]).for_each(|((o, x), w)| *o = x * w);
+                            }
+                            for a in 0..width {
+                                let start = if c == e { a } else { 0 };
+                                for b in start..width {
+                                    let v = dot(&uz[a * len..(a + 1) * len], &z[b * len..(b + 1) * len]);
+                                    let (row, col) = (c * width + a, e * width + b);
+                                    acc.hessian[row * size + col] += v;
+                                    if row != col {
+                                        acc.hessian[col * size + row] += v;
+                                    }
+                                }
+                            }
+                        }
+                    }
+                }
+                acc
+            })
+            .collect();
+        let mut total = Pass::zero(size, derivatives);
+        for part in &partial {
+            total.add(part);
+        }
+        total
+    }
+}
+
+/// Fits a logistic regression.
+pub fn fit(dataset: &Dataset, params: &LogisticParams) -> Result<(LogisticModel, Diagnostics)> {
+    let schema = &dataset.schema;
+    let classes = schema.target.classes.clone();
+    let k = classes.len();
+    let reference = reference_class(k, schema.target.positive_index());
+    let encoding = Encoding::from_schema(schema);
+    let terms = encoding.terms();
+    let d = encoding.width();
+    let weights = combined_weights(dataset, &params.class_weight)?;
+    let inputs = dataset.inputs();
+
+    // Class mix and standardisation under the combined weights.
+    let mut class_weight_totals = vec![0.0; k];
+    for (r, &y) in dataset.target.iter().enumerate() {
+        class_weight_totals[y as usize] += weights[r];
+    }
+    let total_weight: f64 = class_weight_totals.iter().sum();
+    if class_weight_totals.iter().any(|w| !(*w > 0.0)) {
+        return Err(Error::FitFailed {
+            family: "logistic".into(),
+            message: "every class needs rows with positive weight".into(),
+        });
+    }
+    let class_mix: Vec<f64> = class_weight_totals.iter().map(|w| w / total_weight).collect();
+    let all_one_class = vec![0u32; dataset.rows()];
+    let overall = crate::model::moments::class_moments(&encoding, &inputs, &all_one_class, Some(&weights), 1, true);
+    let centre = overall[0].mean.clone();
+    let scale: Vec<f64> = overall[0].scatter.iter().map(|s| (s / total_weight).sqrt()).collect();
+    if let Some(j) = (0..d).find(|&j| !(scale[j] > 0.0)) {
+        return Err(Error::SingularCovariance {
+            family: "logistic".into(),
+            whose: "of the inputs".into(),
+            columns: vec![terms[j].clone()],
+            hint: "the column is constant; remove it with --exclude".into(),
+        });
+    }
+    let mut slot = vec![None; k];
+    let mut order = Vec::new();
+    for c in 0..k {
+        if c != reference {
+            slot[c] = Some(order.len());
+            order.push(c);
+        }
+    }
+    let problem = Problem {
+        encoding: &encoding,
+        inputs,
+        target: &dataset.target,
+        weights: &weights,
+        slot,
+        centre,
+        scale,
+    };
+    let q = order.len();
+    let width = d + 1;
+    let size = q * width;
+    // Start at the intercept-only solution: log of the class-mix ratios.
+    let mut theta = vec![0.0; size];
+    for (position, &c) in order.iter().enumerate() {
+        theta[position * width] = (class_mix[c] / class_mix[reference]).ln();
+    }
+    let lambda = params.l2;
+    let objective = |log_likelihood: f64, theta: &[f64]| {
+        let penalty: f64 = (0..size).filter(|i| i % width != 0).map(|i| theta[i] * theta[i]).sum();
+        -log_likelihood / total_weight + 0.5 * lambda * penalty
+    };
+    let parameter_name = |i: usize| {
+        let class = &classes[order[i / width]];
+        let term = if i % width == 0 { "(intercept)".to_string() } else { terms[i % width - 1].clone() };
+        if q > 1 {
+            format!("{term} [{class}]")
+        } else {
+            term
+        }
+    };
+
+    let mut warnings = Vec::new();
+    let mut iterations = 0;
+    let mut converged = false;
+    let mut last_step = f64::INFINITY;
+    let mut current = problem.pass(&theta, true);
+    loop {
+        if last_step <= params.tolerance {
+            converged = true;
+            break;
+        }
+        if iterations >= params.max_iterations {
+            break;
+        }
+        iterations += 1;
+        // Newton system on F: (H/N + λI′)Δ = g/N − λβ′.
+        let mut system = DMatrix::from_row_slice(size, size, &current.hessian) / total_weight;
+        let mut rhs = DVector::from_iterator(size, current.gradient.iter().map(|g| g / total_weight));
+        for i in (0..size).filter(|i| i % width != 0) {
+            system[(i, i)] += lambda;
+            rhs[i] -= lambda * theta[i];
+        }
+        let factor = match cholesky(&system) {
+            Ok(f) => f,
+            Err(s) if iterations == 1 => {
+                return Err(Error::SingularCovariance {
+                    family: "logistic".into(),
+                    whose: "of the inputs (the information matrix)".into(),
+                    columns: s.columns.iter().map(|&c| parameter_name(c)).collect(),
+                    hint: "these columns are collinear: remove one of them (--exclude) or add --l2".into(),
+                });
+            }
+            Err(_) => {
+                warnings.push(
+                    "the information matrix became singular during the fit, which signals separation; the estimates are not reliable"
+                        .to_string(),
+                );
+                break;
+            }
+        };
+        let mut step: Vec<f64> = factor.solve(&rhs).iter().copied().collect();
+        let before = objective(current.log_likelihood, &theta);
+        let mut halvings = 0;
+        let (next_theta, next) = loop {
+            let candidate: Vec<f64> = theta.iter().zip(&step).map(|(t, s)| t + s).collect();
+            // With derivatives: an accepted trial is the next iterate's pass.
+            let trial = problem.pass(&candidate, true);
+            let after = objective(trial.log_likelihood, &candidate);
+            if after <= before + 1e-12 * before.abs() || halvings >= 30 {
+                break (candidate, trial);
+            }
+            step.iter_mut().for_each(|s| *s *= 0.5);
+            halvings += 1;
+        };
+        last_step = step.iter().fold(0.0f64, |m, s| m.max(s.abs()));
+        theta = next_theta;
+        current = next;
+    }
+
+    // Separation: fitted probabilities at 0 or 1 and slopes that keep growing.
+    let largest = (0..size).filter(|i| i % width != 0).max_by(|&a, &b| theta[a].abs().total_cmp(&theta[b].abs()));
+    if current.extreme_rows > 0 && (!converged || largest.is_some_and(|i| theta[i].abs() > 10.0)) {
+        let feature = largest.map(parameter_name).unwrap_or_default();
+        warnings.push(format!(
+            "(quasi-)complete separation: {} rows are fitted with probability 0 or 1, and the coefficient of '{feature}' grows without bound; \
+             estimates and standard errors are not reliable (consider --l2, or removing '{feature}')",
+            current.extreme_rows
+        ));
+    }
+    if !converged {
+        warnings.push(format!(
+            "did not converge in {iterations} iterations (last standardised step {last_step:.2e}); raise --max-iterations or look for separation"
+        ));
+    }
+
+    // Back to the original scale: β = β_s/s, β₀ = β₀_s − Σ β_s·m/s.
+    let mut coefficients = Vec::with_capacity(q);
+    let mut transform = DMatrix::zeros(size, size);
+    for (position, &c) in order.iter().enumerate() {
+        let block = &theta[position * width..(position + 1) * width];
+        let slopes: Vec<f64> = (0..d).map(|j| block[j + 1] / problem.scale[j]).collect();
+        let intercept = block[0] - (0..d).map(|j| slopes[j] * problem.centre[j]).sum::<f64>();
+        coefficients.push(ClassCoefficients { class: c, intercept, slopes });
+        let o = position * width;
+        transform[(o, o)] = 1.0;
+        for j in 0..d {
+            transform[(o, o + j + 1)] = -problem.centre[j] / problem.scale[j];
+            transform[(o + j + 1, o + j + 1)] = 1.0 / problem.scale[j];
+        }
+    }
+    let covariance = if lambda == 0.0 {
+        let information = DMatrix::from_row_slice(size, size, &current.hessian);
+        cholesky(&information).ok().map(|f| {
+            let standardised = f.inverse();
+            let original = &transform * standardised * transform.transpose();
+            original.transpose().as_slice().to_vec()
+        })
+    } else {
+        None
+    };
+    let model = LogisticModel {
+        encoding,
+        classes,
+        reference,
+        class_mix,
+        coefficients,
+        covariance,
+        l2: lambda,
+    };
+    Ok((
+        model,
+        Diagnostics {
+            iterations,
+            converged,
+            log_likelihood: current.log_likelihood,
+            warnings,
+        },
+    ))
+}

@@ -1,0 +1,298 @@
+//! The four Bayes-rule families behind one interface.
+//!
+//! Every family fits on a [`Dataset`] (with its optional frequency weights)
+//! and returns, per row, the log-posterior of each class for a given prior.
+//!
+//! - The class-conditional families ([`naive_bayes`], [`discriminant`]: LDA
+//!   and QDA) estimate log p(x | k) and apply a prior by Bayes' rule at
+//!   prediction time: log p(k | x) = log p(x | k) + log πₖ − log Σⱼ p(x | j)πⱼ.
+//!   The prior is never baked into the fitted parameters, so swapping it is
+//!   exact.
+//! - The posterior-direct family ([`logistic`]) estimates p(k | x) under the
+//!   class mix of its (weighted) training rows, which the model records; a
+//!   new prior is applied by the odds correction log p′(k | x) = log p(k | x)
+//!   + log π′ₖ − log πₖ, renormalised.
+//!
+//! Posteriors are computed in log space and normalised by log-sum-exp (the
+//! row maximum subtracted first), so no row can give NaN or infinity.
+
+pub mod design;
+pub mod discriminant;
+pub mod file;
+pub mod linalg;
+pub mod logistic;
+pub mod moments;
+pub mod naive_bayes;
+pub mod prior;
+
+use ndarray::Array2;
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+
+use crate::data::{Dataset, Inputs};
+use crate::error::{Error, Result};
+
+pub use prior::PriorSpec;
+
+/// The families, by their command-line names.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Family {
+    /// Logistic regression (posterior-direct).
+    Logistic,
+    /// Naive Bayes: Gaussian numeric and smoothed categorical likelihoods.
+    NaiveBayes,
+    /// Linear discriminant analysis: Gaussian classes with a shared covariance.
+    Lda,
+    /// Quadratic discriminant analysis: Gaussian classes, own covariances.
+    Qda,
+}
+
+impl Family {
+    /// The command-line name.
+    pub fn name(self) -> &'static str {
+        match self {
+            Family::Logistic => "logistic",
+            Family::NaiveBayes => "naive-bayes",
+            Family::Lda => "lda",
+            Family::Qda => "qda",
+        }
+    }
+
+    /// True for the families that model p(x | class).
+    pub fn is_class_conditional(self) -> bool {
+        self != Family::Logistic
+    }
+}
+
+/// Hyperparameters of a fit, one variant per family (checked by
+/// [`FamilyParams::check`] before fitting).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "family", rename_all = "kebab-case")]
+pub enum FamilyParams {
+    /// See [`logistic::LogisticParams`].
+    Logistic(logistic::LogisticParams),
+    /// See [`naive_bayes::NaiveBayesParams`].
+    NaiveBayes(naive_bayes::NaiveBayesParams),
+    /// See [`discriminant::LdaParams`].
+    Lda(discriminant::LdaParams),
+    /// See [`discriminant::QdaParams`].
+    Qda(discriminant::QdaParams),
+}
+
+impl FamilyParams {
+    /// The defaults of a family.
+    pub fn defaults(family: Family) -> Self {
+        match family {
+            Family::Logistic => FamilyParams::Logistic(logistic::LogisticParams::default()),
+            Family::NaiveBayes => FamilyParams::NaiveBayes(naive_bayes::NaiveBayesParams::default()),
+            Family::Lda => FamilyParams::Lda(discriminant::LdaParams::default()),
+            Family::Qda => FamilyParams::Qda(discriminant::QdaParams::default()),
+        }
+    }
+
+    /// The family.
+    pub fn family(&self) -> Family {
+        match self {
+            FamilyParams::Logistic(_) => Family::Logistic,
+            FamilyParams::NaiveBayes(_) => Family::NaiveBayes,
+            FamilyParams::Lda(_) => Family::Lda,
+            FamilyParams::Qda(_) => Family::Qda,
+        }
+    }
+
+    /// Validates every value (ranges, finiteness).
+    pub fn check(&self) -> Result<()> {
+        let bad = |what: &str| Err(Error::Usage(what.to_string()));
+        match self {
+            FamilyParams::Logistic(p) => {
+                if !(p.l2 >= 0.0 && p.l2.is_finite()) {
+                    return bad("--l2 must be a finite number ≥ 0");
+                }
+                if p.max_iterations == 0 {
+                    return bad("--max-iterations must be at least 1");
+                }
+                if !(p.tolerance > 0.0) {
+                    return bad("--tolerance must be positive");
+                }
+            }
+            FamilyParams::NaiveBayes(p) => {
+                if !(p.smoothing >= 0.0 && p.smoothing.is_finite()) {
+                    return bad("--smoothing must be a finite number ≥ 0");
+                }
+                if !(p.variance_floor >= 0.0 && p.variance_floor < 1.0) {
+                    return bad("--variance-floor must lie in [0, 1)");
+                }
+            }
+            FamilyParams::Lda(p) => {
+                if let discriminant::Shrinkage::Value(v) = p.shrinkage {
+                    if !(0.0..=1.0).contains(&v) {
+                        return bad("--shrinkage takes none, ledoit-wolf or a number in [0, 1]");
+                    }
+                }
+            }
+            FamilyParams::Qda(p) => {
+                if !(0.0..=1.0).contains(&p.reg) {
+                    return bad("--reg must lie in [0, 1]");
+                }
+            }
+        }
+        Ok(())
+    }
+}
+
+/// What a fit reports about itself: it goes into the model file, not only
+/// onto the terminal.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, Default)]
+pub struct Diagnostics {
+    /// Iterations taken (1 for closed-form fits).
+    pub iterations: usize,
+    /// Whether the fit met its convergence criterion.
+    pub converged: bool,
+    /// Weighted log-likelihood of the training rows at the fit (for the
+    /// class-conditional families, of the joint p(x, y) under the prior in
+    /// use; for logistic, of the labels given x).
+    pub log_likelihood: f64,
+    /// Warnings a user must see: non-convergence, separation, shrinkage used.
+    pub warnings: Vec<String>,
+}
+
+/// A fitted model of any family.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "family", rename_all = "kebab-case")]
+pub enum FittedModel {
+    /// A logistic regression.
+    Logistic(logistic::LogisticModel),
+    /// A naive Bayes model.
+    NaiveBayes(naive_bayes::NaiveBayesModel),
+    /// An LDA model.
+    Lda(discriminant::DiscriminantModel),
+    /// A QDA model.
+    Qda(discriminant::DiscriminantModel),
+}
+
+/// Fits a family on a dataset.
+pub fn fit(dataset: &Dataset, params: &FamilyParams) -> Result<(FittedModel, Diagnostics)> {
+    params.check()?;
+    match params {
+        FamilyParams::Logistic(p) => {
+            let (m, d) = logistic::fit(dataset, p)?;
+            Ok((FittedModel::Logistic(m), d))
+        }
+        FamilyParams::NaiveBayes(p) => {
+            let (m, d) = naive_bayes::fit(dataset, p)?;
+            Ok((FittedModel::NaiveBayes(m), d))
+        }
+        FamilyParams::Lda(p) => {
+            let (m, d) = discriminant::fit_lda(dataset, p)?;
+            Ok((FittedModel::Lda(m), d))
+        }
+        FamilyParams::Qda(p) => {
+            let (m, d) = discriminant::fit_qda(dataset, p)?;
+            Ok((FittedModel::Qda(m), d))
+        }
+    }
+}
+
+impl FittedModel {
+    /// The family.
+    pub fn family(&self) -> Family {
+        match self {
+            FittedModel::Logistic(_) => Family::Logistic,
+            FittedModel::NaiveBayes(_) => Family::NaiveBayes,
+            FittedModel::Lda(_) => Family::Lda,
+            FittedModel::Qda(_) => Family::Qda,
+        }
+    }
+
+    /// Number of classes.
+    pub fn classes(&self) -> usize {
+        match self {
+            FittedModel::Logistic(m) => m.class_mix.len(),
+            FittedModel::NaiveBayes(m) => m.classes.len(),
+            FittedModel::Lda(m) | FittedModel::Qda(m) => m.classes.len(),
+        }
+    }
+
+    /// Per-row class log-likelihoods log p(x | k) (rows × classes), for the
+    /// class-conditional families; `None` for logistic regression.
+    pub fn log_likelihoods(&self, inputs: &Inputs<'_>) -> Option<Array2<f64>> {
+        let k = self.classes();
+        match self {
+            FittedModel::Logistic(_) => None,
+            FittedModel::NaiveBayes(m) => Some(per_row(inputs, k, |rows, out| m.log_likelihoods(inputs, rows, out))),
+            FittedModel::Lda(m) | FittedModel::Qda(m) => {
+                Some(per_row(inputs, k, |rows, out| m.log_likelihoods(inputs, rows, out)))
+            }
+        }
+    }
+
+    /// Per-row class log-posteriors (rows × classes) under `prior` (one
+    /// probability per class, summing to 1).
+    pub fn log_posteriors(&self, inputs: &Inputs<'_>, prior: &[f64]) -> Array2<f64> {
+        let k = self.classes();
+        let log_prior: Vec<f64> = prior.iter().map(|p| p.ln()).collect();
+        match self {
+            FittedModel::Logistic(m) => {
+                // Odds correction from the training class mix to `prior`.
+                let shift: Vec<f64> = log_prior.iter().zip(&m.class_mix).map(|(lp, pi)| lp - pi.ln()).collect();
+                per_row(inputs, k, |rows, out| {
+                    m.log_posteriors_at_training_mix(inputs, rows.clone(), out);
+                    for row in out.chunks_mut(k) {
+                        row.iter_mut().zip(&shift).for_each(|(v, s)| *v += s);
+                        normalise_log(row);
+                    }
+                })
+            }
+            _ => {
+                let mut scores = self.log_likelihoods(inputs).unwrap_or_else(|| Array2::zeros((inputs.rows(), k)));
+                if let Some(values) = scores.as_slice_mut() {
+                    values.par_chunks_mut(4096 * k).for_each(|block| {
+                        for row in block.chunks_mut(k) {
+                            row.iter_mut().zip(&log_prior).for_each(|(v, lp)| *v += lp);
+                            normalise_log(row);
+                        }
+                    });
+                }
+                scores
+            }
+        }
+    }
+
+    /// Posterior probabilities (rows × classes) under `prior`.
+    pub fn posteriors(&self, inputs: &Inputs<'_>, prior: &[f64]) -> Array2<f64> {
+        let mut p = self.log_posteriors(inputs, prior);
+        p.mapv_inplace(f64::exp);
+        p
+    }
+}
+
+/// Subtracts log Σ exp(row) from every entry: the row becomes log
+/// probabilities. The maximum is subtracted first, so nothing overflows.
+pub fn normalise_log(row: &mut [f64]) {
+    let max = row.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let total: f64 = row.iter().map(|v| (v - max).exp()).sum();
+    let log_total = max + total.ln();
+    row.iter_mut().for_each(|v| *v -= log_total);
+}
+
+/// Runs `f` over blocks of rows in parallel, each filling its rows of a
+/// row-major rows × `k` output.
+fn per_row(inputs: &Inputs<'_>, k: usize, f: impl Fn(std::ops::Range<usize>, &mut [f64]) + Sync) -> Array2<f64> {
+    const BLOCK: usize = 2048;
+    let n = inputs.rows();
+    let mut out = vec![0.0; n * k];
+    if k > 0 {
+        out.par_chunks_mut(BLOCK * k).enumerate().for_each(|(b, chunk)| {
+            let start = b * BLOCK;
+            let rows = start..start + chunk.len() / k;
+            f(rows, chunk);
+        });
+    }
+    Array2::from_shape_vec((n, k), out).unwrap_or_else(|_| Array2::zeros((n, k)))
+}
+
+/// Weights of a dataset's rows, or `None` when every row weighs 1.
+pub(crate) fn row_weights(dataset: &Dataset) -> Option<&[f64]> {
+    dataset.weights.as_deref()
+}

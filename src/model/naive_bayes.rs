@@ -1,0 +1,228 @@
+//! Naive Bayes: features independent given the class, Gaussian for numeric
+//! inputs and categorical with additive smoothing for categorical ones, in
+//! one model.
+//!
+//! - Numeric: μₖⱼ and σ²ₖⱼ by weighted maximum likelihood (divisor the class
+//!   weight Wₖ), with a variance floor: σ²ₖⱼ ≥ f·Vⱼ, Vⱼ the variance of
+//!   feature j over all rows (divisor n), f = `--variance-floor` (default
+//!   1e-9). The floor only binds when a feature is (nearly) constant within
+//!   a class; it keeps the likelihood finite there.
+//! - Categorical: P(level l | k) = (cₖₗ + α)/(Wₖ + α·L), cₖₗ the weighted
+//!   count, L the number of levels, α = `--smoothing` (default 1, Laplace).
+//!   With α = 0 a level never seen in a class gets probability 2.2e-308
+//!   (the smallest normal double) rather than 0, so posteriors stay finite.
+//!
+//! log p(x | k) = Σⱼ log N(xⱼ; μₖⱼ, σ²ₖⱼ) + Σ_c log P(x_c | k).
+
+use serde::{Deserialize, Serialize};
+
+use crate::data::schema::ColumnKind;
+use crate::data::{Dataset, Inputs};
+use crate::error::{Error, Result};
+use crate::model::design::Encoding;
+use crate::model::moments::class_moments;
+use crate::model::{row_weights, Diagnostics};
+
+/// Naive Bayes hyperparameters.
+///
+/// | name | default | meaning | range |
+/// |---|---|---|---|
+/// | smoothing | 1 | additive smoothing α of categorical likelihoods | ≥ 0 |
+/// | variance_floor | 1e-9 | floor on class variances, as a share of the overall variance | [0, 1) |
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct NaiveBayesParams {
+    /// Additive smoothing α.
+    pub smoothing: f64,
+    /// Floor f on σ²ₖⱼ / Vⱼ.
+    pub variance_floor: f64,
+}
+
+impl Default for NaiveBayesParams {
+    fn default() -> Self {
+        NaiveBayesParams {
+            smoothing: 1.0,
+            variance_floor: 1e-9,
+        }
+    }
+}
+
+/// A categorical input's class-conditional probabilities.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct CategoricalLikelihood {
+    /// The column.
+    pub column: String,
+    /// Its levels.
+    pub levels: Vec<String>,
+    /// log P(level | class), one row per class.
+    pub log_probabilities: Vec<Vec<f64>>,
+}
+
+/// A fitted naive Bayes model.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct NaiveBayesModel {
+    /// Class names.
+    pub classes: Vec<String>,
+    /// Training weight of each class.
+    pub class_weights: Vec<f64>,
+    /// Numeric inputs.
+    pub numeric: Vec<String>,
+    /// μₖⱼ, one row per class.
+    pub means: Vec<Vec<f64>>,
+    /// σ²ₖⱼ (after the floor), one row per class.
+    pub variances: Vec<Vec<f64>>,
+    /// Categorical inputs.
+    pub categorical: Vec<CategoricalLikelihood>,
+}
+
+/// The smallest probability a smoothed level can have.
+const SMALLEST_PROBABILITY: f64 = f64::MIN_POSITIVE;
+
+impl NaiveBayesModel {
+    /// Writes log p(x | k) for `rows` into `out` (row-major, K per row).
+    pub fn log_likelihoods(&self, inputs: &Inputs<'_>, rows: std::ops::Range<usize>, out: &mut [f64]) {
+        let k = self.classes.len();
+        let p = self.numeric.len();
+        // Per class: −½ Σⱼ ln(2πσ²) once, then the quadratic terms per row.
+        let constants: Vec<f64> = self
+            .variances
+            .iter()
+            .map(|v| -0.5 * v.iter().map(|s| (std::f64::consts::TAU * s).ln()).sum::<f64>())
+            .collect();
+        let inverse: Vec<Vec<f64>> = self.variances.iter().map(|v| v.iter().map(|s| 0.5 / s).collect()).collect();
+        for (i, r) in rows.enumerate() {
+            for class in 0..k {
+                let mut ll = constants[class];
+                let means = &self.means[class];
+                let inv = &inverse[class];
+                for j in 0..p {
+                    let dev = inputs.numeric[(r, j)] - means[j];
+                    ll -= dev * dev * inv[j];
+                }
+                for (c, table) in self.categorical.iter().enumerate() {
+                    ll += table.log_probabilities[class][inputs.categorical[c][r] as usize];
+                }
+                out[i * k + class] = ll;
+            }
+        }
+    }
+
+    /// Checks shapes and values (used when a model file is loaded).
+    pub fn validate(&self) -> std::result::Result<(), String> {
+        let k = self.classes.len();
+        let p = self.numeric.len();
+        let shapes = self.means.len() == k
+            && self.variances.len() == k
+            && self.class_weights.len() == k
+            && self.means.iter().chain(&self.variances).all(|r| r.len() == p)
+            && self.categorical.iter().all(|c| {
+                c.log_probabilities.len() == k && c.log_probabilities.iter().all(|r| r.len() == c.levels.len())
+            });
+        if !shapes {
+            return Err("parameter shapes do not match the classes and inputs".into());
+        }
+        if self.variances.iter().flatten().any(|v| !(*v > 0.0 && v.is_finite()))
+            || self.means.iter().flatten().any(|v| !v.is_finite())
+            || self.categorical.iter().flat_map(|c| c.log_probabilities.iter().flatten()).any(|v| !v.is_finite())
+        {
+            return Err("a parameter is not a finite number (or a variance is not positive)".into());
+        }
+        Ok(())
+    }
+}
+
+/// Fits naive Bayes.
+pub fn fit(dataset: &Dataset, params: &NaiveBayesParams) -> Result<(NaiveBayesModel, Diagnostics)> {
+    let schema = &dataset.schema;
+    let k = schema.target.classes.len();
+    let numeric_only = Encoding {
+        numeric: schema.numeric_inputs(),
+        one_hot: Vec::new(),
+    };
+    let p = numeric_only.numeric.len();
+    let inputs = dataset.inputs();
+    let weights = row_weights(dataset);
+    let moments = class_moments(&numeric_only, &inputs, &dataset.target, weights, k, true);
+    for (class, m) in moments.iter().enumerate() {
+        if m.rows == 0 {
+            return Err(Error::TooFewRows {
+                family: "naive-bayes".into(),
+                class: schema.target.classes[class].clone(),
+                rows: 0,
+                needed: 1,
+                hint: "collect rows of that class".into(),
+            });
+        }
+    }
+    // Overall variances V_j (divisor n), from the class moments.
+    let mut overall = moments[0].clone();
+    for m in &moments[1..] {
+        overall.merge(m);
+    }
+    let mut warnings = Vec::new();
+    let mut variances = Vec::with_capacity(k);
+    for (class, m) in moments.iter().enumerate() {
+        let mut row = Vec::with_capacity(p);
+        for j in 0..p {
+            let total_variance = overall.scatter[j] / overall.weight;
+            if !(total_variance > 0.0) {
+                return Err(Error::SingularCovariance {
+                    family: "naive-bayes".into(),
+                    whose: "of every class".into(),
+                    columns: vec![numeric_only.numeric[j].clone()],
+                    hint: "the column is constant; remove it with --exclude".into(),
+                });
+            }
+            let variance = m.scatter[j] / m.weight;
+            let floor = params.variance_floor * total_variance;
+            if variance < floor {
+                warnings.push(format!(
+                    "column '{}' is (nearly) constant in class '{}'; its variance was floored at {floor:.3e}",
+                    numeric_only.numeric[j], schema.target.classes[class]
+                ));
+            }
+            row.push(variance.max(floor).max(f64::MIN_POSITIVE));
+        }
+        variances.push(row);
+    }
+    // Categorical likelihoods from weighted counts.
+    let mut categorical = Vec::new();
+    for (c, column) in schema.categorical_inputs().iter().enumerate() {
+        debug_assert_eq!(column.kind, Some(ColumnKind::Categorical));
+        let levels = column.categorical.as_ref().map(|s| s.levels.clone()).unwrap_or_default();
+        let mut counts = vec![vec![0.0; levels.len()]; k];
+        for (r, &code) in dataset.categorical[c].iter().enumerate() {
+            counts[dataset.target[r] as usize][code as usize] += weights.map_or(1.0, |w| w[r]);
+        }
+        let log_probabilities = counts
+            .iter()
+            .zip(&moments)
+            .map(|(row, m)| {
+                let denominator = m.weight + params.smoothing * levels.len() as f64;
+                row.iter().map(|count| ((count + params.smoothing) / denominator).max(SMALLEST_PROBABILITY).ln()).collect()
+            })
+            .collect();
+        categorical.push(CategoricalLikelihood { column: column.name.clone(), levels, log_probabilities });
+    }
+    // Σᵢ wᵢ log p(xᵢ | yᵢ) in closed form.
+    let mut log_likelihood = 0.0;
+    for (class, m) in moments.iter().enumerate() {
+        for j in 0..p {
+            let v = variances[class][j];
+            log_likelihood -= 0.5 * (m.weight * (std::f64::consts::TAU * v).ln() + m.scatter[j] / v);
+        }
+    }
+    for (c, table) in categorical.iter().enumerate() {
+        for (r, &code) in dataset.categorical[c].iter().enumerate() {
+            log_likelihood += weights.map_or(1.0, |w| w[r]) * table.log_probabilities[dataset.target[r] as usize][code as usize];
+        }
+    }
+    let model = NaiveBayesModel {
+        classes: schema.target.classes.clone(),
+        class_weights: moments.iter().map(|m| m.weight).collect(),
+        numeric: numeric_only.numeric,
+        means: moments.iter().map(|m| m.mean.clone()).collect(),
+        variances,
+        categorical,
+    };
+    Ok((model, Diagnostics { iterations: 1, converged: true, log_likelihood, warnings }))
+}

@@ -1,0 +1,347 @@
+//! What `inspect` shows of a model file: for people (tables) and for
+//! scripts (JSON with the fields of the command-line contract).
+
+use std::collections::BTreeMap;
+
+use serde::Serialize;
+
+use crate::model::discriminant::DiscriminantModel;
+use crate::model::file::ModelFile;
+use crate::model::logistic::{reference_class, LogisticModel};
+use crate::model::FittedModel;
+use crate::report::table::{Align, Table};
+use crate::report::{count, number, percent, wrap, CAUTION};
+
+/// The two-sided 97.5% point of the standard normal (for 95% Wald
+/// intervals): Φ⁻¹(0.975).
+pub const NORMAL_975: f64 = 1.959_963_984_540_054;
+
+/// One coefficient: estimate, and for unpenalised logistic fits its Wald
+/// inference. `class` is set for multinomial fits (that class against the
+/// reference class).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Coefficient {
+    /// `(intercept)`, a numeric input, or `COLUMN=LEVEL`.
+    pub term: String,
+    /// The class this row belongs to (multinomial fits and LDA with more
+    /// than two classes).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub class: Option<String>,
+    /// The estimate, on the original scale.
+    pub estimate: f64,
+    /// Standard error from the inverse Fisher information.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub std_error: Option<f64>,
+    /// estimate / std_error.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub z: Option<f64>,
+    /// Two-sided p-value of z under the standard normal.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub p_value: Option<f64>,
+    /// Lower end of the 95% Wald interval.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub ci_low: Option<f64>,
+    /// Upper end of the 95% Wald interval.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub ci_high: Option<f64>,
+    /// exp(estimate), for logistic slopes.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub odds_ratio: Option<f64>,
+}
+
+/// `inspect --json`.
+#[derive(Debug, Clone, Serialize)]
+pub struct InspectJson {
+    /// The family.
+    pub family: String,
+    /// Classes in order.
+    pub classes: Vec<String>,
+    /// The event class.
+    pub positive: String,
+    /// The prior applied when scoring without `--prior`.
+    pub priors: BTreeMap<String, f64>,
+    /// The weighted class shares of the training rows.
+    pub training_class_mix: BTreeMap<String, f64>,
+    /// Training rows per class.
+    pub training_class_counts: BTreeMap<String, usize>,
+    /// Training rows.
+    pub training_rows: usize,
+    /// Logistic coefficients.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub coefficients: Vec<Coefficient>,
+    /// LDA's linear discriminant coefficients.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub discriminant_coefficients: Vec<Coefficient>,
+    /// Iterations of the fit.
+    pub iterations: usize,
+    /// Whether the fit converged.
+    pub converged: bool,
+    /// Log-likelihood at the fit.
+    pub log_likelihood: f64,
+    /// Warnings from the fit.
+    pub warnings: Vec<String>,
+    /// Model file format version.
+    pub format_version: u32,
+    /// Tool version that wrote the file.
+    pub tool_version: String,
+    /// When it was written.
+    pub created: String,
+    /// SHA-256 of the training file.
+    pub input_sha256: String,
+}
+
+/// Two-sided normal p-value of z: 2Φ(−|z|) = erfc(|z|/√2), accurate far
+/// into the tail.
+pub fn two_sided_p(z: f64) -> f64 {
+    statrs::function::erf::erfc(z.abs() / std::f64::consts::SQRT_2)
+}
+
+/// The logistic coefficient table.
+pub fn logistic_coefficients(model: &LogisticModel) -> Vec<Coefficient> {
+    let terms = model.encoding.terms();
+    let standard_errors = model.standard_errors();
+    let multinomial = model.coefficients.len() > 1;
+    let mut out = Vec::new();
+    for (q, c) in model.coefficients.iter().enumerate() {
+        let values = std::iter::once(c.intercept).chain(c.slopes.iter().copied());
+        let names = std::iter::once("(intercept)".to_string()).chain(terms.iter().cloned());
+        for (a, (term, estimate)) in names.zip(values).enumerate() {
+            let se = standard_errors.as_ref().map(|s| s[q][a]);
+            let z = se.map(|s| estimate / s);
+            out.push(Coefficient {
+                term,
+                class: multinomial.then(|| model.classes[c.class].clone()),
+                estimate,
+                std_error: se,
+                z,
+                p_value: z.map(two_sided_p),
+                ci_low: se.map(|s| estimate - NORMAL_975 * s),
+                ci_high: se.map(|s| estimate + NORMAL_975 * s),
+                odds_ratio: (a > 0).then(|| estimate.exp()),
+            });
+        }
+    }
+    out
+}
+
+/// LDA's discriminant coefficients at `prior`, against the reference class.
+pub fn discriminant_coefficients(model: &DiscriminantModel, prior: &[f64], positive: usize) -> Vec<Coefficient> {
+    let reference = reference_class(model.classes.len(), positive);
+    let terms = model.encoding.terms();
+    let Ok(functions) = model.linear_discriminant(prior, reference) else {
+        return Vec::new();
+    };
+    let several = functions.len() > 1;
+    let mut out = Vec::new();
+    for (class, intercept, w) in functions {
+        let names = std::iter::once("(intercept)".to_string()).chain(terms.iter().cloned());
+        for (term, estimate) in names.zip(std::iter::once(intercept).chain(w)) {
+            out.push(Coefficient {
+                term,
+                class: several.then(|| model.classes[class].clone()),
+                estimate,
+                std_error: None,
+                z: None,
+                p_value: None,
+                ci_low: None,
+                ci_high: None,
+                odds_ratio: None,
+            });
+        }
+    }
+    out
+}
+
+fn by_class<T: Clone>(classes: &[String], values: &[T]) -> BTreeMap<String, T> {
+    classes.iter().cloned().zip(values.iter().cloned()).collect()
+}
+
+/// The JSON view of a model file.
+pub fn inspect_json(file: &ModelFile) -> InspectJson {
+    let positive = file.classes.iter().position(|c| *c == file.positive).unwrap_or(0);
+    let (coefficients, discriminant) = match &file.model {
+        FittedModel::Logistic(m) => (logistic_coefficients(m), Vec::new()),
+        FittedModel::Lda(m) => (Vec::new(), discriminant_coefficients(m, &file.prior, positive)),
+        _ => (Vec::new(), Vec::new()),
+    };
+    InspectJson {
+        family: file.family.name().to_string(),
+        classes: file.classes.clone(),
+        positive: file.positive.clone(),
+        priors: by_class(&file.classes, &file.prior),
+        training_class_mix: by_class(&file.classes, &file.training_class_mix),
+        training_class_counts: by_class(&file.classes, &file.training.class_counts),
+        training_rows: file.training.rows,
+        coefficients,
+        discriminant_coefficients: discriminant,
+        iterations: file.diagnostics.iterations,
+        converged: file.diagnostics.converged,
+        log_likelihood: file.diagnostics.log_likelihood,
+        warnings: file.diagnostics.warnings.clone(),
+        format_version: file.format_version,
+        tool_version: file.tool_version.clone(),
+        created: file.created.clone(),
+        input_sha256: file.training.input_sha256.clone(),
+    }
+}
+
+fn optional(value: Option<f64>, significant: usize) -> String {
+    value.map_or_else(String::new, |v| number(v, significant))
+}
+
+fn p_text(p: Option<f64>) -> String {
+    match p {
+        Some(p) if p < 1e-4 => "<0.0001".to_string(),
+        Some(p) => format!("{p:.4}"),
+        None => String::new(),
+    }
+}
+
+/// The text view of a model file.
+pub fn inspect_text(path: &str, file: &ModelFile) -> String {
+    let json = inspect_json(file);
+    let mut out = format!(
+        "{path}: {} model, format {} (written by baserate {} on {})\n",
+        json.family, json.format_version, json.tool_version, json.created
+    );
+    let mix: Vec<String> = file
+        .classes
+        .iter()
+        .zip(&file.training.class_counts)
+        .zip(&file.training_class_mix)
+        .map(|((c, n), share)| format!("{c} {} ({})", count(*n), percent(*share)))
+        .collect();
+    out.push_str(&format!(
+        "trained on {} rows of {} (sha256 {}…): {}\n",
+        count(file.training.rows),
+        file.training.input_path,
+        &file.training.input_sha256.chars().take(12).collect::<String>(),
+        mix.join(", ")
+    ));
+    let prior: Vec<String> = file.classes.iter().zip(&file.prior).map(|(c, p)| format!("{c} {}", number(*p, 4))).collect();
+    out.push_str(&format!(
+        "positive class: {}; prior when scoring: {}{}\n",
+        file.positive,
+        prior.join(", "),
+        if file.family.is_class_conditional() {
+            " (applied by Bayes' rule)"
+        } else {
+            " (logistic posteriors are corrected from the training class mix by the odds ratio)"
+        }
+    ));
+    out.push_str(&format!(
+        "fit: {} iteration{}, {}, log-likelihood {}\n",
+        file.diagnostics.iterations,
+        if file.diagnostics.iterations == 1 { "" } else { "s" },
+        if file.diagnostics.converged { "converged" } else { "NOT converged" },
+        number(file.diagnostics.log_likelihood, 8)
+    ));
+    for w in &file.diagnostics.warnings {
+        out.push_str(&format!("warning: {}\n", wrap(w, 100, 9)));
+    }
+    out.push('\n');
+    match &file.model {
+        FittedModel::Logistic(m) => {
+            let reference = &m.classes[m.reference];
+            out.push_str(&format!("coefficients (log-odds against '{reference}', original scale):\n"));
+            let mut table = Table::new(&[
+                ("term", Align::Left),
+                ("class", Align::Left),
+                ("estimate", Align::Right),
+                ("std error", Align::Right),
+                ("z", Align::Right),
+                ("p", Align::Right),
+                ("95% interval", Align::Right),
+                ("odds ratio", Align::Right),
+            ]);
+            for c in &json.coefficients {
+                let interval = match (c.ci_low, c.ci_high) {
+                    (Some(a), Some(b)) => format!("{} … {}", number(a, 4), number(b, 4)),
+                    _ => String::new(),
+                };
+                table.row(vec![
+                    c.term.clone(),
+                    c.class.clone().unwrap_or_else(|| file.positive.clone()),
+                    number(c.estimate, 6),
+                    optional(c.std_error, 4),
+                    optional(c.z, 4),
+                    p_text(c.p_value),
+                    interval,
+                    optional(c.odds_ratio, 4),
+                ]);
+            }
+            out.push_str(&table.render());
+            if m.covariance.is_none() {
+                out.push_str(&format!("(penalised fit, --l2 {}: no standard errors)\n", m.l2));
+            }
+        }
+        FittedModel::Lda(m) => {
+            out.push_str(&format!(
+                "linear discriminant (log posterior odds = intercept + Σ coefficient × input, at the prior above){}:\n",
+                if m.shrinkage > 0.0 { format!("; shrinkage α = {:.4}", m.shrinkage) } else { String::new() }
+            ));
+            let mut table =
+                Table::new(&[("term", Align::Left), ("class", Align::Left), ("coefficient", Align::Right)]);
+            for c in &json.discriminant_coefficients {
+                table.row(vec![c.term.clone(), c.class.clone().unwrap_or_else(|| file.positive.clone()), number(c.estimate, 6)]);
+            }
+            out.push_str(&table.render());
+            out.push_str(&class_means(&m.classes, &m.encoding.terms(), &m.means));
+        }
+        FittedModel::Qda(m) => {
+            out.push_str(&class_means(&m.classes, &m.encoding.terms(), &m.means));
+            let factors = m.factors().map(|f| f.iter().map(|f| f.log_det).collect::<Vec<_>>()).unwrap_or_default();
+            let dets: Vec<String> = m.classes.iter().zip(factors).map(|(c, l)| format!("{c} {}", number(l, 6))).collect();
+            out.push_str(&format!("log-determinant of each class covariance: {}\n", dets.join(", ")));
+        }
+        FittedModel::NaiveBayes(m) => {
+            let mut headers: Vec<(String, Align)> = vec![("input".into(), Align::Left)];
+            for c in &m.classes {
+                headers.push((format!("mean | {c}"), Align::Right));
+                headers.push((format!("sd | {c}"), Align::Right));
+            }
+            let headers_ref: Vec<(&str, Align)> = headers.iter().map(|(h, a)| (h.as_str(), *a)).collect();
+            let mut table = Table::new(&headers_ref);
+            for (j, name) in m.numeric.iter().enumerate() {
+                let mut row = vec![name.clone()];
+                for k in 0..m.classes.len() {
+                    row.push(number(m.means[k][j], 5));
+                    row.push(number(m.variances[k][j].sqrt(), 4));
+                }
+                table.row(row);
+            }
+            out.push_str("Gaussian class-conditional inputs:\n");
+            out.push_str(&table.render());
+            for c in &m.categorical {
+                out.push_str(&format!("\n'{}': P(level | class)\n", c.column));
+                let mut headers: Vec<(String, Align)> = vec![("level".into(), Align::Left)];
+                headers.extend(m.classes.iter().map(|k| (k.clone(), Align::Right)));
+                let headers_ref: Vec<(&str, Align)> = headers.iter().map(|(h, a)| (h.as_str(), *a)).collect();
+                let mut table = Table::new(&headers_ref);
+                for (l, level) in c.levels.iter().enumerate() {
+                    let mut row = vec![level.clone()];
+                    row.extend((0..m.classes.len()).map(|k| number(c.log_probabilities[k][l].exp(), 4)));
+                    table.row(row);
+                }
+                out.push_str(&table.render());
+            }
+        }
+    }
+    out.push('\n');
+    out.push_str(&wrap(CAUTION, 100, 0));
+    out.push('\n');
+    out
+}
+
+fn class_means(classes: &[String], terms: &[String], means: &[Vec<f64>]) -> String {
+    let mut headers: Vec<(String, Align)> = vec![("input".into(), Align::Left)];
+    headers.extend(classes.iter().map(|c| (format!("mean | {c}"), Align::Right)));
+    let headers_ref: Vec<(&str, Align)> = headers.iter().map(|(h, a)| (h.as_str(), *a)).collect();
+    let mut table = Table::new(&headers_ref);
+    for (j, term) in terms.iter().enumerate() {
+        let mut row = vec![term.clone()];
+        row.extend(means.iter().map(|m| number(m[j], 5)));
+        table.row(row);
+    }
+    format!("\nclass means:\n{}", table.render())
+}
