@@ -132,10 +132,9 @@ impl FamilyOptions {
                     variance_floor: self.variance_floor.unwrap_or(defaults.variance_floor),
                 })
             }
-            Family::Lda => FamilyParams::Lda(LdaParams {
-                shrinkage: parse_shrinkage(self.shrinkage.as_deref())?,
-                divisor,
-            }),
+            Family::Lda => {
+                FamilyParams::Lda(LdaParams { shrinkage: parse_shrinkage(self.shrinkage.as_deref())?, divisor })
+            }
             Family::Qda => FamilyParams::Qda(QdaParams { reg: self.reg.unwrap_or(0.0), divisor }),
         };
         params.check()?;
@@ -148,12 +147,9 @@ pub fn parse_shrinkage(text: Option<&str>) -> crate::Result<Shrinkage> {
     match text {
         None | Some("none") => Ok(Shrinkage::None),
         Some("ledoit-wolf") => Ok(Shrinkage::LedoitWolf),
-        Some(v) => v
-            .parse::<f64>()
-            .ok()
-            .filter(|a| (0.0..=1.0).contains(a))
-            .map(Shrinkage::Value)
-            .ok_or_else(|| Error::Usage(format!("--shrinkage takes none, ledoit-wolf or a number in [0, 1], not '{v}'"))),
+        Some(v) => v.parse::<f64>().ok().filter(|a| (0.0..=1.0).contains(a)).map(Shrinkage::Value).ok_or_else(|| {
+            Error::Usage(format!("--shrinkage takes none, ledoit-wolf or a number in [0, 1], not '{v}'"))
+        }),
     }
 }
 
@@ -168,7 +164,8 @@ pub fn parse_class_weight(text: Option<&str>) -> crate::Result<ClassWeight> {
                 let (class, w) = part
                     .rsplit_once('=')
                     .ok_or_else(|| Error::Usage(format!("--class-weight takes equal or CLASS=W,..., not '{part}'")))?;
-                let w: f64 = w.trim().parse().map_err(|_| Error::Usage(format!("'{w}' in --class-weight is not a number")))?;
+                let w: f64 =
+                    w.trim().parse().map_err(|_| Error::Usage(format!("'{w}' in --class-weight is not a number")))?;
                 Ok((class.trim().to_string(), w))
             })
             .collect::<crate::Result<Vec<_>>>()
@@ -227,7 +224,8 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         crate::model::FittedModel::Logistic(m) => m.class_mix.clone(),
         _ => target.class_mix(),
     };
-    let prior = spec.unwrap_or(PriorSpec::Empirical).resolve(&target.classes, &training_class_mix, target.positive_index())?;
+    let prior =
+        spec.unwrap_or(PriorSpec::Empirical).resolve(&target.classes, &training_class_mix, target.positive_index())?;
     let file = ModelFile {
         format: FORMAT.to_string(),
         format_version: FORMAT_VERSION,
@@ -260,7 +258,13 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         .zip(&target.class_mix())
         .map(|((c, n), s)| format!("{c} {} ({})", count(*n), percent(*s)))
         .collect();
-    println!("fitted {} on {} rows of {}: {}", family.name(), count(dataset.rows()), args.data.display(), mix.join(", "));
+    println!(
+        "fitted {} on {} rows of {}: {}",
+        family.name(),
+        count(dataset.rows()),
+        args.data.display(),
+        mix.join(", ")
+    );
     println!(
         "positive class: {}; {} iteration{}, {}, log-likelihood {}",
         target.positive,

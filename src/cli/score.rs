@@ -50,7 +50,8 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         Some(spec) => spec.resolve(&file.classes, &file.training_class_mix, positive)?,
         None => file.prior.clone(),
     };
-    let data = read_for_scoring(&args.data, &file.schema, &args.ids, parse_delimiter(&args.delimiter)?, args.na.clone())?;
+    let data =
+        read_for_scoring(&args.data, &file.schema, &args.ids, parse_delimiter(&args.delimiter)?, args.na.clone())?;
     let posteriors = file.model.posteriors(&data.inputs(), &prior);
     let mut writer = csv::Writer::from_writer(Vec::with_capacity(data.rows() * 40));
     let mut header: Vec<String> = data.ids.iter().map(|(name, _)| name.clone()).collect();
@@ -61,7 +62,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     for (r, row) in posteriors.rows().into_iter().enumerate() {
         record.clear();
         record.extend(data.ids.iter().map(|(_, values)| values[r].clone()));
-        record.extend(row.iter().map(|p| format!("{p}")));
+        record.extend(row.iter().map(|p| crate::report::exact(*p)));
         writer.write_record(&record).map_err(io_error)?;
     }
     let bytes = writer.into_inner().map_err(|e| crate::Error::io(args.out.display().to_string(), e.into_error()))?;
@@ -70,7 +71,12 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         eprintln!("note: column '{column}': {n} missing values filled as in training");
     }
     if args.out.as_os_str() != "-" {
-        eprintln!("scored {} rows with the {} model; posteriors written to {}", data.rows(), file.family.name(), args.out.display());
+        eprintln!(
+            "scored {} rows with the {} model; posteriors written to {}",
+            data.rows(),
+            file.family.name(),
+            args.out.display()
+        );
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -70,10 +70,7 @@ impl Inputs<'_> {
 impl Dataset {
     /// The model inputs of every row.
     pub fn inputs(&self) -> Inputs<'_> {
-        Inputs {
-            numeric: self.numeric.view(),
-            categorical: &self.categorical,
-        }
+        Inputs { numeric: self.numeric.view(), categorical: &self.categorical }
     }
 
     /// Reads a training file from disk.

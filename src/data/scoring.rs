@@ -31,10 +31,7 @@ pub struct ScoringData {
 impl ScoringData {
     /// The model inputs.
     pub fn inputs(&self) -> Inputs<'_> {
-        Inputs {
-            numeric: self.numeric.view(),
-            categorical: &self.categorical,
-        }
+        Inputs { numeric: self.numeric.view(), categorical: &self.categorical }
     }
 
     /// Number of rows.
@@ -59,8 +56,7 @@ pub fn read_for_scoring(
     options.ids = ids.to_vec();
     let features: Vec<_> = schema.features().collect();
     options.model_columns = Some(features.iter().map(|c| c.name.clone()).collect());
-    options.numeric =
-        features.iter().filter(|c| c.kind == Some(ColumnKind::Numeric)).map(|c| c.name.clone()).collect();
+    options.numeric = features.iter().filter(|c| c.kind == Some(ColumnKind::Numeric)).map(|c| c.name.clone()).collect();
     options.categorical =
         features.iter().filter(|c| c.kind == Some(ColumnKind::Categorical)).map(|c| c.name.clone()).collect();
     let table = read_path(path, &options)?;
@@ -80,7 +76,8 @@ fn from_table(table: ReadTable, schema: &Schema) -> Result<ScoringData> {
     let mut imputed = Vec::new();
 
     let numeric_features: Vec<_> = schema.features().filter(|c| c.kind == Some(ColumnKind::Numeric)).collect();
-    let indicators = numeric_features.iter().filter(|c| matches!(c.imputation, Some(Imputation::Median { .. }))).count();
+    let indicators =
+        numeric_features.iter().filter(|c| matches!(c.imputation, Some(Imputation::Median { .. }))).count();
     let width = numeric_features.len() + indicators;
     let mut numeric = Array2::zeros((rows, width).f());
     let mut indicator_column = numeric_features.len();
@@ -116,7 +113,11 @@ fn from_table(table: ReadTable, schema: &Schema) -> Result<ScoringData> {
             numeric.column_mut(j).assign(&source);
         }
         if let Some(Imputation::Median { .. }) = feature.imputation {
-            numeric.column_mut(indicator_column).iter_mut().zip(source).for_each(|(t, v)| *t = f64::from(u8::from(v.is_nan())));
+            numeric
+                .column_mut(indicator_column)
+                .iter_mut()
+                .zip(source)
+                .for_each(|(t, v)| *t = f64::from(u8::from(v.is_nan())));
             indicator_column += 1;
         }
     }

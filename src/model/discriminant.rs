@@ -201,7 +201,8 @@ impl DiscriminantModel {
         Ok((0..self.classes.len())
             .filter(|&c| c != reference)
             .map(|c| {
-                let w: Vec<f64> = (0..self.encoding.width()).map(|j| inverse_mean[c][j] - inverse_mean[reference][j]).collect();
+                let w: Vec<f64> =
+                    (0..self.encoding.width()).map(|j| inverse_mean[c][j] - inverse_mean[reference][j]).collect();
                 let intercept = -0.5 * (quadratic[c] - quadratic[reference]) + (prior[c] / prior[reference]).ln();
                 (c, intercept, w)
             })
@@ -294,7 +295,8 @@ pub fn ledoit_wolf_intensity(r: &DMatrix<f64>, fourth: f64, n: f64) -> f64 {
 
 const LDA_HINT: &str =
     "remove constant or duplicated columns (--exclude), or shrink the covariance with --shrinkage ledoit-wolf";
-const QDA_HINT: &str = "remove constant or duplicated columns (--exclude), regularise with --reg (e.g. 0.1), or use lda";
+const QDA_HINT: &str =
+    "remove constant or duplicated columns (--exclude), regularise with --reg (e.g. 0.1), or use lda";
 
 /// Fits LDA.
 pub fn fit_lda(dataset: &Dataset, params: &LdaParams) -> Result<(DiscriminantModel, Diagnostics)> {
@@ -338,7 +340,8 @@ pub fn fit_lda(dataset: &Dataset, params: &LdaParams) -> Result<(DiscriminantMod
             let r = DMatrix::from_fn(d, d, |i, j| scatter[(i, j)] / n / (scale[i] * scale[j]));
             let fourth = fourth_moment(&encoding, dataset, &means, &scale);
             let a = ledoit_wolf_intensity(&r, fourth, n);
-            warnings.push(format!("Ledoit–Wolf shrinkage intensity {a:.4} toward the diagonal of the pooled covariance"));
+            warnings
+                .push(format!("Ledoit–Wolf shrinkage intensity {a:.4} toward the diagonal of the pooled covariance"));
             a
         }
     };
@@ -346,7 +349,8 @@ pub fn fit_lda(dataset: &Dataset, params: &LdaParams) -> Result<(DiscriminantMod
         let diagonal = DMatrix::from_diagonal(&covariance.diagonal());
         covariance = covariance * (1.0 - alpha) + diagonal * alpha;
     }
-    let factor = cholesky(&covariance).map_err(|s| singular("lda", "pooled over the classes".into(), &encoding, s, LDA_HINT))?;
+    let factor =
+        cholesky(&covariance).map_err(|s| singular("lda", "pooled over the classes".into(), &encoding, s, LDA_HINT))?;
     let log_likelihood = joint_log_likelihood(&moments, &[factor.clone()], &[covariance.clone()]);
     let model = DiscriminantModel {
         encoding,
@@ -423,7 +427,10 @@ fn joint_log_likelihood(moments: &[Moments], factors: &[Factor], covariances: &[
         .map(|(k, m)| {
             let f = &factors[if factors.len() == 1 { 0 } else { k }];
             let inverse = f.inverse();
-            let trace: f64 = (0..d).flat_map(|i| (0..d).map(move |j| (i, j))).map(|(i, j)| inverse[(i, j)] * m.scatter_at(j, i)).sum();
+            let trace: f64 = (0..d)
+                .flat_map(|i| (0..d).map(move |j| (i, j)))
+                .map(|(i, j)| inverse[(i, j)] * m.scatter_at(j, i))
+                .sum();
             -0.5 * (m.weight * (d as f64 * std::f64::consts::TAU.ln() + f.log_det) + trace)
         })
         .sum()

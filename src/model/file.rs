@@ -128,7 +128,8 @@ impl ModelFile {
         if version == 0 {
             return Err(bad("the model file has no valid format_version".into()));
         }
-        let file: ModelFile = serde_json::from_value(value).map_err(|e| bad(format!("the model file is corrupt: {e}")))?;
+        let file: ModelFile =
+            serde_json::from_value(value).map_err(|e| bad(format!("the model file is corrupt: {e}")))?;
         file.validate().map_err(|m| bad(format!("the model file is corrupt: {m}")))?;
         Ok(file)
     }
@@ -141,6 +142,9 @@ impl ModelFile {
         }
         if self.schema.target.classes != self.classes {
             return Err("the classes do not match the schema's".into());
+        }
+        if self.schema.target.positive != self.positive {
+            return Err("the positive class does not match the schema's".into());
         }
         if !self.classes.contains(&self.positive) {
             return Err(format!("the positive class '{}' is not one of the classes", self.positive));

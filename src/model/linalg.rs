@@ -35,10 +35,7 @@ pub fn cholesky(matrix: &DMatrix<f64>) -> Result<Factor, Singularity> {
     let d = matrix.nrows();
     let constant: Vec<usize> = (0..d).filter(|&i| !(matrix[(i, i)] > 0.0)).collect();
     if !constant.is_empty() {
-        return Err(Singularity {
-            columns: constant,
-            smallest_eigenvalue: 0.0,
-        });
+        return Err(Singularity { columns: constant, smallest_eigenvalue: 0.0 });
     }
     // Judge conditioning on the correlation scale, so units do not matter.
     let scale: Vec<f64> = (0..d).map(|i| matrix[(i, i)].sqrt()).collect();
@@ -54,10 +51,7 @@ pub fn cholesky(matrix: &DMatrix<f64>) -> Result<Factor, Singularity> {
         let vector = eigen.eigenvectors.column(position);
         let largest = vector.iter().fold(0.0f64, |m, v| m.max(v.abs()));
         let columns = (0..d).filter(|&i| vector[i].abs() >= 0.1 * largest).collect();
-        return Err(Singularity {
-            columns,
-            smallest_eigenvalue: smallest,
-        });
+        return Err(Singularity { columns, smallest_eigenvalue: smallest });
     }
     match nalgebra::Cholesky::new(matrix.clone()) {
         Some(c) => {
@@ -65,10 +59,7 @@ pub fn cholesky(matrix: &DMatrix<f64>) -> Result<Factor, Singularity> {
             let log_det = 2.0 * (0..d).map(|i| lower[(i, i)].ln()).sum::<f64>();
             Ok(Factor { lower, log_det })
         }
-        None => Err(Singularity {
-            columns: (0..d).collect(),
-            smallest_eigenvalue: smallest,
-        }),
+        None => Err(Singularity { columns: (0..d).collect(), smallest_eigenvalue: smallest }),
     }
 }
 

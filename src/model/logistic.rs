@@ -66,12 +66,7 @@ pub struct LogisticParams {
 
 impl Default for LogisticParams {
     fn default() -> Self {
-        LogisticParams {
-            l2: 0.0,
-            class_weight: ClassWeight::None,
-            max_iterations: 50,
-            tolerance: 1e-8,
-        }
+        LogisticParams { l2: 0.0, class_weight: ClassWeight::None, max_iterations: 50, tolerance: 1e-8 }
     }
 }
 
@@ -131,7 +126,9 @@ impl LogisticModel {
         let size = width * self.coefficients.len();
         Some(
             (0..self.coefficients.len())
-                .map(|q| (0..width).map(|a| covariance[(q * width + a) * size + q * width + a].max(0.0).sqrt()).collect())
+                .map(|q| {
+                    (0..width).map(|a| covariance[(q * width + a) * size + q * width + a].max(0.0).sqrt()).collect()
+                })
                 .collect(),
         )
     }
@@ -331,7 +328,11 @@ impl Problem<'_> {
                             }
                             for a in 0..width {
                                 let za = &z[a * len..(a + 1) * len];
-                                uz[a * len..(a + 1) * len].iter_mut().zip(za).zip(&u[..len]).for_each(|((o, x), w)| *o = x * w);
+                                uz[a * len..(a + 1) * len]
+                                    .iter_mut()
+                                    .zip(za)
+                                    .zip(&u[..len])
+                                    .for_each(|((o, x), w)| *o = x * w);
                             }
                             for a in 0..width {
                                 let start = if c == e { a } else { 0 };
@@ -403,15 +404,8 @@ pub fn fit(dataset: &Dataset, params: &LogisticParams) -> Result<(LogisticModel,
             order.push(c);
         }
     }
-    let problem = Problem {
-        encoding: &encoding,
-        inputs,
-        target: &dataset.target,
-        weights: &weights,
-        slot,
-        centre,
-        scale,
-    };
+    let problem =
+        Problem { encoding: &encoding, inputs, target: &dataset.target, weights: &weights, slot, centre, scale };
     let q = order.len();
     let width = d + 1;
     let size = q * width;
@@ -534,22 +528,6 @@ pub fn fit(dataset: &Dataset, params: &LogisticParams) -> Result<(LogisticModel,
     } else {
         None
     };
-    let model = LogisticModel {
-        encoding,
-        classes,
-        reference,
-        class_mix,
-        coefficients,
-        covariance,
-        l2: lambda,
-    };
-    Ok((
-        model,
-        Diagnostics {
-            iterations,
-            converged,
-            log_likelihood: current.log_likelihood,
-            warnings,
-        },
-    ))
+    let model = LogisticModel { encoding, classes, reference, class_mix, coefficients, covariance, l2: lambda };
+    Ok((model, Diagnostics { iterations, converged, log_likelihood: current.log_likelihood, warnings }))
 }

@@ -39,10 +39,7 @@ pub struct NaiveBayesParams {
 
 impl Default for NaiveBayesParams {
     fn default() -> Self {
-        NaiveBayesParams {
-            smoothing: 1.0,
-            variance_floor: 1e-9,
-        }
+        NaiveBayesParams { smoothing: 1.0, variance_floor: 1e-9 }
     }
 }
 
@@ -134,10 +131,7 @@ impl NaiveBayesModel {
 pub fn fit(dataset: &Dataset, params: &NaiveBayesParams) -> Result<(NaiveBayesModel, Diagnostics)> {
     let schema = &dataset.schema;
     let k = schema.target.classes.len();
-    let numeric_only = Encoding {
-        numeric: schema.numeric_inputs(),
-        one_hot: Vec::new(),
-    };
+    let numeric_only = Encoding { numeric: schema.numeric_inputs(), one_hot: Vec::new() };
     let p = numeric_only.numeric.len();
     let inputs = dataset.inputs();
     let weights = row_weights(dataset);
@@ -198,7 +192,9 @@ pub fn fit(dataset: &Dataset, params: &NaiveBayesParams) -> Result<(NaiveBayesMo
             .zip(&moments)
             .map(|(row, m)| {
                 let denominator = m.weight + params.smoothing * levels.len() as f64;
-                row.iter().map(|count| ((count + params.smoothing) / denominator).max(SMALLEST_PROBABILITY).ln()).collect()
+                row.iter()
+                    .map(|count| ((count + params.smoothing) / denominator).max(SMALLEST_PROBABILITY).ln())
+                    .collect()
             })
             .collect();
         categorical.push(CategoricalLikelihood { column: column.name.clone(), levels, log_probabilities });
@@ -213,7 +209,8 @@ pub fn fit(dataset: &Dataset, params: &NaiveBayesParams) -> Result<(NaiveBayesMo
     }
     for (c, table) in categorical.iter().enumerate() {
         for (r, &code) in dataset.categorical[c].iter().enumerate() {
-            log_likelihood += weights.map_or(1.0, |w| w[r]) * table.log_probabilities[dataset.target[r] as usize][code as usize];
+            log_likelihood +=
+                weights.map_or(1.0, |w| w[r]) * table.log_probabilities[dataset.target[r] as usize][code as usize];
         }
     }
     let model = NaiveBayesModel {

@@ -121,7 +121,10 @@ mod tests {
     fn parses_and_resolves() {
         let spec: PriorSpec = "good=0.9,bad=0.1".parse().unwrap();
         assert_eq!(spec.resolve(&classes(), &[0.5, 0.5], 0).unwrap(), vec![0.1, 0.9]);
-        assert_eq!("uniform".parse::<PriorSpec>().unwrap().resolve(&classes(), &[0.3, 0.7], 0).unwrap(), vec![0.5, 0.5]);
+        assert_eq!(
+            "uniform".parse::<PriorSpec>().unwrap().resolve(&classes(), &[0.3, 0.7], 0).unwrap(),
+            vec![0.5, 0.5]
+        );
         assert_eq!(PriorSpec::Empirical.resolve(&classes(), &[0.3, 0.7], 0).unwrap(), vec![0.3, 0.7]);
         let r = PriorSpec::BaseRate(0.03).resolve(&classes(), &[0.3, 0.7], 0).unwrap();
         approx::assert_relative_eq!(r[0], 0.03, max_relative = 1e-15);

@@ -32,6 +32,17 @@ pub fn wrap(text: &str, width: usize, indent: usize) -> String {
     out
 }
 
+/// A number for a data file: the shortest text that reads back as exactly
+/// the same double, in exponent form below 1e-4 (so that small
+/// probabilities stay short), e.g. 0.25, 3.5103255297807e-5.
+pub fn exact(x: f64) -> String {
+    if x != 0.0 && x.abs() < 1e-4 {
+        format!("{x:e}")
+    } else {
+        format!("{x}")
+    }
+}
+
 /// A whole number with thousands separators: 1234567 → "1,234,567".
 pub fn count(n: usize) -> String {
     let digits = n.to_string();
@@ -76,6 +87,9 @@ mod tests {
 
     #[test]
     fn formats() {
+        assert_eq!(exact(0.25), "0.25");
+        assert_eq!(exact(3.5e-5), "3.5e-5");
+        assert_eq!(exact(3.5e-5).parse::<f64>().unwrap(), 3.5e-5);
         assert_eq!(wrap("aa bb cc dd", 5, 2), "aa bb\n  cc\n  dd");
         assert_eq!(count(0), "0");
         assert_eq!(count(999), "999");

@@ -218,7 +218,8 @@ pub fn inspect_text(path: &str, file: &ModelFile) -> String {
         &file.training.input_sha256.chars().take(12).collect::<String>(),
         mix.join(", ")
     ));
-    let prior: Vec<String> = file.classes.iter().zip(&file.prior).map(|(c, p)| format!("{c} {}", number(*p, 4))).collect();
+    let prior: Vec<String> =
+        file.classes.iter().zip(&file.prior).map(|(c, p)| format!("{c} {}", number(*p, 4))).collect();
     out.push_str(&format!(
         "positive class: {}; prior when scoring: {}{}\n",
         file.positive,
@@ -280,10 +281,13 @@ pub fn inspect_text(path: &str, file: &ModelFile) -> String {
                 "linear discriminant (log posterior odds = intercept + Σ coefficient × input, at the prior above){}:\n",
                 if m.shrinkage > 0.0 { format!("; shrinkage α = {:.4}", m.shrinkage) } else { String::new() }
             ));
-            let mut table =
-                Table::new(&[("term", Align::Left), ("class", Align::Left), ("coefficient", Align::Right)]);
+            let mut table = Table::new(&[("term", Align::Left), ("class", Align::Left), ("coefficient", Align::Right)]);
             for c in &json.discriminant_coefficients {
-                table.row(vec![c.term.clone(), c.class.clone().unwrap_or_else(|| file.positive.clone()), number(c.estimate, 6)]);
+                table.row(vec![
+                    c.term.clone(),
+                    c.class.clone().unwrap_or_else(|| file.positive.clone()),
+                    number(c.estimate, 6),
+                ]);
             }
             out.push_str(&table.render());
             out.push_str(&class_means(&m.classes, &m.encoding.terms(), &m.means));
@@ -291,7 +295,8 @@ pub fn inspect_text(path: &str, file: &ModelFile) -> String {
         FittedModel::Qda(m) => {
             out.push_str(&class_means(&m.classes, &m.encoding.terms(), &m.means));
             let factors = m.factors().map(|f| f.iter().map(|f| f.log_det).collect::<Vec<_>>()).unwrap_or_default();
-            let dets: Vec<String> = m.classes.iter().zip(factors).map(|(c, l)| format!("{c} {}", number(l, 6))).collect();
+            let dets: Vec<String> =
+                m.classes.iter().zip(factors).map(|(c, l)| format!("{c} {}", number(l, 6))).collect();
             out.push_str(&format!("log-determinant of each class covariance: {}\n", dets.join(", ")));
         }
         FittedModel::NaiveBayes(m) => {

@@ -1,0 +1,241 @@
+//! `fit`, `inspect` and `score` through the binary: the contract's fields,
+//! and a clear message (never a panic) for singular, separated,
+//! non-converging and corrupt cases.
+
+mod common;
+
+use common::{baserate, temp_dir, write};
+use serde_json::Value;
+
+fn run(dir: &std::path::Path, args: &[&str]) -> (i32, String, String) {
+    let output = baserate(dir, args);
+    let stderr = String::from_utf8_lossy(&output.stderr).into_owned();
+    assert!(!stderr.contains("panicked") && !stderr.contains("internal error"), "{stderr}");
+    (output.status.code().unwrap_or(-1), String::from_utf8_lossy(&output.stdout).into_owned(), stderr)
+}
+
+fn lending(dir: &std::path::Path) {
+    let files = baserate::demo::generate(baserate::demo::DEFAULT_SEED, baserate::demo::DemoSize::standard());
+    write(dir, "train.csv", files[0].contents.as_bytes());
+    write(dir, "new.csv", files[1].contents.as_bytes());
+}
+
+const LENDING: [&str; 7] =
+    ["train.csv", "--target", "outcome", "--id", "application_id,application_month", "--missing", "impute"];
+
+#[test]
+fn every_family_fits_inspects_and_scores() {
+    let dir = temp_dir();
+    lending(dir.path());
+    for family in ["logistic", "naive-bayes", "lda", "qda"] {
+        let mut args = vec!["fit"];
+        args.extend(LENDING);
+        args.extend(["--family", family, "-o", "model.json"]);
+        let (code, out, err) = run(dir.path(), &args);
+        assert_eq!(code, 0, "{family}: {err}");
+        assert!(out.contains("decision support, not a decision"));
+
+        let (code, json, err) = run(dir.path(), &["inspect", "model.json", "--json", "-"]);
+        assert_eq!(code, 0, "{err}");
+        let v: Value = serde_json::from_str(&json).expect("inspect json");
+        assert_eq!(v["family"], family);
+        assert_eq!(v["classes"], serde_json::json!(["defaulted", "repaid"]));
+        assert_eq!(v["positive"], "defaulted");
+        assert_eq!(v["training_class_counts"]["defaulted"], 536);
+        let priors = v["priors"].as_object().expect("priors");
+        assert!((priors.values().map(|p| p.as_f64().unwrap_or(0.0)).sum::<f64>() - 1.0).abs() < 1e-12);
+        match family {
+            "logistic" => {
+                let c = v["coefficients"].as_array().expect("coefficients");
+                assert_eq!(c[0]["term"], "(intercept)");
+                assert!(c.iter().any(|t| t["term"] == "channel=broker"));
+                for field in ["estimate", "std_error", "z", "p_value"] {
+                    assert!(c[1][field].is_number(), "{field}");
+                }
+            }
+            "lda" => assert_eq!(v["discriminant_coefficients"][0]["term"], "(intercept)"),
+            _ => {}
+        }
+        let (code, text, err) = run(dir.path(), &["inspect", "model.json"]);
+        assert_eq!(code, 0, "{err}");
+        assert!(text.contains(family) && text.contains("Caution"));
+
+        let (code, _, err) = run(
+            dir.path(),
+            &["score", "model.json", "new.csv", "-o", "scores.csv", "--id", "application_id", "--base-rate", "0.03"],
+        );
+        assert_eq!(code, 0, "{err}");
+        let scores = std::fs::read_to_string(dir.path().join("scores.csv")).expect("scores");
+        let mut lines = scores.lines();
+        assert_eq!(lines.next(), Some("application_id,p_defaulted,p_repaid"));
+        let rows: Vec<&str> = lines.collect();
+        assert_eq!(rows.len(), 5_000);
+        for row in rows {
+            let fields: Vec<&str> = row.split(',').collect();
+            let p: f64 = fields[1].parse::<f64>().expect("p") + fields[2].parse::<f64>().expect("p");
+            assert!((p - 1.0).abs() < 1e-12, "{row}");
+        }
+    }
+}
+
+#[test]
+fn singular_covariances_name_the_class_and_columns() {
+    let dir = temp_dir();
+    // `twice` is exactly 2 × `x`; `flat` is constant within class b.
+    let mut text = String::from("x,twice,flat,z,y\n");
+    for i in 0..60 {
+        let x = (i * 37 % 17) as f64;
+        let class = if i % 2 == 0 { "a" } else { "b" };
+        let flat = if class == "b" { 1.0 } else { (i % 5) as f64 };
+        text.push_str(&format!("{x},{},{flat},{},{class}\n", 2.0 * x, (i * 13 % 7) as f64));
+    }
+    write(dir.path(), "s.csv", text.as_bytes());
+    let (code, _, err) = run(dir.path(), &["fit", "s.csv", "--target", "y", "--family", "lda", "-o", "m.json"]);
+    assert_eq!(code, 1);
+    assert!(err.contains("singular") && err.contains("x, twice") && err.contains("--shrinkage"), "{err}");
+    let (code, _, err) =
+        run(dir.path(), &["fit", "s.csv", "--target", "y", "--family", "qda", "--exclude", "twice", "-o", "m.json"]);
+    assert_eq!(code, 1);
+    assert!(err.contains("class 'b'") && err.contains("flat") && err.contains("--reg"), "{err}");
+    let (code, _, err) = run(
+        dir.path(),
+        &["fit", "s.csv", "--target", "y", "--family", "qda", "--exclude", "twice", "--reg", "0.2", "-o", "m.json"],
+    );
+    assert_eq!(code, 0, "{err}");
+    let (code, _, err) = run(dir.path(), &["fit", "s.csv", "--target", "y", "--family", "logistic", "-o", "m.json"]);
+    assert_eq!(code, 1);
+    assert!(err.contains("collinear") && err.contains("twice"), "{err}");
+    assert!(!dir.path().join("m.json.partial").exists());
+}
+
+#[test]
+fn too_few_rows_for_qda() {
+    let dir = temp_dir();
+    write(dir.path(), "t.csv", b"x1,x2,x3,y\n1,2,3,a\n2,1,0,a\n3,3,1,a\n0,1,2,a\n5,4,2,a\n1,1,1,b\n2,0,1,b\n");
+    let (code, _, err) = run(dir.path(), &["fit", "t.csv", "--target", "y", "--family", "qda", "-o", "m.json"]);
+    assert_eq!(code, 1);
+    assert!(err.contains("class 'b' has 2 rows") && err.contains("--reg"), "{err}");
+}
+
+#[test]
+fn separation_and_non_convergence_are_warnings() {
+    let dir = temp_dir();
+    let mut text = String::from("score,noise,y\n");
+    for i in 0..40 {
+        text.push_str(&format!("{},{},{}\n", i, (i * 7) % 5, if i < 20 { "no" } else { "yes" }));
+    }
+    write(dir.path(), "sep.csv", text.as_bytes());
+    let (code, _, err) = run(dir.path(), &["fit", "sep.csv", "--target", "y", "--family", "logistic", "-o", "m.json"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(err.contains("separation") && err.contains("'score'"), "{err}");
+    let (_, json, _) = run(dir.path(), &["inspect", "m.json", "--json", "-"]);
+    let v: Value = serde_json::from_str(&json).expect("json");
+    assert!(v["warnings"].as_array().is_some_and(|w| !w.is_empty()));
+
+    let dir2 = temp_dir();
+    lending(dir2.path());
+    let mut args = vec!["fit"];
+    args.extend(LENDING);
+    args.extend(["--family", "logistic", "--max-iterations", "1", "-o", "m.json"]);
+    let (code, out, err) = run(dir2.path(), &args);
+    assert_eq!(code, 0, "{err}");
+    assert!(err.contains("did not converge in 1 iterations") && out.contains("NOT converged"), "{err}");
+}
+
+#[test]
+fn corrupt_truncated_and_newer_model_files_are_refused() {
+    let dir = temp_dir();
+    lending(dir.path());
+    let mut args = vec!["fit"];
+    args.extend(LENDING);
+    args.extend(["--family", "lda", "-o", "m.json"]);
+    assert_eq!(run(dir.path(), &args).0, 0);
+    let good = std::fs::read_to_string(dir.path().join("m.json")).expect("model");
+    let cases = [
+        ("truncated.json", good[..good.len() / 2].to_string(), "truncated"),
+        ("newer.json", good.replacen("\"format_version\": 1", "\"format_version\": 99", 1), "newer baserate"),
+        ("garbage.json", "this is not json".to_string(), "not a valid model file"),
+        ("other.json", "{\"format\": \"something\"}".to_string(), "not a baserate model file"),
+        (
+            "edited.json",
+            good.replacen("\"positive\": \"defaulted\"", "\"positive\": \"late\"", 1),
+            "positive class does not match",
+        ),
+    ];
+    for (name, text, message) in cases {
+        write(dir.path(), name, text.as_bytes());
+        let (code, _, err) = run(dir.path(), &["inspect", name]);
+        assert_eq!(code, 1, "{name}");
+        assert!(err.contains(name) && err.contains(message), "{name}: {err}");
+        let (code, _, _) = run(dir.path(), &["score", name, "new.csv", "-o", "out.csv"]);
+        assert_eq!(code, 1);
+        assert!(!dir.path().join("out.csv").exists());
+    }
+}
+
+#[test]
+fn scoring_checks_the_file_against_the_model() {
+    let dir = temp_dir();
+    lending(dir.path());
+    let mut args = vec!["fit"];
+    args.extend(LENDING);
+    args.extend(["--family", "naive-bayes", "-o", "m.json"]);
+    assert_eq!(run(dir.path(), &args).0, 0);
+    let new = std::fs::read_to_string(dir.path().join("new.csv")).expect("new");
+    // A missing column: an error before anything is written.
+    write(dir.path(), "no_income.csv", new.replace("income,", "earnings,").as_bytes());
+    let (code, _, err) = run(dir.path(), &["score", "m.json", "no_income.csv", "-o", "out.csv"]);
+    assert_eq!(code, 1);
+    assert!(err.contains("no_income.csv") && err.contains("'income'"), "{err}");
+    assert!(!dir.path().join("out.csv").exists());
+    // An unseen category, with its line.
+    let mut lines: Vec<String> = new.lines().map(String::from).collect();
+    lines[3] = lines[3]
+        .replacen(",online,", ",kiosk,", 1)
+        .replacen(",branch,", ",kiosk,", 1)
+        .replacen(",broker,", ",kiosk,", 1);
+    write(dir.path(), "kiosk.csv", (lines.join("\n") + "\n").as_bytes());
+    let (code, _, err) = run(dir.path(), &["score", "m.json", "kiosk.csv", "-o", "out.csv"]);
+    assert_eq!(code, 1);
+    assert!(err.contains("line 4") && err.contains("column 'channel'") && err.contains("'kiosk'"), "{err}");
+    // Columns in another order, extra columns: fine.
+    let reordered: String = new
+        .lines()
+        .map(|l| {
+            let f: Vec<&str> = l.split(',').collect();
+            let mut g: Vec<&str> = f.iter().rev().copied().collect();
+            g.push(if l.starts_with("application_id") { "extra" } else { "1" });
+            g.join(",")
+        })
+        .collect::<Vec<_>>()
+        .join("\n");
+    write(dir.path(), "reordered.csv", (reordered + "\n").as_bytes());
+    assert_eq!(run(dir.path(), &["score", "m.json", "reordered.csv", "-o", "a.csv", "--id", "application_id"]).0, 0);
+    assert_eq!(run(dir.path(), &["score", "m.json", "new.csv", "-o", "b.csv", "--id", "application_id"]).0, 0);
+    assert_eq!(std::fs::read(dir.path().join("a.csv")).ok(), std::fs::read(dir.path().join("b.csv")).ok());
+}
+
+#[test]
+fn priors_are_validated() {
+    let dir = temp_dir();
+    lending(dir.path());
+    for (prior, message) in [
+        ("defaulted=0.2,repaid=0.7", "sum to"),
+        ("defaulted=0.2", "'repaid' has no probability"),
+        ("late=0.5,repaid=0.5", "'late' is not one of"),
+        ("defaulted=0,repaid=1", "strictly between 0 and 1"),
+    ] {
+        let mut args = vec!["fit"];
+        args.extend(LENDING);
+        args.extend(["--family", "lda", "--prior", prior, "-o", "m.json"]);
+        let (code, _, err) = run(dir.path(), &args);
+        assert_eq!(code, 2, "{prior}");
+        assert!(err.contains(message), "{prior}: {err}");
+    }
+    let mut args = vec!["fit"];
+    args.extend(LENDING);
+    args.extend(["--family", "lda", "--reg", "0.1", "-o", "m.json"]);
+    let (code, _, err) = run(dir.path(), &args);
+    assert_eq!(code, 2);
+    assert!(err.contains("--reg applies to qda"), "{err}");
+}
