@@ -7,6 +7,9 @@
 //! invented demo scenarios in [`demo`].
 
 #![deny(missing_docs)]
+// Index loops mirror the formulas they implement; `!(x > 0.0)` is meant to be
+// true for NaN as well.
+#![allow(clippy::needless_range_loop, clippy::neg_cmp_op_on_partial_ord)]
 
 pub mod cli;
 pub mod data;

@@ -319,7 +319,7 @@ pub fn fit_lda(dataset: &Dataset, params: &LdaParams) -> Result<(DiscriminantMod
     }
     let mut covariance = pooled_scatter(&moments, d) / divisor;
     let means: Vec<Vec<f64>> = moments.iter().map(|m| m.mean.clone()).collect();
-    let mut warnings = Vec::new();
+    let warnings = Vec::new();
     let alpha = match params.shrinkage {
         Shrinkage::None => 0.0,
         Shrinkage::Value(a) => a,
@@ -339,10 +339,7 @@ pub fn fit_lda(dataset: &Dataset, params: &LdaParams) -> Result<(DiscriminantMod
             }
             let r = DMatrix::from_fn(d, d, |i, j| scatter[(i, j)] / n / (scale[i] * scale[j]));
             let fourth = fourth_moment(&encoding, dataset, &means, &scale);
-            let a = ledoit_wolf_intensity(&r, fourth, n);
-            warnings
-                .push(format!("Ledoit–Wolf shrinkage intensity {a:.4} toward the diagonal of the pooled covariance"));
-            a
+            ledoit_wolf_intensity(&r, fourth, n)
         }
     };
     if alpha > 0.0 {
@@ -351,7 +348,8 @@ pub fn fit_lda(dataset: &Dataset, params: &LdaParams) -> Result<(DiscriminantMod
     }
     let factor =
         cholesky(&covariance).map_err(|s| singular("lda", "pooled over the classes".into(), &encoding, s, LDA_HINT))?;
-    let log_likelihood = joint_log_likelihood(&moments, &[factor.clone()], &[covariance.clone()]);
+    let log_likelihood =
+        joint_log_likelihood(&moments, std::slice::from_ref(&factor), std::slice::from_ref(&covariance));
     let model = DiscriminantModel {
         encoding,
         classes: dataset.schema.target.classes.clone(),

@@ -211,6 +211,15 @@ def compare(new, old):
     for key in sorted(set(a) | set(b)):
         if key not in a or key not in b or not close(a[key], b[key]):
             failures.append(f"fixture {key} drifted beyond 1e-9 relative")
+    # R's MASS posteriors (mass.R), when both folders have them.
+    for name in sorted(os.listdir(os.path.join(old, "expected"))):
+        if not name.startswith("mass_"):
+            continue
+        def table(folder):
+            with open(os.path.join(folder, "expected", name)) as f:
+                return [[float(v) for v in line.split(",")] for line in f.read().splitlines()[1:]]
+        if not os.path.exists(os.path.join(new, "expected", name)) or not close(table(new), table(old)):
+            failures.append(f"expected/{name} drifted beyond 1e-9 relative")
     for f in failures:
         print("drift:", f)
     print("reference fixtures:", "drifted" if failures else "unchanged", f"({len(b)} fixtures)")
