@@ -15,8 +15,17 @@ pub mod cli;
 pub mod data;
 pub mod demo;
 pub mod error;
+pub mod evaluate;
 pub mod io;
 pub mod model;
 pub mod report;
+pub mod rng;
+
+/// The caution printed with every report: what baserate's output is and is
+/// not, for credit and fraud decisions.
+pub const CAUTION: &str = "Caution: baserate gives decision support, not a decision. Credit and fraud decisions \
+affect people: fair-lending, anti-discrimination, adverse-action and model-governance rules apply. \
+A model trained only on approved applications inherits their selection bias, which baserate does not correct. \
+Defer to local law and your institution's licensed practice.";
 
 pub use error::{Error, Result};

@@ -10,6 +10,8 @@ use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
 
+pub mod assess;
+pub mod compare;
 pub mod data_args;
 pub mod demo;
 pub mod describe;
@@ -37,6 +39,10 @@ pub enum Command {
     Demo(demo::Args),
     /// Read a file as a training file would be read and show its schema.
     Describe(describe::Args),
+    /// Fit families side by side on the same splits and evaluate them out of sample.
+    Compare(compare::Args),
+    /// Evaluate scores made elsewhere (columns of a file) the same way.
+    Assess(assess::Args),
     /// Fit one family and write a model file.
     Fit(fit::Args),
     /// Show what a model file holds.
@@ -75,6 +81,8 @@ pub fn run(cli: Cli) -> Result<ExitCode, Failure> {
     match cli.command {
         Command::Demo(args) => demo::run(args),
         Command::Describe(args) => describe::run(args),
+        Command::Compare(args) => compare::run(args),
+        Command::Assess(args) => assess::run(args),
         Command::Fit(args) => fit::run(args),
         Command::Inspect(args) => inspect::run(args),
         Command::Score(args) => score::run(args),

@@ -16,6 +16,7 @@ pub mod number;
 pub mod options;
 pub mod schema;
 pub mod scoring;
+pub mod split;
 pub mod suggest;
 pub mod summary;
 

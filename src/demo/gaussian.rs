@@ -1,7 +1,7 @@
 //! Small dense Gaussian helpers for the demo generators: a Cholesky factor,
 //! correlated draws and the exact log-density, for dimensions of a handful.
 
-use crate::demo::rng::Rng;
+use crate::rng::Rng;
 
 /// A multivariate normal N(mean, Σ) held by its lower Cholesky factor.
 #[derive(Debug, Clone)]

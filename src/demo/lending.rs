@@ -29,7 +29,7 @@
 use std::fmt::Write;
 
 use crate::demo::gaussian::Gaussian;
-use crate::demo::rng::Rng;
+use crate::rng::Rng;
 
 /// Default rate of the training year.
 pub const TRAINING_DEFAULT_RATE: f64 = 0.10;

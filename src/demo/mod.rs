@@ -13,7 +13,7 @@
 pub mod gaussian;
 pub mod lending;
 pub mod payments;
-pub mod rng;
+pub use crate::rng;
 
 /// The seed of the committed demo data.
 pub const DEFAULT_SEED: u64 = 20_261_201;
@@ -21,7 +21,7 @@ pub const DEFAULT_SEED: u64 = 20_261_201;
 /// The seed of one generator stream of a scenario, derived from the demo
 /// seed so that streams are independent of each other.
 pub fn stream_seed(seed: u64, stream: u64) -> u64 {
-    rng::Rng::new(seed ^ stream.wrapping_mul(0x9E37_79B9_7F4A_7C15)).next_u64()
+    rng::Rng::stream_seed(seed, stream)
 }
 
 /// Monte-Carlo estimate of a scenario's Bayes-optimal error rate and its

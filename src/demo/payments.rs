@@ -32,7 +32,7 @@
 use std::fmt::Write;
 
 use crate::demo::gaussian::{log_normal_1d, log_student_t3, Gaussian};
-use crate::demo::rng::Rng;
+use crate::rng::Rng;
 
 /// Fraud rate of the network.
 pub const FRAUD_RATE: f64 = 0.005;

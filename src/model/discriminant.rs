@@ -30,7 +30,7 @@ use crate::error::{Error, Result};
 use crate::model::design::Encoding;
 use crate::model::linalg::{cholesky, Factor, Singularity};
 use crate::model::moments::{class_moments, Moments};
-use crate::model::{row_weights, Diagnostics};
+use crate::model::Diagnostics;
 
 /// Shrinkage of LDA's pooled covariance.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, Default)]
@@ -165,7 +165,7 @@ impl DiscriminantModel {
     }
 
     /// Writes log p(x | k) for `rows` into `out` (row-major, K per row).
-    pub fn log_likelihoods(&self, inputs: &Inputs<'_>, rows: std::ops::Range<usize>, out: &mut [f64]) {
+    pub fn log_likelihoods(&self, inputs: &Inputs<'_>, rows: &[usize], out: &mut [f64]) {
         let Ok(factors) = self.factors() else {
             out.iter_mut().for_each(|v| *v = 0.0);
             return;
@@ -175,7 +175,7 @@ impl DiscriminantModel {
         let constant = d as f64 * std::f64::consts::TAU.ln();
         let mut x = vec![0.0; d];
         let mut z = vec![0.0; d];
-        for (i, r) in rows.enumerate() {
+        for (i, &r) in rows.iter().enumerate() {
             self.encoding.fill_row(inputs, r, &mut x);
             for class in 0..k {
                 let factor = &factors[if factors.len() == 1 { 0 } else { class }];
@@ -250,10 +250,15 @@ fn pooled_scatter(moments: &[Moments], d: usize) -> DMatrix<f64> {
 
 /// Σᵢ wᵢ ‖zᵢ‖⁴ over the standardised within-class residuals zᵢ =
 /// D^{-1/2}(xᵢ − μ_{yᵢ}), for the Ledoit–Wolf shrinkage intensity.
-fn fourth_moment(encoding: &Encoding, dataset: &Dataset, means: &[Vec<f64>], scale: &[f64]) -> f64 {
+fn fourth_moment(
+    encoding: &Encoding,
+    dataset: &Dataset,
+    weights: Option<&[f64]>,
+    means: &[Vec<f64>],
+    scale: &[f64],
+) -> f64 {
     let inputs = dataset.inputs();
     let d = encoding.width();
-    let weights = row_weights(dataset);
     let n = inputs.rows();
     (0..n.div_ceil(8192))
         .into_par_iter()
@@ -298,13 +303,18 @@ const LDA_HINT: &str =
 const QDA_HINT: &str =
     "remove constant or duplicated columns (--exclude), regularise with --reg (e.g. 0.1), or use lda";
 
-/// Fits LDA.
-pub fn fit_lda(dataset: &Dataset, params: &LdaParams) -> Result<(DiscriminantModel, Diagnostics)> {
+/// Fits LDA; `weights` are the row weights to use (the dataset's own, or
+/// those of a training fold).
+pub fn fit_lda(
+    dataset: &Dataset,
+    params: &LdaParams,
+    weights: Option<&[f64]>,
+) -> Result<(DiscriminantModel, Diagnostics)> {
     let encoding = Encoding::from_schema(&dataset.schema);
     let d = encoding.width();
     let k = dataset.schema.target.classes.len();
     let inputs = dataset.inputs();
-    let moments = class_moments(&encoding, &inputs, &dataset.target, row_weights(dataset), k, false);
+    let moments = class_moments(&encoding, &inputs, &dataset.target, weights, k, false);
     check_classes("lda", dataset, &moments, 1, "collect more rows of that class")?;
     let n: f64 = moments.iter().map(|m| m.weight).sum();
     let divisor = match params.divisor {
@@ -338,7 +348,7 @@ pub fn fit_lda(dataset: &Dataset, params: &LdaParams) -> Result<(DiscriminantMod
                 ));
             }
             let r = DMatrix::from_fn(d, d, |i, j| scatter[(i, j)] / n / (scale[i] * scale[j]));
-            let fourth = fourth_moment(&encoding, dataset, &means, &scale);
+            let fourth = fourth_moment(&encoding, dataset, weights, &means, &scale);
             ledoit_wolf_intensity(&r, fourth, n)
         }
     };
@@ -363,13 +373,17 @@ pub fn fit_lda(dataset: &Dataset, params: &LdaParams) -> Result<(DiscriminantMod
     Ok((model, Diagnostics { iterations: 1, converged: true, log_likelihood, warnings }))
 }
 
-/// Fits QDA.
-pub fn fit_qda(dataset: &Dataset, params: &QdaParams) -> Result<(DiscriminantModel, Diagnostics)> {
+/// Fits QDA; `weights` as for [`fit_lda`].
+pub fn fit_qda(
+    dataset: &Dataset,
+    params: &QdaParams,
+    weights: Option<&[f64]>,
+) -> Result<(DiscriminantModel, Diagnostics)> {
     let encoding = Encoding::from_schema(&dataset.schema);
     let d = encoding.width();
     let k = dataset.schema.target.classes.len();
     let inputs = dataset.inputs();
-    let moments = class_moments(&encoding, &inputs, &dataset.target, row_weights(dataset), k, false);
+    let moments = class_moments(&encoding, &inputs, &dataset.target, weights, k, false);
     let needed = match params.divisor {
         Divisor::Unbiased => 2,
         Divisor::Rows => 1,

@@ -104,11 +104,11 @@ pub struct LogisticModel {
 
 impl LogisticModel {
     /// Writes log p(k | x) at the training class mix for `rows` into `out`.
-    pub fn log_posteriors_at_training_mix(&self, inputs: &Inputs<'_>, rows: std::ops::Range<usize>, out: &mut [f64]) {
+    pub fn log_posteriors_at_training_mix(&self, inputs: &Inputs<'_>, rows: &[usize], out: &mut [f64]) {
         let k = self.classes.len();
         let d = self.encoding.width();
         let mut x = vec![0.0; d];
-        for (i, r) in rows.enumerate() {
+        for (i, &r) in rows.iter().enumerate() {
             self.encoding.fill_row(inputs, r, &mut x);
             let row = &mut out[i * k..(i + 1) * k];
             row[self.reference] = 0.0;
@@ -160,14 +160,18 @@ pub fn reference_class(classes: usize, positive: usize) -> usize {
 }
 
 /// Combined row weights: row weight × class weight.
-fn combined_weights(dataset: &Dataset, class_weight: &ClassWeight) -> Result<Vec<f64>> {
+fn combined_weights(dataset: &Dataset, weights: Option<&[f64]>, class_weight: &ClassWeight) -> Result<Vec<f64>> {
     let target = &dataset.schema.target;
     let k = target.classes.len();
+    let mut weighted_counts = vec![0.0; k];
+    for (r, &y) in dataset.target.iter().enumerate() {
+        weighted_counts[y as usize] += weights.map_or(1.0, |w| w[r]);
+    }
     let multipliers: Vec<f64> = match class_weight {
         ClassWeight::None => vec![1.0; k],
         ClassWeight::Equal => {
-            let total: f64 = target.weighted_counts.iter().sum();
-            target.weighted_counts.iter().map(|w| if *w > 0.0 { total / (k as f64 * w) } else { 0.0 }).collect()
+            let total: f64 = weighted_counts.iter().sum();
+            weighted_counts.iter().map(|w| if *w > 0.0 { total / (k as f64 * w) } else { 0.0 }).collect()
         }
         ClassWeight::Explicit(entries) => {
             let mut m = vec![1.0; k];
@@ -190,7 +194,7 @@ fn combined_weights(dataset: &Dataset, class_weight: &ClassWeight) -> Result<Vec
         .target
         .iter()
         .enumerate()
-        .map(|(r, &y)| dataset.weights.as_ref().map_or(1.0, |w| w[r]) * multipliers[y as usize])
+        .map(|(r, &y)| weights.map_or(1.0, |w| w[r]) * multipliers[y as usize])
         .collect())
 }
 
@@ -359,8 +363,15 @@ impl Problem<'_> {
     }
 }
 
-/// Fits a logistic regression.
-pub fn fit(dataset: &Dataset, params: &LogisticParams) -> Result<(LogisticModel, Diagnostics)> {
+/// Fits a logistic regression with the given row weights (the dataset's
+/// own, or those of a training fold), starting from `start` (a previous
+/// fit on similar rows: a warm start) or from the intercept-only solution.
+pub fn fit(
+    dataset: &Dataset,
+    params: &LogisticParams,
+    weights: Option<&[f64]>,
+    start: Option<&LogisticModel>,
+) -> Result<(LogisticModel, Diagnostics)> {
     let schema = &dataset.schema;
     let classes = schema.target.classes.clone();
     let k = classes.len();
@@ -368,7 +379,7 @@ pub fn fit(dataset: &Dataset, params: &LogisticParams) -> Result<(LogisticModel,
     let encoding = Encoding::from_schema(schema);
     let terms = encoding.terms();
     let d = encoding.width();
-    let weights = combined_weights(dataset, &params.class_weight)?;
+    let weights = combined_weights(dataset, weights, &params.class_weight)?;
     let inputs = dataset.inputs();
 
     // Class mix and standardisation under the combined weights.
@@ -413,6 +424,15 @@ pub fn fit(dataset: &Dataset, params: &LogisticParams) -> Result<(LogisticModel,
     let mut theta = vec![0.0; size];
     for (position, &c) in order.iter().enumerate() {
         theta[position * width] = (class_mix[c] / class_mix[reference]).ln();
+    }
+    // A warm start: the previous fit's coefficients on this fit's standardised scale.
+    if let Some(previous) = start.filter(|m| m.encoding == encoding && m.reference == reference) {
+        for (position, c) in previous.coefficients.iter().enumerate() {
+            let block = &mut theta[position * width..(position + 1) * width];
+            let slopes: Vec<f64> = (0..d).map(|j| c.slopes[j] * problem.scale[j]).collect();
+            block[0] = c.intercept + (0..d).map(|j| c.slopes[j] * problem.centre[j]).sum::<f64>();
+            block[1..].copy_from_slice(&slopes);
+        }
     }
     let lambda = params.l2;
     let objective = |log_likelihood: f64, theta: &[f64]| {

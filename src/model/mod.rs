@@ -171,24 +171,41 @@ pub enum FittedModel {
     Qda(discriminant::DiscriminantModel),
 }
 
-/// Fits a family on a dataset.
+/// Fits a family on a dataset, with the dataset's own row weights.
 pub fn fit(dataset: &Dataset, params: &FamilyParams) -> Result<(FittedModel, Diagnostics)> {
+    fit_weighted(dataset, params, dataset.weights.as_deref(), None)
+}
+
+/// Fits a family with the given row weights — the dataset's own, or those of
+/// a training fold (a weight of 0 leaves a row out exactly) — optionally
+/// starting from an earlier fit of the same family (used by logistic
+/// regression as a warm start; ignored by the closed-form families).
+pub fn fit_weighted(
+    dataset: &Dataset,
+    params: &FamilyParams,
+    weights: Option<&[f64]>,
+    start: Option<&FittedModel>,
+) -> Result<(FittedModel, Diagnostics)> {
     params.check()?;
     match params {
         FamilyParams::Logistic(p) => {
-            let (m, d) = logistic::fit(dataset, p)?;
+            let start = match start {
+                Some(FittedModel::Logistic(m)) => Some(m),
+                _ => None,
+            };
+            let (m, d) = logistic::fit(dataset, p, weights, start)?;
             Ok((FittedModel::Logistic(m), d))
         }
         FamilyParams::NaiveBayes(p) => {
-            let (m, d) = naive_bayes::fit(dataset, p)?;
+            let (m, d) = naive_bayes::fit(dataset, p, weights)?;
             Ok((FittedModel::NaiveBayes(m), d))
         }
         FamilyParams::Lda(p) => {
-            let (m, d) = discriminant::fit_lda(dataset, p)?;
+            let (m, d) = discriminant::fit_lda(dataset, p, weights)?;
             Ok((FittedModel::Lda(m), d))
         }
         FamilyParams::Qda(p) => {
-            let (m, d) = discriminant::fit_qda(dataset, p)?;
+            let (m, d) = discriminant::fit_qda(dataset, p, weights)?;
             Ok((FittedModel::Qda(m), d))
         }
     }
@@ -217,12 +234,18 @@ impl FittedModel {
     /// Per-row class log-likelihoods log p(x | k) (rows × classes), for the
     /// class-conditional families; `None` for logistic regression.
     pub fn log_likelihoods(&self, inputs: &Inputs<'_>) -> Option<Array2<f64>> {
+        let rows: Vec<usize> = (0..inputs.rows()).collect();
+        self.log_likelihoods_of(inputs, &rows)
+    }
+
+    /// [`FittedModel::log_likelihoods`] for the given rows only.
+    pub fn log_likelihoods_of(&self, inputs: &Inputs<'_>, rows: &[usize]) -> Option<Array2<f64>> {
         let k = self.classes();
         match self {
             FittedModel::Logistic(_) => None,
-            FittedModel::NaiveBayes(m) => Some(per_row(inputs, k, |rows, out| m.log_likelihoods(inputs, rows, out))),
+            FittedModel::NaiveBayes(m) => Some(per_row(rows, k, |r, out| m.log_likelihoods(inputs, r, out))),
             FittedModel::Lda(m) | FittedModel::Qda(m) => {
-                Some(per_row(inputs, k, |rows, out| m.log_likelihoods(inputs, rows, out)))
+                Some(per_row(rows, k, |r, out| m.log_likelihoods(inputs, r, out)))
             }
         }
     }
@@ -230,14 +253,20 @@ impl FittedModel {
     /// Per-row class log-posteriors (rows × classes) under `prior` (one
     /// probability per class, summing to 1).
     pub fn log_posteriors(&self, inputs: &Inputs<'_>, prior: &[f64]) -> Array2<f64> {
+        let rows: Vec<usize> = (0..inputs.rows()).collect();
+        self.log_posteriors_of(inputs, &rows, prior)
+    }
+
+    /// [`FittedModel::log_posteriors`] for the given rows only.
+    pub fn log_posteriors_of(&self, inputs: &Inputs<'_>, rows: &[usize], prior: &[f64]) -> Array2<f64> {
         let k = self.classes();
         let log_prior: Vec<f64> = prior.iter().map(|p| p.ln()).collect();
         match self {
             FittedModel::Logistic(m) => {
                 // Odds correction from the training class mix to `prior`.
                 let shift: Vec<f64> = log_prior.iter().zip(&m.class_mix).map(|(lp, pi)| lp - pi.ln()).collect();
-                per_row(inputs, k, |rows, out| {
-                    m.log_posteriors_at_training_mix(inputs, rows.clone(), out);
+                per_row(rows, k, |r, out| {
+                    m.log_posteriors_at_training_mix(inputs, r, out);
                     for row in out.chunks_mut(k) {
                         row.iter_mut().zip(&shift).for_each(|(v, s)| *v += s);
                         normalise_log(row);
@@ -245,7 +274,8 @@ impl FittedModel {
                 })
             }
             _ => {
-                let mut scores = self.log_likelihoods(inputs).unwrap_or_else(|| Array2::zeros((inputs.rows(), k)));
+                let mut scores =
+                    self.log_likelihoods_of(inputs, rows).unwrap_or_else(|| Array2::zeros((rows.len(), k)));
                 if let Some(values) = scores.as_slice_mut() {
                     values.par_chunks_mut(4096 * k).for_each(|block| {
                         for row in block.chunks_mut(k) {
@@ -271,28 +301,26 @@ impl FittedModel {
 /// probabilities. The maximum is subtracted first, so nothing overflows.
 pub fn normalise_log(row: &mut [f64]) {
     let max = row.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    if !max.is_finite() {
+        // No class has finite evidence (inputs beyond 1e150): say nothing.
+        let uniform = -(row.len() as f64).ln();
+        row.iter_mut().for_each(|v| *v = uniform);
+        return;
+    }
     let total: f64 = row.iter().map(|v| (v - max).exp()).sum();
     let log_total = max + total.ln();
-    row.iter_mut().for_each(|v| *v -= log_total);
+    // A class with −∞ evidence gets the most negative finite log-probability.
+    row.iter_mut().for_each(|v| *v = (*v - log_total).max(f64::MIN));
 }
 
-/// Runs `f` over blocks of rows in parallel, each filling its rows of a
-/// row-major rows × `k` output.
-fn per_row(inputs: &Inputs<'_>, k: usize, f: impl Fn(std::ops::Range<usize>, &mut [f64]) + Sync) -> Array2<f64> {
+/// Runs `f` over blocks of `rows` in parallel, each filling its rows of a
+/// row-major `rows.len()` × `k` output.
+fn per_row(rows: &[usize], k: usize, f: impl Fn(&[usize], &mut [f64]) + Sync) -> Array2<f64> {
     const BLOCK: usize = 2048;
-    let n = inputs.rows();
+    let n = rows.len();
     let mut out = vec![0.0; n * k];
     if k > 0 {
-        out.par_chunks_mut(BLOCK * k).enumerate().for_each(|(b, chunk)| {
-            let start = b * BLOCK;
-            let rows = start..start + chunk.len() / k;
-            f(rows, chunk);
-        });
+        out.par_chunks_mut(BLOCK * k).zip(rows.par_chunks(BLOCK)).for_each(|(chunk, block)| f(block, chunk));
     }
     Array2::from_shape_vec((n, k), out).unwrap_or_else(|_| Array2::zeros((n, k)))
-}
-
-/// Weights of a dataset's rows, or `None` when every row weighs 1.
-pub(crate) fn row_weights(dataset: &Dataset) -> Option<&[f64]> {
-    dataset.weights.as_deref()
 }

@@ -21,7 +21,7 @@ use crate::data::{Dataset, Inputs};
 use crate::error::{Error, Result};
 use crate::model::design::Encoding;
 use crate::model::moments::class_moments;
-use crate::model::{row_weights, Diagnostics};
+use crate::model::Diagnostics;
 
 /// Naive Bayes hyperparameters.
 ///
@@ -76,7 +76,7 @@ const SMALLEST_PROBABILITY: f64 = f64::MIN_POSITIVE;
 
 impl NaiveBayesModel {
     /// Writes log p(x | k) for `rows` into `out` (row-major, K per row).
-    pub fn log_likelihoods(&self, inputs: &Inputs<'_>, rows: std::ops::Range<usize>, out: &mut [f64]) {
+    pub fn log_likelihoods(&self, inputs: &Inputs<'_>, rows: &[usize], out: &mut [f64]) {
         let k = self.classes.len();
         let p = self.numeric.len();
         // Per class: −½ Σⱼ ln(2πσ²) once, then the quadratic terms per row.
@@ -86,7 +86,7 @@ impl NaiveBayesModel {
             .map(|v| -0.5 * v.iter().map(|s| (std::f64::consts::TAU * s).ln()).sum::<f64>())
             .collect();
         let inverse: Vec<Vec<f64>> = self.variances.iter().map(|v| v.iter().map(|s| 0.5 / s).collect()).collect();
-        for (i, r) in rows.enumerate() {
+        for (i, &r) in rows.iter().enumerate() {
             for class in 0..k {
                 let mut ll = constants[class];
                 let means = &self.means[class];
@@ -127,14 +127,18 @@ impl NaiveBayesModel {
     }
 }
 
-/// Fits naive Bayes.
-pub fn fit(dataset: &Dataset, params: &NaiveBayesParams) -> Result<(NaiveBayesModel, Diagnostics)> {
+/// Fits naive Bayes with the given row weights (the dataset's own, or those
+/// of a training fold).
+pub fn fit(
+    dataset: &Dataset,
+    params: &NaiveBayesParams,
+    weights: Option<&[f64]>,
+) -> Result<(NaiveBayesModel, Diagnostics)> {
     let schema = &dataset.schema;
     let k = schema.target.classes.len();
     let numeric_only = Encoding { numeric: schema.numeric_inputs(), one_hot: Vec::new() };
     let p = numeric_only.numeric.len();
     let inputs = dataset.inputs();
-    let weights = row_weights(dataset);
     let moments = class_moments(&numeric_only, &inputs, &dataset.target, weights, k, true);
     for (class, m) in moments.iter().enumerate() {
         if m.rows == 0 {

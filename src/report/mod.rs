@@ -1,15 +1,11 @@
 //! Output for people: aligned terminal tables and number formatting.
 //! (JSON output is the serialization of the library's own types.)
 
+pub mod evaluation;
 pub mod model;
 pub mod table;
 
-/// The caution printed with every report: what baserate's output is and is
-/// not, for credit and fraud decisions.
-pub const CAUTION: &str = "Caution: baserate gives decision support, not a decision. Credit and fraud decisions \
-affect people: fair-lending, anti-discrimination, adverse-action and model-governance rules apply. \
-A model trained only on approved applications inherits their selection bias, which baserate does not correct. \
-Defer to local law and your institution's licensed practice.";
+pub use crate::CAUTION;
 
 /// Wraps `text` at word boundaries to lines of at most `width` characters,
 /// every line after the first indented by `indent` spaces.

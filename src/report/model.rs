@@ -12,9 +12,7 @@ use crate::model::FittedModel;
 use crate::report::table::{Align, Table};
 use crate::report::{count, number, percent, wrap, CAUTION};
 
-/// The two-sided 97.5% point of the standard normal (for 95% Wald
-/// intervals): Φ⁻¹(0.975).
-pub const NORMAL_975: f64 = 1.959_963_984_540_054;
+pub use crate::evaluate::stats::{two_sided_p, NORMAL_975};
 
 /// One coefficient: estimate, and for unpenalised logistic fits its Wald
 /// inference. `class` is set for multinomial fits (that class against the
@@ -88,12 +86,6 @@ pub struct InspectJson {
     pub created: String,
     /// SHA-256 of the training file.
     pub input_sha256: String,
-}
-
-/// Two-sided normal p-value of z: 2Φ(−|z|) = erfc(|z|/√2), accurate far
-/// into the tail.
-pub fn two_sided_p(z: f64) -> f64 {
-    statrs::function::erf::erfc(z.abs() / std::f64::consts::SQRT_2)
 }
 
 /// The logistic coefficient table.

@@ -1,6 +1,6 @@
-//! A small seeded random number generator of our own, so that the demo files
-//! depend on nothing but this code: a dependency upgrade can never change
-//! the bytes of the committed demo data.
+//! A small seeded random number generator of our own, used for every random
+//! step (demo data, splits, bootstraps), so that outputs depend on nothing
+//! but this code: a dependency upgrade can never change them.
 //!
 //! The generator is xoshiro256** (Blackman & Vigna 2021, "Scrambled linear
 //! pseudorandom number generators", ACM TOMS 47(4)), seeded through
@@ -62,6 +62,11 @@ impl Rng {
         let angle = std::f64::consts::TAU * self.uniform();
         self.spare_normal = Some(radius * angle.sin());
         radius * angle.cos()
+    }
+
+    /// The seed of one independent stream derived from `seed`.
+    pub fn stream_seed(seed: u64, stream: u64) -> u64 {
+        Rng::new(seed ^ stream.wrapping_mul(0x9E37_79B9_7F4A_7C15)).next_u64()
     }
 
     /// True with probability `p`.

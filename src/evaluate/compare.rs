@@ -1,0 +1,624 @@
+//! Families side by side on the same splits, judged out of sample.
+//!
+//! Every (family, fold) fit runs in parallel; a fold's training rows are the
+//! dataset's weights with the fold's rows set to 0 (a weight of 0 leaves a
+//! row out exactly), so no data is copied. Logistic fits start from the
+//! fit on all rows (a warm start: two to four Newton steps per fold).
+//! Predictions are the out-of-fold log-posteriors; with repeats, each
+//! repeat's out-of-fold predictions cover every row once.
+//!
+//! Paired comparisons use the same rows: DeLong's test of two correlated
+//! AUCs, seeded paired-bootstrap intervals of the differences in log loss
+//! and Brier score (with the first-order standard error beside them), and
+//! McNemar's test at the 0.5 rule.
+
+use ndarray::Array2;
+use rayon::prelude::*;
+use serde::Serialize;
+
+use crate::data::split::Assignment;
+use crate::data::Dataset;
+use crate::error::Result;
+use crate::evaluate::metrics::{
+    binary_metrics, curves, multiclass_metrics, BinaryMetrics, BinaryScores, Curves, MulticlassMetrics, ScoreKind,
+};
+use crate::evaluate::roc::{paired_delong, placements, Placements};
+use crate::evaluate::stats::chi_square_upper;
+use crate::model::{fit_weighted, Family, FamilyParams, FittedModel};
+use crate::rng::Rng;
+
+/// One family (with its options) to compare, under a unique name.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Candidate {
+    /// Unique label, e.g. `qda:reg=0.1`.
+    pub name: String,
+    /// What to fit.
+    pub params: FamilyParams,
+}
+
+/// Out-of-fold predictions of one candidate: log-posteriors per repeat
+/// (rows × classes; rows never tested are NaN).
+#[derive(Debug, Clone)]
+pub struct Predictions {
+    /// The candidate's name.
+    pub name: String,
+    /// Its family.
+    pub family: Option<Family>,
+    /// Per repeat.
+    pub log_posteriors: Vec<Array2<f64>>,
+    /// Warnings from any fold's fit.
+    pub warnings: Vec<String>,
+}
+
+/// One fold's predictions: (candidate, repeat, test rows, log-posteriors, warnings).
+type FoldPrediction = (usize, usize, Vec<usize>, Array2<f64>, Vec<String>);
+
+/// Fits every candidate on every training fold and predicts the fold's test
+/// rows. `prior`: the class mix posteriors are stated at (the training
+/// class mix when `None`).
+pub fn cross_predict(
+    dataset: &Dataset,
+    candidates: &[Candidate],
+    assignment: &Assignment,
+    prior: Option<&[f64]>,
+) -> Result<Vec<Predictions>> {
+    let n = dataset.rows();
+    let k = dataset.schema.target.classes.len();
+    let prior: Vec<f64> = prior.map_or_else(|| dataset.schema.target.class_mix(), |p| p.to_vec());
+    // Warm starts for logistic candidates: one fit on every row.
+    let starts: Vec<Option<FittedModel>> = candidates
+        .par_iter()
+        .map(|c| match c.params {
+            FamilyParams::Logistic(_) => {
+                fit_weighted(dataset, &c.params, dataset.weights.as_deref(), None).ok().map(|(m, _)| m)
+            }
+            _ => None,
+        })
+        .collect();
+    let tasks: Vec<(usize, usize, usize)> = (0..candidates.len())
+        .flat_map(|c| {
+            (0..assignment.folds.len()).flat_map(move |r| (0..assignment.tested_folds).map(move |f| (c, r, f)))
+        })
+        .collect();
+    let fitted: Vec<Result<FoldPrediction>> = tasks
+        .par_iter()
+        .map(|&(c, repeat, fold)| {
+            let weights: Vec<f64> = (0..n)
+                .map(|i| {
+                    if assignment.trains(repeat, fold, i) {
+                        dataset.weights.as_ref().map_or(1.0, |w| w[i])
+                    } else {
+                        0.0
+                    }
+                })
+                .collect();
+            let (model, diagnostics) =
+                fit_weighted(dataset, &candidates[c].params, Some(&weights), starts[c].as_ref())?;
+            let rows = assignment.test_rows(repeat, fold);
+            let predictions = model.log_posteriors_of(&dataset.inputs(), &rows, &prior);
+            let warnings =
+                diagnostics.warnings.iter().map(|w| format!("repeat {} fold {}: {w}", repeat + 1, fold + 1)).collect();
+            Ok((c, repeat, rows, predictions, warnings))
+        })
+        .collect();
+    let mut out: Vec<Predictions> = candidates
+        .iter()
+        .map(|c| Predictions {
+            name: c.name.clone(),
+            family: Some(c.params.family()),
+            log_posteriors: (0..assignment.folds.len()).map(|_| Array2::from_elem((n, k), f64::NAN)).collect(),
+            warnings: Vec::new(),
+        })
+        .collect();
+    for result in fitted {
+        let (c, repeat, rows, predictions, warnings) = result?;
+        let target = &mut out[c].log_posteriors[repeat];
+        for (i, &r) in rows.iter().enumerate() {
+            for class in 0..k {
+                target[(r, class)] = predictions[(i, class)];
+            }
+        }
+        out[c].warnings.extend(warnings);
+    }
+    Ok(out)
+}
+
+/// The evaluation of one candidate (or one external score).
+#[derive(Debug, Clone, Serialize)]
+pub struct ResultEntry {
+    /// Unique label.
+    pub name: String,
+    /// The family (absent for `assess`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub family: Option<String>,
+    /// Binary metrics (on the first repeat's out-of-fold predictions; with
+    /// repeats, `auc` and `auc_se` are the means over repeats).
+    pub metrics: serde_json::Value,
+    /// AUC of each repeat, with repeats.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub auc_by_repeat: Vec<f64>,
+    /// Fit warnings.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub warnings: Vec<String>,
+    /// The full binary metrics, for reports.
+    #[serde(skip)]
+    pub binary: Option<BinaryMetrics>,
+    /// Curves, for reports.
+    #[serde(skip)]
+    pub curves: Option<Curves>,
+    /// Log-odds of the positive class and labels of the tested rows, for
+    /// score-distribution charts (first repeat).
+    #[serde(skip)]
+    pub scores: Vec<(f64, bool)>,
+}
+
+/// A paired comparison of two results on the same rows.
+#[derive(Debug, Clone, Serialize)]
+pub struct PairedEntry {
+    /// First.
+    pub a: String,
+    /// Second.
+    pub b: String,
+    /// AUC(a) − AUC(b).
+    pub auc_diff: f64,
+    /// DeLong's z (with the sign of the difference).
+    pub z: f64,
+    /// Two-sided p-value.
+    pub p_value: f64,
+    /// Log loss(a) − log loss(b).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub log_loss_diff: Option<f64>,
+    /// First-order standard error of that difference (per-row SD / √n).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub log_loss_diff_se: Option<f64>,
+    /// Paired-bootstrap 95% interval of the log-loss difference.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub log_loss_diff_ci: Option<[f64; 2]>,
+    /// Brier(a) − Brier(b).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub brier_diff: Option<f64>,
+    /// Paired-bootstrap 95% interval of the Brier difference.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub brier_diff_ci: Option<[f64; 2]>,
+    /// McNemar's statistic at the 0.5 rule (continuity-corrected).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub mcnemar_statistic: Option<f64>,
+    /// Its p-value (χ², 1 df).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub mcnemar_p_value: Option<f64>,
+}
+
+/// A binary score on the tested rows, ready for metrics.
+#[derive(Debug, Clone)]
+pub struct TestedScore {
+    /// Name.
+    pub name: String,
+    /// Family, when a fitted candidate.
+    pub family: Option<Family>,
+    /// Per repeat: the tested rows' log odds of the positive class.
+    pub log_odds: Vec<Vec<f64>>,
+    /// Per repeat: the tested rows' indices.
+    pub rows: Vec<Vec<usize>>,
+    /// Probability or rank.
+    pub kind: ScoreKind,
+    /// Warnings.
+    pub warnings: Vec<String>,
+}
+
+/// Log odds of class `positive` from a row of log-posteriors.
+pub fn log_odds_of(row: &[f64], positive: usize) -> f64 {
+    let lp = row[positive];
+    // log(1 − p) from the other classes, in log space.
+    let others: Vec<f64> = row.iter().enumerate().filter(|(i, _)| *i != positive).map(|(_, v)| *v).collect();
+    let max = others.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let rest = max + others.iter().map(|v| (v - max).exp()).sum::<f64>().ln();
+    lp - rest
+}
+
+impl TestedScore {
+    /// From out-of-fold predictions.
+    pub fn from_predictions(p: &Predictions, positive: usize) -> Self {
+        let mut log_odds = Vec::new();
+        let mut rows = Vec::new();
+        for lp in &p.log_posteriors {
+            let mut lo = Vec::new();
+            let mut rs = Vec::new();
+            for (i, row) in lp.rows().into_iter().enumerate() {
+                if row[0].is_nan() {
+                    continue;
+                }
+                let values: Vec<f64> = row.to_vec();
+                lo.push(log_odds_of(&values, positive));
+                rs.push(i);
+            }
+            log_odds.push(lo);
+            rows.push(rs);
+        }
+        TestedScore {
+            name: p.name.clone(),
+            family: p.family,
+            log_odds,
+            rows,
+            kind: ScoreKind::Probability,
+            warnings: p.warnings.clone(),
+        }
+    }
+}
+
+/// Everything `compare` and `assess` report.
+#[derive(Debug, Clone, Serialize)]
+pub struct Evaluation {
+    /// The positive class.
+    pub positive: String,
+    /// Rows in the data.
+    pub rows: usize,
+    /// Rows tested (per repeat).
+    pub tested_rows: usize,
+    /// How the rows were split.
+    pub split: String,
+    /// Repeats.
+    pub repeats: usize,
+    /// One entry per candidate or score.
+    pub results: Vec<ResultEntry>,
+    /// Pairwise comparisons.
+    pub paired: Vec<PairedEntry>,
+    /// Multi-class figures per candidate (three or more classes).
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub multiclass: Vec<(String, MulticlassMetrics)>,
+    /// Per-segment figures (`--by`).
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub segments: Vec<SegmentEntry>,
+    /// The caution for credit and fraud decisions.
+    pub caution: String,
+}
+
+/// Figures of one result in one segment.
+#[derive(Debug, Clone, Serialize)]
+pub struct SegmentEntry {
+    /// The segment column.
+    pub column: String,
+    /// The segment's value.
+    pub segment: String,
+    /// The result's name.
+    pub name: String,
+    /// Weighted rows.
+    pub rows: f64,
+    /// Event rate.
+    pub base_rate: f64,
+    /// AUC in the segment (absent when a class is missing there).
+    pub auc: Option<f64>,
+    /// Share of rows flagged at the 0.5 rule.
+    pub flag_rate: f64,
+    /// Mean predicted probability.
+    pub mean_predicted: f64,
+}
+
+/// Options of an evaluation.
+#[derive(Debug, Clone)]
+pub struct EvaluationOptions<'a> {
+    /// Labels of all rows (class index).
+    pub target: &'a [u32],
+    /// Index of the positive class.
+    pub positive: usize,
+    /// Class names.
+    pub classes: &'a [String],
+    /// Frequency weights of all rows.
+    pub weights: Option<&'a [f64]>,
+    /// Amounts of all rows.
+    pub amounts: Option<&'a [f64]>,
+    /// Bootstrap draws for paired intervals (0: none).
+    pub bootstrap: usize,
+    /// Seed of the bootstrap.
+    pub seed: u64,
+    /// Segments: (column, value of each row).
+    pub segments: Option<(&'a str, &'a [String])>,
+    /// Split description.
+    pub split: String,
+}
+
+fn gather<T: Copy>(values: Option<&[T]>, rows: &[usize]) -> Option<Vec<T>> {
+    values.map(|v| rows.iter().map(|&r| v[r]).collect())
+}
+
+/// Evaluates binary scores side by side.
+pub fn evaluate(scores: &[TestedScore], options: &EvaluationOptions<'_>) -> Evaluation {
+    let mut results = Vec::new();
+    let mut first_placements: Vec<Placements> = Vec::new();
+    for s in scores {
+        let rows = &s.rows[0];
+        let labels: Vec<bool> = rows.iter().map(|&r| options.target[r] as usize == options.positive).collect();
+        let weights = gather(options.weights, rows);
+        let amounts = gather(options.amounts, rows);
+        let mut metrics = binary_metrics(&BinaryScores {
+            log_odds: &s.log_odds[0],
+            positive: &labels,
+            weights: weights.as_deref(),
+            amounts: amounts.as_deref(),
+            kind: s.kind,
+        });
+        let mut auc_by_repeat = Vec::new();
+        if s.log_odds.len() > 1 {
+            let mut ses = Vec::new();
+            for (lo, rs) in s.log_odds.iter().zip(&s.rows) {
+                let labels: Vec<bool> = rs.iter().map(|&r| options.target[r] as usize == options.positive).collect();
+                let w = gather(options.weights, rs);
+                let p = placements(lo, &labels, w.as_deref());
+                auc_by_repeat.push(p.auc);
+                ses.push(p.variance().map(f64::sqrt).unwrap_or(f64::NAN));
+            }
+            metrics.auc = auc_by_repeat.iter().sum::<f64>() / auc_by_repeat.len() as f64;
+            let se = ses.iter().sum::<f64>() / ses.len() as f64;
+            metrics.auc_se = Some(se);
+            metrics.auc_ci_low = Some(metrics.auc - crate::evaluate::stats::NORMAL_975 * se);
+            metrics.auc_ci_high = Some(metrics.auc + crate::evaluate::stats::NORMAL_975 * se);
+            metrics.gini = 2.0 * metrics.auc - 1.0;
+        }
+        first_placements.push(placements(&s.log_odds[0], &labels, weights.as_deref()));
+        let curve = curves(&s.log_odds[0], &labels, weights.as_deref(), 400);
+        results.push(ResultEntry {
+            name: s.name.clone(),
+            family: s.family.map(|f| f.name().to_string()),
+            metrics: serde_json::to_value(&metrics).unwrap_or(serde_json::Value::Null),
+            auc_by_repeat,
+            warnings: s.warnings.clone(),
+            binary: Some(metrics),
+            curves: Some(curve),
+            scores: s.log_odds[0].iter().copied().zip(labels.iter().copied()).collect(),
+        });
+    }
+    let mut paired = Vec::new();
+    for a in 0..scores.len() {
+        for b in a + 1..scores.len() {
+            if scores[a].rows[0] != scores[b].rows[0] {
+                continue;
+            }
+            let Some(test) = paired_delong(&first_placements[a], &first_placements[b]) else { continue };
+            let mut entry = PairedEntry {
+                a: scores[a].name.clone(),
+                b: scores[b].name.clone(),
+                auc_diff: test.auc_diff,
+                z: test.z,
+                p_value: test.p_value,
+                log_loss_diff: None,
+                log_loss_diff_se: None,
+                log_loss_diff_ci: None,
+                brier_diff: None,
+                brier_diff_ci: None,
+                mcnemar_statistic: None,
+                mcnemar_p_value: None,
+            };
+            if scores[a].kind == ScoreKind::Probability && scores[b].kind == ScoreKind::Probability {
+                paired_probability(&mut entry, &scores[a], &scores[b], options);
+            }
+            paired.push(entry);
+        }
+    }
+    let mut segments = Vec::new();
+    if let Some((column, values)) = options.segments {
+        for s in scores {
+            let rows = &s.rows[0];
+            let mut names: Vec<&String> = rows.iter().map(|&r| &values[r]).collect();
+            names.sort();
+            names.dedup();
+            for segment in names {
+                let idx: Vec<usize> = (0..rows.len()).filter(|&i| values[rows[i]] == *segment).collect();
+                let w = |i: usize| options.weights.map_or(1.0, |w| w[rows[i]]);
+                let total: f64 = idx.iter().map(|&i| w(i)).sum();
+                let events: f64 =
+                    idx.iter().filter(|&&i| options.target[rows[i]] as usize == options.positive).map(|&i| w(i)).sum();
+                let flagged: f64 = idx.iter().filter(|&&i| s.log_odds[0][i] >= 0.0).map(|&i| w(i)).sum();
+                let mean: f64 = idx.iter().map(|&i| w(i) / (1.0 + (-s.log_odds[0][i]).exp())).sum::<f64>() / total;
+                let labels: Vec<bool> =
+                    idx.iter().map(|&i| options.target[rows[i]] as usize == options.positive).collect();
+                let lo: Vec<f64> = idx.iter().map(|&i| s.log_odds[0][i]).collect();
+                let ws: Option<Vec<f64>> = options.weights.map(|_| idx.iter().map(|&i| w(i)).collect());
+                let auc = (events > 0.0 && events < total).then(|| placements(&lo, &labels, ws.as_deref()).auc);
+                segments.push(SegmentEntry {
+                    column: column.to_string(),
+                    segment: segment.clone(),
+                    name: s.name.clone(),
+                    rows: total,
+                    base_rate: events / total,
+                    auc,
+                    flag_rate: flagged / total,
+                    mean_predicted: mean,
+                });
+            }
+        }
+    }
+    Evaluation {
+        positive: options.classes[options.positive].clone(),
+        rows: options.target.len(),
+        tested_rows: scores.first().map_or(0, |s| s.rows[0].len()),
+        split: options.split.clone(),
+        repeats: scores.first().map_or(1, |s| s.rows.len()),
+        results,
+        paired,
+        multiclass: Vec::new(),
+        segments,
+        caution: crate::CAUTION.to_string(),
+    }
+}
+
+/// Per-row log loss and Brier of a binary score.
+fn per_row_losses(log_odds: &[f64], labels: &[bool]) -> (Vec<f64>, Vec<f64>) {
+    let log_loss = log_odds
+        .iter()
+        .zip(labels)
+        .map(|(&z, &y)| {
+            let s = if y { z } else { -z };
+            if s >= 0.0 {
+                (-s).exp().ln_1p()
+            } else {
+                -s + s.exp().ln_1p()
+            }
+        })
+        .collect();
+    let brier = log_odds
+        .iter()
+        .zip(labels)
+        .map(|(&z, &y)| (1.0 / (1.0 + (-z).exp()) - f64::from(u8::from(y))).powi(2))
+        .collect();
+    (log_loss, brier)
+}
+
+fn paired_probability(entry: &mut PairedEntry, a: &TestedScore, b: &TestedScore, options: &EvaluationOptions<'_>) {
+    let rows = &a.rows[0];
+    let labels: Vec<bool> = rows.iter().map(|&r| options.target[r] as usize == options.positive).collect();
+    let w: Vec<f64> = rows.iter().map(|&r| options.weights.map_or(1.0, |w| w[r])).collect();
+    let (la, ba) = per_row_losses(&a.log_odds[0], &labels);
+    let (lb, bb) = per_row_losses(&b.log_odds[0], &labels);
+    let dl: Vec<f64> = la.iter().zip(&lb).map(|(x, y)| x - y).collect();
+    let db: Vec<f64> = ba.iter().zip(&bb).map(|(x, y)| x - y).collect();
+    let total: f64 = w.iter().sum();
+    let mean = |d: &[f64]| d.iter().zip(&w).map(|(v, w)| v * w).sum::<f64>() / total;
+    let (mean_l, mean_b) = (mean(&dl), mean(&db));
+    let variance = dl.iter().zip(&w).map(|(v, w)| w * (v - mean_l).powi(2)).sum::<f64>() / (total - 1.0).max(1.0);
+    entry.log_loss_diff = Some(mean_l);
+    entry.log_loss_diff_se = Some((variance / total).sqrt());
+    entry.brier_diff = Some(mean_b);
+    if options.bootstrap > 0 {
+        // Seeded paired bootstrap over rows (frequency weights kept).
+        let mut rng = Rng::new(Rng::stream_seed(options.seed, 77));
+        let n = rows.len();
+        let mut draws_l = Vec::with_capacity(options.bootstrap);
+        let mut draws_b = Vec::with_capacity(options.bootstrap);
+        for _ in 0..options.bootstrap {
+            let (mut sl, mut sb, mut sw) = (0.0, 0.0, 0.0);
+            for _ in 0..n {
+                let i = (rng.next_u64() % n as u64) as usize;
+                sl += w[i] * dl[i];
+                sb += w[i] * db[i];
+                sw += w[i];
+            }
+            draws_l.push(sl / sw);
+            draws_b.push(sb / sw);
+        }
+        let interval = |mut d: Vec<f64>| {
+            d.sort_by(f64::total_cmp);
+            let at = |q: f64| d[((q * (d.len() - 1) as f64).round() as usize).min(d.len() - 1)];
+            [at(0.025), at(0.975)]
+        };
+        entry.log_loss_diff_ci = Some(interval(draws_l));
+        entry.brier_diff_ci = Some(interval(draws_b));
+    }
+    // McNemar at the 0.5 rule (Edwards' continuity correction).
+    let (mut only_a, mut only_b) = (0.0, 0.0);
+    for i in 0..rows.len() {
+        let right_a = (a.log_odds[0][i] >= 0.0) == labels[i];
+        let right_b = (b.log_odds[0][i] >= 0.0) == labels[i];
+        if right_a && !right_b {
+            only_a += w[i];
+        } else if right_b && !right_a {
+            only_b += w[i];
+        }
+    }
+    if only_a + only_b > 0.0 {
+        let statistic = ((only_a - only_b).abs() - 1.0).max(0.0).powi(2) / (only_a + only_b);
+        entry.mcnemar_statistic = Some(statistic);
+        entry.mcnemar_p_value = Some(chi_square_upper(statistic, 1.0));
+    }
+}
+
+/// Multi-class figures of out-of-fold predictions (first repeat).
+pub fn multiclass(predictions: &[Predictions], dataset: &Dataset) -> Vec<(String, MulticlassMetrics)> {
+    predictions
+        .iter()
+        .map(|p| {
+            let lp = &p.log_posteriors[0];
+            let rows: Vec<usize> = (0..lp.nrows()).filter(|&i| !lp[(i, 0)].is_nan()).collect();
+            let sub = Array2::from_shape_fn((rows.len(), lp.ncols()), |(i, c)| lp[(rows[i], c)]);
+            let target: Vec<u32> = rows.iter().map(|&r| dataset.target[r]).collect();
+            let weights = gather(dataset.weights.as_deref(), &rows);
+            (p.name.clone(), multiclass_metrics(&sub, &target, weights.as_deref(), &dataset.schema.target.classes))
+        })
+        .collect()
+}
+
+/// One point of a learning curve.
+#[derive(Debug, Clone, Serialize)]
+pub struct LearningPoint {
+    /// The candidate.
+    pub name: String,
+    /// Training rows used.
+    pub training_rows: usize,
+    /// Holdout log loss.
+    pub log_loss: Option<f64>,
+    /// Holdout AUC.
+    pub auc: Option<f64>,
+}
+
+/// Learning curves: each candidate fitted on stratified subsamples of the
+/// first split's training rows, log-spaced from about 30 rows per class up
+/// to all of them, judged on that split's test rows (Ng & Jordan 2002, "On
+/// discriminative vs. generative classifiers").
+pub fn learning_curve(
+    dataset: &Dataset,
+    candidates: &[Candidate],
+    assignment: &Assignment,
+    seed: u64,
+    points: usize,
+) -> Vec<LearningPoint> {
+    let n = dataset.rows();
+    let k = dataset.schema.target.classes.len();
+    let positive = dataset.schema.target.positive_index();
+    let training: Vec<usize> = (0..n).filter(|&i| assignment.trains(0, 0, i)).collect();
+    let test = assignment.test_rows(0, 0);
+    let mut rng = Rng::new(Rng::stream_seed(seed, 55));
+    // A stratified random order of the training rows: every prefix keeps the class mix.
+    let mut by_class: Vec<Vec<usize>> = vec![Vec::new(); k];
+    for &i in &training {
+        by_class[dataset.target[i] as usize].push(i);
+    }
+    for members in by_class.iter_mut() {
+        for i in (1..members.len()).rev() {
+            let j = (rng.next_u64() % (i as u64 + 1)) as usize;
+            members.swap(i, j);
+        }
+    }
+    let smallest = by_class.iter().map(Vec::len).min().unwrap_or(0).max(1);
+    let start = (30.0 * training.len() as f64 / smallest as f64).min(training.len() as f64).max(2.0 * k as f64);
+    let sizes: Vec<usize> = (0..points)
+        .map(|p| (start * (training.len() as f64 / start).powf(p as f64 / (points - 1).max(1) as f64)).round() as usize)
+        .collect();
+    let labels: Vec<bool> = test.iter().map(|&r| dataset.target[r] as usize == positive).collect();
+    let mut out = Vec::new();
+    let tasks: Vec<(usize, usize)> = (0..candidates.len()).flat_map(|c| sizes.iter().map(move |&s| (c, s))).collect();
+    let computed: Vec<LearningPoint> = tasks
+        .par_iter()
+        .map(|&(c, size)| {
+            let mut weights = vec![0.0; n];
+            for members in &by_class {
+                let take = ((members.len() as f64) * size as f64 / training.len() as f64).round().max(1.0) as usize;
+                for &i in members.iter().take(take.min(members.len())) {
+                    weights[i] = dataset.weights.as_ref().map_or(1.0, |w| w[i]);
+                }
+            }
+            let used = weights.iter().filter(|&&w| w > 0.0).count();
+            match fit_weighted(dataset, &candidates[c].params, Some(&weights), None) {
+                Ok((model, _)) => {
+                    let lp = model.log_posteriors_of(&dataset.inputs(), &test, &dataset.schema.target.class_mix());
+                    let lo: Vec<f64> = lp.rows().into_iter().map(|r| log_odds_of(&r.to_vec(), positive)).collect();
+                    let m = binary_metrics(&BinaryScores {
+                        log_odds: &lo,
+                        positive: &labels,
+                        weights: None,
+                        amounts: None,
+                        kind: ScoreKind::Probability,
+                    });
+                    LearningPoint {
+                        name: candidates[c].name.clone(),
+                        training_rows: used,
+                        log_loss: m.log_loss,
+                        auc: Some(m.auc),
+                    }
+                }
+                Err(_) => {
+                    LearningPoint { name: candidates[c].name.clone(), training_rows: used, log_loss: None, auc: None }
+                }
+            }
+        })
+        .collect();
+    out.extend(computed);
+    out
+}

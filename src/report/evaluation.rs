@@ -1,0 +1,454 @@
+//! The evaluation for people: a compact terminal table (one row per
+//! result, best per column marked with `*`, within 100 columns), the
+//! paired tests, and a self-contained HTML report with SVG charts.
+
+use plotters::prelude::*;
+
+use crate::evaluate::compare::{Evaluation, LearningPoint};
+use crate::report::table::{Align, Table};
+use crate::report::{count, number, wrap, CAUTION};
+
+/// Escapes text for HTML (names and values come from the data).
+pub fn escape(text: &str) -> String {
+    text.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;").replace('"', "&quot;").replace('\'', "&#39;")
+}
+
+fn fixed(x: Option<f64>, decimals: usize) -> String {
+    x.map_or_else(|| "–".to_string(), |v| format!("{v:.decimals$}"))
+}
+
+/// A table column: title, higher is better, the figure, decimals.
+type Column = (&'static str, bool, fn(&crate::evaluate::metrics::BinaryMetrics) -> Option<f64>, usize);
+
+/// The terminal view.
+pub fn evaluation_text(e: &Evaluation) -> String {
+    let mut out = format!(
+        "{} rows, {} tested ({}); positive class: {}\n\n",
+        count(e.rows),
+        count(e.tested_rows),
+        e.split,
+        e.positive
+    );
+    let columns: [Column; 7] = [
+        ("AUC", true, |m| Some(m.auc), 4),
+        ("Gini", true, |m| Some(m.gini), 3),
+        ("KS", true, |m| Some(m.ks), 3),
+        ("log loss", false, |m| m.log_loss, 4),
+        ("Brier", false, |m| m.brier, 4),
+        ("AP", true, |m| Some(m.average_precision), 3),
+        ("ECE", false, |m| m.ece, 4),
+    ];
+    let mut headers: Vec<(&str, Align)> = vec![("name", Align::Left)];
+    headers.push(("AUC", Align::Right));
+    headers.push(("95% CI", Align::Right));
+    for (title, _, _, _) in &columns[1..] {
+        headers.push((title, Align::Right));
+    }
+    let mut table = Table::new(&headers);
+    let metrics: Vec<_> = e.results.iter().filter_map(|r| r.binary.as_ref()).collect();
+    let best: Vec<Option<f64>> = columns
+        .iter()
+        .map(|(_, higher, get, _)| {
+            let values = metrics.iter().filter_map(|m| get(m));
+            if *higher {
+                values.fold(None, |b: Option<f64>, v| Some(b.map_or(v, |b| b.max(v))))
+            } else {
+                values.fold(None, |b: Option<f64>, v| Some(b.map_or(v, |b| b.min(v))))
+            }
+        })
+        .collect();
+    for r in &e.results {
+        let Some(m) = &r.binary else { continue };
+        let mut row = vec![r.name.chars().take(24).collect::<String>()];
+        for (c, (_, _, get, decimals)) in columns.iter().enumerate() {
+            let value = get(m);
+            let mark = if metrics.len() > 1 && value.is_some() && value == best[c] { "*" } else { " " };
+            row.push(format!("{}{mark}", fixed(value, *decimals)));
+            if c == 0 {
+                row.push(match (m.auc_ci_low, m.auc_ci_high) {
+                    (Some(a), Some(b)) => format!("{a:.3}–{b:.3}"),
+                    _ => "–".into(),
+                });
+            }
+        }
+        table.row(row);
+    }
+    out.push_str(&table.render());
+    out.push_str("* best in the column. AUC 95% CI from DeLong's variance");
+    if e.repeats > 1 {
+        out.push_str(&format!("; AUC and its SE are means over the {} repeats", e.repeats));
+    }
+    out.push_str(".\n");
+    if !e.paired.is_empty() {
+        out.push_str("\npaired on the same rows (a − b):\n");
+        let mut table = Table::new(&[
+            ("a", Align::Left),
+            ("b", Align::Left),
+            ("AUC diff", Align::Right),
+            ("z", Align::Right),
+            ("p", Align::Right),
+            ("log loss diff (95% bootstrap)", Align::Right),
+            ("McNemar p", Align::Right),
+        ]);
+        for p in &e.paired {
+            let ll = match (p.log_loss_diff, p.log_loss_diff_ci) {
+                (Some(d), Some([a, b])) => format!("{d:+.4} ({a:+.4}, {b:+.4})"),
+                (Some(d), None) => format!("{d:+.4}"),
+                _ => "–".into(),
+            };
+            table.row(vec![
+                p.a.clone(),
+                p.b.clone(),
+                format!("{:+.4}", p.auc_diff),
+                format!("{:.2}", p.z),
+                format!("{:.4}", p.p_value),
+                ll,
+                fixed(p.mcnemar_p_value, 4),
+            ]);
+        }
+        out.push_str(&table.render());
+    }
+    for r in &e.results {
+        for w in &r.warnings {
+            out.push_str(&format!("warning ({}): {}\n", r.name, wrap(w, 90, 4)));
+        }
+    }
+    out.push('\n');
+    out.push_str(&wrap(CAUTION, 100, 0));
+    out.push('\n');
+    out
+}
+
+const PALETTE: [RGBColor; 8] = [
+    RGBColor(31, 95, 140),
+    RGBColor(196, 100, 30),
+    RGBColor(60, 140, 70),
+    RGBColor(150, 50, 120),
+    RGBColor(110, 110, 110),
+    RGBColor(170, 40, 40),
+    RGBColor(40, 150, 160),
+    RGBColor(130, 110, 30),
+];
+
+type Lines = Vec<(String, Vec<(f64, f64)>)>;
+
+/// A line chart as an SVG string; `Err` carries plotters' message.
+#[allow(clippy::too_many_arguments)]
+fn line_chart(
+    title: &str,
+    x_label: &str,
+    y_label: &str,
+    x: std::ops::Range<f64>,
+    y: std::ops::Range<f64>,
+    lines: &Lines,
+    diagonal: bool,
+    log_x: bool,
+) -> Result<String, String> {
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (520, 380)).into_drawing_area();
+        root.fill(&WHITE).map_err(|e| e.to_string())?;
+        let mut builder = ChartBuilder::on(&root);
+        builder.caption(title, ("sans-serif", 18)).margin(12).x_label_area_size(40).y_label_area_size(55);
+        if log_x {
+            let mut chart =
+                builder.build_cartesian_2d((x.start..x.end).log_scale(), y.clone()).map_err(|e| e.to_string())?;
+            chart
+                .configure_mesh()
+                .light_line_style(TRANSPARENT)
+                .x_desc(x_label)
+                .y_desc(y_label)
+                .draw()
+                .map_err(|e| e.to_string())?;
+            for (i, (name, points)) in lines.iter().enumerate() {
+                let color = PALETTE[i % PALETTE.len()];
+                chart
+                    .draw_series(LineSeries::new(points.iter().copied(), color.stroke_width(2)))
+                    .map_err(|e| e.to_string())?
+                    .label(name.as_str())
+                    .legend(move |(a, b)| PathElement::new(vec![(a, b), (a + 18, b)], color.stroke_width(2)));
+            }
+            chart
+                .configure_series_labels()
+                .background_style(WHITE.mix(0.85))
+                .border_style(BLACK)
+                .draw()
+                .map_err(|e| e.to_string())?;
+        } else {
+            let mut chart = builder.build_cartesian_2d(x.clone(), y.clone()).map_err(|e| e.to_string())?;
+            chart
+                .configure_mesh()
+                .light_line_style(TRANSPARENT)
+                .x_desc(x_label)
+                .y_desc(y_label)
+                .draw()
+                .map_err(|e| e.to_string())?;
+            if diagonal {
+                chart
+                    .draw_series(LineSeries::new(vec![(x.start, y.start), (x.end, y.end)], BLACK.mix(0.3)))
+                    .map_err(|e| e.to_string())?;
+            }
+            for (i, (name, points)) in lines.iter().enumerate() {
+                let color = PALETTE[i % PALETTE.len()];
+                chart
+                    .draw_series(LineSeries::new(points.iter().copied(), color.stroke_width(2)))
+                    .map_err(|e| e.to_string())?
+                    .label(name.as_str())
+                    .legend(move |(a, b)| PathElement::new(vec![(a, b), (a + 18, b)], color.stroke_width(2)));
+            }
+            chart
+                .configure_series_labels()
+                .background_style(WHITE.mix(0.85))
+                .border_style(BLACK)
+                .draw()
+                .map_err(|e| e.to_string())?;
+        }
+        root.present().map_err(|e| e.to_string())?;
+    }
+    Ok(svg)
+}
+
+/// Score distributions by class: density of the log posterior odds of the
+/// positive class, one panel per result.
+fn distribution_chart(name: &str, scores: &[(f64, bool)], positive: &str) -> Result<String, String> {
+    let bins = 40;
+    let lo = scores.iter().map(|s| s.0).fold(f64::INFINITY, f64::min).max(-20.0);
+    let hi = scores.iter().map(|s| s.0).fold(f64::NEG_INFINITY, f64::max).min(20.0);
+    let (lo, hi) = if hi > lo { (lo, hi) } else { (lo - 1.0, lo + 1.0) };
+    let width = (hi - lo) / bins as f64;
+    let mut counts = [vec![0.0; bins], vec![0.0; bins]];
+    for &(s, y) in scores {
+        let b = (((s.clamp(lo, hi) - lo) / width) as usize).min(bins - 1);
+        counts[usize::from(y)][b] += 1.0;
+    }
+    let lines: Lines = [("other classes".to_string(), 0), (positive.to_string(), 1)]
+        .iter()
+        .map(|(label, k)| {
+            let total: f64 = counts[*k].iter().sum::<f64>().max(1.0);
+            (label.clone(), (0..bins).map(|b| (lo + (b as f64 + 0.5) * width, counts[*k][b] / total)).collect())
+        })
+        .collect();
+    let top = lines.iter().flat_map(|(_, p)| p.iter().map(|q| q.1)).fold(0.0f64, f64::max).max(1e-9) * 1.1;
+    line_chart(
+        &format!("score distribution: {name}"),
+        "log posterior odds of the positive class",
+        "share of the class",
+        lo..hi,
+        0.0..top,
+        &lines,
+        false,
+        false,
+    )
+}
+
+/// The self-contained HTML report: no network, no external scripts or
+/// fonts; every string from the data escaped.
+pub fn evaluation_html(e: &Evaluation, learning: &[LearningPoint], data_description: &str) -> String {
+    let mut charts: Vec<(String, Result<String, String>)> = Vec::new();
+    let roc: Lines = e
+        .results
+        .iter()
+        .filter_map(|r| r.curves.as_ref().map(|c| (r.name.clone(), c.roc.iter().map(|p| (p.x, p.y)).collect())))
+        .collect();
+    charts.push((
+        "ROC curves".into(),
+        line_chart("ROC", "false-positive rate", "true-positive rate", 0.0..1.0, 0.0..1.0, &roc, true, false),
+    ));
+    let pr: Lines = e
+        .results
+        .iter()
+        .filter_map(|r| {
+            r.curves.as_ref().map(|c| (r.name.clone(), c.precision_recall.iter().map(|p| (p.x, p.y)).collect()))
+        })
+        .collect();
+    charts.push((
+        "precision–recall curves".into(),
+        line_chart("precision–recall", "recall", "precision", 0.0..1.0, 0.0..1.0, &pr, false, false),
+    ));
+    let reliability: Lines = e
+        .results
+        .iter()
+        .filter_map(|r| {
+            r.binary.as_ref().filter(|m| !m.reliability.is_empty()).map(|m| {
+                (r.name.clone(), m.reliability.iter().filter_map(|b| Some((b.mean_predicted?, b.observed?))).collect())
+            })
+        })
+        .collect();
+    if !reliability.is_empty() {
+        charts.push((
+            "reliability diagram".into(),
+            line_chart(
+                "reliability (10 equal-width bins)",
+                "mean predicted probability",
+                "observed event rate",
+                0.0..1.0,
+                0.0..1.0,
+                &reliability,
+                true,
+                false,
+            ),
+        ));
+    }
+    for r in &e.results {
+        if !r.scores.is_empty() {
+            charts
+                .push((format!("score distribution: {}", r.name), distribution_chart(&r.name, &r.scores, &e.positive)));
+        }
+    }
+    if !learning.is_empty() {
+        let mut names: Vec<&String> = learning.iter().map(|p| &p.name).collect();
+        names.dedup();
+        let mut unique = Vec::new();
+        for n in names {
+            if !unique.contains(&n) {
+                unique.push(n);
+            }
+        }
+        let lines: Lines = unique
+            .iter()
+            .map(|n| {
+                let mut points: Vec<(f64, f64)> = learning
+                    .iter()
+                    .filter(|p| &&p.name == n)
+                    .filter_map(|p| Some((p.training_rows as f64, p.log_loss?)))
+                    .collect();
+                points.sort_by(|a, b| a.0.total_cmp(&b.0));
+                ((*n).clone(), points)
+            })
+            .collect();
+        let xs = learning.iter().map(|p| p.training_rows as f64);
+        let (x0, x1) = (xs.clone().fold(f64::INFINITY, f64::min).max(1.0), xs.fold(0.0, f64::max).max(2.0));
+        let ys = learning.iter().filter_map(|p| p.log_loss);
+        let (y0, y1) = (ys.clone().fold(f64::INFINITY, f64::min), ys.fold(f64::NEG_INFINITY, f64::max));
+        let (y0, y1) = if y1 > y0 { (y0 * 0.95, y1 * 1.05) } else { (0.0, 1.0) };
+        charts.push((
+            "learning curve".into(),
+            line_chart(
+                "learning curve (holdout log loss)",
+                "training rows",
+                "log loss",
+                x0..x1 * 1.01,
+                y0..y1,
+                &lines,
+                false,
+                true,
+            ),
+        ));
+    }
+
+    let mut html = String::from("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>baserate evaluation</title>\n<style>\nbody{font-family:sans-serif;margin:2em;max-width:1150px;color:#222}\ntable{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:3px 8px;text-align:right}th{background:#eef}td.l,th.l{text-align:left}\n.caution{border-left:4px solid #b60;padding:0.5em 1em;background:#fff6ea}\n.chart{display:inline-block;margin:0.5em}\n</style></head><body>\n");
+    html.push_str("<h1>baserate: families side by side</h1>\n");
+    html.push_str(&format!("<p class=\"caution\"><strong>Caution.</strong> {}</p>\n", escape(CAUTION)));
+    html.push_str(&format!(
+        "<h2>Data and split</h2>\n<p>{}</p>\n<p>{} rows; {} tested; split: {}; positive class: <strong>{}</strong>.</p>\n",
+        escape(data_description),
+        count(e.rows),
+        count(e.tested_rows),
+        escape(&e.split),
+        escape(&e.positive)
+    ));
+    html.push_str("<h2>Out-of-sample metrics</h2>\n<table><tr><th class=\"l\">name</th><th>AUC</th><th>DeLong SE</th><th>95% CI</th><th>Gini</th><th>KS</th><th>log loss</th><th>Brier</th><th>AP</th><th>ECE</th><th>calib. slope</th><th>HL p</th></tr>\n");
+    for r in &e.results {
+        let Some(m) = &r.binary else { continue };
+        html.push_str(&format!(
+            "<tr><td class=\"l\">{}</td><td>{:.4}</td><td>{}</td><td>{}</td><td>{:.3}</td><td>{:.3}</td><td>{}</td><td>{}</td><td>{:.3}</td><td>{}</td><td>{}</td><td>{}</td></tr>\n",
+            escape(&r.name),
+            m.auc,
+            fixed(m.auc_se, 4),
+            match (m.auc_ci_low, m.auc_ci_high) {
+                (Some(a), Some(b)) => format!("{a:.3}–{b:.3}"),
+                _ => "–".into(),
+            },
+            m.gini,
+            m.ks,
+            fixed(m.log_loss, 4),
+            fixed(m.brier, 4),
+            m.average_precision,
+            fixed(m.ece, 4),
+            fixed(m.calibration_slope, 3),
+            fixed(m.hosmer_lemeshow.map(|h| h.p_value), 4),
+        ));
+    }
+    html.push_str("</table>\n<p>Rank metrics use the log posterior odds; Brier = mean (p − y)²; ECE over 10 equal-width bins (empty bins shown empty); Hosmer–Lemeshow on 10 groups, 8 df.</p>\n");
+    if !e.paired.is_empty() {
+        html.push_str("<h2>Paired comparisons (same rows)</h2>\n<table><tr><th class=\"l\">a</th><th class=\"l\">b</th><th>AUC diff</th><th>z</th><th>p</th><th>log loss diff</th><th>95% bootstrap</th><th>Brier diff</th><th>McNemar p</th></tr>\n");
+        for p in &e.paired {
+            html.push_str(&format!(
+                "<tr><td class=\"l\">{}</td><td class=\"l\">{}</td><td>{:+.4}</td><td>{:.2}</td><td>{:.4}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>\n",
+                escape(&p.a),
+                escape(&p.b),
+                p.auc_diff,
+                p.z,
+                p.p_value,
+                fixed(p.log_loss_diff, 4),
+                p.log_loss_diff_ci.map_or_else(|| "–".into(), |[a, b]| format!("{a:+.4} … {b:+.4}")),
+                fixed(p.brier_diff, 5),
+                fixed(p.mcnemar_p_value, 4),
+            ));
+        }
+        html.push_str("</table>\n");
+    }
+    for r in &e.results {
+        let Some(m) = &r.binary else { continue };
+        html.push_str(&format!("<h3>{}: alert rates and thresholds</h3>\n<table><tr><th class=\"l\">rule</th><th>threshold</th><th>flagged</th><th>precision</th><th>recall</th><th>F1</th><th>lift</th><th>amount caught</th></tr>\n", escape(&r.name)));
+        for c in &m.confusion {
+            html.push_str(&format!(
+                "<tr><td class=\"l\">{}</td><td>{}</td><td>{:.2}%</td><td>{:.3}</td><td>{:.3}</td><td>{:.3}</td><td>{:.2}</td><td>{}</td></tr>\n",
+                escape(&c.rule),
+                number(c.threshold, 4),
+                100.0 * c.flagged_share,
+                c.precision,
+                c.recall,
+                c.f1,
+                c.lift,
+                c.amount_capture.map_or_else(|| "–".into(), |a| format!("{:.1}%", 100.0 * a)),
+            ));
+        }
+        html.push_str("</table>\n<table><tr><th>band</th><th>probability</th><th>rows</th><th>events</th><th>event rate</th><th>odds</th><th>cum. capture</th></tr>\n");
+        for g in &m.gains {
+            html.push_str(&format!(
+                "<tr><td>{}</td><td>{}–{}</td><td>{:.0}</td><td>{:.0}</td><td>{:.4}</td><td>{}</td><td>{:.1}%</td></tr>\n",
+                g.band,
+                number(g.min_probability, 3),
+                number(g.max_probability, 3),
+                g.count,
+                g.events,
+                g.event_rate,
+                g.odds.map_or_else(|| "–".into(), |o| format!("{o:.1}")),
+                100.0 * g.cumulative_capture,
+            ));
+        }
+        html.push_str("</table>\n");
+    }
+    if !e.segments.is_empty() {
+        html.push_str("<h2>Segments</h2>\n<p>What a fair-lending review asks for first: outcomes and flag rates by segment. The figures describe; they do not establish or exclude disparate impact, which is a legal question.</p>\n<table><tr><th class=\"l\">segment</th><th class=\"l\">name</th><th>rows</th><th>event rate</th><th>AUC</th><th>flag rate at 0.5</th><th>mean predicted</th></tr>\n");
+        for s in &e.segments {
+            html.push_str(&format!(
+                "<tr><td class=\"l\">{}={}</td><td class=\"l\">{}</td><td>{:.0}</td><td>{:.4}</td><td>{}</td><td>{:.2}%</td><td>{:.4}</td></tr>\n",
+                escape(&s.column),
+                escape(&s.segment),
+                escape(&s.name),
+                s.rows,
+                s.base_rate,
+                fixed(s.auc, 4),
+                100.0 * s.flag_rate,
+                s.mean_predicted
+            ));
+        }
+        html.push_str("</table>\n");
+    }
+    html.push_str("<h2>Charts</h2>\n");
+    for (title, chart) in &charts {
+        match chart {
+            Ok(svg) => html.push_str(&format!("<div class=\"chart\" data-chart=\"{}\">{svg}</div>\n", escape(title))),
+            Err(message) => {
+                html.push_str(&format!("<p>chart '{}' could not be drawn: {}</p>\n", escape(title), escape(message)))
+            }
+        }
+    }
+    html.push_str(&format!(
+        "<script>\ndocument.body.setAttribute('data-charts', String(document.querySelectorAll('div.chart svg').length));\n</script>\n<p>Made by baserate {}.</p>\n</body></html>\n",
+        env!("CARGO_PKG_VERSION")
+    ));
+    html
+}
