@@ -404,3 +404,32 @@ fn equal_class_weights_match_scikit_learn_balanced() {
     }
     assert!(m.class_mix.iter().all(|p| (p - 0.5).abs() < 1e-12));
 }
+
+/// scikit-learn 1.9.1's roc_auc_score, average_precision_score,
+/// brier_score_loss and log_loss on fixed predictions (GaussianNB
+/// posteriors on breast_cancer, clipped to [1e-6, 1 − 1e-6]): 1e-12
+/// relative (closed forms over the same numbers).
+#[test]
+fn metrics_match_scikit_learn() {
+    use baserate::evaluate::metrics::{binary_metrics, BinaryScores, ScoreKind};
+    let f = &fixtures()["fixed_predictions_metrics"];
+    let p = numbers(&f["probability"]);
+    let labels: Vec<bool> = f["label"].as_array().expect("labels").iter().map(|v| v.as_i64() == Some(1)).collect();
+    let log_odds: Vec<f64> = p.iter().map(|p| (p / (1.0 - p)).ln()).collect();
+    let m = binary_metrics(&BinaryScores {
+        log_odds: &log_odds,
+        positive: &labels,
+        weights: None,
+        amounts: None,
+        kind: ScoreKind::Probability,
+    });
+    let check = |ours: f64, key: &str| {
+        let theirs = f[key].as_f64().expect("number");
+        assert!(common::close(ours, theirs, 1e-12), "{key}: {ours} vs {theirs}");
+    };
+    check(m.auc, "roc_auc_score");
+    check(m.average_precision, "average_precision_score");
+    // Our probabilities come back from the log odds: allow their rounding.
+    assert!(common::close(m.brier.unwrap_or(f64::NAN), f["brier_score_loss"].as_f64().unwrap_or(0.0), 1e-10));
+    assert!(common::close(m.log_loss.unwrap_or(f64::NAN), f["log_loss"].as_f64().unwrap_or(0.0), 1e-10));
+}

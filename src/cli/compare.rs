@@ -273,7 +273,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         },
     );
     if k > 2 {
-        evaluation.multiclass = multiclass(&predictions, &dataset);
+        evaluation.set_multiclass(multiclass(&predictions, &dataset));
     }
     let learning =
         if args.learning_curve { learning_curve(&dataset, &candidates, &assignment, args.seed, 8) } else { Vec::new() };

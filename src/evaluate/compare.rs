@@ -262,8 +262,9 @@ pub struct Evaluation {
     pub results: Vec<ResultEntry>,
     /// Pairwise comparisons.
     pub paired: Vec<PairedEntry>,
-    /// Multi-class figures per candidate (three or more classes).
-    #[serde(skip_serializing_if = "Vec::is_empty")]
+    /// Multi-class figures per candidate (three or more classes); in JSON
+    /// they are part of each result's metrics.
+    #[serde(skip)]
     pub multiclass: Vec<(String, MulticlassMetrics)>,
     /// Per-segment figures (`--by`).
     #[serde(skip_serializing_if = "Vec::is_empty")]
@@ -517,6 +518,28 @@ fn paired_probability(entry: &mut PairedEntry, a: &TestedScore, b: &TestedScore,
         let statistic = ((only_a - only_b).abs() - 1.0).max(0.0).powi(2) / (only_a + only_b);
         entry.mcnemar_statistic = Some(statistic);
         entry.mcnemar_p_value = Some(chi_square_upper(statistic, 1.0));
+    }
+}
+
+impl Evaluation {
+    /// Adds multi-class figures (`log_loss`, `brier`, `auc_by_class`,
+    /// `auc_macro`) to each result's metrics.
+    pub fn set_multiclass(&mut self, figures: Vec<(String, MulticlassMetrics)>) {
+        for (name, m) in &figures {
+            if let Some(r) = self.results.iter_mut().find(|r| &r.name == name) {
+                if let (Some(object), Ok(serde_json::Value::Object(extra))) =
+                    (r.metrics.as_object_mut(), serde_json::to_value(m))
+                {
+                    for (key, value) in extra {
+                        object.insert(
+                            if key == "log_loss" || key == "brier" { format!("multiclass_{key}") } else { key },
+                            value,
+                        );
+                    }
+                }
+            }
+        }
+        self.multiclass = figures;
     }
 }
 

@@ -222,10 +222,14 @@ fn log_sigmoid(z: f64) -> f64 {
 }
 
 /// Logistic regression of y on (1, z) (`with_slope`) or on 1 with offset z:
-/// returns (intercept, slope) by Newton's method.
+/// returns (intercept, slope) by Newton's method with step-halving.
 fn recalibrate(z: &[f64], y: &[bool], w: &dyn Fn(usize) -> f64, with_slope: bool) -> Option<(f64, f64)> {
+    let log_likelihood = |a: f64, b: f64| -> f64 {
+        (0..z.len()).map(|i| w(i) * log_sigmoid(if y[i] { a + b * z[i] } else { -(a + b * z[i]) })).sum()
+    };
     let (mut a, mut b) = (0.0, 1.0);
-    for _ in 0..100 {
+    let mut current = log_likelihood(a, b);
+    for _ in 0..200 {
         let (mut g0, mut g1, mut h00, mut h01, mut h11) = (0.0, 0.0, 0.0, 0.0, 0.0);
         for i in 0..z.len() {
             let p = sigmoid(a + b * z[i]);
@@ -237,7 +241,7 @@ fn recalibrate(z: &[f64], y: &[bool], w: &dyn Fn(usize) -> f64, with_slope: bool
             h01 += v * z[i];
             h11 += v * z[i] * z[i];
         }
-        let (da, db) = if with_slope {
+        let (mut da, mut db) = if with_slope {
             let det = h00 * h11 - h01 * h01;
             if !(det.abs() > 0.0) {
                 return None;
@@ -249,12 +253,21 @@ fn recalibrate(z: &[f64], y: &[bool], w: &dyn Fn(usize) -> f64, with_slope: bool
             }
             (g0 / h00, 0.0)
         };
+        let mut halvings = 0;
+        let mut next = log_likelihood(a + da, b + db);
+        while !(next >= current - 1e-12 * current.abs()) && halvings < 40 {
+            da *= 0.5;
+            db *= 0.5;
+            next = log_likelihood(a + da, b + db);
+            halvings += 1;
+        }
         a += da;
         b += db;
+        current = next;
         if !(a.is_finite() && b.is_finite()) {
             return None;
         }
-        if da.abs().max(db.abs()) < 1e-12 {
+        if da.abs().max(db.abs()) < 1e-10 {
             return Some((a, b));
         }
     }

@@ -12,7 +12,12 @@
 //!   With α = 0 a level never seen in a class gets probability 2.2e-308
 //!   (the smallest normal double) rather than 0, so posteriors stay finite.
 //!
-//! log p(x | k) = Σⱼ log N(xⱼ; μₖⱼ, σ²ₖⱼ) + Σ_c log P(x_c | k).
+//! - Missing-value indicators (the 0/1 inputs `--missing impute` adds) are
+//!   Bernoulli, with the same smoothing: P(1 | k) = (cₖ + α)/(Wₖ + 2α). A
+//!   Gaussian on a 0/1 input that is constant within a class would put the
+//!   whole posterior on the chance that a test row is 0.
+//!
+//! log p(x | k) = Σⱼ log N(xⱼ; μₖⱼ, σ²ₖⱼ) + Σ_b log P(x_b | k) + Σ_c log P(x_c | k).
 
 use serde::{Deserialize, Serialize};
 
@@ -69,6 +74,18 @@ pub struct NaiveBayesModel {
     pub variances: Vec<Vec<f64>>,
     /// Categorical inputs.
     pub categorical: Vec<CategoricalLikelihood>,
+    /// Numeric inputs modelled as Bernoulli (missing-value indicators).
+    #[serde(default)]
+    pub bernoulli: Vec<BernoulliInput>,
+}
+
+/// A 0/1 input's class-conditional probabilities.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct BernoulliInput {
+    /// Its position among the numeric inputs.
+    pub index: usize,
+    /// log P(x = 1 | class) and log P(x = 0 | class), one pair per class.
+    pub log_probabilities: Vec<[f64; 2]>,
 }
 
 /// The smallest probability a smoothed level can have.
@@ -80,12 +97,27 @@ impl NaiveBayesModel {
         let k = self.classes.len();
         let p = self.numeric.len();
         // Per class: −½ Σⱼ ln(2πσ²) once, then the quadratic terms per row.
+        let mut gaussian = vec![true; p];
+        for b in &self.bernoulli {
+            gaussian[b.index] = false;
+        }
         let constants: Vec<f64> = self
             .variances
             .iter()
-            .map(|v| -0.5 * v.iter().map(|s| (std::f64::consts::TAU * s).ln()).sum::<f64>())
+            .map(|v| {
+                -0.5 * v
+                    .iter()
+                    .zip(&gaussian)
+                    .filter(|(_, &g)| g)
+                    .map(|(s, _)| (std::f64::consts::TAU * s).ln())
+                    .sum::<f64>()
+            })
             .collect();
-        let inverse: Vec<Vec<f64>> = self.variances.iter().map(|v| v.iter().map(|s| 0.5 / s).collect()).collect();
+        let inverse: Vec<Vec<f64>> = self
+            .variances
+            .iter()
+            .map(|v| v.iter().zip(&gaussian).map(|(s, &g)| if g { 0.5 / s } else { 0.0 }).collect())
+            .collect();
         for (i, &r) in rows.iter().enumerate() {
             for class in 0..k {
                 let mut ll = constants[class];
@@ -94,6 +126,10 @@ impl NaiveBayesModel {
                 for j in 0..p {
                     let dev = inputs.numeric[(r, j)] - means[j];
                     ll -= dev * dev * inv[j];
+                }
+                for b in &self.bernoulli {
+                    let one = inputs.numeric[(r, b.index)] > 0.5;
+                    ll += b.log_probabilities[class][usize::from(!one)];
                 }
                 for (c, table) in self.categorical.iter().enumerate() {
                     ll += table.log_probabilities[class][inputs.categorical[c][r] as usize];
@@ -114,7 +150,10 @@ impl NaiveBayesModel {
             && self.categorical.iter().all(|c| {
                 c.log_probabilities.len() == k && c.log_probabilities.iter().all(|r| r.len() == c.levels.len())
             });
-        if !shapes {
+        let bernoulli = self.bernoulli.iter().all(|b| {
+            b.index < p && b.log_probabilities.len() == k && b.log_probabilities.iter().flatten().all(|v| v.is_finite())
+        });
+        if !shapes || !bernoulli {
             return Err("parameter shapes do not match the classes and inputs".into());
         }
         if self.variances.iter().flatten().any(|v| !(*v > 0.0 && v.is_finite()))
@@ -156,11 +195,43 @@ pub fn fit(
     for m in &moments[1..] {
         overall.merge(m);
     }
+    let indicators: Vec<usize> = {
+        let names: Vec<String> = schema
+            .features()
+            .filter_map(|c| match &c.imputation {
+                Some(crate::data::schema::Imputation::Median { indicator, .. }) => Some(indicator.clone()),
+                _ => None,
+            })
+            .collect();
+        (0..p).filter(|&j| names.contains(&numeric_only.numeric[j])).collect()
+    };
+    let mut bernoulli = Vec::new();
+    for &j in &indicators {
+        let mut ones = vec![0.0; k];
+        let column = dataset.numeric.column(j);
+        for (r, &y) in dataset.target.iter().enumerate() {
+            if column[r] > 0.5 {
+                ones[y as usize] += weights.map_or(1.0, |w| w[r]);
+            }
+        }
+        let log_probabilities = (0..k)
+            .map(|class| {
+                let p1 = ((ones[class] + params.smoothing) / (moments[class].weight + 2.0 * params.smoothing))
+                    .clamp(SMALLEST_PROBABILITY, 1.0 - f64::EPSILON);
+                [p1.ln(), (1.0 - p1).ln()]
+            })
+            .collect();
+        bernoulli.push(BernoulliInput { index: j, log_probabilities });
+    }
     let mut warnings = Vec::new();
     let mut variances = Vec::with_capacity(k);
     for (class, m) in moments.iter().enumerate() {
         let mut row = Vec::with_capacity(p);
         for j in 0..p {
+            if indicators.contains(&j) {
+                row.push(1.0);
+                continue;
+            }
             let total_variance = overall.scatter[j] / overall.weight;
             if !(total_variance > 0.0) {
                 return Err(Error::SingularCovariance {
@@ -206,9 +277,16 @@ pub fn fit(
     // Σᵢ wᵢ log p(xᵢ | yᵢ) in closed form.
     let mut log_likelihood = 0.0;
     for (class, m) in moments.iter().enumerate() {
-        for j in 0..p {
+        for j in (0..p).filter(|j| !indicators.contains(j)) {
             let v = variances[class][j];
             log_likelihood -= 0.5 * (m.weight * (std::f64::consts::TAU * v).ln() + m.scatter[j] / v);
+        }
+    }
+    for b in &bernoulli {
+        let column = dataset.numeric.column(b.index);
+        for (r, &y) in dataset.target.iter().enumerate() {
+            log_likelihood +=
+                weights.map_or(1.0, |w| w[r]) * b.log_probabilities[y as usize][usize::from(column[r] <= 0.5)];
         }
     }
     for (c, table) in categorical.iter().enumerate() {
@@ -224,6 +302,7 @@ pub fn fit(
         means: moments.iter().map(|m| m.mean.clone()).collect(),
         variances,
         categorical,
+        bernoulli,
     };
     Ok((model, Diagnostics { iterations: 1, converged: true, log_likelihood, warnings }))
 }

@@ -338,7 +338,7 @@ pub fn evaluation_html(e: &Evaluation, learning: &[LearningPoint], data_descript
 
     let mut html = String::from("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>baserate evaluation</title>\n<style>\nbody{font-family:sans-serif;margin:2em;max-width:1150px;color:#222}\ntable{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:3px 8px;text-align:right}th{background:#eef}td.l,th.l{text-align:left}\n.caution{border-left:4px solid #b60;padding:0.5em 1em;background:#fff6ea}\n.chart{display:inline-block;margin:0.5em}\n</style></head><body>\n");
     html.push_str("<h1>baserate: families side by side</h1>\n");
-    html.push_str(&format!("<p class=\"caution\"><strong>Caution.</strong> {}</p>\n", escape(CAUTION)));
+    html.push_str(&format!("<p class=\"caution\"><strong>{}</strong></p>\n", escape(CAUTION)));
     html.push_str(&format!(
         "<h2>Data and split</h2>\n<p>{}</p>\n<p>{} rows; {} tested; split: {}; positive class: <strong>{}</strong>.</p>\n",
         escape(data_description),

@@ -218,11 +218,35 @@ def logit_fixtures(out):
     return fixtures
 
 
+def metric_fixtures(data):
+    """scikit-learn's metrics on fixed predictions: GaussianNB posteriors on
+    breast_cancer (a model fitted here only to make realistic predictions)."""
+    import numpy as np
+    from sklearn.naive_bayes import GaussianNB
+    from sklearn.metrics import roc_auc_score, average_precision_score, brier_score_loss, log_loss
+    x, y = data["breast_cancer"]
+    positive = "malignant"
+    p = GaussianNB().fit(x, y).predict_proba(x)[:, list(sorted(set(y))).index(positive)]
+    # Keep predictions away from exact 0 and 1, where libraries clip differently.
+    p = np.clip(p, 1e-6, 1 - 1e-6)
+    labels = (y == positive).astype(int)
+    return {"fixed_predictions_metrics": {
+        "source": "scikit-learn metrics on fixed predictions (GaussianNB posteriors on breast_cancer, clipped to [1e-6, 1-1e-6])",
+        "probability": p.tolist(),
+        "label": labels.tolist(),
+        "roc_auc_score": float(roc_auc_score(labels, p)),
+        "average_precision_score": float(average_precision_score(labels, p)),
+        "brier_score_loss": float(brier_score_loss(labels, p)),
+        "log_loss": float(log_loss(labels, p)),
+    }}
+
+
 def generate(out):
     os.makedirs(os.path.join(out, "data"), exist_ok=True)
     os.makedirs(os.path.join(out, "expected"), exist_ok=True)
     data = sklearn_datasets(out)
     fixtures = discriminant_fixtures(out, data)
+    fixtures.update(metric_fixtures(data))
     fixtures.update(logit_fixtures(out))
     write_json(os.path.join(out, "expected", "python.json"), {"versions": versions(), "fixtures": fixtures})
 

@@ -1,0 +1,268 @@
+//! `compare` and `assess` through the binary: the contract's JSON fields,
+//! seeded determinism, every kind of split, out-of-fold predictions, and
+//! escaping of names that come from the data.
+
+mod common;
+
+use common::{baserate, temp_dir, write};
+use serde_json::Value;
+
+fn run(dir: &std::path::Path, args: &[&str]) -> (i32, String, String) {
+    let output = baserate(dir, args);
+    let stderr = String::from_utf8_lossy(&output.stderr).into_owned();
+    assert!(!stderr.contains("panicked") && !stderr.contains("internal error"), "{stderr}");
+    (output.status.code().unwrap_or(-1), String::from_utf8_lossy(&output.stdout).into_owned(), stderr)
+}
+
+fn lending(dir: &std::path::Path) -> String {
+    let files = baserate::demo::generate(baserate::demo::DEFAULT_SEED, baserate::demo::DemoSize::standard());
+    write(dir, "train.csv", files[0].contents.as_bytes());
+    files[0].contents.clone()
+}
+
+const LENDING: [&str; 7] =
+    ["train.csv", "--target", "outcome", "--id", "application_id,application_month", "--missing", "impute"];
+
+fn compare_json(dir: &std::path::Path, extra: &[&str]) -> Value {
+    let mut args = vec!["compare"];
+    args.extend(LENDING);
+    args.extend(extra);
+    args.extend(["--json", "-"]);
+    let (code, out, err) = run(dir, &args);
+    assert_eq!(code, 0, "{err}");
+    serde_json::from_str(&out).expect("json")
+}
+
+#[test]
+fn compare_writes_the_contract_fields() {
+    let dir = temp_dir();
+    lending(dir.path());
+    let v = compare_json(dir.path(), &["--folds", "5"]);
+    assert_eq!(v["positive"], "defaulted");
+    assert_eq!(v["rows"], 5000);
+    let results = v["results"].as_array().expect("results");
+    let names: Vec<&str> = results.iter().map(|r| r["name"].as_str().unwrap_or("")).collect();
+    assert_eq!(names, vec!["logistic", "naive-bayes", "lda", "qda"]);
+    for r in results {
+        assert_eq!(r["name"], r["family"]);
+        for field in
+            ["auc", "auc_se", "auc_ci_low", "auc_ci_high", "gini", "ks", "log_loss", "brier", "average_precision"]
+        {
+            assert!(r["metrics"][field].is_number(), "{field}");
+        }
+        let m = &r["metrics"];
+        assert!((m["gini"].as_f64().unwrap_or(0.0) - (2.0 * m["auc"].as_f64().unwrap_or(0.0) - 1.0)).abs() < 1e-12);
+    }
+    let paired = v["paired"].as_array().expect("paired");
+    assert_eq!(paired.len(), 6);
+    for p in paired {
+        for field in ["auc_diff", "z", "p_value"] {
+            assert!(p[field].is_number(), "{field}");
+        }
+        assert!(p["a"].is_string() && p["b"].is_string());
+        assert_eq!(p["z"].as_f64().unwrap_or(0.0).signum(), p["auc_diff"].as_f64().unwrap_or(0.0).signum());
+    }
+    assert!(v["caution"].as_str().unwrap_or("").contains("decision support"));
+}
+
+#[test]
+fn same_seed_same_figures() {
+    let dir = temp_dir();
+    lending(dir.path());
+    let a = compare_json(dir.path(), &["--seed", "3", "--family", "lda", "--family", "logistic"]);
+    let b = compare_json(dir.path(), &["--seed", "3", "--family", "lda", "--family", "logistic"]);
+    let c = compare_json(dir.path(), &["--seed", "4", "--family", "lda", "--family", "logistic"]);
+    assert_eq!(a, b);
+    assert_ne!(a["results"][0]["metrics"]["auc"], c["results"][0]["metrics"]["auc"]);
+}
+
+#[test]
+fn family_options_and_names() {
+    let dir = temp_dir();
+    lending(dir.path());
+    let v = compare_json(
+        dir.path(),
+        &[
+            "--family",
+            "qda",
+            "--family",
+            "qda:reg=0.3",
+            "--family",
+            "lda:shrinkage=ledoit-wolf",
+            "--test-fraction",
+            "0.3",
+        ],
+    );
+    let names: Vec<&str> =
+        v["results"].as_array().expect("results").iter().map(|r| r["name"].as_str().unwrap_or("")).collect();
+    assert_eq!(names, vec!["qda", "qda:reg=0.3", "lda:shrinkage=ledoit-wolf"]);
+    assert_eq!(v["results"][1]["family"], "qda");
+    assert_eq!(v["tested_rows"], 1500);
+    for (bad, message) in
+        [("qda:rge=0.1", "unknown option 'rge'"), ("tree", "not one of"), ("lda:reg=0.1", "--reg applies to qda")]
+    {
+        let mut args = vec!["compare"];
+        args.extend(LENDING);
+        args.extend(["--family", bad]);
+        let (code, _, err) = run(dir.path(), &args);
+        assert_eq!(code, 2, "{bad}");
+        assert!(err.contains(message), "{bad}: {err}");
+    }
+    let mut args = vec!["compare"];
+    args.extend(LENDING);
+    args.extend(["--family", "lda", "--family", "lda"]);
+    assert_eq!(run(dir.path(), &args).0, 2);
+}
+
+#[test]
+fn out_of_time_with_a_gap_and_an_explicit_holdout() {
+    let dir = temp_dir();
+    let text = lending(dir.path());
+    let v = compare_json(
+        dir.path(),
+        &["--family", "lda", "--split-by", "application_month", "--test-from", "2025-10", "--gap", "2025-09"],
+    );
+    let expected = text.lines().skip(1).filter(|l| l.split(',').nth(1).is_some_and(|m| m >= "2025-10")).count();
+    assert_eq!(v["tested_rows"].as_u64(), Some(expected as u64));
+    assert!(v["split"].as_str().unwrap_or("").contains("gap"));
+
+    let lines: Vec<&str> = text.lines().collect();
+    write(dir.path(), "first.csv", (lines[..3001].join("\n") + "\n").as_bytes());
+    write(dir.path(), "rest.csv", (format!("{}\n", lines[0]) + &lines[3001..].join("\n") + "\n").as_bytes());
+    let (code, out, err) = run(
+        dir.path(),
+        &[
+            "compare",
+            "first.csv",
+            "--target",
+            "outcome",
+            "--id",
+            "application_id,application_month",
+            "--missing",
+            "impute",
+            "--family",
+            "logistic",
+            "--holdout",
+            "rest.csv",
+            "--json",
+            "-",
+        ],
+    );
+    assert_eq!(code, 0, "{err}");
+    let v: Value = serde_json::from_str(&out).expect("json");
+    assert_eq!(v["tested_rows"], 2000);
+    assert_eq!(v["rows"], 5000);
+}
+
+#[test]
+fn predictions_feed_assess() {
+    let dir = temp_dir();
+    lending(dir.path());
+    let mut args = vec!["compare"];
+    args.extend(LENDING);
+    args.extend(["--family", "logistic", "--family", "lda", "--predictions", "oof.csv", "--json", "c.json"]);
+    let (code, _, err) = run(dir.path(), &args);
+    assert_eq!(code, 0, "{err}");
+    let oof = std::fs::read_to_string(dir.path().join("oof.csv")).expect("predictions");
+    assert!(oof.starts_with(
+        "application_id,application_month,fold,outcome,logistic:p_defaulted,logistic:p_repaid,lda:p_defaulted"
+    ));
+    assert_eq!(oof.lines().count(), 5001);
+    let (code, out, err) = run(
+        dir.path(),
+        &[
+            "assess",
+            "oof.csv",
+            "--target",
+            "outcome",
+            "--exclude",
+            "application_id,application_month,fold",
+            "--score",
+            "logistic:p_defaulted",
+            "--score",
+            "lda:p_defaulted",
+            "--json",
+            "-",
+        ],
+    );
+    assert_eq!(code, 0, "{err}");
+    let assessed: Value = serde_json::from_str(&out).expect("json");
+    let compared: Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("c.json")).expect("c.json")).expect("json");
+    // The same rows and the same predictions give the same AUC (the file
+    // holds the probabilities to full precision).
+    let a = assessed["results"][0]["metrics"]["auc"].as_f64().unwrap_or(0.0);
+    let c = compared["results"][0]["metrics"]["auc"].as_f64().unwrap_or(1.0);
+    assert!((a - c).abs() < 1e-12, "{a} vs {c}");
+    assert!(assessed["results"][0].get("family").is_none());
+    assert_eq!(assessed["paired"].as_array().map(Vec::len), Some(1));
+    // Rank scores get rank metrics only.
+    let (code, out, _) = run(
+        dir.path(),
+        &[
+            "assess",
+            "oof.csv",
+            "--target",
+            "outcome",
+            "--exclude",
+            "application_id,application_month,fold",
+            "--score",
+            "lda:p_repaid",
+            "--score-type",
+            "rank",
+            "--direction",
+            "lower-positive",
+            "--json",
+            "-",
+        ],
+    );
+    assert_eq!(code, 0);
+    let ranked: Value = serde_json::from_str(&out).expect("json");
+    assert!(ranked["results"][0]["metrics"].get("log_loss").is_none());
+    let auc = ranked["results"][0]["metrics"]["auc"].as_f64().unwrap_or(0.0);
+    let lda = assessed["results"][1]["metrics"]["auc"].as_f64().unwrap_or(1.0);
+    assert!((auc - lda).abs() < 1e-12, "a reversed rank score gives the same AUC: {auc} vs {lda}");
+}
+
+#[test]
+fn multi_class_results_carry_one_vs_rest_aucs() {
+    let dir = temp_dir();
+    let iris = std::fs::read(std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/data/iris.csv"))
+        .expect("iris");
+    write(dir.path(), "iris.csv", &iris);
+    let (code, out, err) = run(
+        dir.path(),
+        &["compare", "iris.csv", "--target", "target", "--family", "lda", "--family", "naive-bayes", "--json", "-"],
+    );
+    assert_eq!(code, 0, "{err}");
+    let v: Value = serde_json::from_str(&out).expect("json");
+    let m = &v["results"][0]["metrics"];
+    assert!(m["auc_macro"].as_f64().unwrap_or(0.0) > 0.9);
+    assert_eq!(m["auc_by_class"].as_object().map(|o| o.len()), Some(3));
+}
+
+#[test]
+fn names_from_the_data_are_escaped_in_the_report() {
+    let dir = temp_dir();
+    let mut text = String::from("x<script>alert(1)</script>,z,\"y\"\n");
+    let mut rng = baserate::demo::rng::Rng::new(3);
+    for i in 0..400 {
+        let positive = i % 4 == 0;
+        let x = rng.normal() + if positive { 1.5 } else { 0.0 };
+        text.push_str(&format!("{x},{},{}\n", rng.normal(), if positive { "<b>bad</b>" } else { "good&fine" }));
+    }
+    write(dir.path(), "hostile.csv", text.as_bytes());
+    let (code, _, err) =
+        run(dir.path(), &["compare", "hostile.csv", "--target", "y", "--report", "r.html", "--bootstrap", "20"]);
+    assert_eq!(code, 0, "{err}");
+    let html = std::fs::read_to_string(dir.path().join("r.html")).expect("report");
+    assert!(!html.contains("<script>alert"));
+    assert!(!html.contains("<b>bad</b>"));
+    assert!(html.contains("&lt;b&gt;bad&lt;/b&gt;") && html.contains("x&lt;script&gt;alert(1)&lt;/script&gt;"));
+    assert_eq!(html.matches("<script>").count(), 1, "only the report's own check script");
+    assert!(
+        !html.contains("http://")
+            || html.matches("http://").count() == html.matches("http://www.w3.org/2000/svg").count()
+    );
+    assert!(html.contains("decision support, not a decision"));
+}
