@@ -55,9 +55,9 @@ pub struct Args {
     /// Seed of the bootstrap.
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
-    /// Paired-bootstrap draws (0: none).
-    #[arg(long, value_name = "N", default_value_t = 200)]
-    pub bootstrap: usize,
+    /// Paired-bootstrap draws [default: 200 up to 200,000 rows, above that the normal interval; 0: the normal interval].
+    #[arg(long, value_name = "N")]
+    pub bootstrap: Option<usize>,
     /// A column of amounts for amount-weighted capture.
     #[arg(long, value_name = "COL")]
     pub amount: Option<String>,

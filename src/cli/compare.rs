@@ -58,9 +58,9 @@ pub struct Args {
     /// Seed of the splits and the bootstrap.
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
-    /// Paired-bootstrap draws for intervals of log-loss and Brier differences (0: none).
-    #[arg(long, value_name = "N", default_value_t = 200)]
-    pub bootstrap: usize,
+    /// Paired-bootstrap draws for intervals of log-loss and Brier differences [default: 200 up to 200,000 tested rows, above that the normal interval; 0: the normal interval].
+    #[arg(long, value_name = "N")]
+    pub bootstrap: Option<usize>,
     /// A column of amounts for amount-weighted capture.
     #[arg(long, value_name = "COL")]
     pub amount: Option<String>,
@@ -174,7 +174,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
 
     // With --holdout, the two files are read as one (the holdout validated
     // on its own first, so its errors name its own lines).
-    let (dataset, notices, holdout_rows) = match &args.holdout {
+    let (mut dataset, notices, holdout_rows) = match &args.holdout {
         Some(holdout) => {
             Dataset::read(holdout, &options)?;
             let train = std::fs::read(&args.data).map_err(|e| Error::io(args.data.display().to_string(), e))?;
@@ -257,27 +257,8 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         })?),
         None => None,
     };
-    let scores: Vec<TestedScore> = predictions.iter().map(|p| TestedScore::from_predictions(p, positive)).collect();
-    let mut evaluation = evaluate(
-        &scores,
-        &EvaluationOptions {
-            target: &dataset.target,
-            positive,
-            classes: &target.classes,
-            weights: dataset.weights.as_deref(),
-            amounts: amounts.as_deref(),
-            bootstrap: args.bootstrap,
-            seed: args.seed,
-            segments: segments.as_deref().map(|v| (args.by.as_deref().unwrap_or(""), v)),
-            split: assignment.description.clone(),
-        },
-    );
-    if k > 2 {
-        evaluation.set_multiclass(multiclass(&predictions, &dataset));
-    }
     let learning =
         if args.learning_curve { learning_curve(&dataset, &candidates, &assignment, args.seed, 8) } else { Vec::new() };
-
     if let Some(path) = &args.predictions {
         let mut w = csv::Writer::from_writer(Vec::new());
         let mut header: Vec<String> = dataset.ids.iter().map(|(n, _)| n.clone()).collect();
@@ -304,6 +285,30 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         }
         let bytes = w.into_inner().map_err(|e| Error::io(path.display().to_string(), e.into_error()))?;
         write_atomic(path, &bytes)?;
+    }
+    let multiclass_figures = if k > 2 { multiclass(&predictions, &dataset) } else { Vec::new() };
+    let scores: Vec<TestedScore> = predictions.iter().map(|p| TestedScore::from_predictions(p, positive)).collect();
+    // What the evaluation does not need is freed first: the inputs matrix
+    // and the full posterior tables (the scores keep the log odds).
+    drop(predictions);
+    dataset.numeric = ndarray::Array2::zeros((0, 0));
+    let mut evaluation = evaluate(
+        &scores,
+        &EvaluationOptions {
+            target: &dataset.target,
+            positive,
+            classes: &target.classes,
+            weights: dataset.weights.as_deref(),
+            amounts: amounts.as_deref(),
+            bootstrap: args.bootstrap,
+            seed: args.seed,
+            segments: segments.as_deref().map(|v| (args.by.as_deref().unwrap_or(""), v)),
+            split: assignment.description.clone(),
+        },
+    );
+
+    if k > 2 {
+        evaluation.set_multiclass(multiclass_figures);
     }
     if let Some(path) = &args.json {
         let mut value = serde_json::to_value(&evaluation).map_err(|e| Error::Usage(e.to_string()))?;

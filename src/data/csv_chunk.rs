@@ -96,12 +96,18 @@ impl NaMatcher {
     }
 }
 
+/// A callback given each parsed chunk's bytes.
+pub(crate) type Release<'a> = &'a (dyn Fn(&[u8]) + Sync);
+
 /// What every chunk of one file shares.
 pub(crate) struct ParseContext<'a> {
     pub(crate) path: &'a str,
     pub(crate) names: &'a [String],
     pub(crate) delimiter: u8,
     pub(crate) na: NaMatcher,
+    /// Called with each chunk's bytes once parsed, so a memory-mapped file
+    /// can give its pages back (resident memory stays at a few chunks).
+    pub(crate) release: Option<Release<'a>>,
 }
 
 impl ParseContext<'_> {

@@ -25,7 +25,7 @@ use std::ops::Range;
 use ndarray::{Array2, ShapeBuilder};
 use rayon::prelude::*;
 
-use crate::data::csv_chunk::{parse_chunk, slots, ChunkOut, NaMatcher, Parse, ParseContext};
+use crate::data::csv_chunk::{parse_chunk, slots, ChunkOut, NaMatcher, Parse, ParseContext, Release};
 pub use crate::data::csv_chunk::{ColumnFacts, MISSING_CODE};
 use crate::data::options::ReadOptions;
 use crate::data::schema::ColumnRole;
@@ -111,7 +111,18 @@ pub fn read_path(path: &std::path::Path, options: &ReadOptions) -> Result<ReadTa
         // the documented condition is that nobody truncates the file while
         // baserate reads it (the same condition every mmap-based reader has).
         if let Ok(map) = unsafe { memmap2::Mmap::map(&file) } {
-            return read_bytes(&shown, &map, options);
+            let base = map.as_ptr() as usize;
+            // Parsed chunks' pages are dropped from memory: the map is
+            // read-only and file-backed, so a page read again later (a
+            // second pass) is simply read from the file again.
+            let release = |chunk: &[u8]| {
+                let offset = chunk.as_ptr() as usize - base;
+                // SAFETY: DontNeed on a read-only, file-backed shared map
+                // only discards cached pages; their contents stay those of
+                // the file.
+                let _ = unsafe { map.unchecked_advise_range(memmap2::UncheckedAdvice::DontNeed, offset, chunk.len()) };
+            };
+            return read_bytes_chunked(&shown, &map, options, CHUNK_BYTES, Some(&release));
         }
     }
     let mut bytes = Vec::new();
@@ -122,7 +133,7 @@ pub fn read_path(path: &std::path::Path, options: &ReadOptions) -> Result<ReadTa
 /// Parses a whole delimited file held in memory. `path` is only used in
 /// messages.
 pub fn read_bytes(path: &str, bytes: &[u8], options: &ReadOptions) -> Result<ReadTable> {
-    read_bytes_chunked(path, bytes, options, CHUNK_BYTES)
+    read_bytes_chunked(path, bytes, options, CHUNK_BYTES, None)
 }
 
 /// [`read_bytes`] with a stated chunk size (tests use tiny chunks to show
@@ -132,6 +143,7 @@ pub(crate) fn read_bytes_chunked(
     bytes: &[u8],
     options: &ReadOptions,
     chunk_bytes: usize,
+    release: Option<Release<'_>>,
 ) -> Result<ReadTable> {
     let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
     if bytes.iter().all(|b| b.is_ascii_whitespace()) {
@@ -158,8 +170,13 @@ pub(crate) fn read_bytes_chunked(
     let data = &bytes[data_start..];
     let chunks = split_chunks(data, chunk_bytes);
     let (first_lines, capacities) = chunk_lines(data, &chunks, data_first_line);
-    let context =
-        ParseContext { path, names: &names, delimiter: options.delimiter, na: NaMatcher::new(&options.na_tokens) };
+    let context = ParseContext {
+        path,
+        names: &names,
+        delimiter: options.delimiter,
+        na: NaMatcher::new(&options.na_tokens),
+        release,
+    };
 
     // The first chunk settles the kinds it shows, so that a file whose text
     // columns are not declared still needs only one parallel pass.
@@ -252,7 +269,14 @@ fn parse_all(
         .par_iter()
         .zip(first_lines.par_iter())
         .zip(slices.into_par_iter())
-        .map(|((range, &first_line), numeric)| parse_chunk(context, &data[range.clone()], first_line, plan, numeric))
+        .map(|((range, &first_line), numeric)| {
+            let bytes = &data[range.clone()];
+            let out = parse_chunk(context, bytes, first_line, plan, numeric);
+            if let Some(release) = context.release {
+                release(bytes);
+            }
+            out
+        })
         .collect();
     (outs, matrix)
 }
@@ -587,9 +611,9 @@ mod tests {
             let c = if i % 50 == 7 { "\"q\nr\"" } else { "s" };
             text.push_str(&format!("{}.25,{},{},{}\n", i, b, i % 3, c));
         }
-        let whole = read_bytes_chunked("t.csv", text.as_bytes(), &options(), 1 << 20).unwrap();
+        let whole = read_bytes_chunked("t.csv", text.as_bytes(), &options(), 1 << 20, None).unwrap();
         for chunk in [1, 7, 64, 300] {
-            let chunked = read_bytes_chunked("t.csv", text.as_bytes(), &options(), chunk).unwrap();
+            let chunked = read_bytes_chunked("t.csv", text.as_bytes(), &options(), chunk, None).unwrap();
             assert_eq!(format!("{chunked:?}"), format!("{whole:?}"), "chunk size {chunk}");
         }
         match &whole.columns[1].values {
@@ -613,7 +637,7 @@ mod tests {
             text.push_str(&format!("{a},{}\n", i % 2));
         }
         for chunk in [1, 16, 1 << 20] {
-            match read_bytes_chunked("t.csv", text.as_bytes(), &options(), chunk) {
+            match read_bytes_chunked("t.csv", text.as_bytes(), &options(), chunk, None) {
                 Err(Error::RaggedRow { at, .. }) => assert_eq!(at.line, 22),
                 other => panic!("{other:?}"),
             }

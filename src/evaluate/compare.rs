@@ -20,10 +20,11 @@ use crate::data::split::Assignment;
 use crate::data::Dataset;
 use crate::error::Result;
 use crate::evaluate::metrics::{
-    binary_metrics, curves, multiclass_metrics, BinaryMetrics, BinaryScores, Curves, MulticlassMetrics, ScoreKind,
+    binary_metrics, binary_metrics_with_placements, multiclass_metrics, BinaryMetrics, BinaryScores, Curves,
+    MulticlassMetrics, ScoreKind,
 };
 use crate::evaluate::roc::{paired_delong, placements, Placements};
-use crate::evaluate::stats::chi_square_upper;
+use crate::evaluate::stats::{chi_square_upper, NORMAL_975};
 use crate::model::{fit_weighted, Family, FamilyParams, FittedModel};
 use crate::rng::Rng;
 
@@ -80,8 +81,11 @@ pub fn cross_predict(
             (0..assignment.folds.len()).flat_map(move |r| (0..assignment.tested_folds).map(move |f| (c, r, f)))
         })
         .collect();
+    // One task at a time: each fit and prediction is parallel inside, and
+    // running tasks side by side would hold every task's fold weights and
+    // predictions in memory at once.
     let fitted: Vec<Result<FoldPrediction>> = tasks
-        .par_iter()
+        .iter()
         .map(|&(c, repeat, fold)| {
             let weights: Vec<f64> = (0..n)
                 .map(|i| {
@@ -146,8 +150,9 @@ pub struct ResultEntry {
     /// Curves, for reports.
     #[serde(skip)]
     pub curves: Option<Curves>,
-    /// Log-odds of the positive class and labels of the tested rows, for
-    /// score-distribution charts (first repeat).
+    /// Log-odds of the positive class and labels of (a systematic sample of
+    /// at most 20,000 of) the tested rows, for score-distribution charts
+    /// (first repeat).
     #[serde(skip)]
     pub scores: Vec<(f64, bool)>,
 }
@@ -171,15 +176,19 @@ pub struct PairedEntry {
     /// First-order standard error of that difference (per-row SD / √n).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub log_loss_diff_se: Option<f64>,
-    /// Paired-bootstrap 95% interval of the log-loss difference.
+    /// 95% interval of the log-loss difference (see `interval_method`).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub log_loss_diff_ci: Option<[f64; 2]>,
     /// Brier(a) − Brier(b).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub brier_diff: Option<f64>,
-    /// Paired-bootstrap 95% interval of the Brier difference.
+    /// 95% interval of the Brier difference.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub brier_diff_ci: Option<[f64; 2]>,
+    /// How the intervals were found: a seeded paired bootstrap, or the
+    /// normal interval from the first-order standard error.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub interval_method: Option<String>,
     /// McNemar's statistic at the 0.5 rule (continuity-corrected).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub mcnemar_statistic: Option<f64>,
@@ -207,12 +216,14 @@ pub struct TestedScore {
 
 /// Log odds of class `positive` from a row of log-posteriors.
 pub fn log_odds_of(row: &[f64], positive: usize) -> f64 {
-    let lp = row[positive];
+    if row.len() == 2 {
+        return row[positive] - row[1 - positive];
+    }
     // log(1 − p) from the other classes, in log space.
-    let others: Vec<f64> = row.iter().enumerate().filter(|(i, _)| *i != positive).map(|(_, v)| *v).collect();
-    let max = others.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-    let rest = max + others.iter().map(|v| (v - max).exp()).sum::<f64>().ln();
-    lp - rest
+    let others = || row.iter().enumerate().filter(|(i, _)| *i != positive).map(|(_, v)| *v);
+    let max = others().fold(f64::NEG_INFINITY, f64::max);
+    let rest = max + others().map(|v| (v - max).exp()).sum::<f64>().ln();
+    row[positive] - rest
 }
 
 impl TestedScore {
@@ -223,13 +234,14 @@ impl TestedScore {
         for lp in &p.log_posteriors {
             let mut lo = Vec::new();
             let mut rs = Vec::new();
-            for (i, row) in lp.rows().into_iter().enumerate() {
-                if row[0].is_nan() {
-                    continue;
+            let k = lp.ncols();
+            if let Some(values) = lp.as_slice() {
+                for (i, row) in values.chunks(k).enumerate() {
+                    if !row[0].is_nan() {
+                        lo.push(log_odds_of(row, positive));
+                        rs.push(i);
+                    }
                 }
-                let values: Vec<f64> = row.to_vec();
-                lo.push(log_odds_of(&values, positive));
-                rs.push(i);
             }
             log_odds.push(lo);
             rows.push(rs);
@@ -294,6 +306,11 @@ pub struct SegmentEntry {
     pub mean_predicted: f64,
 }
 
+/// Above this many tested rows the default interval is the normal one from
+/// the first-order standard error (exact to first order for a mean over
+/// rows, and O(n)); the bootstrap costs rows × draws.
+pub const BOOTSTRAP_ROW_LIMIT: usize = 200_000;
+
 /// Options of an evaluation.
 #[derive(Debug, Clone)]
 pub struct EvaluationOptions<'a> {
@@ -307,8 +324,10 @@ pub struct EvaluationOptions<'a> {
     pub weights: Option<&'a [f64]>,
     /// Amounts of all rows.
     pub amounts: Option<&'a [f64]>,
-    /// Bootstrap draws for paired intervals (0: none).
-    pub bootstrap: usize,
+    /// Bootstrap draws for paired intervals; `None`: 200 draws up to
+    /// [`BOOTSTRAP_ROW_LIMIT`] tested rows, the normal interval above it;
+    /// `Some(0)`: the normal interval.
+    pub bootstrap: Option<usize>,
     /// Seed of the bootstrap.
     pub seed: u64,
     /// Segments: (column, value of each row).
@@ -323,57 +342,68 @@ fn gather<T: Copy>(values: Option<&[T]>, rows: &[usize]) -> Option<Vec<T>> {
 
 /// Evaluates binary scores side by side.
 pub fn evaluate(scores: &[TestedScore], options: &EvaluationOptions<'_>) -> Evaluation {
-    let mut results = Vec::new();
-    let mut first_placements: Vec<Placements> = Vec::new();
-    for s in scores {
-        let rows = &s.rows[0];
-        let labels: Vec<bool> = rows.iter().map(|&r| options.target[r] as usize == options.positive).collect();
-        let weights = gather(options.weights, rows);
-        let amounts = gather(options.amounts, rows);
-        let mut metrics = binary_metrics(&BinaryScores {
-            log_odds: &s.log_odds[0],
-            positive: &labels,
-            weights: weights.as_deref(),
-            amounts: amounts.as_deref(),
-            kind: s.kind,
-        });
-        let mut auc_by_repeat = Vec::new();
-        if s.log_odds.len() > 1 {
-            let mut ses = Vec::new();
-            for (lo, rs) in s.log_odds.iter().zip(&s.rows) {
-                let labels: Vec<bool> = rs.iter().map(|&r| options.target[r] as usize == options.positive).collect();
-                let w = gather(options.weights, rs);
-                let p = placements(lo, &labels, w.as_deref());
-                auc_by_repeat.push(p.auc);
-                ses.push(p.variance().map(f64::sqrt).unwrap_or(f64::NAN));
+    // Every score's figures in parallel.
+    let computed: Vec<(ResultEntry, Placements)> = scores
+        .par_iter()
+        .map(|s| {
+            let rows = &s.rows[0];
+            let labels: Vec<bool> = rows.iter().map(|&r| options.target[r] as usize == options.positive).collect();
+            let weights = gather(options.weights, rows);
+            let amounts = gather(options.amounts, rows);
+            let (mut metrics, placed) = binary_metrics_with_placements(&BinaryScores {
+                log_odds: &s.log_odds[0],
+                positive: &labels,
+                weights: weights.as_deref(),
+                amounts: amounts.as_deref(),
+                kind: s.kind,
+            });
+            let mut auc_by_repeat = Vec::new();
+            if s.log_odds.len() > 1 {
+                let mut ses = Vec::new();
+                for (lo, rs) in s.log_odds.iter().zip(&s.rows) {
+                    let labels: Vec<bool> =
+                        rs.iter().map(|&r| options.target[r] as usize == options.positive).collect();
+                    let w = gather(options.weights, rs);
+                    let p = placements(lo, &labels, w.as_deref());
+                    auc_by_repeat.push(p.auc);
+                    ses.push(p.variance().map(f64::sqrt).unwrap_or(f64::NAN));
+                }
+                metrics.auc = auc_by_repeat.iter().sum::<f64>() / auc_by_repeat.len() as f64;
+                let se = ses.iter().sum::<f64>() / ses.len() as f64;
+                metrics.auc_se = Some(se);
+                metrics.auc_ci_low = Some(metrics.auc - crate::evaluate::stats::NORMAL_975 * se);
+                metrics.auc_ci_high = Some(metrics.auc + crate::evaluate::stats::NORMAL_975 * se);
+                metrics.gini = 2.0 * metrics.auc - 1.0;
             }
-            metrics.auc = auc_by_repeat.iter().sum::<f64>() / auc_by_repeat.len() as f64;
-            let se = ses.iter().sum::<f64>() / ses.len() as f64;
-            metrics.auc_se = Some(se);
-            metrics.auc_ci_low = Some(metrics.auc - crate::evaluate::stats::NORMAL_975 * se);
-            metrics.auc_ci_high = Some(metrics.auc + crate::evaluate::stats::NORMAL_975 * se);
-            metrics.gini = 2.0 * metrics.auc - 1.0;
-        }
-        first_placements.push(placements(&s.log_odds[0], &labels, weights.as_deref()));
-        let curve = curves(&s.log_odds[0], &labels, weights.as_deref(), 400);
-        results.push(ResultEntry {
-            name: s.name.clone(),
-            family: s.family.map(|f| f.name().to_string()),
-            metrics: serde_json::to_value(&metrics).unwrap_or(serde_json::Value::Null),
-            auc_by_repeat,
-            warnings: s.warnings.clone(),
-            binary: Some(metrics),
-            curves: Some(curve),
-            scores: s.log_odds[0].iter().copied().zip(labels.iter().copied()).collect(),
-        });
-    }
-    let mut paired = Vec::new();
-    for a in 0..scores.len() {
-        for b in a + 1..scores.len() {
+            let curve = metrics.curves.clone();
+            let entry = ResultEntry {
+                name: s.name.clone(),
+                family: s.family.map(|f| f.name().to_string()),
+                metrics: serde_json::to_value(&metrics).unwrap_or(serde_json::Value::Null),
+                auc_by_repeat,
+                warnings: s.warnings.clone(),
+                binary: Some(metrics),
+                curves: Some(curve),
+                // A systematic sample of at most 20,000 rows is enough to draw
+                // the score distributions.
+                scores: {
+                    let step = s.log_odds[0].len().div_ceil(20_000).max(1);
+                    s.log_odds[0].iter().copied().zip(labels.iter().copied()).step_by(step).collect()
+                },
+            };
+            (entry, placed)
+        })
+        .collect();
+    let (results, first_placements): (Vec<ResultEntry>, Vec<Placements>) = computed.into_iter().unzip();
+    let pairs: Vec<(usize, usize)> =
+        (0..scores.len()).flat_map(|a| (a + 1..scores.len()).map(move |b| (a, b))).collect();
+    let paired: Vec<PairedEntry> = pairs
+        .par_iter()
+        .filter_map(|&(a, b)| {
             if scores[a].rows[0] != scores[b].rows[0] {
-                continue;
+                return None;
             }
-            let Some(test) = paired_delong(&first_placements[a], &first_placements[b]) else { continue };
+            let test = paired_delong(&first_placements[a], &first_placements[b])?;
             let mut entry = PairedEntry {
                 a: scores[a].name.clone(),
                 b: scores[b].name.clone(),
@@ -385,15 +415,16 @@ pub fn evaluate(scores: &[TestedScore], options: &EvaluationOptions<'_>) -> Eval
                 log_loss_diff_ci: None,
                 brier_diff: None,
                 brier_diff_ci: None,
+                interval_method: None,
                 mcnemar_statistic: None,
                 mcnemar_p_value: None,
             };
             if scores[a].kind == ScoreKind::Probability && scores[b].kind == ScoreKind::Probability {
                 paired_probability(&mut entry, &scores[a], &scores[b], options);
             }
-            paired.push(entry);
-        }
-    }
+            Some(entry)
+        })
+        .collect();
     let mut segments = Vec::new();
     if let Some((column, values)) = options.segments {
         for s in scores {
@@ -474,17 +505,26 @@ fn paired_probability(entry: &mut PairedEntry, a: &TestedScore, b: &TestedScore,
     let total: f64 = w.iter().sum();
     let mean = |d: &[f64]| d.iter().zip(&w).map(|(v, w)| v * w).sum::<f64>() / total;
     let (mean_l, mean_b) = (mean(&dl), mean(&db));
-    let variance = dl.iter().zip(&w).map(|(v, w)| w * (v - mean_l).powi(2)).sum::<f64>() / (total - 1.0).max(1.0);
+    let se = |d: &[f64], m: f64| {
+        (d.iter().zip(&w).map(|(v, w)| w * (v - m).powi(2)).sum::<f64>() / (total - 1.0).max(1.0) / total).sqrt()
+    };
+    let (se_l, se_b) = (se(&dl, mean_l), se(&db, mean_b));
     entry.log_loss_diff = Some(mean_l);
-    entry.log_loss_diff_se = Some((variance / total).sqrt());
+    entry.log_loss_diff_se = Some(se_l);
     entry.brier_diff = Some(mean_b);
-    if options.bootstrap > 0 {
+    let draws = options.bootstrap.unwrap_or(if rows.len() <= BOOTSTRAP_ROW_LIMIT { 200 } else { 0 });
+    if draws == 0 {
+        entry.log_loss_diff_ci = Some([mean_l - NORMAL_975 * se_l, mean_l + NORMAL_975 * se_l]);
+        entry.brier_diff_ci = Some([mean_b - NORMAL_975 * se_b, mean_b + NORMAL_975 * se_b]);
+        entry.interval_method = Some("normal, from the first-order standard error".into());
+    } else {
+        entry.interval_method = Some(format!("paired bootstrap, {draws} draws, seed {}", options.seed));
         // Seeded paired bootstrap over rows (frequency weights kept).
         let mut rng = Rng::new(Rng::stream_seed(options.seed, 77));
         let n = rows.len();
-        let mut draws_l = Vec::with_capacity(options.bootstrap);
-        let mut draws_b = Vec::with_capacity(options.bootstrap);
-        for _ in 0..options.bootstrap {
+        let mut draws_l = Vec::with_capacity(draws);
+        let mut draws_b = Vec::with_capacity(draws);
+        for _ in 0..draws {
             let (mut sl, mut sb, mut sw) = (0.0, 0.0, 0.0);
             for _ in 0..n {
                 let i = (rng.next_u64() % n as u64) as usize;

@@ -23,7 +23,7 @@
 
 use serde::Serialize;
 
-use crate::evaluate::roc::{placements, sweep, CurvePoint, Placements};
+use crate::evaluate::roc::{placements, placements_sorted, sort_by_score, sweep_sorted, CurvePoint, Placements, Sweep};
 use crate::evaluate::stats::{chi_square_upper, NORMAL_975};
 
 /// The shares of rows flagged at which precision, recall and lift are shown.
@@ -177,7 +177,13 @@ pub struct BinaryMetrics {
     pub confusion: Vec<Confusion>,
     /// The gains table.
     pub gains: Vec<GainsBand>,
+    /// ROC and precision–recall curves (for reports; not in JSON).
+    #[serde(skip)]
+    pub curves: Curves,
 }
+
+/// Points kept on each curve.
+pub const CURVE_POINTS: usize = 400;
 
 /// What a score is.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -221,26 +227,48 @@ fn log_sigmoid(z: f64) -> f64 {
     }
 }
 
+/// Log-likelihood, gradient and Hessian of the recalibration model
+/// logit P(y) = a + b·z at (a, b), in one parallel pass (chunks summed in
+/// order, so the result does not depend on the thread count).
+fn recalibration_pass(z: &[f64], y: &[bool], weights: Option<&[f64]>, a: f64, b: f64) -> [f64; 6] {
+    use rayon::prelude::*;
+    const CHUNK: usize = 16_384;
+    let parts: Vec<[f64; 6]> = (0..z.len().div_ceil(CHUNK))
+        .into_par_iter()
+        .map(|c| {
+            let mut acc = [0.0; 6];
+            for i in c * CHUNK..((c + 1) * CHUNK).min(z.len()) {
+                let w = weights.map_or(1.0, |w| w[i]);
+                let eta = a + b * z[i];
+                let p = sigmoid(eta);
+                let r = w * (f64::from(u8::from(y[i])) - p);
+                let v = w * p * (1.0 - p);
+                acc[0] += w * log_sigmoid(if y[i] { eta } else { -eta });
+                acc[1] += r;
+                acc[2] += r * z[i];
+                acc[3] += v;
+                acc[4] += v * z[i];
+                acc[5] += v * z[i] * z[i];
+            }
+            acc
+        })
+        .collect();
+    let mut total = [0.0; 6];
+    for p in parts {
+        for k in 0..6 {
+            total[k] += p[k];
+        }
+    }
+    total
+}
+
 /// Logistic regression of y on (1, z) (`with_slope`) or on 1 with offset z:
 /// returns (intercept, slope) by Newton's method with step-halving.
-fn recalibrate(z: &[f64], y: &[bool], w: &dyn Fn(usize) -> f64, with_slope: bool) -> Option<(f64, f64)> {
-    let log_likelihood = |a: f64, b: f64| -> f64 {
-        (0..z.len()).map(|i| w(i) * log_sigmoid(if y[i] { a + b * z[i] } else { -(a + b * z[i]) })).sum()
-    };
+fn recalibrate(z: &[f64], y: &[bool], weights: Option<&[f64]>, with_slope: bool) -> Option<(f64, f64)> {
     let (mut a, mut b) = (0.0, 1.0);
-    let mut current = log_likelihood(a, b);
-    for _ in 0..200 {
-        let (mut g0, mut g1, mut h00, mut h01, mut h11) = (0.0, 0.0, 0.0, 0.0, 0.0);
-        for i in 0..z.len() {
-            let p = sigmoid(a + b * z[i]);
-            let r = w(i) * (f64::from(u8::from(y[i])) - p);
-            let v = w(i) * p * (1.0 - p);
-            g0 += r;
-            g1 += r * z[i];
-            h00 += v;
-            h01 += v * z[i];
-            h11 += v * z[i] * z[i];
-        }
+    let mut current = recalibration_pass(z, y, weights, a, b);
+    for _ in 0..100 {
+        let [_, g0, g1, h00, h01, h11] = current;
         let (mut da, mut db) = if with_slope {
             let det = h00 * h11 - h01 * h01;
             if !(det.abs() > 0.0) {
@@ -253,12 +281,12 @@ fn recalibrate(z: &[f64], y: &[bool], w: &dyn Fn(usize) -> f64, with_slope: bool
             }
             (g0 / h00, 0.0)
         };
+        let mut next = recalibration_pass(z, y, weights, a + da, b + db);
         let mut halvings = 0;
-        let mut next = log_likelihood(a + da, b + db);
-        while !(next >= current - 1e-12 * current.abs()) && halvings < 40 {
+        while !(next[0] >= current[0] - 1e-12 * current[0].abs()) && halvings < 40 {
             da *= 0.5;
             db *= 0.5;
-            next = log_likelihood(a + da, b + db);
+            next = recalibration_pass(z, y, weights, a + da, b + db);
             halvings += 1;
         }
         a += da;
@@ -276,18 +304,27 @@ fn recalibrate(z: &[f64], y: &[bool], w: &dyn Fn(usize) -> f64, with_slope: bool
 
 /// Every binary metric of one score.
 pub fn binary_metrics(scores: &BinaryScores<'_>) -> BinaryMetrics {
+    binary_metrics_with_placements(scores).0
+}
+
+/// [`binary_metrics`], and the placement values it computed (for paired
+/// DeLong tests).
+pub fn binary_metrics_with_placements(scores: &BinaryScores<'_>) -> (BinaryMetrics, Placements) {
     let n = scores.log_odds.len();
     let w = |i: usize| scores.weights.map_or(1.0, |w| w[i]);
     let total: f64 = (0..n).map(w).sum();
     let positives: f64 = (0..n).filter(|&i| scores.positive[i]).map(w).sum();
     let base_rate = positives / total;
-    let placed: Placements = placements(scores.log_odds, scores.positive, scores.weights);
+    // One sort serves every rank figure.
+    let order = sort_by_score(scores.log_odds);
+    let placed: Placements = placements_sorted(scores.log_odds, scores.positive, scores.weights, &order);
     let se = placed.variance().map(f64::sqrt);
-    let swept = sweep(scores.log_odds, scores.positive, scores.weights);
+    let swept = sweep_sorted(scores.log_odds, scores.positive, scores.weights, &order);
     let (ks, ks_cut) = swept.ks();
     let probability = scores.kind == ScoreKind::Probability;
     let to_probability = |z: f64| if probability { sigmoid(z) } else { z };
 
+    let curves = curves_of(&swept, CURVE_POINTS);
     let mut metrics = BinaryMetrics {
         rows: total,
         base_rate,
@@ -309,6 +346,7 @@ pub fn binary_metrics(scores: &BinaryScores<'_>) -> BinaryMetrics {
         hosmer_lemeshow: None,
         confusion: Vec::new(),
         gains: Vec::new(),
+        curves,
     };
 
     let confusion_at = |rule: String, cut: f64| -> Confusion {
@@ -363,7 +401,6 @@ pub fn binary_metrics(scores: &BinaryScores<'_>) -> BinaryMetrics {
     }
 
     // Gains by bands of equal weight, highest scores first.
-    let order = crate::evaluate::roc::sort_by_score(scores.log_odds);
     let band_weight = total / GAINS_BANDS as f64;
     let mut cumulative_events = 0.0;
     let mut position = order.len();
@@ -395,7 +432,7 @@ pub fn binary_metrics(scores: &BinaryScores<'_>) -> BinaryMetrics {
     }
 
     if !probability {
-        return metrics;
+        return (metrics, placed);
     }
     let p: Vec<f64> = scores.log_odds.iter().map(|&z| sigmoid(z)).collect();
     let y = |i: usize| f64::from(u8::from(scores.positive[i]));
@@ -452,8 +489,9 @@ pub fn binary_metrics(scores: &BinaryScores<'_>) -> BinaryMetrics {
         within_bin_covariance: within_covariance,
     });
     metrics.ece = Some(ece);
-    metrics.calibration_slope = recalibrate(scores.log_odds, scores.positive, &w, true).map(|(_, b)| b);
-    metrics.calibration_intercept = recalibrate(scores.log_odds, scores.positive, &w, false).map(|(a, _)| a);
+    metrics.calibration_slope = recalibrate(scores.log_odds, scores.positive, scores.weights, true).map(|(_, b)| b);
+    metrics.calibration_intercept =
+        recalibrate(scores.log_odds, scores.positive, scores.weights, false).map(|(a, _)| a);
 
     // Hosmer–Lemeshow on 10 groups of about equal weight by predicted risk.
     let groups = 10;
@@ -479,11 +517,11 @@ pub fn binary_metrics(scores: &BinaryScores<'_>) -> BinaryMetrics {
         let df = (used - 2) as f64;
         metrics.hosmer_lemeshow = Some(HosmerLemeshow { statistic, df, p_value: chi_square_upper(statistic, df) });
     }
-    metrics
+    (metrics, placed)
 }
 
 /// Curves for the report.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Default)]
 pub struct Curves {
     /// ROC points.
     pub roc: Vec<CurvePoint>,
@@ -491,9 +529,8 @@ pub struct Curves {
     pub precision_recall: Vec<CurvePoint>,
 }
 
-/// ROC and precision–recall curves, thinned to about `points` points.
-pub fn curves(log_odds: &[f64], positive: &[bool], weights: Option<&[f64]>, points: usize) -> Curves {
-    let s = sweep(log_odds, positive, weights);
+/// ROC and precision–recall curves of a sweep, thinned to about `points` points.
+pub fn curves_of(s: &Sweep, points: usize) -> Curves {
     Curves { roc: s.roc(points), precision_recall: s.precision_recall(points) }
 }
 

@@ -34,18 +34,23 @@ pub struct Placements {
     pub negative_weights: Vec<f64>,
 }
 
-/// Row indices sorted by score, ascending (ties in row order).
+/// Row indices sorted by score, ascending (ties in row order). Sorting
+/// (score, row) pairs keeps the keys in cache and needs no stable sort.
 pub fn sort_by_score(scores: &[f64]) -> Vec<usize> {
-    let mut order: Vec<usize> = (0..scores.len()).collect();
-    order.sort_by(|&a, &b| scores[a].total_cmp(&scores[b]).then(a.cmp(&b)));
-    order
+    let mut keyed: Vec<(f64, u32)> = scores.iter().enumerate().map(|(i, &s)| (s, i as u32)).collect();
+    keyed.sort_unstable_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+    keyed.into_iter().map(|(_, i)| i as usize).collect()
 }
 
 /// Placement values of `scores` for the labels `positive`.
 pub fn placements(scores: &[f64], positive: &[bool], weights: Option<&[f64]>) -> Placements {
+    placements_sorted(scores, positive, weights, &sort_by_score(scores))
+}
+
+/// [`placements`] given the order of [`sort_by_score`].
+pub fn placements_sorted(scores: &[f64], positive: &[bool], weights: Option<&[f64]>, order: &[usize]) -> Placements {
     let n = scores.len();
     let w = |i: usize| weights.map_or(1.0, |w| w[i]);
-    let order = sort_by_score(scores);
     let total_positive: f64 = (0..n).filter(|&i| positive[i]).map(w).sum();
     let total_negative: f64 = (0..n).filter(|&i| !positive[i]).map(w).sum();
     let mut v10 = vec![0.0; n];
@@ -174,7 +179,11 @@ pub struct Sweep {
 
 /// The threshold sweep of a score.
 pub fn sweep(scores: &[f64], positive: &[bool], weights: Option<&[f64]>) -> Sweep {
-    let order = sort_by_score(scores);
+    sweep_sorted(scores, positive, weights, &sort_by_score(scores))
+}
+
+/// [`sweep`] given the order of [`sort_by_score`].
+pub fn sweep_sorted(scores: &[f64], positive: &[bool], weights: Option<&[f64]>, order: &[usize]) -> Sweep {
     let w = |i: usize| weights.map_or(1.0, |w| w[i]);
     let mut result = Sweep {
         thresholds: Vec::new(),

@@ -175,6 +175,32 @@ impl DiscriminantModel {
         let constant = d as f64 * std::f64::consts::TAU.ln();
         let mut x = vec![0.0; d];
         let mut z = vec![0.0; d];
+        if factors.len() == 1 {
+            // LDA: with u = L⁻¹x and vₖ = L⁻¹μₖ, ‖L⁻¹(x − μₖ)‖² = ‖u‖² − 2u·vₖ + ‖vₖ‖²:
+            // one triangular solve per row instead of one per class.
+            let factor = &factors[0];
+            let v: Vec<Vec<f64>> = self
+                .means
+                .iter()
+                .map(|m| {
+                    let mut v = m.clone();
+                    factor.solve_lower_in_place(&mut v);
+                    v
+                })
+                .collect();
+            let v_norms: Vec<f64> = v.iter().map(|v| v.iter().map(|x| x * x).sum()).collect();
+            for (i, &r) in rows.iter().enumerate() {
+                self.encoding.fill_row(inputs, r, &mut x);
+                factor.solve_lower_in_place(&mut x);
+                let u_norm: f64 = x.iter().map(|u| u * u).sum();
+                for class in 0..k {
+                    let cross: f64 = x.iter().zip(&v[class]).map(|(a, b)| a * b).sum();
+                    let quadratic = (u_norm - 2.0 * cross + v_norms[class]).max(0.0);
+                    out[i * k + class] = -0.5 * (constant + factor.log_det + quadratic);
+                }
+            }
+            return;
+        }
         for (i, &r) in rows.iter().enumerate() {
             self.encoding.fill_row(inputs, r, &mut x);
             for class in 0..k {

@@ -28,7 +28,7 @@ use serde::{Deserialize, Serialize};
 use crate::data::{Dataset, Inputs};
 use crate::error::{Error, Result};
 use crate::model::design::{tiles, Encoding, TILE_ROWS};
-use crate::model::linalg::cholesky;
+use crate::model::linalg::{cholesky, dot};
 use crate::model::{normalise_log, Diagnostics};
 
 /// How classes are weighted in the fit.
@@ -207,12 +207,21 @@ struct Pass {
     extreme_rows: usize,
 }
 
+/// How much a pass computes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+enum Derivatives {
+    /// The gradient of the log-likelihood.
+    Gradient,
+    /// The gradient and the Hessian.
+    Hessian,
+}
+
 impl Pass {
-    fn zero(size: usize, derivatives: bool) -> Self {
+    fn zero(size: usize, level: Derivatives) -> Self {
         Pass {
             log_likelihood: 0.0,
-            gradient: vec![0.0; if derivatives { size } else { 0 }],
-            hessian: vec![0.0; if derivatives { size * size } else { 0 }],
+            gradient: vec![0.0; size],
+            hessian: vec![0.0; if level == Derivatives::Hessian { size * size } else { 0 }],
             extreme_rows: 0,
         }
     }
@@ -251,7 +260,7 @@ impl Problem<'_> {
 
     /// Log-likelihood (and gradient and Hessian of it when asked) at θ,
     /// on the standardised scale.
-    fn pass(&self, theta: &[f64], derivatives: bool) -> Pass {
+    fn pass(&self, theta: &[f64], level: Derivatives) -> Pass {
         let n = self.inputs.rows();
         let q = self.q();
         let width = self.width();
@@ -264,7 +273,7 @@ impl Problem<'_> {
         let partial: Vec<Pass> = chunks
             .par_iter()
             .map(|chunk| {
-                let mut acc = Pass::zero(size, derivatives);
+                let mut acc = Pass::zero(size, level);
                 // Column-major tile: column 0 is the constant 1.
                 let mut z = vec![0.0; TILE_ROWS * width];
                 let mut eta = vec![0.0; TILE_ROWS * q];
@@ -311,10 +320,6 @@ impl Problem<'_> {
                             acc.extreme_rows += 1;
                         }
                     }
-                    if !derivatives {
-                        continue;
-                    }
-                    let dot = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(x, y)| x * y).sum::<f64>();
                     for c in 0..q {
                         // Gradient: Σ w (1[y = c] − p_c) z.
                         for i in 0..len {
@@ -323,6 +328,9 @@ impl Problem<'_> {
                         }
                         for a in 0..width {
                             acc.gradient[c * width + a] += dot(&u[..len], &z[a * len..(a + 1) * len]);
+                        }
+                        if level < Derivatives::Hessian {
+                            continue;
                         }
                         // Hessian blocks (c, e), e ≥ c: Σ w p_c(δ − p_e) z zᵀ.
                         for e in c..q {
@@ -355,7 +363,7 @@ impl Problem<'_> {
                 acc
             })
             .collect();
-        let mut total = Pass::zero(size, derivatives);
+        let mut total = Pass::zero(size, level);
         for part in &partial {
             total.add(part);
         }
@@ -453,25 +461,53 @@ pub fn fit(
     let mut iterations = 0;
     let mut converged = false;
     let mut last_step = f64::INFINITY;
-    let mut current = problem.pass(&theta, true);
+    let mut current = problem.pass(&theta, Derivatives::Hessian);
+    // From a warm start (a fit on similar rows, as in cross-validation) the
+    // information matrix at the start is kept for every step: a
+    // fixed-Hessian Newton iteration, which converges to the same optimum
+    // with passes that need only the gradient. Without progress it falls
+    // back to full Newton steps.
+    let mut fixed: Option<crate::model::linalg::Factor> = None;
+    let mut fixed_mode = start.is_some();
     loop {
         if last_step <= params.tolerance {
             converged = true;
             break;
         }
         if iterations >= params.max_iterations {
+            if fixed_mode {
+                // Fall back: full Newton from here, with a fresh budget.
+                fixed_mode = false;
+                fixed = None;
+                iterations = 0;
+                current = problem.pass(&theta, Derivatives::Hessian);
+                continue;
+            }
             break;
         }
         iterations += 1;
         // Newton system on F: (H/N + λI′)Δ = g/N − λβ′.
-        let mut system = DMatrix::from_row_slice(size, size, &current.hessian) / total_weight;
         let mut rhs = DVector::from_iterator(size, current.gradient.iter().map(|g| g / total_weight));
         for i in (0..size).filter(|i| i % width != 0) {
-            system[(i, i)] += lambda;
             rhs[i] -= lambda * theta[i];
         }
-        let factor = match cholesky(&system) {
-            Ok(f) => f,
+        let factor = match (&fixed, current.hessian.is_empty()) {
+            (Some(f), true) => Ok(f.clone()),
+            _ => {
+                let mut system = DMatrix::from_row_slice(size, size, &current.hessian) / total_weight;
+                for i in (0..size).filter(|i| i % width != 0) {
+                    system[(i, i)] += lambda;
+                }
+                cholesky(&system)
+            }
+        };
+        let factor = match factor {
+            Ok(f) => {
+                if fixed_mode && fixed.is_none() {
+                    fixed = Some(f.clone());
+                }
+                f
+            }
             Err(s) if iterations == 1 => {
                 return Err(Error::SingularCovariance {
                     family: "logistic".into(),
@@ -494,7 +530,8 @@ pub fn fit(
         let (next_theta, next) = loop {
             let candidate: Vec<f64> = theta.iter().zip(&step).map(|(t, s)| t + s).collect();
             // With derivatives: an accepted trial is the next iterate's pass.
-            let trial = problem.pass(&candidate, true);
+            let level = if fixed_mode { Derivatives::Gradient } else { Derivatives::Hessian };
+            let trial = problem.pass(&candidate, level);
             let after = objective(trial.log_likelihood, &candidate);
             if after <= before + 1e-12 * before.abs() || halvings >= 30 {
                 break (candidate, trial);
@@ -538,7 +575,12 @@ pub fn fit(
             transform[(o + j + 1, o + j + 1)] = 1.0 / problem.scale[j];
         }
     }
-    let covariance = if lambda == 0.0 {
+    // Standard errors for unpenalised fits (a warm-started fit, as in
+    // cross-validation folds, has none: nobody reads them there).
+    if lambda == 0.0 && start.is_none() && current.hessian.is_empty() {
+        current = problem.pass(&theta, Derivatives::Hessian);
+    }
+    let covariance = if lambda == 0.0 && !current.hessian.is_empty() {
         let information = DMatrix::from_row_slice(size, size, &current.hessian);
         cholesky(&information).ok().map(|f| {
             let standardised = f.inverse();

@@ -15,6 +15,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::data::Inputs;
 use crate::model::design::{tiles, Encoding, TILE_ROWS};
+use crate::model::linalg::dot;
 
 /// Weighted moments of one class.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -118,7 +119,6 @@ fn tile_moments(tile: &[f64], n: usize, d: usize, rows: &[usize], weights: &[f64
         }
     }
     let len = rows.len();
-    let dot = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(x, y)| x * y).sum::<f64>();
     if diagonal {
         for j in 0..d {
             m.scatter[j] = dot(&weighted[j * len..(j + 1) * len], &centred[j * len..(j + 1) * len]);
