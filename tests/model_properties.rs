@@ -196,3 +196,40 @@ fn model_files_round_trip_exactly() {
         assert_eq!(a, b, "{family}: bit for bit");
     }
 }
+
+/// Fold fits from merged per-fold moments equal direct fits on the fold's
+/// training rows (weights 0 elsewhere), to 1e-12: the merge is exact.
+#[test]
+fn fold_moments_equal_direct_fold_fits() {
+    use baserate::model::design::Encoding;
+    use baserate::model::discriminant::{fit_lda_from_moments, fit_qda, fit_qda_from_moments, LdaParams, QdaParams};
+    use baserate::model::moments::{grouped_class_moments, Moments};
+    let data = lending(&demo_lending());
+    let folds: Vec<u32> = (0..data.rows()).map(|i| (i * 7 % 5) as u32).collect();
+    let encoding = Encoding::from_schema(&data.schema);
+    let grouped = grouped_class_moments(&encoding, &data.inputs(), &data.target, None, 2, false, Some(&folds), 5);
+    for fold in 0..5u32 {
+        let mut merged: Vec<Moments> = (0..2).map(|_| Moments::empty(encoding.width(), false)).collect();
+        for (g, group) in grouped.iter().enumerate() {
+            if g as u32 != fold {
+                for (t, m) in merged.iter_mut().zip(group) {
+                    t.merge(m);
+                }
+            }
+        }
+        let weights: Vec<f64> = folds.iter().map(|&f| if f == fold { 0.0 } else { 1.0 }).collect();
+        let (direct, _) = fit_qda(&data, &QdaParams::default(), Some(&weights)).expect("fit");
+        let (from_moments, _) =
+            fit_qda_from_moments(&data, &QdaParams::default(), encoding.clone(), merged.clone()).expect("fit");
+        let a = baserate::model::FittedModel::Qda(direct).posteriors(&data.inputs(), &[0.1, 0.9]);
+        let b = baserate::model::FittedModel::Qda(from_moments).posteriors(&data.inputs(), &[0.1, 0.9]);
+        assert!(max_difference(&a, &b) < 1e-12, "fold {fold}: {}", max_difference(&a, &b));
+        let (lda, _) = fit_lda_from_moments(&data, &LdaParams::default(), None, encoding.clone(), merged).expect("lda");
+        let (direct, _) =
+            baserate::model::discriminant::fit_lda(&data, &LdaParams::default(), Some(&weights)).expect("lda");
+        assert_eq!(lda.classes, direct.classes);
+        let a = baserate::model::FittedModel::Lda(lda).posteriors(&data.inputs(), &[0.1, 0.9]);
+        let b = baserate::model::FittedModel::Lda(direct).posteriors(&data.inputs(), &[0.1, 0.9]);
+        assert!(max_difference(&a, &b) < 1e-12);
+    }
+}

@@ -141,6 +141,16 @@ pub fn column_text(dataset: &Dataset, column: &str) -> Option<Vec<String>> {
 
 /// Runs `compare`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
+    execute(args, true)
+}
+
+/// Runs `compare` for the demo: the table without the caution (the demo
+/// prints it once at the end).
+pub fn run_quietly(args: Args) -> Result<ExitCode, Failure> {
+    execute(args, false)
+}
+
+fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
     let mut options = args.data_args.to_options()?;
     // The split column is not a feature: read it as an identifier.
     if let Some(c) = &args.split_by {
@@ -341,9 +351,15 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     if args.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
         return Ok(ExitCode::SUCCESS);
     }
-    print!("{}", evaluation_text(&evaluation));
+    let text = evaluation_text(&evaluation);
+    match text.find(crate::CAUTION.split_whitespace().next().unwrap_or("Caution:")) {
+        Some(at) if !caution => print!("{}", &text[..at]),
+        _ => print!("{text}"),
+    }
     if let Some(path) = &args.report {
-        println!("report written to {}", path.display());
+        if caution {
+            println!("report written to {}", path.display());
+        }
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -7,6 +7,8 @@
 use std::path::PathBuf;
 use std::process::ExitCode;
 
+use clap::Parser;
+
 use crate::cli::output::{create_dir, write_atomic};
 use crate::cli::Failure;
 use crate::data::{Dataset, MissingPolicy, ReadOptions};
@@ -111,8 +113,79 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             0
         )
     );
+    // The families side by side on both scenarios, with a report each.
+    let lending_report = args.out.join("lending/report.html");
+    let payments_report = args.out.join("payments/report.html");
+    let seed = args.seed.to_string();
+    let runs: [Vec<String>; 2] = [
+        [
+            "compare",
+            &lending_training.display().to_string(),
+            "--target",
+            "outcome",
+            "--id",
+            "application_id,application_month",
+            "--missing",
+            "impute",
+            "--learning-curve",
+            "--seed",
+            &seed,
+            "--report",
+            &lending_report.display().to_string(),
+        ]
+        .iter()
+        .map(|s| s.to_string())
+        .collect(),
+        [
+            "compare",
+            &args.out.join("payments/transactions.csv").display().to_string(),
+            "--target",
+            "label",
+            "--id",
+            "transaction_id,transaction_day",
+            "--amount",
+            "amount",
+            "--family",
+            "logistic",
+            "--family",
+            "naive-bayes",
+            "--family",
+            "lda",
+            "--family",
+            "qda",
+            "--family",
+            "qda:reg=0.2",
+            "--seed",
+            &seed,
+            "--report",
+            &payments_report.display().to_string(),
+        ]
+        .iter()
+        .map(|s| s.to_string())
+        .collect(),
+    ];
+    for (title, run) in [
+        "lending: the four families, 5-fold cross-validation",
+        "payments: the families (and a regularised QDA), 5-fold cross-validation",
+    ]
+    .iter()
+    .zip(runs)
+    {
+        println!("== {title}");
+        let cli = crate::cli::Cli::try_parse_from(std::iter::once("baserate".to_string()).chain(run))
+            .map_err(|e| crate::Error::Usage(e.to_string()))?;
+        if let crate::cli::Command::Compare(compare) = cli.command {
+            // A small --rows can leave too few events for every family: say so
+            // and go on with the rest of the demo.
+            if let Err(Failure::Library(e)) = crate::cli::compare::run_quietly(compare) {
+                println!("comparison skipped: {}\n", wrap(&e.to_string(), 100, 2));
+            }
+        }
+    }
     println!(
-        "Next: baserate describe {} --target outcome --id application_id,application_month --missing impute\n",
+        "reports: {} and {}\n\nNext: baserate describe {} --target outcome --id application_id,application_month --missing impute\n",
+        lending_report.display(),
+        payments_report.display(),
         lending_training.display()
     );
     println!("{}", wrap(CAUTION, 100, 0));

@@ -16,7 +16,7 @@ use ndarray::Array2;
 use rayon::prelude::*;
 use serde::Serialize;
 
-use crate::data::split::Assignment;
+use crate::data::split::{Assignment, LEFT_OUT};
 use crate::data::Dataset;
 use crate::error::Result;
 use crate::evaluate::metrics::{
@@ -25,6 +25,8 @@ use crate::evaluate::metrics::{
 };
 use crate::evaluate::roc::{paired_delong, placements, Placements};
 use crate::evaluate::stats::{chi_square_upper, NORMAL_975};
+use crate::model::discriminant::{fit_lda_from_moments, fit_qda_from_moments};
+use crate::model::moments::{grouped_class_moments, Moments};
 use crate::model::{fit_weighted, Family, FamilyParams, FittedModel};
 use crate::rng::Rng;
 
@@ -76,6 +78,51 @@ pub fn cross_predict(
             _ => None,
         })
         .collect();
+    // LDA and QDA need only per-class moments: one pass per repeat gives
+    // every fold's, and a fold's training moments are the merge of the
+    // other folds' (Chan, Golub & LeVeque's update: exact, with no
+    // cancellation, unlike subtracting the fold from the total).
+    let uses_moments = |c: &Candidate| match &c.params {
+        FamilyParams::Lda(p) => p.shrinkage != crate::model::discriminant::Shrinkage::LedoitWolf,
+        FamilyParams::Qda(_) => true,
+        _ => false,
+    };
+    let encoding = crate::model::design::Encoding::from_schema(&dataset.schema);
+    let groups = assignment
+        .folds
+        .first()
+        .map_or(0, |f| f.iter().filter(|&&g| g != LEFT_OUT).map(|&g| g as usize + 1).max().unwrap_or(0));
+    let fold_moments: Vec<Vec<Vec<Moments>>> = if candidates.iter().any(uses_moments) {
+        assignment
+            .folds
+            .iter()
+            .map(|fold_of| {
+                grouped_class_moments(
+                    &encoding,
+                    &dataset.inputs(),
+                    &dataset.target,
+                    dataset.weights.as_deref(),
+                    k,
+                    false,
+                    Some(fold_of),
+                    groups,
+                )
+            })
+            .collect()
+    } else {
+        Vec::new()
+    };
+    let training_moments = |repeat: usize, fold: usize| -> Vec<Moments> {
+        let mut total: Vec<Moments> = (0..k).map(|_| Moments::empty(encoding.width(), false)).collect();
+        for (g, group) in fold_moments[repeat].iter().enumerate() {
+            if g != fold {
+                for (t, m) in total.iter_mut().zip(group) {
+                    t.merge(m);
+                }
+            }
+        }
+        total
+    };
     let tasks: Vec<(usize, usize, usize)> = (0..candidates.len())
         .flat_map(|c| {
             (0..assignment.folds.len()).flat_map(move |r| (0..assignment.tested_folds).map(move |f| (c, r, f)))
@@ -87,17 +134,29 @@ pub fn cross_predict(
     let fitted: Vec<Result<FoldPrediction>> = tasks
         .iter()
         .map(|&(c, repeat, fold)| {
-            let weights: Vec<f64> = (0..n)
-                .map(|i| {
-                    if assignment.trains(repeat, fold, i) {
-                        dataset.weights.as_ref().map_or(1.0, |w| w[i])
-                    } else {
-                        0.0
-                    }
-                })
-                .collect();
-            let (model, diagnostics) =
-                fit_weighted(dataset, &candidates[c].params, Some(&weights), starts[c].as_ref())?;
+            let (model, diagnostics) = match &candidates[c].params {
+                FamilyParams::Lda(p) if uses_moments(&candidates[c]) => {
+                    let (m, d) =
+                        fit_lda_from_moments(dataset, p, None, encoding.clone(), training_moments(repeat, fold))?;
+                    (FittedModel::Lda(m), d)
+                }
+                FamilyParams::Qda(p) => {
+                    let (m, d) = fit_qda_from_moments(dataset, p, encoding.clone(), training_moments(repeat, fold))?;
+                    (FittedModel::Qda(m), d)
+                }
+                params => {
+                    let weights: Vec<f64> = (0..n)
+                        .map(|i| {
+                            if assignment.trains(repeat, fold, i) {
+                                dataset.weights.as_ref().map_or(1.0, |w| w[i])
+                            } else {
+                                0.0
+                            }
+                        })
+                        .collect();
+                    fit_weighted(dataset, params, Some(&weights), starts[c].as_ref())?
+                }
+            };
             let rows = assignment.test_rows(repeat, fold);
             let predictions = model.log_posteriors_of(&dataset.inputs(), &rows, &prior);
             let warnings =

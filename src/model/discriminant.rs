@@ -337,10 +337,23 @@ pub fn fit_lda(
     weights: Option<&[f64]>,
 ) -> Result<(DiscriminantModel, Diagnostics)> {
     let encoding = Encoding::from_schema(&dataset.schema);
+    let k = dataset.schema.target.classes.len();
+    let moments = class_moments(&encoding, &dataset.inputs(), &dataset.target, weights, k, false);
+    fit_lda_from_moments(dataset, params, weights, encoding, moments)
+}
+
+/// Fits LDA from per-class moments of the design (as [`class_moments`]
+/// gives them for the rows with positive `weights`); the data is read again
+/// only for the Ledoit–Wolf intensity.
+pub fn fit_lda_from_moments(
+    dataset: &Dataset,
+    params: &LdaParams,
+    weights: Option<&[f64]>,
+    encoding: Encoding,
+    moments: Vec<Moments>,
+) -> Result<(DiscriminantModel, Diagnostics)> {
     let d = encoding.width();
     let k = dataset.schema.target.classes.len();
-    let inputs = dataset.inputs();
-    let moments = class_moments(&encoding, &inputs, &dataset.target, weights, k, false);
     check_classes("lda", dataset, &moments, 1, "collect more rows of that class")?;
     let n: f64 = moments.iter().map(|m| m.weight).sum();
     let divisor = match params.divisor {
@@ -406,10 +419,20 @@ pub fn fit_qda(
     weights: Option<&[f64]>,
 ) -> Result<(DiscriminantModel, Diagnostics)> {
     let encoding = Encoding::from_schema(&dataset.schema);
+    let k = dataset.schema.target.classes.len();
+    let moments = class_moments(&encoding, &dataset.inputs(), &dataset.target, weights, k, false);
+    fit_qda_from_moments(dataset, params, encoding, moments)
+}
+
+/// Fits QDA from per-class moments of the design; the data is not read.
+pub fn fit_qda_from_moments(
+    dataset: &Dataset,
+    params: &QdaParams,
+    encoding: Encoding,
+    moments: Vec<Moments>,
+) -> Result<(DiscriminantModel, Diagnostics)> {
     let d = encoding.width();
     let k = dataset.schema.target.classes.len();
-    let inputs = dataset.inputs();
-    let moments = class_moments(&encoding, &inputs, &dataset.target, weights, k, false);
     let needed = match params.divisor {
         Divisor::Unbiased => 2,
         Divisor::Rows => 1,

@@ -145,6 +145,24 @@ pub fn class_moments(
     classes: usize,
     diagonal: bool,
 ) -> Vec<Moments> {
+    grouped_class_moments(encoding, inputs, target, weights, classes, diagonal, None, 1).swap_remove(0)
+}
+
+/// [`class_moments`] for several groups of rows at once (the folds of a
+/// cross-validation), in one pass: `group_of[r]` is row r's group, and rows
+/// whose group is `groups` or more are left out. Returns [group][class].
+/// The moments of any union of groups are then the merge of theirs.
+#[allow(clippy::too_many_arguments)]
+pub fn grouped_class_moments(
+    encoding: &Encoding,
+    inputs: &Inputs<'_>,
+    target: &[u32],
+    weights: Option<&[f64]>,
+    classes: usize,
+    diagonal: bool,
+    group_of: Option<&[u32]>,
+    groups: usize,
+) -> Vec<Vec<Moments>> {
     let d = encoding.width();
     let n = inputs.rows();
     let ones;
@@ -155,6 +173,11 @@ pub fn class_moments(
             &ones
         }
     };
+    let slot = |r: usize| -> Option<usize> {
+        let g = group_of.map_or(0, |g| g[r] as usize);
+        (g < groups).then_some(g * classes + target[r] as usize)
+    };
+    let cells = groups * classes;
     const TILES_PER_CHUNK: usize = 16;
     let chunk_rows = TILES_PER_CHUNK * TILE_ROWS;
     let chunks: Vec<std::ops::Range<usize>> =
@@ -162,9 +185,9 @@ pub fn class_moments(
     let per_chunk: Vec<Vec<Moments>> = chunks
         .par_iter()
         .map(|chunk| {
-            let mut out: Vec<Moments> = (0..classes).map(|_| Moments::empty(d, diagonal)).collect();
+            let mut out: Vec<Moments> = (0..cells).map(|_| Moments::empty(d, diagonal)).collect();
             let mut tile = vec![0.0; TILE_ROWS * d];
-            let mut members: Vec<Vec<usize>> = vec![Vec::with_capacity(TILE_ROWS); classes];
+            let mut members: Vec<Vec<usize>> = vec![Vec::with_capacity(TILE_ROWS); cells];
             for range in tiles(chunk.len()) {
                 let rows = chunk.start + range.start..chunk.start + range.end;
                 let len = rows.len();
@@ -172,26 +195,33 @@ pub fn class_moments(
                 members.iter_mut().for_each(Vec::clear);
                 for (local, r) in rows.clone().enumerate() {
                     if weights[r] > 0.0 {
-                        members[target[r] as usize].push(local);
+                        if let Some(cell) = slot(r) {
+                            members[cell].push(local);
+                        }
                     }
                 }
                 let local_weights = &weights[rows];
-                for (k, m) in members.iter().enumerate() {
+                for (cell, m) in members.iter().enumerate() {
                     if !m.is_empty() {
-                        out[k].merge(&tile_moments(&tile[..len * d], len, d, m, local_weights, diagonal));
+                        out[cell].merge(&tile_moments(&tile[..len * d], len, d, m, local_weights, diagonal));
                     }
                 }
             }
             out
         })
         .collect();
-    let mut total: Vec<Moments> = (0..classes).map(|_| Moments::empty(d, diagonal)).collect();
+    let mut total: Vec<Moments> = (0..cells).map(|_| Moments::empty(d, diagonal)).collect();
     for chunk in per_chunk {
         for (t, m) in total.iter_mut().zip(&chunk) {
             t.merge(m);
         }
     }
-    total
+    let mut by_group = Vec::with_capacity(groups);
+    let mut cells = total.into_iter();
+    for _ in 0..groups {
+        by_group.push(cells.by_ref().take(classes).collect());
+    }
+    by_group
 }
 
 #[cfg(test)]
