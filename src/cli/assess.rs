@@ -152,7 +152,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             bootstrap: args.bootstrap,
             seed: args.seed,
             segments: segments.as_deref().map(|v| (args.by.as_deref().unwrap_or(""), v)),
-            split: "every row (scores made elsewhere)".into(),
+            split: "scores made elsewhere, every row".into(),
         },
     );
     if let Some(path) = &args.json {
