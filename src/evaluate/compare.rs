@@ -123,47 +123,47 @@ pub fn cross_predict(
         }
         total
     };
-    let tasks: Vec<(usize, usize, usize)> = (0..candidates.len())
-        .flat_map(|c| {
-            (0..assignment.folds.len()).flat_map(move |r| (0..assignment.tested_folds).map(move |f| (c, r, f)))
-        })
-        .collect();
-    // One task at a time: each fit and prediction is parallel inside, and
-    // running tasks side by side would hold every task's fold weights and
-    // predictions in memory at once.
-    let fitted: Vec<Result<FoldPrediction>> = tasks
+    // Folds one after another, the candidates of a fold in parallel (and
+    // every fit parallel inside): running every (candidate, fold) task at
+    // once would hold every task's fold weights and predictions in memory.
+    let splits: Vec<(usize, usize)> =
+        (0..assignment.folds.len()).flat_map(|r| (0..assignment.tested_folds).map(move |f| (r, f))).collect();
+    let fit_fold = |c: usize, repeat: usize, fold: usize| -> Result<FoldPrediction> {
+        let (model, diagnostics) = match &candidates[c].params {
+            FamilyParams::Lda(p) if uses_moments(&candidates[c]) => {
+                let (m, d) = fit_lda_from_moments(dataset, p, None, encoding.clone(), training_moments(repeat, fold))?;
+                (FittedModel::Lda(m), d)
+            }
+            FamilyParams::Qda(p) => {
+                let (m, d) = fit_qda_from_moments(dataset, p, encoding.clone(), training_moments(repeat, fold))?;
+                (FittedModel::Qda(m), d)
+            }
+            params => {
+                let weights: Vec<f64> = (0..n)
+                    .map(|i| {
+                        if assignment.trains(repeat, fold, i) {
+                            dataset.weights.as_ref().map_or(1.0, |w| w[i])
+                        } else {
+                            0.0
+                        }
+                    })
+                    .collect();
+                fit_weighted(dataset, params, Some(&weights), starts[c].as_ref())?
+            }
+        };
+        let rows = assignment.test_rows(repeat, fold);
+        let predictions = model.log_posteriors_of(&dataset.inputs(), &rows, &prior);
+        let warnings =
+            diagnostics.warnings.iter().map(|w| format!("repeat {} fold {}: {w}", repeat + 1, fold + 1)).collect();
+        Ok((c, repeat, rows, predictions, warnings))
+    };
+    let fitted: Vec<Result<FoldPrediction>> = splits
         .iter()
-        .map(|&(c, repeat, fold)| {
-            let (model, diagnostics) = match &candidates[c].params {
-                FamilyParams::Lda(p) if uses_moments(&candidates[c]) => {
-                    let (m, d) =
-                        fit_lda_from_moments(dataset, p, None, encoding.clone(), training_moments(repeat, fold))?;
-                    (FittedModel::Lda(m), d)
-                }
-                FamilyParams::Qda(p) => {
-                    let (m, d) = fit_qda_from_moments(dataset, p, encoding.clone(), training_moments(repeat, fold))?;
-                    (FittedModel::Qda(m), d)
-                }
-                params => {
-                    let weights: Vec<f64> = (0..n)
-                        .map(|i| {
-                            if assignment.trains(repeat, fold, i) {
-                                dataset.weights.as_ref().map_or(1.0, |w| w[i])
-                            } else {
-                                0.0
-                            }
-                        })
-                        .collect();
-                    fit_weighted(dataset, params, Some(&weights), starts[c].as_ref())?
-                }
-            };
-            let rows = assignment.test_rows(repeat, fold);
-            let predictions = model.log_posteriors_of(&dataset.inputs(), &rows, &prior);
-            let warnings =
-                diagnostics.warnings.iter().map(|w| format!("repeat {} fold {}: {w}", repeat + 1, fold + 1)).collect();
-            Ok((c, repeat, rows, predictions, warnings))
+        .flat_map(|&(repeat, fold)| {
+            (0..candidates.len()).into_par_iter().map(|c| fit_fold(c, repeat, fold)).collect::<Vec<_>>()
         })
         .collect();
+
     let mut out: Vec<Predictions> = candidates
         .iter()
         .map(|c| Predictions {

@@ -108,6 +108,34 @@ pub fn evaluation_text(e: &Evaluation) -> String {
         }
         out.push_str(&table.render());
     }
+    if !e.segments.is_empty() {
+        out.push_str(&format!("\nby segment of '{}' (flag rate at the 0.5 rule):\n", e.segments[0].column));
+        let mut table = Table::new(&[
+            ("segment", Align::Left),
+            ("name", Align::Left),
+            ("rows", Align::Right),
+            ("event rate", Align::Right),
+            ("AUC", Align::Right),
+            ("flag rate", Align::Right),
+            ("mean predicted", Align::Right),
+        ]);
+        for s in &e.segments {
+            table.row(vec![
+                s.segment.chars().take(24).collect(),
+                s.name.chars().take(20).collect(),
+                format!("{:.0}", s.rows),
+                format!("{:.4}", s.base_rate),
+                fixed(s.auc, 4),
+                format!("{:.2}%", 100.0 * s.flag_rate),
+                format!("{:.4}", s.mean_predicted),
+            ]);
+        }
+        out.push_str(&table.render());
+        out.push_str(&format!(
+            "{}\n",
+            wrap("Segment figures describe; they neither establish nor exclude disparate impact, which is a legal question for the institution.", 100, 0)
+        ));
+    }
     for r in &e.results {
         for w in &r.warnings {
             out.push_str(&format!("warning ({}): {}\n", r.name, wrap(w, 90, 4)));
