@@ -52,24 +52,9 @@ pub struct Args {
     /// Which way the scores point.
     #[arg(long, value_enum, default_value = "higher-positive")]
     pub direction: DirectionArg,
-    /// Seed of the bootstrap.
-    #[arg(long, default_value_t = 1)]
-    pub seed: u64,
-    /// Paired-bootstrap draws [default: 200 up to 200,000 rows, above that the normal interval; 0: the normal interval].
-    #[arg(long, value_name = "N")]
-    pub bootstrap: Option<usize>,
-    /// A column of amounts for amount-weighted capture.
-    #[arg(long, value_name = "COL")]
-    pub amount: Option<String>,
-    /// Report every figure per segment of this column.
-    #[arg(long, value_name = "COL")]
-    pub by: Option<String>,
-    /// Write every figure as JSON to FILE (`-` for stdout).
-    #[arg(long, value_name = "FILE")]
-    pub json: Option<PathBuf>,
-    /// Write a self-contained HTML report to FILE.
-    #[arg(long, value_name = "FILE")]
-    pub report: Option<PathBuf>,
+    /// Evaluation options.
+    #[command(flatten)]
+    pub evaluation: crate::cli::compare::EvaluationArgs,
 }
 
 /// Probabilities are clipped to [1e-15, 1 − 1e-15] before the log odds are
@@ -126,7 +111,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             warnings: Vec::new(),
         });
     }
-    let amounts = match &args.amount {
+    let amounts = match &args.evaluation.amount {
         Some(column) => Some(
             crate::cli::compare::column_text(&dataset, column)
                 .and_then(|v| v.iter().map(|x| x.parse::<f64>().ok()).collect::<Option<Vec<f64>>>())
@@ -134,7 +119,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         ),
         None => None,
     };
-    let segments = match &args.by {
+    let segments = match &args.evaluation.by {
         Some(column) => Some(
             crate::cli::compare::column_text(&dataset, column)
                 .ok_or_else(|| Error::Usage(format!("--by names column '{column}', which was not read")))?,
@@ -149,22 +134,22 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             classes: &target.classes,
             weights: dataset.weights.as_deref(),
             amounts: amounts.as_deref(),
-            bootstrap: args.bootstrap,
-            seed: args.seed,
-            segments: segments.as_deref().map(|v| (args.by.as_deref().unwrap_or(""), v)),
+            bootstrap: args.evaluation.bootstrap,
+            seed: args.evaluation.seed,
+            segments: segments.as_deref().map(|v| (args.evaluation.by.as_deref().unwrap_or(""), v)),
             split: "scores made elsewhere, every row".into(),
         },
     );
-    if let Some(path) = &args.json {
+    if let Some(path) = &args.evaluation.json {
         let text = serde_json::to_string_pretty(&evaluation).map_err(|e| Error::Usage(e.to_string()))?;
         write_atomic(path, format!("{text}\n").as_bytes())?;
     }
-    if let Some(path) = &args.report {
+    if let Some(path) = &args.evaluation.report {
         let description =
             format!("{}: {} rows; scores {}", args.data.display(), dataset.rows(), args.scores.join(", "));
         write_atomic(path, evaluation_html(&evaluation, &[], &description).as_bytes())?;
     }
-    if args.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
+    if args.evaluation.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
         return Ok(ExitCode::SUCCESS);
     }
     print!("{}", evaluation_text(&evaluation));

@@ -55,6 +55,20 @@ pub struct Args {
     /// Train on DATA, test on this file (same columns).
     #[arg(long, value_name = "FILE")]
     pub holdout: Option<PathBuf>,
+    /// Evaluation options.
+    #[command(flatten)]
+    pub evaluation: EvaluationArgs,
+    /// Also fit on growing training sizes and chart holdout log loss and AUC.
+    #[arg(long)]
+    pub learning_curve: bool,
+    /// Write out-of-fold predictions (first repeat) to FILE.
+    #[arg(long, value_name = "FILE")]
+    pub predictions: Option<PathBuf>,
+}
+
+/// The evaluation options `compare` and `assess` share.
+#[derive(Debug, clap::Args)]
+pub struct EvaluationArgs {
     /// Seed of the splits and the bootstrap.
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
@@ -67,12 +81,6 @@ pub struct Args {
     /// Report every figure per segment of this column.
     #[arg(long, value_name = "COL")]
     pub by: Option<String>,
-    /// Also fit on growing training sizes and chart holdout log loss and AUC.
-    #[arg(long)]
-    pub learning_curve: bool,
-    /// Write out-of-fold predictions (first repeat) to FILE.
-    #[arg(long, value_name = "FILE")]
-    pub predictions: Option<PathBuf>,
     /// Write every figure as JSON to FILE (`-` for stdout).
     #[arg(long, value_name = "FILE")]
     pub json: Option<PathBuf>,
@@ -246,11 +254,11 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
                 args.holdout.as_ref().map(|h| h.display().to_string()).unwrap_or_default()
             ),
         },
-        None => assign(&plan, &dataset.target, k, args.seed)?,
+        None => assign(&plan, &dataset.target, k, args.evaluation.seed)?,
     };
 
     let predictions = cross_predict(&dataset, &candidates, &assignment, None)?;
-    let amounts = match &args.amount {
+    let amounts = match &args.evaluation.amount {
         Some(column) => {
             let j = dataset.schema.numeric_inputs().iter().position(|n| n == column).ok_or_else(|| {
                 Error::Usage(format!("--amount must name a numeric feature column; '{column}' is not one"))
@@ -259,7 +267,7 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
         }
         None => None,
     };
-    let segments = match &args.by {
+    let segments = match &args.evaluation.by {
         Some(column) => Some(column_text(&dataset, column).ok_or_else(|| {
             Error::Usage(format!(
                 "--by names column '{column}', which was not read (name it with --id, or as a feature)"
@@ -267,8 +275,11 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
         })?),
         None => None,
     };
-    let learning =
-        if args.learning_curve { learning_curve(&dataset, &candidates, &assignment, args.seed, 8) } else { Vec::new() };
+    let learning = if args.learning_curve {
+        learning_curve(&dataset, &candidates, &assignment, args.evaluation.seed, 8)
+    } else {
+        Vec::new()
+    };
     if let Some(path) = &args.predictions {
         let mut w = csv::Writer::from_writer(Vec::new());
         let mut header: Vec<String> = dataset.ids.iter().map(|(n, _)| n.clone()).collect();
@@ -310,9 +321,9 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
             classes: &target.classes,
             weights: dataset.weights.as_deref(),
             amounts: amounts.as_deref(),
-            bootstrap: args.bootstrap,
-            seed: args.seed,
-            segments: segments.as_deref().map(|v| (args.by.as_deref().unwrap_or(""), v)),
+            bootstrap: args.evaluation.bootstrap,
+            seed: args.evaluation.seed,
+            segments: segments.as_deref().map(|v| (args.evaluation.by.as_deref().unwrap_or(""), v)),
             split: assignment.description.clone(),
         },
     );
@@ -320,7 +331,7 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
     if k > 2 {
         evaluation.set_multiclass(multiclass_figures);
     }
-    if let Some(path) = &args.json {
+    if let Some(path) = &args.evaluation.json {
         let mut value = serde_json::to_value(&evaluation).map_err(|e| Error::Usage(e.to_string()))?;
         if !learning.is_empty() {
             value["learning_curve"] = serde_json::to_value(&learning).unwrap_or_default();
@@ -328,7 +339,7 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
         let text = serde_json::to_string_pretty(&value).map_err(|e| Error::Usage(e.to_string()))?;
         write_atomic(path, format!("{text}\n").as_bytes())?;
     }
-    if let Some(path) = &args.report {
+    if let Some(path) = &args.evaluation.report {
         let description = format!(
             "{}: {} rows; target '{}' with classes {}; features {}.",
             args.data.display(),
@@ -348,7 +359,7 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
         );
         write_atomic(path, evaluation_html(&evaluation, &learning, &description).as_bytes())?;
     }
-    if args.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
+    if args.evaluation.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
         return Ok(ExitCode::SUCCESS);
     }
     let text = evaluation_text(&evaluation);
@@ -356,7 +367,7 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
         Some(at) if !caution => print!("{}", &text[..at]),
         _ => print!("{text}"),
     }
-    if let Some(path) = &args.report {
+    if let Some(path) = &args.evaluation.report {
         if caution {
             println!("report written to {}", path.display());
         }

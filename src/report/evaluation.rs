@@ -178,58 +178,42 @@ fn line_chart(
         root.fill(&WHITE).map_err(|e| e.to_string())?;
         let mut builder = ChartBuilder::on(&root);
         builder.caption(title, ("sans-serif", 18)).margin(12).x_label_area_size(40).y_label_area_size(55);
-        if log_x {
-            let mut chart =
-                builder.build_cartesian_2d((x.start..x.end).log_scale(), y.clone()).map_err(|e| e.to_string())?;
-            chart
-                .configure_mesh()
-                .light_line_style(TRANSPARENT)
-                .x_desc(x_label)
-                .y_desc(y_label)
-                .draw()
-                .map_err(|e| e.to_string())?;
-            for (i, (name, points)) in lines.iter().enumerate() {
-                let color = PALETTE[i % PALETTE.len()];
+        // The two axis kinds have different coordinate types: one body, twice.
+        macro_rules! draw {
+            ($chart:expr) => {{
+                let mut chart = $chart;
                 chart
-                    .draw_series(LineSeries::new(points.iter().copied(), color.stroke_width(2)))
-                    .map_err(|e| e.to_string())?
-                    .label(name.as_str())
-                    .legend(move |(a, b)| PathElement::new(vec![(a, b), (a + 18, b)], color.stroke_width(2)));
-            }
-            chart
-                .configure_series_labels()
-                .background_style(WHITE.mix(0.85))
-                .border_style(BLACK)
-                .draw()
-                .map_err(|e| e.to_string())?;
-        } else {
-            let mut chart = builder.build_cartesian_2d(x.clone(), y.clone()).map_err(|e| e.to_string())?;
-            chart
-                .configure_mesh()
-                .light_line_style(TRANSPARENT)
-                .x_desc(x_label)
-                .y_desc(y_label)
-                .draw()
-                .map_err(|e| e.to_string())?;
-            if diagonal {
-                chart
-                    .draw_series(LineSeries::new(vec![(x.start, y.start), (x.end, y.end)], BLACK.mix(0.3)))
+                    .configure_mesh()
+                    .light_line_style(TRANSPARENT)
+                    .x_desc(x_label)
+                    .y_desc(y_label)
+                    .draw()
                     .map_err(|e| e.to_string())?;
-            }
-            for (i, (name, points)) in lines.iter().enumerate() {
-                let color = PALETTE[i % PALETTE.len()];
+                if diagonal {
+                    chart
+                        .draw_series(LineSeries::new(vec![(x.start, y.start), (x.end, y.end)], BLACK.mix(0.3)))
+                        .map_err(|e| e.to_string())?;
+                }
+                for (i, (name, points)) in lines.iter().enumerate() {
+                    let color = PALETTE[i % PALETTE.len()];
+                    chart
+                        .draw_series(LineSeries::new(points.iter().copied(), color.stroke_width(2)))
+                        .map_err(|e| e.to_string())?
+                        .label(name.as_str())
+                        .legend(move |(a, b)| PathElement::new(vec![(a, b), (a + 18, b)], color.stroke_width(2)));
+                }
                 chart
-                    .draw_series(LineSeries::new(points.iter().copied(), color.stroke_width(2)))
-                    .map_err(|e| e.to_string())?
-                    .label(name.as_str())
-                    .legend(move |(a, b)| PathElement::new(vec![(a, b), (a + 18, b)], color.stroke_width(2)));
-            }
-            chart
-                .configure_series_labels()
-                .background_style(WHITE.mix(0.85))
-                .border_style(BLACK)
-                .draw()
-                .map_err(|e| e.to_string())?;
+                    .configure_series_labels()
+                    .background_style(WHITE.mix(0.85))
+                    .border_style(BLACK)
+                    .draw()
+                    .map_err(|e| e.to_string())?;
+            }};
+        }
+        if log_x {
+            draw!(builder.build_cartesian_2d((x.start..x.end).log_scale(), y.clone()).map_err(|e| e.to_string())?);
+        } else {
+            draw!(builder.build_cartesian_2d(x.clone(), y.clone()).map_err(|e| e.to_string())?);
         }
         root.present().map_err(|e| e.to_string())?;
     }
