@@ -18,6 +18,7 @@ pub mod error;
 pub mod evaluate;
 pub mod io;
 pub mod model;
+pub mod prior;
 pub mod report;
 pub mod rng;
 
