@@ -239,3 +239,57 @@ fn priors_are_validated() {
     assert_eq!(code, 2);
     assert!(err.contains("--reg applies to qda"), "{err}");
 }
+
+#[test]
+fn columns_the_model_does_not_use_are_ignored_when_scoring() {
+    let dir = temp_dir();
+    lending(dir.path());
+    let mut args = vec!["fit"];
+    args.extend(LENDING);
+    args.extend(["--family", "lda", "-o", "m.json"]);
+    assert_eq!(run(dir.path(), &args).0, 0);
+    let new = std::fs::read_to_string(dir.path().join("new.csv")).expect("new");
+    // An extra column full of values that would be errors in a feature.
+    let extra: String = new
+        .lines()
+        .enumerate()
+        .map(|(i, l)| if i == 0 { format!("junk,{l}") } else { format!("inf,{l}") })
+        .collect::<Vec<_>>()
+        .join("\n");
+    write(dir.path(), "extra.csv", (extra + "\n").as_bytes());
+    let (code, _, err) = run(dir.path(), &["score", "m.json", "extra.csv", "-o", "out.csv"]);
+    assert_eq!(code, 0, "{err}");
+}
+
+#[test]
+fn nothing_to_model_is_an_error_not_a_crash() {
+    let dir = temp_dir();
+    write(dir.path(), "none.csv", b"id,y\n1,a\n2,b\n3,a\n4,b\n5,a\n6,b\n");
+    // LDA and QDA have nothing to estimate; naive Bayes and logistic
+    // regression fit the class mix alone, which is allowed.
+    for family in ["qda", "lda"] {
+        let (code, _, err) =
+            run(dir.path(), &["fit", "none.csv", "--target", "y", "--id", "id", "--family", family, "-o", "m.json"]);
+        assert_eq!(code, 1, "{family}: {err}");
+    }
+    let (code, _, _) = run(dir.path(), &["compare", "none.csv", "--target", "y", "--id", "id", "--folds", "2"]);
+    assert_eq!(code, 1);
+}
+
+#[test]
+fn a_model_whose_parameters_do_not_match_its_schema_is_refused() {
+    let dir = temp_dir();
+    lending(dir.path());
+    let mut args = vec!["fit"];
+    args.extend(LENDING);
+    args.extend(["--family", "logistic", "-o", "m.json"]);
+    assert_eq!(run(dir.path(), &args).0, 0);
+    let good = std::fs::read_to_string(dir.path().join("m.json")).expect("model");
+    // Drop a level from the fitted encoding only (the schema keeps it).
+    let edited = good.replacen("\"home_improvement\",\n", "", 1);
+    assert_ne!(edited, good);
+    write(dir.path(), "edited.json", edited.as_bytes());
+    let (code, _, err) = run(dir.path(), &["score", "edited.json", "new.csv", "-o", "out.csv"]);
+    assert_eq!(code, 1);
+    assert!(err.contains("edited.json"), "{err}");
+}

@@ -206,6 +206,42 @@ pub struct Args {
     /// Where to write the model file.
     #[arg(long, short = 'o', value_name = "MODEL")]
     pub out: PathBuf,
+    /// Seed of the held-out folds (out-of-fold predictions stored for shift estimation).
+    #[arg(long, default_value_t = 1)]
+    pub seed: u64,
+}
+
+/// Out-of-fold predictions of the training rows (5 stratified folds),
+/// summarised as the held-out confusion and mean posteriors; `None` when a
+/// fold cannot be fitted (too few rows of a class).
+fn held_out_summary(
+    dataset: &Dataset,
+    params: &FamilyParams,
+    prior: &[f64],
+    seed: u64,
+) -> crate::Result<Option<crate::model::file::HeldOut>> {
+    use crate::data::split::{assign, SplitPlan};
+    use crate::evaluate::compare::{cross_predict, Candidate};
+    const FOLDS: usize = 5;
+    let k = dataset.schema.target.classes.len();
+    let assignment = assign(&SplitPlan::KFold { folds: FOLDS, repeats: 1 }, &dataset.target, k, seed)?;
+    let candidate = Candidate { name: "held-out".into(), params: params.clone() };
+    let Ok(predictions) = cross_predict(dataset, &[candidate], &assignment, Some(prior)) else {
+        return Ok(None);
+    };
+    let lp = &predictions[0].log_posteriors[0];
+    let total: f64 = dataset.weights.as_ref().map_or(dataset.rows() as f64, |w| w.iter().sum());
+    let mut confusion = vec![vec![0.0; k]; k];
+    let mut mean_posterior = vec![0.0; k];
+    for (i, row) in lp.rows().into_iter().enumerate() {
+        let w = dataset.weights.as_ref().map_or(1.0, |w| w[i]) / total;
+        let predicted = (0..k).max_by(|&a, &b| row[a].total_cmp(&row[b])).unwrap_or(0);
+        confusion[predicted][dataset.target[i] as usize] += w;
+        for c in 0..k {
+            mean_posterior[c] += w * row[c].exp();
+        }
+    }
+    Ok(Some(crate::model::file::HeldOut { folds: FOLDS, confusion, mean_posterior }))
 }
 
 /// Runs `fit`.
@@ -232,7 +268,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         tool_version: env!("CARGO_PKG_VERSION").to_string(),
         created: crate::io::utc_timestamp(),
         family,
-        params,
+        params: params.clone(),
         schema: dataset.schema.clone(),
         classes: target.classes.clone(),
         positive: target.positive.clone(),
@@ -247,7 +283,10 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         },
         diagnostics,
         model,
+        held_out: None,
     };
+    let mut file = file;
+    file.held_out = held_out_summary(&dataset, &params, &file.prior, args.seed)?;
     file.validate().map_err(|m| Error::FitFailed { family: family.name().into(), message: m })?;
     file.save(&args.out)?;
 

@@ -418,10 +418,17 @@ fn settle_roles(path: &str, names: &[String], options: &ReadOptions) -> Result<V
     for column in &options.numeric {
         assign_kind("--numeric", column, ForcedKind::Numeric)?;
     }
+    // Scoring against a model: columns the model does not use are ignored.
+    let unused = |i: usize| options.model_columns.as_ref().is_some_and(|m| !m.contains(&names[i]));
     Ok(roles
         .into_iter()
         .zip(kinds)
-        .map(|(role, kind)| (role.map_or(ColumnRole::Feature, |(r, _)| r), kind.map(|(k, _)| k)))
+        .enumerate()
+        .map(|(i, (role, kind))| match role {
+            Some((r, _)) => (r, kind.map(|(k, _)| k)),
+            None if unused(i) => (ColumnRole::Excluded, None),
+            None => (ColumnRole::Feature, kind.map(|(k, _)| k)),
+        })
         .collect())
 }
 

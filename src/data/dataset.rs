@@ -343,8 +343,11 @@ fn build_target(
             (p.clone(), PositiveRule::Stated)
         }
         None => {
-            let mut minority = 0;
-            for k in 1..classes.len() {
+            // Among the classes with rows (a class whose rows were all
+            // dropped, or weigh nothing, is not a candidate).
+            let candidates: Vec<usize> = present.iter().copied().filter(|&k| weighted_counts[k] > 0.0).collect();
+            let mut minority = candidates.first().copied().unwrap_or(present[0]);
+            for &k in &candidates {
                 if weighted_counts[k] <= weighted_counts[minority] {
                     minority = k;
                 }

@@ -105,10 +105,14 @@ pub fn assign(plan: &SplitPlan, target: &[u32], classes: usize, seed: u64) -> Re
             for repeat in 0..*repeats {
                 let mut rng = Rng::new(Rng::stream_seed(seed, 1000 + repeat as u64));
                 let mut fold_of = vec![0u32; n];
+                // A running offset across classes, so the extra rows of each
+                // class go to different folds.
+                let mut offset = 0;
                 for members in by_class(&mut rng) {
                     for (position, &i) in members.iter().enumerate() {
-                        fold_of[i] = (position % folds) as u32;
+                        fold_of[i] = ((offset + position) % folds) as u32;
                     }
+                    offset += members.len();
                 }
                 all.push(fold_of);
             }
@@ -132,6 +136,12 @@ pub fn assign(plan: &SplitPlan, target: &[u32], classes: usize, seed: u64) -> Re
                 for &i in &members[..test] {
                     fold_of[i] = 0;
                 }
+            }
+            let test = fold_of.iter().filter(|&&f| f == 0).count();
+            if test == 0 || test == n {
+                return Err(Error::Usage(format!(
+                    "--test-fraction {test_fraction} leaves {test} test rows of {n}; choose a fraction that leaves rows on both sides"
+                )));
             }
             Ok(Assignment {
                 folds: vec![fold_of],

@@ -57,8 +57,8 @@ pub struct Predictions {
 type FoldPrediction = (usize, usize, Vec<usize>, Array2<f64>, Vec<String>);
 
 /// Fits every candidate on every training fold and predicts the fold's test
-/// rows. `prior`: the class mix posteriors are stated at (the training
-/// class mix when `None`).
+/// rows. `prior`: the class mix posteriors are stated at (each training
+/// fold's own class mix when `None`).
 pub fn cross_predict(
     dataset: &Dataset,
     candidates: &[Candidate],
@@ -67,7 +67,7 @@ pub fn cross_predict(
 ) -> Result<Vec<Predictions>> {
     let n = dataset.rows();
     let k = dataset.schema.target.classes.len();
-    let prior: Vec<f64> = prior.map_or_else(|| dataset.schema.target.class_mix(), |p| p.to_vec());
+    let stated_prior: Option<Vec<f64>> = prior.map(<[f64]>::to_vec);
     // Warm starts for logistic candidates: one fit on every row.
     let starts: Vec<Option<FittedModel>> = candidates
         .par_iter()
@@ -152,6 +152,18 @@ pub fn cross_predict(
             }
         };
         let rows = assignment.test_rows(repeat, fold);
+        // Posteriors at the stated prior, else at the training fold's own
+        // class mix (never the test rows', which would leak their base rate).
+        let prior = stated_prior.clone().unwrap_or_else(|| {
+            let mut mix = vec![0.0; k];
+            for i in 0..n {
+                if assignment.trains(repeat, fold, i) {
+                    mix[dataset.target[i] as usize] += dataset.weights.as_ref().map_or(1.0, |w| w[i]);
+                }
+            }
+            let total: f64 = mix.iter().sum();
+            mix.iter().map(|m| m / total).collect()
+        });
         let predictions = model.log_posteriors_of(&dataset.inputs(), &rows, &prior);
         let warnings =
             diagnostics.warnings.iter().map(|w| format!("repeat {} fold {}: {w}", repeat + 1, fold + 1)).collect();

@@ -477,6 +477,9 @@ pub fn binary_metrics_with_placements(scores: &BinaryScores<'_>) -> (BinaryMetri
     let (mut within_variance, mut within_covariance) = (0.0, 0.0);
     for i in 0..n {
         let b = bin_of(p[i]);
+        if !(bw[b] > 0.0) {
+            continue; // a bin of zero-weight rows contributes nothing
+        }
         let (mean_p, observed) = (bp[b] / bw[b], by[b] / bw[b]);
         within_variance += w(i) * (p[i] - mean_p).powi(2) / total;
         within_covariance -= 2.0 * w(i) * (p[i] - mean_p) * (y(i) - observed) / total;

@@ -198,7 +198,10 @@ mod tests {
     fn pool_adjacent_violators_worked_examples() {
         // Worked by hand: each violation pooled into its weighted mean.
         let ones = [1.0; 7];
-        assert_eq!(pool_adjacent_violators(&[3.0, 7.0, 5.0, 9.0, 8.0, 7.0, 10.0], &ones), vec![3.0, 6.0, 6.0, 8.0, 8.0, 8.0, 10.0]);
+        assert_eq!(
+            pool_adjacent_violators(&[3.0, 7.0, 5.0, 9.0, 8.0, 7.0, 10.0], &ones),
+            vec![3.0, 6.0, 6.0, 8.0, 8.0, 8.0, 10.0]
+        );
         assert_eq!(pool_adjacent_violators(&[23.0, 27.0, 25.0, 28.0], &ones[..4]), vec![23.0, 26.0, 26.0, 28.0]);
         // (18·1 + 17·1 + 12·3)/5 = 14.2 and (21·3 + 16·1)/4 = 19.75.
         let fitted = pool_adjacent_violators(&[18.0, 17.0, 12.0, 21.0, 16.0], &[1.0, 1.0, 3.0, 3.0, 1.0]);

@@ -433,6 +433,9 @@ pub fn fit_qda_from_moments(
 ) -> Result<(DiscriminantModel, Diagnostics)> {
     let d = encoding.width();
     let k = dataset.schema.target.classes.len();
+    if d == 0 {
+        return Err(Error::FitFailed { family: "qda".into(), message: "there are no inputs to model".into() });
+    }
     let needed = match params.divisor {
         Divisor::Unbiased => 2,
         Divisor::Rows => 1,
@@ -455,6 +458,15 @@ pub fn fit_qda_from_moments(
             Divisor::Unbiased => m.weight - 1.0,
             Divisor::Rows => m.weight,
         };
+        if !(divisor > 0.0) {
+            return Err(Error::TooFewRows {
+                family: "qda".into(),
+                class: dataset.schema.target.classes[class].clone(),
+                rows: m.rows,
+                needed: 2,
+                hint: "the class's weights sum to 1 or less; collect more rows of it".into(),
+            });
+        }
         let own = DMatrix::from_fn(d, d, |i, j| m.scatter_at(i, j) / divisor);
         let covariance = own * (1.0 - params.reg) + &pooled * params.reg;
         let whose = format!("of class '{}'", dataset.schema.target.classes[class]);

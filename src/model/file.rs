@@ -69,6 +69,23 @@ pub struct ModelFile {
     pub diagnostics: Diagnostics,
     /// The fitted parameters.
     pub model: FittedModel,
+    /// Out-of-fold predictions of the training rows, summarised (for
+    /// black-box shift estimation).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub held_out: Option<HeldOut>,
+}
+
+/// What out-of-fold predictions of the training rows showed.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct HeldOut {
+    /// Folds used.
+    pub folds: usize,
+    /// Weighted share of training rows predicted class i (the most probable
+    /// class at the calibrated-to class mix) with true class j:
+    /// `confusion[i][j]`.
+    pub confusion: Vec<Vec<f64>>,
+    /// Mean out-of-fold posterior of each class.
+    pub mean_posterior: Vec<f64>,
 }
 
 impl ModelFile {
@@ -160,8 +177,29 @@ impl ModelFile {
         if self.model.family() != self.family || self.params.family() != self.family {
             return Err("the family fields disagree".into());
         }
+        if let Some(h) = &self.held_out {
+            if h.confusion.len() != k || h.confusion.iter().any(|r| r.len() != k) || h.mean_posterior.len() != k {
+                return Err("the held-out summary has the wrong number of classes".into());
+            }
+        }
         if self.model.classes() != k {
             return Err("the fitted parameters have the wrong number of classes".into());
+        }
+        let encoding = crate::model::design::Encoding::from_schema(&self.schema);
+        let matches = match &self.model {
+            FittedModel::Logistic(m) => m.encoding == encoding,
+            FittedModel::Lda(m) | FittedModel::Qda(m) => m.encoding == encoding,
+            FittedModel::NaiveBayes(m) => {
+                m.numeric == encoding.numeric
+                    && m.categorical.len() == encoding.one_hot.len()
+                    && m.categorical
+                        .iter()
+                        .zip(&encoding.one_hot)
+                        .all(|(c, h)| c.column == h.column && c.levels == h.levels)
+            }
+        };
+        if !matches {
+            return Err("the fitted parameters do not match the schema's inputs".into());
         }
         match &self.model {
             FittedModel::Logistic(m) => m.validate(),

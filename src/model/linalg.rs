@@ -56,6 +56,9 @@ pub const SINGULAR_EIGENVALUE: f64 = 1e-12;
 /// eigenvector of the smallest correlation eigenvalue).
 pub fn cholesky(matrix: &DMatrix<f64>) -> Result<Factor, Singularity> {
     let d = matrix.nrows();
+    if d == 0 {
+        return Err(Singularity { columns: Vec::new(), smallest_eigenvalue: 0.0 });
+    }
     let constant: Vec<usize> = (0..d).filter(|&i| !(matrix[(i, i)] > 0.0)).collect();
     if !constant.is_empty() {
         return Err(Singularity { columns: constant, smallest_eigenvalue: 0.0 });

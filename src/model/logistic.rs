@@ -150,6 +150,12 @@ impl LogisticModel {
         if values.clone().any(|v| !v.is_finite()) {
             return Err("a coefficient is not a finite number".into());
         }
+        if let Some(c) = &self.covariance {
+            let size = (d + 1) * self.coefficients.len();
+            if c.len() != size * size || c.iter().any(|v| !v.is_finite()) {
+                return Err("the coefficient covariance has the wrong size or a non-finite value".into());
+            }
+        }
         Ok(())
     }
 }
@@ -533,12 +539,21 @@ pub fn fit(
             let level = if fixed_mode { Derivatives::Gradient } else { Derivatives::Hessian };
             let trial = problem.pass(&candidate, level);
             let after = objective(trial.log_likelihood, &candidate);
-            if after <= before + 1e-12 * before.abs() || halvings >= 30 {
+            if after <= before + 1e-12 * before.abs() {
                 break (candidate, trial);
+            }
+            if halvings >= 30 {
+                // No step lowers the objective: stay, and say so.
+                break (theta.clone(), current.clone());
             }
             step.iter_mut().for_each(|s| *s *= 0.5);
             halvings += 1;
         };
+        if halvings >= 30 {
+            warnings
+                .push("no Newton step lowered the objective (30 halvings); the fit stopped where it was".to_string());
+            break;
+        }
         last_step = step.iter().fold(0.0f64, |m, s| m.max(s.abs()));
         theta = next_theta;
         current = next;

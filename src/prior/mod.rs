@@ -117,8 +117,12 @@ pub fn em_probabilities(
         let v: Vec<f64> = second.iter().zip(&first).zip(&r).map(|((b, a), r)| b - a - r).collect();
         let norm = |x: &[f64]| x.iter().map(|v| v * v).sum::<f64>().sqrt();
         let alpha = if norm(&v) > 0.0 { (-norm(&r) / norm(&v)).min(-1.0) } else { -1.0 };
-        let mut jumped: Vec<f64> =
-            prior.iter().zip(&r).zip(&v).map(|((p, r), v)| (p - 2.0 * alpha * r + alpha * alpha * v).max(1e-12)).collect();
+        let mut jumped: Vec<f64> = prior
+            .iter()
+            .zip(&r)
+            .zip(&v)
+            .map(|((p, r), v)| (p - 2.0 * alpha * r + alpha * alpha * v).max(1e-12))
+            .collect();
         let total: f64 = jumped.iter().sum();
         jumped.iter_mut().for_each(|p| *p /= total);
         // A stabilising EM step from the jump.
@@ -154,7 +158,8 @@ pub fn bbse(confusion: &[Vec<f64>], predicted_mix: &[f64], from: &[f64]) -> Opti
     let k = from.len();
     let c = DMatrix::from_fn(k, k, |i, j| confusion[i][j]);
     let svd = c.clone().svd(false, false);
-    let (largest, smallest) = svd.singular_values.iter().fold((0.0f64, f64::INFINITY), |(a, b), &s| (a.max(s), b.min(s)));
+    let (largest, smallest) =
+        svd.singular_values.iter().fold((0.0f64, f64::INFINITY), |(a, b), &s| (a.max(s), b.min(s)));
     let condition_number = if smallest > 0.0 { largest / smallest } else { f64::INFINITY };
     // C's columns sum to πⱼ; C·w = μ with w the ratio π′/π.
     let w = c.lu().solve(&DVector::from_column_slice(predicted_mix))?;
