@@ -293,3 +293,59 @@ fn a_model_whose_parameters_do_not_match_its_schema_is_refused() {
     assert_eq!(code, 1);
     assert!(err.contains("edited.json"), "{err}");
 }
+
+#[test]
+fn shift_estimates_the_new_base_rate() {
+    let dir = temp_dir();
+    lending(dir.path());
+    let mut args = vec!["fit"];
+    args.extend(LENDING);
+    args.extend(["--family", "lda", "--calibrate", "platt", "-o", "m.json"]);
+    let (code, _, err) = run(dir.path(), &args);
+    assert_eq!(code, 0, "{err}");
+    let model: Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("m.json")).expect("model")).expect("json");
+    assert_eq!(model["calibration"]["method"], "platt");
+    assert_eq!(model["held_out"]["folds"], 5);
+    let (code, out, err) = run(dir.path(), &["shift", "m.json", "new.csv", "--json", "-"]);
+    assert_eq!(code, 0, "{err}");
+    let v: Value = serde_json::from_str(&out).expect("shift json");
+    assert!(v["training_prior"]["defaulted"].as_f64().is_some_and(|p| (p - 0.1072).abs() < 1e-12));
+    let estimates = v["estimates"].as_array().expect("estimates");
+    let methods: Vec<&str> = estimates.iter().map(|e| e["method"].as_str().unwrap_or("")).collect();
+    assert_eq!(methods, vec!["em", "bbse", "mean_posterior", "classify_and_count"]);
+    for e in &estimates[..2] {
+        let (low, high) = (e["ci_low"].as_f64().unwrap_or(1.0), e["ci_high"].as_f64().unwrap_or(0.0));
+        let share = e["prior"]["defaulted"].as_f64().unwrap_or(-1.0);
+        assert!(low <= share && share <= high, "{e}");
+        assert!(e["ci"]["defaulted"].is_array());
+        // The new portfolio runs at 3% (2.5% realised): well below training's 10.7%.
+        assert!(high < 0.08 && low > 0.0, "{e}");
+    }
+    assert!(v["unchanged_test"]["p_value"].as_f64().is_some_and(|p| p < 0.001));
+    assert!(v["unchanged_test"]["statistic"].as_f64().is_some_and(|s| s > 10.0));
+    // The estimate feeds scoring.
+    std::fs::write(dir.path().join("shift.json"), &out).expect("write");
+    let (code, _, err) =
+        run(dir.path(), &["score", "m.json", "new.csv", "--prior-from", "shift.json:bbse", "-o", "s.csv"]);
+    assert_eq!(code, 0, "{err}");
+}
+
+#[test]
+fn sampled_training_data_scores_at_the_population_mix() {
+    let dir = temp_dir();
+    lending(dir.path());
+    let mut args = vec!["fit"];
+    args.extend(LENDING);
+    args.extend(["--family", "logistic", "--sampled", "repaid=0.25", "-o", "m.json"]);
+    let (code, _, err) = run(dir.path(), &args);
+    assert_eq!(code, 0, "{err}");
+    let v: Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("m.json")).expect("model")).expect("json");
+    // 536 defaulted and 4,464 repaid kept at a quarter: the population has
+    // 4 × 4,464 repaid, so a default share of 536/(536 + 17,856) = 0.029143...
+    let expected = 536.0 / (536.0 + 4.0 * 4464.0);
+    let prior = v["prior"][0].as_f64().unwrap_or(0.0);
+    assert!((prior - expected).abs() < 1e-12, "{prior} vs {expected}");
+    assert!((v["training_class_mix"][0].as_f64().unwrap_or(0.0) - 0.1072).abs() < 1e-12);
+}

@@ -182,6 +182,83 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             }
         }
     }
+    // The new portfolio's base rate, estimated from its unlabelled rows,
+    // beside the withheld truth; then the portfolio rescored with it.
+    let model_path = args.out.join("lending/lda.json");
+    let shift_path = args.out.join("lending/shift.json");
+    let new_portfolio = args.out.join("lending/new_portfolio.csv");
+    let commands: [Vec<String>; 3] = [
+        vec![
+            "fit".into(),
+            lending_training.display().to_string(),
+            "--target".into(),
+            "outcome".into(),
+            "--id".into(),
+            "application_id,application_month".into(),
+            "--missing".into(),
+            "impute".into(),
+            "--family".into(),
+            "lda".into(),
+            "--calibrate".into(),
+            "platt".into(),
+            "--seed".into(),
+            seed.clone(),
+            "-o".into(),
+            model_path.display().to_string(),
+        ],
+        vec![
+            "shift".into(),
+            model_path.display().to_string(),
+            new_portfolio.display().to_string(),
+            "--seed".into(),
+            seed.clone(),
+            "--json".into(),
+            shift_path.display().to_string(),
+        ],
+        vec![
+            "score".into(),
+            model_path.display().to_string(),
+            new_portfolio.display().to_string(),
+            "--id".into(),
+            "application_id".into(),
+            "--prior-from".into(),
+            shift_path.display().to_string(),
+            "-o".into(),
+            args.out.join("lending/new_portfolio_scores.csv").display().to_string(),
+        ],
+    ];
+    // A stale estimate from an earlier run must not be shown.
+    let _ = std::fs::remove_file(&shift_path);
+    for command in commands {
+        let cli = crate::cli::Cli::try_parse_from(std::iter::once("baserate".to_string()).chain(command))
+            .map_err(|e| crate::Error::Usage(e.to_string()))?;
+        let outcome = match cli.command {
+            crate::cli::Command::Fit(a) => crate::cli::fit::run_quietly(a),
+            crate::cli::Command::Shift(a) => crate::cli::shift::run_quietly(a),
+            crate::cli::Command::Score(a) => crate::cli::score::run(a),
+            _ => Ok(ExitCode::SUCCESS),
+        };
+        if let Err(Failure::Library(e)) = outcome {
+            println!("base-rate step skipped: {}\n", wrap(&e.to_string(), 100, 2));
+            break;
+        }
+    }
+    if let Ok(text) = std::fs::read_to_string(&shift_path) {
+        let answers = std::fs::read_to_string(args.out.join("lending/new_portfolio_answers.csv")).unwrap_or_default();
+        let rows = answers.lines().count().saturating_sub(1).max(1);
+        let defaults = answers.lines().filter(|l| l.ends_with(",defaulted")).count();
+        let verdict = serde_json::from_str::<serde_json::Value>(&text)
+            .ok()
+            .and_then(|v| v["verdict"].as_str().map(String::from))
+            .unwrap_or_default();
+        println!(
+            "== lending: the new portfolio's base rate\n{}\nthe withheld answer: {} of {} defaulted ({}); the portfolio was rescored with the EM estimate\n",
+            wrap(&verdict, 100, 0),
+            defaults,
+            rows,
+            percent(defaults as f64 / rows as f64)
+        );
+    }
     println!(
         "reports: {} and {}\n\nNext: baserate describe {} --target outcome --id application_id,application_month --missing impute\n",
         lending_report.display(),

@@ -10,6 +10,7 @@ use crate::cli::data_args::DataArgs;
 use crate::cli::Failure;
 use crate::data::Dataset;
 use crate::error::Error;
+use crate::model::calibration::{fit_isotonic, fit_platt};
 use crate::model::discriminant::{Divisor, LdaParams, QdaParams, Shrinkage};
 use crate::model::file::{ModelFile, TrainingInfo, FORMAT, FORMAT_VERSION};
 use crate::model::logistic::{ClassWeight, LogisticParams};
@@ -209,6 +210,43 @@ pub struct Args {
     /// Seed of the held-out folds (out-of-fold predictions stored for shift estimation).
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
+    /// Calibrate the posteriors on out-of-fold predictions (two classes).
+    #[arg(long, value_enum)]
+    pub calibrate: Option<CalibrateArg>,
+    /// The training rows are a sample: CLASS=RATE,... (e.g. all frauds and 10% of the rest: genuine=0.1).
+    #[arg(long, value_name = "SPEC")]
+    pub sampled: Option<String>,
+}
+
+/// `--calibrate` values.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum CalibrateArg {
+    /// Platt's logistic map (Platt 1999).
+    Platt,
+    /// Isotonic regression by pool-adjacent-violators.
+    Isotonic,
+}
+
+/// The population class mix implied by sampling rates: training mix ÷ rate,
+/// renormalised.
+pub fn population_mix(classes: &[String], training_mix: &[f64], spec: &str) -> crate::Result<(Vec<f64>, Vec<f64>)> {
+    let mut rates = vec![1.0; classes.len()];
+    for part in spec.split(',') {
+        let (class, rate) = part
+            .rsplit_once('=')
+            .ok_or_else(|| Error::Usage(format!("--sampled takes CLASS=RATE,..., not '{part}'")))?;
+        let i = classes.iter().position(|c| c == class.trim()).ok_or_else(|| {
+            Error::Usage(format!("--sampled names class '{class}', which is not one of {}", classes.join(", ")))
+        })?;
+        let r: f64 = rate.trim().parse().map_err(|_| Error::Usage(format!("'{rate}' in --sampled is not a number")))?;
+        if !(r > 0.0 && r <= 1.0) {
+            return Err(Error::Usage(format!("--sampled rate for '{class}' must lie in (0, 1]")));
+        }
+        rates[i] = r;
+    }
+    let raw: Vec<f64> = training_mix.iter().zip(&rates).map(|(m, r)| m / r).collect();
+    let total: f64 = raw.iter().sum();
+    Ok((raw.iter().map(|v| v / total).collect(), rates))
 }
 
 /// Out-of-fold predictions of the training rows (5 stratified folds),
@@ -219,7 +257,7 @@ fn held_out_summary(
     params: &FamilyParams,
     prior: &[f64],
     seed: u64,
-) -> crate::Result<Option<crate::model::file::HeldOut>> {
+) -> crate::Result<Option<(crate::model::file::HeldOut, Vec<f64>)>> {
     use crate::data::split::{assign, SplitPlan};
     use crate::evaluate::compare::{cross_predict, Candidate};
     const FOLDS: usize = 5;
@@ -233,7 +271,11 @@ fn held_out_summary(
     let total: f64 = dataset.weights.as_ref().map_or(dataset.rows() as f64, |w| w.iter().sum());
     let mut confusion = vec![vec![0.0; k]; k];
     let mut mean_posterior = vec![0.0; k];
+    let positive = dataset.schema.target.positive_index();
+    let mut log_odds = Vec::with_capacity(dataset.rows());
     for (i, row) in lp.rows().into_iter().enumerate() {
+        let values = row.to_vec();
+        log_odds.push(crate::evaluate::compare::log_odds_of(&values, positive));
         let w = dataset.weights.as_ref().map_or(1.0, |w| w[i]) / total;
         let predicted = (0..k).max_by(|&a, &b| row[a].total_cmp(&row[b])).unwrap_or(0);
         confusion[predicted][dataset.target[i] as usize] += w;
@@ -241,11 +283,20 @@ fn held_out_summary(
             mean_posterior[c] += w * row[c].exp();
         }
     }
-    Ok(Some(crate::model::file::HeldOut { folds: FOLDS, confusion, mean_posterior }))
+    Ok(Some((crate::model::file::HeldOut { folds: FOLDS, confusion, mean_posterior }, log_odds)))
 }
 
 /// Runs `fit`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
+    execute(args, true)
+}
+
+/// Runs `fit` printing nothing (for the demo).
+pub fn run_quietly(args: Args) -> Result<ExitCode, Failure> {
+    execute(args, false)
+}
+
+fn execute(args: Args, talk: bool) -> Result<ExitCode, Failure> {
     let family: Family = args.family.into();
     let params = args.family_options.params(family)?;
     let spec = prior_spec(args.prior.as_deref(), args.base_rate)?;
@@ -260,8 +311,16 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         crate::model::FittedModel::Logistic(m) => m.class_mix.clone(),
         _ => target.class_mix(),
     };
-    let prior =
-        spec.unwrap_or(PriorSpec::Empirical).resolve(&target.classes, &training_class_mix, target.positive_index())?;
+    // With --sampled, the default prior is the population mix the sampling
+    // rates imply; the posteriors stay calibrated to the training mix.
+    let (default_mix, sampling_rates) = match &args.sampled {
+        Some(spec) => {
+            let (mix, rates) = population_mix(&target.classes, &training_class_mix, spec)?;
+            (mix, Some(rates))
+        }
+        None => (training_class_mix.clone(), None),
+    };
+    let prior = spec.unwrap_or(PriorSpec::Empirical).resolve(&target.classes, &default_mix, target.positive_index())?;
     let file = ModelFile {
         format: FORMAT.to_string(),
         format_version: FORMAT_VERSION,
@@ -284,12 +343,38 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         diagnostics,
         model,
         held_out: None,
+        calibration: None,
+        sampling_rates,
     };
     let mut file = file;
-    file.held_out = held_out_summary(&dataset, &params, &file.prior, args.seed)?;
+    let calibrated_to = file.calibrated_to().to_vec();
+    if let Some((held_out, log_odds)) = held_out_summary(&dataset, &params, &calibrated_to, args.seed)? {
+        if let Some(method) = args.calibrate {
+            if target.classes.len() != 2 {
+                return Err(Error::Usage("--calibrate is for two classes".into()).into());
+            }
+            let labels: Vec<bool> = dataset.target.iter().map(|&y| y as usize == target.positive_index()).collect();
+            file.calibration = Some(match method {
+                CalibrateArg::Platt => fit_platt(&log_odds, &labels, dataset.weights.as_deref()),
+                CalibrateArg::Isotonic => fit_isotonic(&log_odds, &labels, dataset.weights.as_deref()),
+            });
+        }
+        file.held_out = Some(held_out);
+    } else if args.calibrate.is_some() {
+        return Err(Error::FitFailed {
+            family: family.name().into(),
+            message:
+                "--calibrate needs out-of-fold predictions, and a fold could not be fitted (too few rows of a class)"
+                    .into(),
+        }
+        .into());
+    }
     file.validate().map_err(|m| Error::FitFailed { family: family.name().into(), message: m })?;
     file.save(&args.out)?;
 
+    if !talk {
+        return Ok(ExitCode::SUCCESS);
+    }
     let mix: Vec<String> = target
         .classes
         .iter()

@@ -19,6 +19,7 @@ pub mod fit;
 pub mod inspect;
 pub mod output;
 pub mod score;
+pub mod shift;
 
 /// Bayes-rule classifiers for credit and fraud work, with base-rate
 /// correction and expected-cost decisions. Decision support, not a decision.
@@ -49,6 +50,8 @@ pub enum Command {
     Inspect(inspect::Args),
     /// Posteriors for every row of a file.
     Score(score::Args),
+    /// Estimate the class mix (base rate) of an unlabeled new portfolio.
+    Shift(shift::Args),
 }
 
 /// What a command failed with: a library error, or an internal one.
@@ -86,6 +89,7 @@ pub fn run(cli: Cli) -> Result<ExitCode, Failure> {
         Command::Fit(args) => fit::run(args),
         Command::Inspect(args) => inspect::run(args),
         Command::Score(args) => score::run(args),
+        Command::Shift(args) => shift::run(args),
     }
 }
 

@@ -31,6 +31,9 @@ pub struct Args {
     /// Binary shorthand for --prior POSITIVE=P,OTHER=1-P.
     #[arg(long, value_name = "P")]
     pub base_rate: Option<f64>,
+    /// The prior estimated by `shift`: SHIFT.json (the EM estimate) or SHIFT.json:bbse.
+    #[arg(long, value_name = "SHIFT.json[:METHOD]")]
+    pub prior_from: Option<String>,
     /// Columns passed through to the output (comma-separated; repeatable).
     #[arg(long = "id", value_name = "COLS", value_delimiter = ',')]
     pub ids: Vec<String>,
@@ -46,13 +49,18 @@ pub struct Args {
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let file = ModelFile::load(&args.model)?;
     let positive = file.classes.iter().position(|c| *c == file.positive).unwrap_or(0);
-    let prior = match prior_spec(args.prior.as_deref(), args.base_rate)? {
-        Some(spec) => spec.resolve(&file.classes, &file.training_class_mix, positive)?,
-        None => file.prior.clone(),
+    let prior = match (prior_spec(args.prior.as_deref(), args.base_rate)?, &args.prior_from) {
+        (Some(_), Some(_)) => {
+            return Err(crate::Error::Usage("give --prior/--base-rate or --prior-from, not both".into()).into())
+        }
+        (Some(spec), None) => spec.resolve(&file.classes, &file.training_class_mix, positive)?,
+        (None, Some(from)) => crate::cli::shift::prior_from_file(from, &file.classes)?,
+        (None, None) => file.prior.clone(),
     };
     let data =
         read_for_scoring(&args.data, &file.schema, &args.ids, parse_delimiter(&args.delimiter)?, args.na.clone())?;
-    let posteriors = file.model.posteriors(&data.inputs(), &prior);
+    let mut posteriors = file.log_posteriors(&data.inputs(), &prior);
+    posteriors.mapv_inplace(f64::exp);
     let mut writer = csv::Writer::from_writer(Vec::with_capacity(data.rows() * 40));
     let mut header: Vec<String> = data.ids.iter().map(|(name, _)| name.clone()).collect();
     header.extend(file.classes.iter().map(|c| format!("p_{c}")));

@@ -69,6 +69,16 @@ pub struct ModelFile {
     pub diagnostics: Diagnostics,
     /// The fitted parameters.
     pub model: FittedModel,
+    /// Sampling rates of the classes in the training data (`--sampled`):
+    /// the population class mix is the training mix divided by them,
+    /// renormalised (Dal Pozzolo, Caelen, Johnson & Bontempi 2015).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sampling_rates: Option<Vec<f64>>,
+    /// A calibration map fitted on out-of-fold predictions (`--calibrate`),
+    /// applied to the log odds of the positive class at the calibrated-to
+    /// class mix, before any prior correction.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub calibration: Option<crate::model::calibration::CalibrationMap>,
     /// Out-of-fold predictions of the training rows, summarised (for
     /// black-box shift estimation).
     #[serde(default, skip_serializing_if = "Option::is_none")]
@@ -98,6 +108,29 @@ impl ModelFile {
         } else {
             &self.training_class_mix
         }
+    }
+
+    /// Log posteriors of the rows under `prior`: the model's posteriors at
+    /// the class mix it is calibrated to, then the calibration map (if any),
+    /// then the odds correction to `prior` — the order fit → calibrate →
+    /// correct the prior.
+    pub fn log_posteriors(&self, inputs: &crate::data::Inputs<'_>, prior: &[f64]) -> ndarray::Array2<f64> {
+        let base = self.calibrated_to().to_vec();
+        let mut lp = self.model.log_posteriors(inputs, &base);
+        let k = self.classes.len();
+        let positive = self.classes.iter().position(|c| *c == self.positive).unwrap_or(0);
+        if let Some(values) = lp.as_slice_mut() {
+            for row in values.chunks_mut(k) {
+                if let (Some(map), 2) = (&self.calibration, k) {
+                    let z = row[positive] - row[1 - positive];
+                    let p = map.apply(z).clamp(1e-300, 1.0 - 1e-16);
+                    row[positive] = p.ln();
+                    row[1 - positive] = (-p).ln_1p();
+                }
+                crate::prior::correct_row(row, &base, prior);
+            }
+        }
+        lp
     }
 
     /// Serialises to pretty JSON.
@@ -176,6 +209,12 @@ impl ModelFile {
         }
         if self.model.family() != self.family || self.params.family() != self.family {
             return Err("the family fields disagree".into());
+        }
+        if let Some(c) = &self.calibration {
+            c.validate()?;
+            if k != 2 {
+                return Err("a calibration map needs two classes".into());
+            }
         }
         if let Some(h) = &self.held_out {
             if h.confusion.len() != k || h.confusion.iter().any(|r| r.len() != k) || h.mean_posterior.len() != k {
