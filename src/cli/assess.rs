@@ -13,7 +13,7 @@ use crate::cli::output::write_atomic;
 use crate::cli::Failure;
 use crate::data::Dataset;
 use crate::error::Error;
-use crate::evaluate::compare::{evaluate, EvaluationOptions, TestedScore};
+use crate::evaluate::compare::{evaluate, evaluate_reweighted, EvaluationOptions, TestedScore};
 use crate::evaluate::metrics::ScoreKind;
 use crate::report::evaluation::{evaluation_html, evaluation_text};
 
@@ -52,6 +52,9 @@ pub struct Args {
     /// Which way the scores point.
     #[arg(long, value_enum, default_value = "higher-positive")]
     pub direction: DirectionArg,
+    /// The positive class's share in the data the probability scores are calibrated to (needed with --prior/--base-rate).
+    #[arg(long, value_name = "P")]
+    pub train_prior: Option<f64>,
     /// Evaluation options.
     #[command(flatten)]
     pub evaluation: crate::cli::compare::EvaluationArgs,
@@ -74,6 +77,28 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let positive = target.positive_index();
     let inputs = dataset.schema.numeric_inputs();
     let rows: Vec<usize> = (0..dataset.rows()).collect();
+    let target_prior = match crate::cli::fit::prior_spec(args.evaluation.prior.as_deref(), args.evaluation.base_rate)? {
+        Some(spec) => Some(spec.resolve(&target.classes, &target.class_mix(), positive)?),
+        None => None,
+    };
+    // The odds correction of probability scores from the prior they are
+    // calibrated to (--train-prior) to the target prior.
+    let shift = match (&target_prior, args.train_prior) {
+        (Some(_), _) if target.classes.len() != 2 => {
+            return Err(Error::Usage("--prior with external scores is for two classes".into()).into())
+        }
+        (Some(to), Some(from)) if from > 0.0 && from < 1.0 => {
+            (to[positive] / (1.0 - to[positive])).ln() - (from / (1.0 - from)).ln()
+        }
+        (Some(_), Some(_)) => return Err(Error::Usage("--train-prior must lie strictly between 0 and 1".into()).into()),
+        (Some(_), None) if args.score_type == ScoreTypeArg::Probability => {
+            return Err(Error::Usage(
+                "--prior and --base-rate need --train-prior: the class mix the scores are calibrated to".into(),
+            )
+            .into())
+        }
+        _ => 0.0,
+    };
     let mut scores = Vec::new();
     for name in &args.scores {
         let j = inputs
@@ -97,7 +122,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
                     .map(|&p| {
                         let p = if sign < 0.0 { 1.0 - p } else { p };
                         let p = p.clamp(PROBABILITY_CLIP, 1.0 - PROBABILITY_CLIP);
-                        (p / (1.0 - p)).ln()
+                        (p / (1.0 - p)).ln() + shift
                     })
                     .collect()
             }
@@ -126,22 +151,26 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         ),
         None => None,
     };
-    let evaluation = evaluate(
-        &scores,
-        &EvaluationOptions {
-            target: &dataset.target,
-            positive,
-            classes: &target.classes,
-            weights: dataset.weights.as_deref(),
-            amounts: amounts.as_deref(),
-            bootstrap: args.evaluation.bootstrap,
-            seed: args.evaluation.seed,
-            segments: segments.as_deref().map(|v| (args.evaluation.by.as_deref().unwrap_or(""), v)),
-            split: "scores made elsewhere, every row".into(),
-        },
-    );
+    let options = EvaluationOptions {
+        target: &dataset.target,
+        positive,
+        classes: &target.classes,
+        weights: dataset.weights.as_deref(),
+        amounts: amounts.as_deref(),
+        bootstrap: args.evaluation.bootstrap,
+        seed: args.evaluation.seed,
+        segments: segments.as_deref().map(|v| (args.evaluation.by.as_deref().unwrap_or(""), v)),
+        split: "scores made elsewhere, every row".into(),
+    };
+    let evaluation = evaluate(&scores, &options);
+    let reweighted = target_prior.as_ref().map(|to| evaluate_reweighted(&scores, &options, to));
     if let Some(path) = &args.evaluation.json {
-        let text = serde_json::to_string_pretty(&evaluation).map_err(|e| Error::Usage(e.to_string()))?;
+        let mut value = serde_json::to_value(&evaluation).map_err(|e| Error::Usage(e.to_string()))?;
+        if let (Some(to), Some(r)) = (&target_prior, &reweighted) {
+            value["target_prior"] = serde_json::to_value(to).unwrap_or_default();
+            value["reweighted"] = serde_json::to_value(r).unwrap_or_default();
+        }
+        let text = serde_json::to_string_pretty(&value).map_err(|e| Error::Usage(e.to_string()))?;
         write_atomic(path, format!("{text}\n").as_bytes())?;
     }
     if let Some(path) = &args.evaluation.report {
@@ -152,6 +181,14 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     if args.evaluation.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
         return Ok(ExitCode::SUCCESS);
     }
-    print!("{}", evaluation_text(&evaluation));
+    print!(
+        "{}",
+        crate::cli::compare::with_reweighted(
+            evaluation_text(&evaluation),
+            target_prior.as_deref(),
+            reweighted.as_ref(),
+            &target.classes
+        )
+    );
     Ok(ExitCode::SUCCESS)
 }

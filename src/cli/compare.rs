@@ -18,7 +18,7 @@ use crate::data::split::{assign, SplitPlan};
 use crate::data::Dataset;
 use crate::error::Error;
 use crate::evaluate::compare::{
-    cross_predict, evaluate, learning_curve, multiclass, Candidate, EvaluationOptions, TestedScore,
+    cross_predict, evaluate, evaluate_reweighted, learning_curve, multiclass, Candidate, EvaluationOptions, TestedScore,
 };
 use crate::model::Family;
 use crate::report::evaluation::{evaluation_html, evaluation_text};
@@ -81,12 +81,39 @@ pub struct EvaluationArgs {
     /// Report every figure per segment of this column.
     #[arg(long, value_name = "COL")]
     pub by: Option<String>,
+    /// The class mix the posteriors are to be stated at: empirical, uniform or CLASS=P,...; metrics are then shown as measured and reweighted to it.
+    #[arg(long, value_name = "SPEC")]
+    pub prior: Option<String>,
+    /// Binary shorthand for --prior POSITIVE=P,OTHER=1-P.
+    #[arg(long, value_name = "P")]
+    pub base_rate: Option<f64>,
     /// Write every figure as JSON to FILE (`-` for stdout).
     #[arg(long, value_name = "FILE")]
     pub json: Option<PathBuf>,
     /// Write a self-contained HTML report to FILE.
     #[arg(long, value_name = "FILE")]
     pub report: Option<PathBuf>,
+}
+
+/// The terminal text with the reweighted figures after the measured ones,
+/// and the caution once, at the end.
+pub fn with_reweighted(
+    text: String,
+    to: Option<&[f64]>,
+    reweighted: Option<&crate::evaluate::compare::Evaluation>,
+    classes: &[String],
+) -> String {
+    let (Some(to), Some(r)) = (to, reweighted) else { return text };
+    let mix: Vec<String> = classes.iter().zip(to).map(|(c, p)| format!("{c} {}", crate::report::percent(*p))).collect();
+    let table = evaluation_text(r);
+    let body = table.split("\n\n").nth(1).unwrap_or("");
+    let caution_at = text.find("Caution:").unwrap_or(text.len());
+    let (measured, caution) = text.split_at(caution_at);
+    format!(
+        "posteriors stated at the target class mix ({}); figures as measured on the tested rows:\n\n{measured}the same, reweighted to the target class mix (importance weights by class):\n\n{}\n\n{caution}",
+        mix.join(", "),
+        body.trim_end()
+    )
 }
 
 /// Parses `F[:OPTION=VALUE,...]` into a named candidate.
@@ -257,7 +284,11 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
         None => assign(&plan, &dataset.target, k, args.evaluation.seed)?,
     };
 
-    let predictions = cross_predict(&dataset, &candidates, &assignment, None)?;
+    let target_prior = match crate::cli::fit::prior_spec(args.evaluation.prior.as_deref(), args.evaluation.base_rate)? {
+        Some(spec) => Some(spec.resolve(&target.classes, &target.class_mix(), positive)?),
+        None => None,
+    };
+    let predictions = cross_predict(&dataset, &candidates, &assignment, target_prior.as_deref())?;
     let amounts = match &args.evaluation.amount {
         Some(column) => {
             let j = dataset.schema.numeric_inputs().iter().position(|n| n == column).ok_or_else(|| {
@@ -328,6 +359,21 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
         },
     );
 
+    // With a target prior: the same figures with the test rows reweighted by
+    // class (importance weights π′ₖ/πₖ, π the tested rows' class mix), so
+    // they describe a portfolio at the target mix.
+    let options = EvaluationOptions {
+        target: &dataset.target,
+        positive,
+        classes: &target.classes,
+        weights: dataset.weights.as_deref(),
+        amounts: amounts.as_deref(),
+        bootstrap: args.evaluation.bootstrap,
+        seed: args.evaluation.seed,
+        segments: None,
+        split: assignment.description.clone(),
+    };
+    let reweighted = target_prior.as_ref().map(|to| evaluate_reweighted(&scores, &options, to));
     if k > 2 {
         evaluation.set_multiclass(multiclass_figures);
     }
@@ -335,6 +381,10 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
         let mut value = serde_json::to_value(&evaluation).map_err(|e| Error::Usage(e.to_string()))?;
         if !learning.is_empty() {
             value["learning_curve"] = serde_json::to_value(&learning).unwrap_or_default();
+        }
+        if let (Some(to), Some(r)) = (&target_prior, &reweighted) {
+            value["target_prior"] = serde_json::to_value(to).unwrap_or_default();
+            value["reweighted"] = serde_json::to_value(r).unwrap_or_default();
         }
         let text = serde_json::to_string_pretty(&value).map_err(|e| Error::Usage(e.to_string()))?;
         write_atomic(path, format!("{text}\n").as_bytes())?;
@@ -362,7 +412,8 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
     if args.evaluation.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
         return Ok(ExitCode::SUCCESS);
     }
-    let text = evaluation_text(&evaluation);
+    let text =
+        with_reweighted(evaluation_text(&evaluation), target_prior.as_deref(), reweighted.as_ref(), &target.classes);
     match text.find(crate::CAUTION.split_whitespace().next().unwrap_or("Caution:")) {
         Some(at) if !caution => print!("{}", &text[..at]),
         _ => print!("{text}"),

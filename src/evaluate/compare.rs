@@ -543,6 +543,30 @@ pub fn evaluate(scores: &[TestedScore], options: &EvaluationOptions<'_>) -> Eval
     }
 }
 
+/// The evaluation again with the tested rows reweighted by class to the
+/// target class mix `to` (importance weights π′ₖ/πₖ, π the tested rows'
+/// own class mix), so that the figures describe a portfolio at that mix.
+pub fn evaluate_reweighted(scores: &[TestedScore], options: &EvaluationOptions<'_>, to: &[f64]) -> Evaluation {
+    let k = options.classes.len();
+    let tested: Vec<usize> = scores.first().map(|s| s.rows[0].clone()).unwrap_or_default();
+    let mut mix = vec![0.0; k];
+    for &r in &tested {
+        mix[options.target[r] as usize] += options.weights.map_or(1.0, |w| w[r]);
+    }
+    let total: f64 = mix.iter().sum();
+    let ratio: Vec<f64> = (0..k).map(|c| if mix[c] > 0.0 { to[c] / (mix[c] / total) } else { 0.0 }).collect();
+    let weights: Vec<f64> = (0..options.target.len())
+        .map(|r| options.weights.map_or(1.0, |w| w[r]) * ratio[options.target[r] as usize])
+        .collect();
+    let reweighted = EvaluationOptions {
+        weights: Some(&weights),
+        segments: None,
+        split: format!("{}; reweighted to the target class mix", options.split),
+        ..options.clone()
+    };
+    evaluate(scores, &reweighted)
+}
+
 /// Per-row log loss and Brier of a binary score.
 fn per_row_losses(log_odds: &[f64], labels: &[bool]) -> (Vec<f64>, Vec<f64>) {
     let log_loss = log_odds
