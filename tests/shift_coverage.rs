@@ -49,9 +49,7 @@ fn intervals_cover_the_true_new_base_rate() {
             // Held-out confusion of the training rows (5-fold, out of fold).
             let assignment =
                 assign(&SplitPlan::KFold { folds: 5, repeats: 1 }, &train.target, 2, repeat).expect("folds");
-            let predictions =
-                cross_predict(&train, &[Candidate { name: "lda".into(), params: lda }], &assignment, None)
-                    .expect("oof");
+            let predictions = cross_predict(&train, &[Candidate::new("lda", lda)], &assignment, None).expect("oof");
             let mut confusion = vec![vec![0.0; 2]; 2];
             for (i, row) in predictions[0].log_posteriors[0].rows().into_iter().enumerate() {
                 let predicted = usize::from(row[1] > row[0]);

@@ -116,9 +116,17 @@ pub fn with_reweighted(
     )
 }
 
-/// Parses `F[:OPTION=VALUE,...]` into a named candidate.
+/// Parses `F[:OPTION=VALUE,...][+platt|+isotonic]` into a named candidate.
 pub fn parse_candidate(spec: &str) -> crate::Result<Candidate> {
-    let (family_text, options_text) = spec.split_once(':').unwrap_or((spec, ""));
+    let (base, calibration) = match spec.rsplit_once('+') {
+        Some((b, "platt")) => (b, Some(crate::evaluate::compare::Calibration::Platt)),
+        Some((b, "isotonic")) => (b, Some(crate::evaluate::compare::Calibration::Isotonic)),
+        Some((_, other)) => {
+            return Err(Error::Usage(format!("--family {spec}: '+{other}' is not +platt or +isotonic")))
+        }
+        None => (spec, None),
+    };
+    let (family_text, options_text) = base.split_once(':').unwrap_or((base, ""));
     let family: Family = match family_text {
         "logistic" => FamilyArg::Logistic,
         "naive-bayes" => FamilyArg::NaiveBayes,
@@ -157,7 +165,7 @@ pub fn parse_candidate(spec: &str) -> crate::Result<Candidate> {
             other => return Err(Error::Usage(format!("--family {spec}: unknown option '{other}'"))),
         }
     }
-    Ok(Candidate { name: spec.to_string(), params: options.params(family)? })
+    Ok(Candidate { name: spec.to_string(), params: options.params(family)?, calibration })
 }
 
 /// Values of a column for every row, as text: an id column, a categorical

@@ -263,7 +263,7 @@ fn held_out_summary(
     const FOLDS: usize = 5;
     let k = dataset.schema.target.classes.len();
     let assignment = assign(&SplitPlan::KFold { folds: FOLDS, repeats: 1 }, &dataset.target, k, seed)?;
-    let candidate = Candidate { name: "held-out".into(), params: params.clone() };
+    let candidate = Candidate::new("held-out", params.clone());
     let Ok(predictions) = cross_predict(dataset, &[candidate], &assignment, Some(prior)) else {
         return Ok(None);
     };

@@ -37,6 +37,58 @@ pub struct Candidate {
     pub name: String,
     /// What to fit.
     pub params: FamilyParams,
+    /// A calibration map fitted inside each training fold, on that fold's own
+    /// out-of-fold predictions (nested 5-fold), and applied to its test rows.
+    pub calibration: Option<Calibration>,
+}
+
+/// The calibration methods.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Calibration {
+    /// Platt's logistic map.
+    Platt,
+    /// Isotonic regression.
+    Isotonic,
+}
+
+impl Candidate {
+    /// A candidate without calibration.
+    pub fn new(name: impl Into<String>, params: FamilyParams) -> Self {
+        Candidate { name: name.into(), params, calibration: None }
+    }
+}
+
+/// Folds over the training rows of (repeat, fold) only — every other row
+/// left out — for a nested cross-validation inside that training fold.
+fn inner_assignment(
+    assignment: &Assignment,
+    repeat: usize,
+    fold: usize,
+    target: &[u32],
+    classes: usize,
+    seed: u64,
+) -> Assignment {
+    const INNER_FOLDS: usize = 5;
+    let mut rng = Rng::new(Rng::stream_seed(seed, 5000 + (repeat * 100 + fold) as u64));
+    let mut members: Vec<Vec<usize>> = vec![Vec::new(); classes];
+    for i in 0..target.len() {
+        if assignment.trains(repeat, fold, i) {
+            members[target[i] as usize].push(i);
+        }
+    }
+    let mut folds = vec![LEFT_OUT; target.len()];
+    let mut offset = 0;
+    for m in members.iter_mut() {
+        for i in (1..m.len()).rev() {
+            let j = (rng.next_u64() % (i as u64 + 1)) as usize;
+            m.swap(i, j);
+        }
+        for (position, &i) in m.iter().enumerate() {
+            folds[i] = ((offset + position) % INNER_FOLDS) as u32;
+        }
+        offset += m.len();
+    }
+    Assignment { folds: vec![folds], tested_folds: INNER_FOLDS, description: String::new() }
 }
 
 /// Out-of-fold predictions of one candidate: log-posteriors per repeat
@@ -164,7 +216,35 @@ pub fn cross_predict(
             let total: f64 = mix.iter().sum();
             mix.iter().map(|m| m / total).collect()
         });
-        let predictions = model.log_posteriors_of(&dataset.inputs(), &rows, &prior);
+        let mut predictions = model.log_posteriors_of(&dataset.inputs(), &rows, &prior);
+        if let Some(method) = candidates[c].calibration {
+            if k != 2 {
+                return Err(crate::Error::Usage(format!("{}: calibration is for two classes", candidates[c].name)));
+            }
+            let positive = dataset.schema.target.positive_index();
+            let inner = inner_assignment(assignment, repeat, fold, &dataset.target, k, 17);
+            let plain = Candidate::new(candidates[c].name.clone(), candidates[c].params.clone());
+            let inner_predictions = cross_predict(dataset, &[plain], &inner, Some(&prior))?;
+            let (mut log_odds, mut labels, mut weights) = (Vec::new(), Vec::new(), Vec::new());
+            for (i, row) in inner_predictions[0].log_posteriors[0].rows().into_iter().enumerate() {
+                if !row[0].is_nan() {
+                    log_odds.push(log_odds_of(&row.to_vec(), positive));
+                    labels.push(dataset.target[i] as usize == positive);
+                    weights.push(dataset.weights.as_ref().map_or(1.0, |w| w[i]));
+                }
+            }
+            let map = match method {
+                Calibration::Platt => crate::model::calibration::fit_platt(&log_odds, &labels, Some(&weights)),
+                Calibration::Isotonic => crate::model::calibration::fit_isotonic(&log_odds, &labels, Some(&weights)),
+            };
+            if let Some(values) = predictions.as_slice_mut() {
+                for row in values.chunks_mut(2) {
+                    let p = map.apply(row[positive] - row[1 - positive]).clamp(1e-300, 1.0 - 1e-16);
+                    row[positive] = p.ln();
+                    row[1 - positive] = (-p).ln_1p();
+                }
+            }
+        }
         let warnings =
             diagnostics.warnings.iter().map(|w| format!("repeat {} fold {}: {w}", repeat + 1, fold + 1)).collect();
         Ok((c, repeat, rows, predictions, warnings))
