@@ -352,24 +352,6 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
     // and the full posterior tables (the scores keep the log odds).
     drop(predictions);
     dataset.numeric = ndarray::Array2::zeros((0, 0));
-    let mut evaluation = evaluate(
-        &scores,
-        &EvaluationOptions {
-            target: &dataset.target,
-            positive,
-            classes: &target.classes,
-            weights: dataset.weights.as_deref(),
-            amounts: amounts.as_deref(),
-            bootstrap: args.evaluation.bootstrap,
-            seed: args.evaluation.seed,
-            segments: segments.as_deref().map(|v| (args.evaluation.by.as_deref().unwrap_or(""), v)),
-            split: assignment.description.clone(),
-        },
-    );
-
-    // With a target prior: the same figures with the test rows reweighted by
-    // class (importance weights π′ₖ/πₖ, π the tested rows' class mix), so
-    // they describe a portfolio at the target mix.
     let options = EvaluationOptions {
         target: &dataset.target,
         positive,
@@ -378,9 +360,13 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
         amounts: amounts.as_deref(),
         bootstrap: args.evaluation.bootstrap,
         seed: args.evaluation.seed,
-        segments: None,
+        segments: segments.as_deref().map(|v| (args.evaluation.by.as_deref().unwrap_or(""), v)),
         split: assignment.description.clone(),
     };
+    let mut evaluation = evaluate(&scores, &options);
+    // With a target prior: the same figures with the test rows reweighted by
+    // class (importance weights π′ₖ/πₖ, π the tested rows' class mix), so
+    // they describe a portfolio at the target mix.
     let reweighted = target_prior.as_ref().map(|to| evaluate_reweighted(&scores, &options, to));
     if k > 2 {
         evaluation.set_multiclass(multiclass_figures);
