@@ -13,6 +13,7 @@
 
 pub mod cli;
 pub mod data;
+pub mod decide;
 pub mod demo;
 pub mod error;
 pub mod evaluate;
