@@ -349,3 +349,69 @@ fn sampled_training_data_scores_at_the_population_mix() {
     assert!((prior - expected).abs() < 1e-12, "{prior} vs {expected}");
     assert!((v["training_class_mix"][0].as_f64().unwrap_or(0.0) - 0.1072).abs() < 1e-12);
 }
+
+const LENDING_COSTS: &str = r#"
+[actions.approve]
+repaid = 0
+defaulted = { fixed = 25, rate = 0.6, column = "amount_requested" }
+
+[actions.refer]
+repaid = 40
+defaulted = 40
+capacity = 300
+
+[actions.decline]
+repaid = { rate = 0.08, column = "amount_requested" }
+defaulted = 0
+"#;
+
+#[test]
+fn costs_drive_decisions_in_score_and_compare() {
+    let dir = temp_dir();
+    lending(dir.path());
+    write(dir.path(), "costs.toml", LENDING_COSTS.as_bytes());
+    write(
+        dir.path(),
+        "german.toml",
+        b"[actions.approve]\nrepaid = 0\ndefaulted = 5\n[actions.decline]\nrepaid = 1\ndefaulted = 0\n",
+    );
+    let mut args = vec!["fit"];
+    args.extend(LENDING);
+    args.extend(["--family", "lda", "-o", "m.json"]);
+    assert_eq!(run(dir.path(), &args).0, 0);
+    let (code, _, err) = run(
+        dir.path(),
+        &["score", "m.json", "new.csv", "--id", "application_id", "--costs", "costs.toml", "-o", "d.csv"],
+    );
+    assert_eq!(code, 0, "{err}");
+    let out = std::fs::read_to_string(dir.path().join("d.csv")).expect("decisions");
+    assert!(out.starts_with("application_id,p_defaulted,p_repaid,action,expected_cost\n"));
+    let refer = out.lines().filter(|l| l.contains(",refer,")).count();
+    assert!(refer <= 300 && refer > 0, "{refer}");
+    assert!(err.contains("decisions: approve") && err.contains("total expected cost"), "{err}");
+    let (code, _, err) =
+        run(dir.path(), &["score", "m.json", "new.csv", "--costs", "german.toml", "--base-rate", "0.3", "-o", "g.csv"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(err.contains("decline when p(defaulted) >= 0.166667"), "{err}");
+    // A class the target does not have, and a column the data does not have.
+    write(dir.path(), "bad.toml", b"[actions.approve]\ngood = 0\ndefaulted = 5\n");
+    let (code, _, err) = run(dir.path(), &["score", "m.json", "new.csv", "--costs", "bad.toml", "-o", "x.csv"]);
+    assert_eq!(code, 1);
+    assert!(err.contains("bad.toml") && err.contains("'good' is not a class"), "{err}");
+    write(dir.path(), "nocol.toml", LENDING_COSTS.replace("amount_requested", "loan_size").as_bytes());
+    let (code, _, err) = run(dir.path(), &["score", "m.json", "new.csv", "--costs", "nocol.toml", "-o", "x.csv"]);
+    assert_eq!(code, 1);
+    assert!(err.contains("loan_size"), "{err}");
+    assert!(!dir.path().join("x.csv").exists());
+
+    let mut args = vec!["compare"];
+    args.extend(LENDING);
+    args.extend(["--family", "lda", "--family", "logistic", "--costs", "german.toml", "--json", "-"]);
+    let (code, out, err) = run(dir.path(), &args);
+    assert_eq!(code, 0, "{err}");
+    let v: Value = serde_json::from_str(&out).expect("json");
+    let m = &v["results"][0]["metrics"];
+    assert!(m["expected_cost"].as_f64().is_some_and(|c| c > 0.0 && c < 1.0), "{m}");
+    assert!((m["theoretical_cutoff"].as_f64().unwrap_or(0.0) - 1.0 / 6.0).abs() < 1e-12);
+    assert!(m["best_cutoff_on_holdout"].is_number());
+}

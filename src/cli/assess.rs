@@ -162,8 +162,20 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         segments: segments.as_deref().map(|v| (args.evaluation.by.as_deref().unwrap_or(""), v)),
         split: "scores made elsewhere, every row".into(),
     };
-    let evaluation = evaluate(&scores, &options);
+    let mut evaluation = evaluate(&scores, &options);
     let reweighted = target_prior.as_ref().map(|to| evaluate_reweighted(&scores, &options, to));
+    let cost_table = match &args.evaluation.costs {
+        Some(path) => {
+            let inputs = crate::cli::compare::read_costs(path, &dataset)?;
+            crate::cli::compare::costs_text(&crate::cli::compare::apply_costs(
+                &inputs,
+                &scores,
+                &options,
+                &mut evaluation,
+            ))
+        }
+        None => String::new(),
+    };
     if let Some(path) = &args.evaluation.json {
         let mut value = serde_json::to_value(&evaluation).map_err(|e| Error::Usage(e.to_string()))?;
         if let (Some(to), Some(r)) = (&target_prior, &reweighted) {
@@ -181,14 +193,15 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     if args.evaluation.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
         return Ok(ExitCode::SUCCESS);
     }
-    print!(
-        "{}",
-        crate::cli::compare::with_reweighted(
-            evaluation_text(&evaluation),
-            target_prior.as_deref(),
-            reweighted.as_ref(),
-            &target.classes
-        )
+    let text = crate::cli::compare::with_reweighted(
+        evaluation_text(&evaluation),
+        target_prior.as_deref(),
+        reweighted.as_ref(),
+        &target.classes,
     );
+    match text.find("Caution:") {
+        Some(at) if !cost_table.is_empty() => print!("{}{cost_table}\n{}", &text[..at], &text[at..]),
+        _ => print!("{text}"),
+    }
     Ok(ExitCode::SUCCESS)
 }

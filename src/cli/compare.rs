@@ -87,12 +87,99 @@ pub struct EvaluationArgs {
     /// Binary shorthand for --prior POSITIVE=P,OTHER=1-P.
     #[arg(long, value_name = "P")]
     pub base_rate: Option<f64>,
+    /// A loss specification (TOML): the Bayes-rule decisions and what they cost on the tested rows.
+    #[arg(long, value_name = "FILE")]
+    pub costs: Option<PathBuf>,
     /// Write every figure as JSON to FILE (`-` for stdout).
     #[arg(long, value_name = "FILE")]
     pub json: Option<PathBuf>,
     /// Write a self-contained HTML report to FILE.
     #[arg(long, value_name = "FILE")]
     pub report: Option<PathBuf>,
+}
+
+/// The costs file and the values of the columns it reads (taken before
+/// the inputs matrix is freed).
+pub type CostInputs = (crate::decide::CostSpec, Vec<(String, Vec<f64>)>);
+
+/// Reads a costs file and the columns it uses.
+pub fn read_costs(path: &std::path::Path, dataset: &Dataset) -> crate::Result<CostInputs> {
+    let shown = path.display().to_string();
+    let text = std::fs::read_to_string(path).map_err(|e| Error::io(&shown, e))?;
+    let spec = crate::decide::CostSpec::parse(&shown, &text, &dataset.schema.target.classes)?;
+    let mut columns: Vec<(String, Vec<f64>)> = Vec::new();
+    for column in spec.columns() {
+        let values = column_text(dataset, &column).ok_or_else(|| Error::SchemaMismatch {
+            path: shown.clone(),
+            message: format!("the costs use column '{column}', which the data does not have (or which was excluded)"),
+        })?;
+        let parsed: Option<Vec<f64>> = values
+            .iter()
+            .map(|v| crate::data::number::parse_f64(v.trim().as_bytes()).filter(|x| x.is_finite()))
+            .collect();
+        let parsed = parsed.ok_or_else(|| Error::SchemaMismatch {
+            path: shown.clone(),
+            message: format!("the costs use column '{column}', which is not numeric"),
+        })?;
+        columns.push((column, parsed));
+    }
+    Ok((spec, columns))
+}
+
+/// Computes what every result's decisions cost on the tested rows and adds
+/// `expected_cost` (mean cost per row) and the rest to each result's metrics.
+pub fn apply_costs(
+    (spec, columns): &CostInputs,
+    scores: &[TestedScore],
+    options: &EvaluationOptions<'_>,
+    evaluation: &mut crate::evaluate::compare::Evaluation,
+) -> Vec<crate::evaluate::compare::CostFigures> {
+    let figures = crate::evaluate::compare::cost_figures(scores, options, spec, &|c, r| {
+        columns.iter().find(|(n, _)| n == c).map_or(0.0, |(_, v)| v[r])
+    });
+    for f in &figures {
+        if let Some(r) = evaluation.results.iter_mut().find(|r| r.name == f.name) {
+            if let (Some(object), Ok(serde_json::Value::Object(extra))) =
+                (r.metrics.as_object_mut(), serde_json::to_value(f))
+            {
+                for (key, value) in extra {
+                    if key != "name" {
+                        object.insert(key, value);
+                    }
+                }
+            }
+        }
+    }
+    figures
+}
+
+/// The decisions table for the terminal.
+pub fn costs_text(figures: &[crate::evaluate::compare::CostFigures]) -> String {
+    use crate::report::table::{Align, Table};
+    let mut table = Table::new(&[
+        ("name", Align::Left),
+        ("cost per row", Align::Right),
+        ("± SE", Align::Right),
+        ("total", Align::Right),
+        ("cutoff (theory)", Align::Right),
+        ("cutoff (best here)", Align::Right),
+        ("actions", Align::Left),
+    ]);
+    for f in figures {
+        table.row(vec![
+            f.name.clone(),
+            format!("{:.4}", f.expected_cost),
+            format!("{:.4}", f.expected_cost_se),
+            format!("{:.2}", f.total_cost),
+            f.theoretical_cutoff.map_or("–".into(), |c| format!("{c:.4}")),
+            f.best_cutoff_on_holdout.map_or("–".into(), |c| format!("{c:.4}")),
+            f.actions.iter().map(|(a, n)| format!("{a} {n:.0}")).collect::<Vec<_>>().join(", "),
+        ]);
+    }
+    format!(
+        "\ndecisions under the costs (realised cost of the Bayes-rule action on the tested rows):\n{}",
+        table.render()
+    )
 }
 
 /// The terminal text with the reweighted figures after the measured ones,
@@ -179,7 +266,7 @@ pub fn column_text(dataset: &Dataset, column: &str) -> Option<Vec<String>> {
         return Some(dataset.categorical[c].iter().map(|&code| levels[code as usize].clone()).collect());
     }
     let j = dataset.schema.numeric_inputs().iter().position(|n| n == column)?;
-    Some(dataset.numeric.column(j).iter().map(|v| format!("{v}")).collect())
+    (j < dataset.numeric.ncols()).then(|| dataset.numeric.column(j).iter().map(|v| format!("{v}")).collect())
 }
 
 /// Runs `compare`.
@@ -351,6 +438,10 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
     // What the evaluation does not need is freed first: the inputs matrix
     // and the full posterior tables (the scores keep the log odds).
     drop(predictions);
+    let cost_inputs = match &args.evaluation.costs {
+        Some(path) => Some(read_costs(path, &dataset)?),
+        None => None,
+    };
     dataset.numeric = ndarray::Array2::zeros((0, 0));
     let options = EvaluationOptions {
         target: &dataset.target,
@@ -368,6 +459,10 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
     // class (importance weights π′ₖ/πₖ, π the tested rows' class mix), so
     // they describe a portfolio at the target mix.
     let reweighted = target_prior.as_ref().map(|to| evaluate_reweighted(&scores, &options, to));
+    let cost_table = match &cost_inputs {
+        Some(inputs) => costs_text(&apply_costs(inputs, &scores, &options, &mut evaluation)),
+        None => String::new(),
+    };
     if k > 2 {
         evaluation.set_multiclass(multiclass_figures);
     }
@@ -408,6 +503,10 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
     }
     let text =
         with_reweighted(evaluation_text(&evaluation), target_prior.as_deref(), reweighted.as_ref(), &target.classes);
+    let text = match text.find("Caution:") {
+        Some(at) if !cost_table.is_empty() => format!("{}{cost_table}\n{}", &text[..at], &text[at..]),
+        _ => text,
+    };
     match text.find(crate::CAUTION.split_whitespace().next().unwrap_or("Caution:")) {
         Some(at) if !caution => print!("{}", &text[..at]),
         _ => print!("{text}"),

@@ -90,18 +90,20 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
                 if let Some(j) = numeric_inputs.iter().position(|n| *n == column) {
                     columns.push((column, data.numeric.column(j).to_vec()));
                 } else {
-                    let values = &data.ids.iter().find(|(n, _)| *n == column).map(|(_, v)| v.clone()).unwrap_or_default();
+                    let values =
+                        &data.ids.iter().find(|(n, _)| *n == column).map(|(_, v)| v.clone()).unwrap_or_default();
                     let mut parsed = Vec::with_capacity(values.len());
                     for (r, v) in values.iter().enumerate() {
                         match crate::data::number::parse_f64(v.trim().as_bytes()).filter(|x| x.is_finite()) {
                             Some(x) => parsed.push(x),
-                            None => {
-                                return Err(crate::Error::SchemaMismatch {
-                                    path: args.data.display().to_string(),
-                                    message: format!("the costs use column '{column}', whose value '{v}' in data row {} is not a number", r + 1),
-                                }
-                                .into())
+                            None => return Err(crate::Error::SchemaMismatch {
+                                path: args.data.display().to_string(),
+                                message: format!(
+                                    "the costs use column '{column}', whose value '{v}' in data row {} is not a number",
+                                    r + 1
+                                ),
                             }
+                            .into()),
                         }
                     }
                     columns.push((column, parsed));
@@ -159,7 +161,11 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             .map(|(a, action)| format!("{} {}", action.name, d.action.iter().filter(|&&x| x == a).count()))
             .collect();
         let total: f64 = d.expected_cost.iter().sum();
-        eprintln!("decisions: {}; total expected cost {total:.2} ({:.4} per row)", counts.join(", "), total / data.rows().max(1) as f64);
+        eprintln!(
+            "decisions: {}; total expected cost {total:.2} ({:.4} per row)",
+            counts.join(", "),
+            total / data.rows().max(1) as f64
+        );
         if let Some((action, cutoff)) = spec.cutoff(positive) {
             let base = file.calibrated_to()[positive];
             let on_model_scale = if (prior[positive] - base).abs() > 1e-12 {

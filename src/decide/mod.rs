@@ -62,7 +62,8 @@ fn bad(path: &str, message: String) -> Error {
 impl CostSpec {
     /// Parses the TOML form of the command-line contract for these classes.
     pub fn parse(path: &str, text: &str, classes: &[String]) -> Result<CostSpec> {
-        let value: toml::Table = text.parse().map_err(|e: toml::de::Error| bad(path, format!("not a valid costs file: {e}")))?;
+        let value: toml::Table =
+            text.parse().map_err(|e: toml::de::Error| bad(path, format!("not a valid costs file: {e}")))?;
         let actions = value
             .get("actions")
             .and_then(|a| a.as_table())
@@ -78,14 +79,19 @@ impl CostSpec {
             for (key, entry) in table {
                 match key.as_str() {
                     "capacity" => {
-                        let n = entry.as_integer().ok_or_else(|| bad(path, format!("{name}: capacity must be a whole number")))?;
+                        let n = entry
+                            .as_integer()
+                            .ok_or_else(|| bad(path, format!("{name}: capacity must be a whole number")))?;
                         if n < 0 {
                             return Err(bad(path, format!("{name}: capacity must not be negative")));
                         }
                         capacity = Some(Capacity::Rows(n as u64));
                     }
                     "capacity_share" => {
-                        let s = entry.as_float().or_else(|| entry.as_integer().map(|i| i as f64)).ok_or_else(|| bad(path, format!("{name}: capacity_share must be a number")))?;
+                        let s = entry
+                            .as_float()
+                            .or_else(|| entry.as_integer().map(|i| i as f64))
+                            .ok_or_else(|| bad(path, format!("{name}: capacity_share must be a number")))?;
                         if !(0.0..=1.0).contains(&s) {
                             return Err(bad(path, format!("{name}: capacity_share must lie in [0, 1]")));
                         }
@@ -93,7 +99,10 @@ impl CostSpec {
                     }
                     class => {
                         let k = classes.iter().position(|c| c == class).ok_or_else(|| {
-                            bad(path, format!("{name}: '{class}' is not a class of the target ({})", classes.join(", ")))
+                            bad(
+                                path,
+                                format!("{name}: '{class}' is not a class of the target ({})", classes.join(", ")),
+                            )
                         })?;
                         let number = |v: &toml::Value| v.as_float().or_else(|| v.as_integer().map(|i| i as f64));
                         let cost = if let Some(x) = number(entry) {
@@ -101,18 +110,30 @@ impl CostSpec {
                         } else if let Some(t) = entry.as_table() {
                             for k in t.keys() {
                                 if !["fixed", "rate", "column"].contains(&k.as_str()) {
-                                    return Err(bad(path, format!("{name}.{class}: unknown key '{k}' (fixed, rate, column)")));
+                                    return Err(bad(
+                                        path,
+                                        format!("{name}.{class}: unknown key '{k}' (fixed, rate, column)"),
+                                    ));
                                 }
                             }
-                            let fixed = t.get("fixed").map_or(Some(0.0), number).ok_or_else(|| bad(path, format!("{name}.{class}: fixed must be a number")))?;
-                            let rate = t.get("rate").map_or(Some(0.0), number).ok_or_else(|| bad(path, format!("{name}.{class}: rate must be a number")))?;
+                            let fixed = t
+                                .get("fixed")
+                                .map_or(Some(0.0), number)
+                                .ok_or_else(|| bad(path, format!("{name}.{class}: fixed must be a number")))?;
+                            let rate = t
+                                .get("rate")
+                                .map_or(Some(0.0), number)
+                                .ok_or_else(|| bad(path, format!("{name}.{class}: rate must be a number")))?;
                             let column = t.get("column").map(|c| c.as_str().map(String::from)).unwrap_or(None);
                             if rate != 0.0 && column.is_none() {
                                 return Err(bad(path, format!("{name}.{class}: a rate needs a column")));
                             }
                             Cost { fixed, rate, column }
                         } else {
-                            return Err(bad(path, format!("{name}.{class}: a cost is a number or {{ fixed, rate, column }}")));
+                            return Err(bad(
+                                path,
+                                format!("{name}.{class}: a cost is a number or {{ fixed, rate, column }}"),
+                            ));
                         };
                         if !(cost.fixed.is_finite() && cost.rate.is_finite()) {
                             return Err(bad(path, format!("{name}.{class}: costs must be finite")));
@@ -124,7 +145,14 @@ impl CostSpec {
             let costs: Vec<Cost> = costs
                 .into_iter()
                 .enumerate()
-                .map(|(k, c)| c.ok_or_else(|| bad(path, format!("{name}: no cost for class '{}'; every action must name every class", classes[k]))))
+                .map(|(k, c)| {
+                    c.ok_or_else(|| {
+                        bad(
+                            path,
+                            format!("{name}: no cost for class '{}'; every action must name every class", classes[k]),
+                        )
+                    })
+                })
                 .collect::<Result<_>>()?;
             out.push(Action { name: name.clone(), costs, capacity });
         }
@@ -133,7 +161,8 @@ impl CostSpec {
 
     /// The columns the costs read.
     pub fn columns(&self) -> Vec<String> {
-        let mut columns: Vec<String> = self.actions.iter().flat_map(|a| a.costs.iter().filter_map(|c| c.column.clone())).collect();
+        let mut columns: Vec<String> =
+            self.actions.iter().flat_map(|a| a.costs.iter().filter_map(|c| c.column.clone())).collect();
         columns.sort();
         columns.dedup();
         columns
@@ -219,7 +248,8 @@ pub fn decide(spec: &CostSpec, costs: &[Vec<f64>]) -> Decisions {
         .collect();
     let mut closed = vec![false; m];
     let mut pinned = vec![false; n];
-    let first_open = |r: usize, closed: &[bool]| orders[r].iter().copied().find(|&a| !closed[a]).unwrap_or(orders[r][0]);
+    let first_open =
+        |r: usize, closed: &[bool]| orders[r].iter().copied().find(|&a| !closed[a]).unwrap_or(orders[r][0]);
     let mut choice: Vec<usize> = (0..n).map(|r| orders[r][0]).collect();
     for (a, action) in spec.actions.iter().enumerate() {
         let Some(capacity) = action.capacity else { continue };
@@ -274,10 +304,8 @@ mod tests {
         // i.e. p = 27/62.
         approx::assert_relative_eq!(cutoff_on_training_scale(cutoff, 0.3, 0.1), 27.0 / 62.0, max_relative = 1e-12);
         // Decisions agree with the cutoff on both sides of it.
-        let costs: Vec<Vec<f64>> = [0.16, 1.0 / 6.0 + 1e-9, 0.5]
-            .iter()
-            .map(|&p| spec.expected_costs(&[p, 1.0 - p], &|_| 0.0))
-            .collect();
+        let costs: Vec<Vec<f64>> =
+            [0.16, 1.0 / 6.0 + 1e-9, 0.5].iter().map(|&p| spec.expected_costs(&[p, 1.0 - p], &|_| 0.0)).collect();
         let d = decide(&spec, &costs);
         assert_eq!(d.action, vec![0, 1, 1]);
     }
@@ -290,7 +318,8 @@ mod tests {
         // At p(bad) = 0.8: approve 8, review 1, decline 0.4 -> decline. (By hand.)
         let text = "[actions.approve]\nbad = 10\ngood = 0\n[actions.review]\nbad = 1\ngood = 1\n[actions.decline]\nbad = 0\ngood = 2\n";
         let spec = CostSpec::parse("c.toml", text, &classes()).unwrap();
-        let costs: Vec<Vec<f64>> = [0.05, 0.3, 0.8].iter().map(|&p| spec.expected_costs(&[p, 1.0 - p], &|_| 0.0)).collect();
+        let costs: Vec<Vec<f64>> =
+            [0.05, 0.3, 0.8].iter().map(|&p| spec.expected_costs(&[p, 1.0 - p], &|_| 0.0)).collect();
         let d = decide(&spec, &costs);
         assert_eq!(d.action, vec![0, 1, 2]);
         approx::assert_relative_eq!(d.expected_cost[0], 0.5, max_relative = 1e-12);
@@ -304,8 +333,12 @@ mod tests {
         assert_eq!(spec.columns(), vec!["amount"]);
         let mut rng = crate::rng::Rng::new(9);
         let rows: Vec<(f64, f64)> = (0..200).map(|_| (rng.uniform() * 0.4, 100.0 + 5000.0 * rng.uniform())).collect();
-        let costs: Vec<Vec<f64>> = rows.iter().map(|&(p, amount)| spec.expected_costs(&[p, 1.0 - p], &|_| amount)).collect();
-        let free = decide(&CostSpec { actions: spec.actions.iter().map(|a| Action { capacity: None, ..a.clone() }).collect() }, &costs);
+        let costs: Vec<Vec<f64>> =
+            rows.iter().map(|&(p, amount)| spec.expected_costs(&[p, 1.0 - p], &|_| amount)).collect();
+        let free = decide(
+            &CostSpec { actions: spec.actions.iter().map(|a| Action { capacity: None, ..a.clone() }).collect() },
+            &costs,
+        );
         // Without capacity the chosen action is never dearer than another.
         for (r, row) in costs.iter().enumerate() {
             assert!(row.iter().all(|&c| free.expected_cost[r] <= c + 1e-12));

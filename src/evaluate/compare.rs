@@ -12,6 +12,8 @@
 //! and Brier score (with the first-order standard error beside them), and
 //! McNemar's test at the 0.5 rule.
 
+use std::collections::BTreeMap;
+
 use ndarray::Array2;
 use rayon::prelude::*;
 use serde::Serialize;
@@ -859,4 +861,107 @@ pub fn learning_curve(
         .collect();
     out.extend(computed);
     out
+}
+
+/// What a score's decisions cost on the tested rows, under a loss
+/// specification: the realised cost C(action, true class, row) of the
+/// Bayes-rule action, per row and in total.
+#[derive(Debug, Clone, Serialize)]
+pub struct CostFigures {
+    /// The result's name.
+    pub name: String,
+    /// Mean realised cost per tested row.
+    pub expected_cost: f64,
+    /// Its first-order standard error (per-row SD / √n).
+    pub expected_cost_se: f64,
+    /// Total realised cost over the tested rows.
+    pub total_cost: f64,
+    /// Rows per action.
+    pub actions: BTreeMap<String, f64>,
+    /// For two actions with fixed costs: the cutoff of the Bayes rule.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub theoretical_cutoff: Option<f64>,
+    /// The cutoff that minimised the realised cost on these rows.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub best_cutoff_on_holdout: Option<f64>,
+}
+
+/// Cost figures of each score. `values(column, row)` gives a row's value of
+/// a cost column; the posteriors are those of the scores (binary: from the
+/// log odds).
+pub fn cost_figures(
+    scores: &[TestedScore],
+    options: &EvaluationOptions<'_>,
+    spec: &crate::decide::CostSpec,
+    values: &dyn Fn(&str, usize) -> f64,
+) -> Vec<CostFigures> {
+    let positive = options.positive;
+    scores
+        .iter()
+        .map(|s| {
+            let rows = &s.rows[0];
+            let posterior = |z: f64| {
+                let p = 1.0 / (1.0 + (-z).exp());
+                let mut row = vec![0.0; 2];
+                row[positive] = p;
+                row[1 - positive] = 1.0 - p;
+                row
+            };
+            let costs: Vec<Vec<f64>> = rows
+                .iter()
+                .zip(&s.log_odds[0])
+                .map(|(&r, &z)| spec.expected_costs(&posterior(z), &|c| values(c, r)))
+                .collect();
+            let decisions = crate::decide::decide(spec, &costs);
+            let realised: Vec<f64> = rows
+                .iter()
+                .zip(&decisions.action)
+                .map(|(&r, &a)| {
+                    let c = &spec.actions[a].costs[options.target[r] as usize];
+                    c.fixed + c.column.as_deref().map_or(0.0, |col| c.rate * values(col, r))
+                })
+                .collect();
+            let w: Vec<f64> = rows.iter().map(|&r| options.weights.map_or(1.0, |w| w[r])).collect();
+            let total_weight: f64 = w.iter().sum();
+            let total: f64 = realised.iter().zip(&w).map(|(c, w)| c * w).sum();
+            let mean = total / total_weight;
+            let variance = realised.iter().zip(&w).map(|(c, w)| w * (c - mean).powi(2)).sum::<f64>()
+                / (total_weight - 1.0).max(1.0);
+            let mut actions = BTreeMap::new();
+            for (a, action) in spec.actions.iter().enumerate() {
+                let count: f64 = decisions.action.iter().zip(&w).filter(|(x, _)| **x == a).map(|(_, w)| w).sum();
+                actions.insert(action.name.clone(), count);
+            }
+            // The cutoff that minimises the realised cost, for the two-action
+            // fixed-cost case: sweep the sorted scores.
+            let theoretical = spec.cutoff(positive);
+            let best = theoretical.as_ref().map(|(name, _)| {
+                let a = spec.actions.iter().position(|x| &x.name == name).unwrap_or(0);
+                let b = 1 - a;
+                let cost = |action: usize, r: usize| spec.actions[action].costs[options.target[r] as usize].fixed;
+                let mut order: Vec<usize> = (0..rows.len()).collect();
+                order.sort_by(|&i, &j| s.log_odds[0][j].total_cmp(&s.log_odds[0][i]));
+                // Start with every row taking b; flag rows as `a` from the top.
+                let mut current: f64 = (0..rows.len()).map(|i| w[i] * cost(b, rows[i])).sum();
+                let (mut best_cost, mut best_z) = (current, f64::INFINITY);
+                for &i in &order {
+                    current += w[i] * (cost(a, rows[i]) - cost(b, rows[i]));
+                    if current < best_cost {
+                        best_cost = current;
+                        best_z = s.log_odds[0][i];
+                    }
+                }
+                1.0 / (1.0 + (-best_z).exp())
+            });
+            CostFigures {
+                name: s.name.clone(),
+                expected_cost: mean,
+                expected_cost_se: (variance / total_weight).sqrt(),
+                total_cost: total,
+                actions,
+                theoretical_cutoff: theoretical.map(|(_, c)| c),
+                best_cutoff_on_holdout: best,
+            }
+        })
+        .collect()
 }
