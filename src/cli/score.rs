@@ -96,14 +96,16 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
                     for (r, v) in values.iter().enumerate() {
                         match crate::data::number::parse_f64(v.trim().as_bytes()).filter(|x| x.is_finite()) {
                             Some(x) => parsed.push(x),
-                            None => return Err(crate::Error::SchemaMismatch {
-                                path: args.data.display().to_string(),
-                                message: format!(
+                            None => {
+                                return Err(crate::Error::SchemaMismatch {
+                                    path: args.data.display().to_string(),
+                                    message: format!(
                                     "the costs use column '{column}', whose value '{v}' in data row {} is not a number",
                                     r + 1
                                 ),
+                                }
+                                .into())
                             }
-                            .into()),
                         }
                     }
                     columns.push((column, parsed));

@@ -106,9 +106,51 @@ pub fn generate(seed: u64, size: DemoSize) -> Vec<DemoFile> {
             description: "the withheld outcomes, to check base-rate estimates against",
         },
         DemoFile {
+            path: "lending/costs.toml",
+            contents: LENDING_COSTS.to_string(),
+            description: "approve / refer / decline: what each action costs for each outcome",
+        },
+        DemoFile {
             path: "payments/transactions.csv",
             contents: payments_file,
             description: "Tarnwick Pay card-not-present transactions, September 2026 (target `label`)",
         },
+        DemoFile {
+            path: "payments/costs.toml",
+            contents: PAYMENTS_COSTS.to_string(),
+            description: "pass / step up / block: what each action costs for each outcome",
+        },
     ]
 }
+
+/// The lending scenario's loss specification (invented figures).
+pub const LENDING_COSTS: &str = r#"# Quillmere Lending: approve, refer to an underwriter, or decline.
+# Costs are positive, benefits negative; "repaid" and "defaulted" are the target's values.
+[actions.approve]
+repaid = 0
+defaulted = { fixed = 25, rate = 0.6, column = "amount_requested" }   # loss given default x amount
+
+[actions.refer]
+repaid = 40                       # an underwriter's time
+defaulted = 40
+capacity = 300                    # underwriters' hours per run
+
+[actions.decline]
+repaid = { rate = 0.08, column = "amount_requested" }    # margin forgone
+defaulted = 0
+"#;
+
+/// The payments scenario's loss specification (invented figures).
+pub const PAYMENTS_COSTS: &str = r#"# Tarnwick Pay: pass, step up authentication, or block.
+[actions.pass]
+genuine = 0
+fraud = { rate = 1.0, column = "amount" }                  # the amount is lost
+
+[actions.step_up]
+genuine = 1.5                                              # friction, some abandonment
+fraud = { fixed = 1.5, rate = 0.15, column = "amount" }    # most fraud fails the challenge
+
+[actions.block]
+genuine = { fixed = 5, rate = 0.03, column = "amount" }    # a lost sale and an annoyed customer
+fraud = 0
+"#;
