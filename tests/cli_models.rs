@@ -414,4 +414,13 @@ fn costs_drive_decisions_in_score_and_compare() {
     assert!(m["expected_cost"].as_f64().is_some_and(|c| c > 0.0 && c < 1.0), "{m}");
     assert!((m["theoretical_cutoff"].as_f64().unwrap_or(0.0) - 1.0 / 6.0).abs() < 1e-12);
     assert!(m["best_cutoff_on_holdout"].is_number());
+
+    // The report carries the same decisions as a table beside the cost curves.
+    let mut args = vec!["compare"];
+    args.extend(LENDING);
+    args.extend(["--family", "lda", "--costs", "german.toml", "--report", "r.html"]);
+    let (code, _, err) = run(dir.path(), &args);
+    assert_eq!(code, 0, "{err}");
+    let html = std::fs::read_to_string(dir.path().join("r.html")).unwrap_or_default();
+    assert!(html.contains("Decisions under the costs") && html.contains("data-chart=\"cost curves\""));
 }

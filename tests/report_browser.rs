@@ -27,11 +27,17 @@ fn the_report_renders_in_chromium() {
     assert!(output.status.success(), "{}", String::from_utf8_lossy(&output.stderr));
     let html = std::fs::read_to_string(dir.path().join("r.html")).expect("report");
     let charts = html.matches("<div class=\"chart\"").count();
-    // ROC, precision–recall, reliability, one score distribution per family, learning curve.
-    assert_eq!(charts, 3 + 4 + 1, "charts in the report");
-    for kind in
-        ["ROC curves", "precision–recall curves", "reliability diagram", "learning curve", "score distribution: qda"]
-    {
+    // ROC, precision–recall, reliability, cost curves, one score distribution
+    // per family, learning curve.
+    assert_eq!(charts, 4 + 4 + 1, "charts in the report");
+    for kind in [
+        "ROC curves",
+        "precision–recall curves",
+        "reliability diagram",
+        "cost curves",
+        "learning curve",
+        "score distribution: qda",
+    ] {
         assert!(html.contains(&format!("data-chart=\"{kind}\"")), "missing chart {kind}");
     }
     let profile = common::temp_dir();

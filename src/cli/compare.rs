@@ -150,6 +150,7 @@ pub fn apply_costs(
             }
         }
     }
+    evaluation.costs = figures.clone();
     figures
 }
 

@@ -434,6 +434,10 @@ pub struct Evaluation {
     /// Per-segment figures (`--by`).
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub segments: Vec<SegmentEntry>,
+    /// What each result's decisions cost (`--costs`); in JSON they are part
+    /// of each result's metrics.
+    #[serde(skip)]
+    pub costs: Vec<CostFigures>,
     /// The caution for credit and fraud decisions.
     pub caution: String,
 }
@@ -621,6 +625,7 @@ pub fn evaluate(scores: &[TestedScore], options: &EvaluationOptions<'_>) -> Eval
         paired,
         multiclass: Vec::new(),
         segments,
+        costs: Vec::new(),
         caution: crate::CAUTION.to_string(),
     }
 }

@@ -307,6 +307,41 @@ pub fn evaluation_html(e: &Evaluation, learning: &[LearningPoint], data_descript
                 .push((format!("score distribution: {}", r.name), distribution_chart(&r.name, &r.scores, &e.positive)));
         }
     }
+    // Cost curves (Drummond & Holte 2006, "Cost curves: an improved method
+    // for visualizing classifier performance", Machine Learning 65(1)): for
+    // each probability cost PC(+), the normalised expected cost of the best
+    // threshold, min over ROC points of (1 − TPR)·PC + FPR·(1 − PC).
+    let cost_curves: Lines = e
+        .results
+        .iter()
+        .filter_map(|r| {
+            let roc = &r.curves.as_ref()?.roc;
+            Some((
+                r.name.clone(),
+                (0..=100)
+                    .map(|i| {
+                        let pc = i as f64 / 100.0;
+                        let best =
+                            roc.iter().map(|p| (1.0 - p.y) * pc + p.x * (1.0 - pc)).fold(f64::INFINITY, f64::min);
+                        (pc, best)
+                    })
+                    .collect(),
+            ))
+        })
+        .collect();
+    charts.push((
+        "cost curves".into(),
+        line_chart(
+            "cost curves (lower envelope)",
+            "probability cost PC(+)",
+            "normalised expected cost",
+            0.0..1.0,
+            0.0..0.5,
+            &cost_curves,
+            false,
+            false,
+        ),
+    ));
     if !learning.is_empty() {
         let mut names: Vec<&String> = learning.iter().map(|p| &p.name).collect();
         names.dedup();
@@ -431,6 +466,22 @@ pub fn evaluation_html(e: &Evaluation, learning: &[LearningPoint], data_descript
             ));
         }
         html.push_str("</table>\n");
+    }
+    if !e.costs.is_empty() {
+        html.push_str("<h2>Decisions under the costs</h2>\n<p>The realised cost of each family's Bayes-rule decisions (the least expected cost per row) on the tested rows.</p>\n<table><tr><th class=\"l\">name</th><th>cost per row</th><th>± SE</th><th>total</th><th>cutoff (theory)</th><th>cutoff (best on these rows)</th><th class=\"l\">actions</th></tr>\n");
+        for f in &e.costs {
+            html.push_str(&format!(
+                "<tr><td class=\"l\">{}</td><td>{:.4}</td><td>{:.4}</td><td>{:.2}</td><td>{}</td><td>{}</td><td class=\"l\">{}</td></tr>\n",
+                escape(&f.name),
+                f.expected_cost,
+                f.expected_cost_se,
+                f.total_cost,
+                fixed(f.theoretical_cutoff, 4),
+                fixed(f.best_cutoff_on_holdout, 4),
+                escape(&f.actions.iter().map(|(a, n)| format!("{a} {n:.0}")).collect::<Vec<_>>().join(", ")),
+            ));
+        }
+        html.push_str(&format!("</table>\n<p class=\"caution\">{}</p>\n", escape(CAUTION)));
     }
     if !e.segments.is_empty() {
         html.push_str("<h2>Segments</h2>\n<p>What a fair-lending review asks for first: outcomes and flag rates by segment. The figures describe; they do not establish or exclude disparate impact, which is a legal question.</p>\n<table><tr><th class=\"l\">segment</th><th class=\"l\">name</th><th>rows</th><th>event rate</th><th>AUC</th><th>flag rate at 0.5</th><th>mean predicted</th></tr>\n");
