@@ -414,6 +414,20 @@ fn costs_drive_decisions_in_score_and_compare() {
     assert!(m["expected_cost"].as_f64().is_some_and(|c| c > 0.0 && c < 1.0), "{m}");
     assert!((m["theoretical_cutoff"].as_f64().unwrap_or(0.0) - 1.0 / 6.0).abs() < 1e-12);
     assert!(m["best_cutoff_on_holdout"].is_number());
+    let ci = &m["expected_cost_ci"];
+    let cost = m["expected_cost"].as_f64().unwrap_or(f64::NAN);
+    assert!(ci[0].as_f64().unwrap_or(f64::NAN) <= cost && cost <= ci[1].as_f64().unwrap_or(f64::NAN), "{ci}");
+    // Cutoff table: approvals grow with the cutoff; at p* the two-action
+    // cutoff rule is the Bayes rule, so its cost is the realised cost; no
+    // cutoff in the table beats the best one found on these rows.
+    let table = m["cutoff_table"].as_array().cloned().unwrap_or_default();
+    let field = |r: &Value, k: &str| r[k].as_f64().unwrap_or(f64::NAN);
+    assert!(table.windows(2).all(|p| field(&p[0], "approval_rate") <= field(&p[1], "approval_rate")));
+    let at_theory = table.iter().find(|r| (field(r, "cutoff") - 1.0 / 6.0).abs() < 1e-12).expect("p* in the table");
+    assert!((field(at_theory, "expected_cost") - cost).abs() < 1e-12);
+    let best = m["best_cutoff_on_holdout"].as_f64().unwrap_or(f64::NAN);
+    let at_best = table.iter().find(|r| (field(r, "cutoff") - best).abs() < 1e-12).expect("best in the table");
+    assert!(table.iter().all(|r| field(at_best, "expected_cost") <= field(r, "expected_cost") + 1e-12));
 
     // The report carries the same decisions as a table beside the cost curves.
     let mut args = vec!["compare"];

@@ -879,8 +879,15 @@ pub struct CostFigures {
     pub expected_cost: f64,
     /// Its first-order standard error (per-row SD / √n).
     pub expected_cost_se: f64,
+    /// A 95% interval for the cost per row (see `cost_interval_method`).
+    pub expected_cost_ci: [f64; 2],
     /// Total realised cost over the tested rows.
     pub total_cost: f64,
+    /// The same interval for the total (the per-row interval × the rows' weight).
+    pub total_cost_ci: [f64; 2],
+    /// How the intervals were found: a seeded bootstrap over rows, or the
+    /// normal interval above [`BOOTSTRAP_ROW_LIMIT`] rows.
+    pub cost_interval_method: String,
     /// Rows per action.
     pub actions: BTreeMap<String, f64>,
     /// For two actions with fixed costs: the cutoff of the Bayes rule.
@@ -889,6 +896,55 @@ pub struct CostFigures {
     /// The cutoff that minimised the realised cost on these rows.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub best_cutoff_on_holdout: Option<f64>,
+    /// The decisions at a ladder of posterior cutoffs.
+    pub cutoff_table: Vec<CutoffRow>,
+}
+
+/// One line of the cutoff table. At cutoff t a row whose posterior of the
+/// positive class is below t is approved: it takes the action that costs
+/// least when the row is truly negative, the rest take the action that costs
+/// least when it is truly positive (each judged with the row's own costs).
+/// With two actions and fixed costs this is exactly the cutoff rule.
+#[derive(Debug, Clone, Serialize)]
+pub struct CutoffRow {
+    /// The posterior cutoff t.
+    pub cutoff: f64,
+    /// Weighted share of tested rows below t.
+    pub approval_rate: f64,
+    /// Share of positives among the approved rows (none when none approved).
+    pub bad_rate_among_approved: Option<f64>,
+    /// Realised cost per row of the rule at t.
+    pub expected_cost: f64,
+}
+
+/// Cutoffs every table shows, beside the theoretical and the best one.
+const CUTOFF_LADDER: [f64; 11] = [0.01, 0.02, 0.05, 0.1, 0.15, 0.2, 0.25, 0.3, 0.4, 0.5, 0.7];
+
+/// The 95% percentile interval of a weighted mean from `draws` seeded
+/// bootstrap resamples of the rows, or the normal interval when `draws` is 0.
+fn mean_interval(values: &[f64], w: &[f64], draws: usize, seed: u64, se: f64, mean: f64) -> ([f64; 2], String) {
+    if draws == 0 || values.is_empty() {
+        return (
+            [mean - NORMAL_975 * se, mean + NORMAL_975 * se],
+            "normal, from the first-order standard error".into(),
+        );
+    }
+    let mut rng = Rng::new(seed);
+    let n = values.len();
+    let mut means: Vec<f64> = (0..draws)
+        .map(|_| {
+            let (mut sum, mut weight) = (0.0, 0.0);
+            for _ in 0..n {
+                let i = (rng.next_u64() % n as u64) as usize;
+                sum += w[i] * values[i];
+                weight += w[i];
+            }
+            sum / weight
+        })
+        .collect();
+    means.sort_by(f64::total_cmp);
+    let at = |q: f64| means[((q * (draws - 1) as f64).round() as usize).min(draws - 1)];
+    ([at(0.025), at(0.975)], format!("bootstrap over rows, {draws} draws, seed {seed}"))
 }
 
 /// Cost figures of each score. `values(column, row)` gives a row's value of
@@ -958,14 +1014,68 @@ pub fn cost_figures(
                 }
                 1.0 / (1.0 + (-best_z).exp())
             });
+            let se = (variance / total_weight).sqrt();
+            let draws = options.bootstrap.unwrap_or(if rows.len() <= BOOTSTRAP_ROW_LIMIT { 200 } else { 0 });
+            let (ci, method) = mean_interval(&realised, &w, draws, options.seed, se, mean);
+            // The cutoff table: per row, the realised cost of the action for a
+            // certain negative and for a certain positive.
+            let realised_of = |action: usize, r: usize| {
+                let c = &spec.actions[action].costs[options.target[r] as usize];
+                c.fixed + c.column.as_deref().map_or(0.0, |col| c.rate * values(col, r))
+            };
+            let cheapest_for = |class: usize, r: usize| {
+                (0..spec.actions.len())
+                    .min_by(|&a, &b| {
+                        let cost = |x: usize| {
+                            let c = &spec.actions[x].costs[class];
+                            c.fixed + c.column.as_deref().map_or(0.0, |col| c.rate * values(col, r))
+                        };
+                        cost(a).total_cmp(&cost(b))
+                    })
+                    .unwrap_or(0)
+            };
+            let mut cutoffs: Vec<f64> = CUTOFF_LADDER.to_vec();
+            cutoffs.extend(theoretical.as_ref().map(|(_, c)| *c));
+            cutoffs.extend(best);
+            cutoffs.sort_by(f64::total_cmp);
+            cutoffs.dedup_by(|a, b| (*a - *b).abs() < 1e-12);
+            let probabilities: Vec<f64> = s.log_odds[0].iter().map(|&z| 1.0 / (1.0 + (-z).exp())).collect();
+            let cutoff_table = cutoffs
+                .into_iter()
+                .filter(|t| t.is_finite())
+                .map(|t| {
+                    let (mut approved, mut approved_bad, mut cost) = (0.0, 0.0, 0.0);
+                    for (i, &r) in rows.iter().enumerate() {
+                        if probabilities[i] < t {
+                            approved += w[i];
+                            if options.target[r] as usize == positive {
+                                approved_bad += w[i];
+                            }
+                            cost += w[i] * realised_of(cheapest_for(1 - positive, r), r);
+                        } else {
+                            cost += w[i] * realised_of(cheapest_for(positive, r), r);
+                        }
+                    }
+                    CutoffRow {
+                        cutoff: t,
+                        approval_rate: approved / total_weight,
+                        bad_rate_among_approved: (approved > 0.0).then(|| approved_bad / approved),
+                        expected_cost: cost / total_weight,
+                    }
+                })
+                .collect();
             CostFigures {
                 name: s.name.clone(),
                 expected_cost: mean,
-                expected_cost_se: (variance / total_weight).sqrt(),
+                expected_cost_se: se,
+                expected_cost_ci: ci,
                 total_cost: total,
+                total_cost_ci: [ci[0] * total_weight, ci[1] * total_weight],
+                cost_interval_method: method,
                 actions,
                 theoretical_cutoff: theoretical.map(|(_, c)| c),
                 best_cutoff_on_holdout: best,
+                cutoff_table,
             }
         })
         .collect()

@@ -468,18 +468,37 @@ pub fn evaluation_html(e: &Evaluation, learning: &[LearningPoint], data_descript
         html.push_str("</table>\n");
     }
     if !e.costs.is_empty() {
-        html.push_str("<h2>Decisions under the costs</h2>\n<p>The realised cost of each family's Bayes-rule decisions (the least expected cost per row) on the tested rows.</p>\n<table><tr><th class=\"l\">name</th><th>cost per row</th><th>± SE</th><th>total</th><th>cutoff (theory)</th><th>cutoff (best on these rows)</th><th class=\"l\">actions</th></tr>\n");
+        html.push_str("<h2>Decisions under the costs</h2>\n<p>The realised cost of each family's Bayes-rule decisions (the least expected cost per row) on the tested rows.</p>\n<table><tr><th class=\"l\">name</th><th>cost per row</th><th>± SE</th><th>95% interval</th><th>total</th><th>cutoff (theory)</th><th>cutoff (best on these rows)</th><th class=\"l\">actions</th></tr>\n");
         for f in &e.costs {
             html.push_str(&format!(
-                "<tr><td class=\"l\">{}</td><td>{:.4}</td><td>{:.4}</td><td>{:.2}</td><td>{}</td><td>{}</td><td class=\"l\">{}</td></tr>\n",
+                "<tr><td class=\"l\">{}</td><td>{:.4}</td><td>{:.4}</td><td>{:.4} – {:.4}</td><td>{:.2}</td><td>{}</td><td>{}</td><td class=\"l\">{}</td></tr>\n",
                 escape(&f.name),
                 f.expected_cost,
                 f.expected_cost_se,
+                f.expected_cost_ci[0],
+                f.expected_cost_ci[1],
                 f.total_cost,
                 fixed(f.theoretical_cutoff, 4),
                 fixed(f.best_cutoff_on_holdout, 4),
                 escape(&f.actions.iter().map(|(a, n)| format!("{a} {n:.0}")).collect::<Vec<_>>().join(", ")),
             ));
+        }
+        html.push_str("</table>\n");
+        if let Some(f) = e.costs.first() {
+            html.push_str(&format!("<p>Intervals: {}.</p>\n", escape(&f.cost_interval_method)));
+        }
+        html.push_str("<h3>Cutoff table</h3>\n<p>At each cutoff on the posterior of the positive class, rows below it are approved (the action that costs least for a negative row) and the rest take the action that costs least for a positive row.</p>\n<table><tr><th class=\"l\">name</th><th>cutoff</th><th>approval rate</th><th>bad rate among approved</th><th>cost per row</th></tr>\n");
+        for f in &e.costs {
+            for row in &f.cutoff_table {
+                html.push_str(&format!(
+                    "<tr><td class=\"l\">{}</td><td>{:.4}</td><td>{:.2}%</td><td>{}</td><td>{:.4}</td></tr>\n",
+                    escape(&f.name),
+                    row.cutoff,
+                    100.0 * row.approval_rate,
+                    row.bad_rate_among_approved.map_or("–".into(), |b| format!("{:.2}%", 100.0 * b)),
+                    row.expected_cost,
+                ));
+            }
         }
         html.push_str(&format!("</table>\n<p class=\"caution\">{}</p>\n", escape(CAUTION)));
     }
