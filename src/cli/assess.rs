@@ -172,6 +172,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
                 &scores,
                 &options,
                 &mut evaluation,
+                None,
             ))
         }
         None => String::new(),

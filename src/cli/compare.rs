@@ -128,15 +128,21 @@ pub fn read_costs(path: &std::path::Path, dataset: &Dataset) -> crate::Result<Co
 
 /// Computes what every result's decisions cost on the tested rows and adds
 /// `expected_cost` (mean cost per row) and the rest to each result's metrics.
+/// `fold_of`: each row's test fold, so capacity applies per fold.
 pub fn apply_costs(
     (spec, columns): &CostInputs,
     scores: &[TestedScore],
     options: &EvaluationOptions<'_>,
     evaluation: &mut crate::evaluate::compare::Evaluation,
+    fold_of: Option<&[u32]>,
 ) -> Vec<crate::evaluate::compare::CostFigures> {
-    let figures = crate::evaluate::compare::cost_figures(scores, options, spec, &|c, r| {
-        columns.iter().find(|(n, _)| n == c).map_or(0.0, |(_, v)| v[r])
-    });
+    let figures = crate::evaluate::compare::cost_figures(
+        scores,
+        options,
+        spec,
+        &|c, r| columns.iter().find(|(n, _)| n == c).map_or(0.0, |(_, v)| v[r]),
+        fold_of,
+    );
     for f in &figures {
         if let Some(r) = evaluation.results.iter_mut().find(|r| r.name == f.name) {
             if let (Some(object), Ok(serde_json::Value::Object(extra))) =
@@ -463,7 +469,13 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
     // they describe a portfolio at the target mix.
     let reweighted = target_prior.as_ref().map(|to| evaluate_reweighted(&scores, &options, to));
     let cost_table = match &cost_inputs {
-        Some(inputs) => costs_text(&apply_costs(inputs, &scores, &options, &mut evaluation)),
+        Some(inputs) => costs_text(&apply_costs(
+            inputs,
+            &scores,
+            &options,
+            &mut evaluation,
+            assignment.folds.first().map(Vec::as_slice),
+        )),
         None => String::new(),
     };
     if k > 2 {

@@ -12,6 +12,8 @@
 //! it are ranked by their expected saving over their next-best action, the
 //! largest savings keep it, and the rest take their next-best action.
 
+use std::collections::BTreeMap;
+
 use serde::Serialize;
 
 use crate::error::{Error, Result};
@@ -279,6 +281,44 @@ pub fn decide(spec: &CostSpec, costs: &[Vec<f64>]) -> Decisions {
     Decisions { action: choice, expected_cost }
 }
 
+/// [`decide`] within each group of rows separately (`group[r]` names row
+/// r's group, e.g. its test fold): `capacity_share` applies to each group,
+/// and `capacity = N` is scaled to the group's share of the rows (rounded
+/// down, so the groups together never exceed N).
+pub fn decide_in_groups(spec: &CostSpec, costs: &[Vec<f64>], group: &[u32]) -> Decisions {
+    let n = costs.len();
+    let mut members: BTreeMap<u32, Vec<usize>> = BTreeMap::new();
+    for (r, &g) in group.iter().enumerate().take(n) {
+        members.entry(g).or_default().push(r);
+    }
+    let mut action = vec![0; n];
+    let mut expected_cost = vec![0.0; n];
+    for rows in members.values() {
+        let scaled = CostSpec {
+            actions: spec
+                .actions
+                .iter()
+                .map(|a| Action {
+                    capacity: a.capacity.map(|c| match c {
+                        Capacity::Rows(count) => {
+                            Capacity::Rows((count as f64 * rows.len() as f64 / n as f64).floor() as u64)
+                        }
+                        share => share,
+                    }),
+                    ..a.clone()
+                })
+                .collect(),
+        };
+        let part: Vec<Vec<f64>> = rows.iter().map(|&r| costs[r].clone()).collect();
+        let d = decide(&scaled, &part);
+        for (k, &r) in rows.iter().enumerate() {
+            action[r] = d.action[k];
+            expected_cost[r] = d.expected_cost[k];
+        }
+    }
+    Decisions { action, expected_cost }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -360,6 +400,24 @@ mod tests {
             if free.action[r] == 1 && capped.action[r] != 1 {
                 assert!(saving(r) <= kept_min + 1e-12);
             }
+        }
+        // In groups (test folds): one group is the whole run; with five
+        // groups of 40 rows, `capacity = 2` scales to floor(2 × 40/200) = 0
+        // per group, and a share of 0.1 takes at most 4 rows in each.
+        assert_eq!(decide_in_groups(&spec, &costs, &vec![0; rows.len()]).action, capped.action);
+        let folds: Vec<u32> = (0..rows.len() as u32).map(|r| r % 5).collect();
+        assert!(!decide_in_groups(&spec, &costs, &folds).action.contains(&1));
+        let shared = CostSpec {
+            actions: spec
+                .actions
+                .iter()
+                .map(|a| Action { capacity: a.capacity.map(|_| Capacity::Share(0.1)), ..a.clone() })
+                .collect(),
+        };
+        let grouped = decide_in_groups(&shared, &costs, &folds);
+        for g in 0..5 {
+            let in_group = (0..rows.len()).filter(|&r| folds[r] == g && grouped.action[r] == 1).count();
+            assert!(in_group <= 4, "group {g}: {in_group}");
         }
     }
 

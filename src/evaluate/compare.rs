@@ -949,12 +949,14 @@ fn mean_interval(values: &[f64], w: &[f64], draws: usize, seed: u64, se: f64, me
 
 /// Cost figures of each score. `values(column, row)` gives a row's value of
 /// a cost column; the posteriors are those of the scores (binary: from the
-/// log odds).
+/// log odds). `fold_of[row]` (the first repeat's test fold) makes each fold
+/// a separate run for capacity limits.
 pub fn cost_figures(
     scores: &[TestedScore],
     options: &EvaluationOptions<'_>,
     spec: &crate::decide::CostSpec,
     values: &dyn Fn(&str, usize) -> f64,
+    fold_of: Option<&[u32]>,
 ) -> Vec<CostFigures> {
     let positive = options.positive;
     scores
@@ -973,7 +975,14 @@ pub fn cost_figures(
                 .zip(&s.log_odds[0])
                 .map(|(&r, &z)| spec.expected_costs(&posterior(z), &|c| values(c, r)))
                 .collect();
-            let decisions = crate::decide::decide(spec, &costs);
+            // Capacity is a per-run limit: each test fold is one run.
+            let decisions = match fold_of {
+                Some(folds) => {
+                    let group: Vec<u32> = rows.iter().map(|&r| folds[r]).collect();
+                    crate::decide::decide_in_groups(spec, &costs, &group)
+                }
+                None => crate::decide::decide(spec, &costs),
+            };
             let realised: Vec<f64> = rows
                 .iter()
                 .zip(&decisions.action)
