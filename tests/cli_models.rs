@@ -403,6 +403,11 @@ fn costs_drive_decisions_in_score_and_compare() {
     assert_eq!(code, 1);
     assert!(err.contains("loan_size"), "{err}");
     assert!(!dir.path().join("x.csv").exists());
+    // A capacity needs every row in hand: refused on stdin.
+    let (code, _, err) = run(dir.path(), &["score", "m.json", "-", "--costs", "costs.toml", "-o", "x.csv"]);
+    assert_ne!(code, 0);
+    assert!(err.contains("capacity") && err.contains("stdin"), "{err}");
+    assert!(!dir.path().join("x.csv").exists());
 
     let mut args = vec!["compare"];
     args.extend(LENDING);

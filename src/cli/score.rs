@@ -69,6 +69,15 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         }
         None => None,
     };
+    // A capacity ranks every row by its saving before any row is assigned,
+    // so it needs the whole input in hand: a file, not a stream.
+    if args.data.as_os_str() == "-" && spec.as_ref().is_some_and(|s| s.actions.iter().any(|a| a.capacity.is_some())) {
+        return Err(crate::Error::Usage(
+            "a capacity in the costs file needs every row before any is assigned; give the data as a file, not on stdin"
+                .into(),
+        )
+        .into());
+    }
     // Cost columns that are not numeric inputs of the model are read beside the ids.
     let numeric_inputs = file.schema.numeric_inputs();
     let mut ids = args.ids.clone();
