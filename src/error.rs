@@ -204,7 +204,7 @@ pub enum Error {
 
     /// A covariance matrix is singular: constant or collinear columns, or a
     /// class with too few rows.
-    #[error("the {family} fit failed: the covariance {whose} is singular (columns involved: {}); {hint}", .columns.join(", "))]
+    #[error("the {family} fit failed: the covariance {whose} is singular (columns involved: {}); {hint}", first_of(.columns))]
     SingularCovariance {
         /// The family being fitted.
         family: String,
@@ -320,3 +320,13 @@ impl Error {
 
 /// The library's result type.
 pub type Result<T, E = Error> = std::result::Result<T, E>;
+
+/// The first few names of a long list, and how many more: an error message
+/// stays readable when a high-cardinality column is behind it.
+fn first_of(names: &[String]) -> String {
+    const SHOWN: usize = 12;
+    if names.len() <= SHOWN {
+        return names.join(", ");
+    }
+    format!("{}, and {} more", names[..SHOWN].join(", "), names.len() - SHOWN)
+}

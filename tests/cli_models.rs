@@ -403,6 +403,10 @@ fn costs_drive_decisions_in_score_and_compare() {
     assert_eq!(code, 1);
     assert!(err.contains("loan_size"), "{err}");
     assert!(!dir.path().join("x.csv").exists());
+    write(dir.path(), "cat.toml", LENDING_COSTS.replace("amount_requested", "channel").as_bytes());
+    let (code, _, err) = run(dir.path(), &["score", "m.json", "new.csv", "--costs", "cat.toml", "-o", "x.csv"]);
+    assert_eq!(code, 1);
+    assert!(err.contains("cat.toml") && err.contains("'channel'") && err.contains("categorical"), "{err}");
     // A capacity needs every row in hand: refused on stdin.
     let (code, _, err) = run(dir.path(), &["score", "m.json", "-", "--costs", "costs.toml", "-o", "x.csv"]);
     assert_ne!(code, 0);

@@ -84,6 +84,14 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let extra: Vec<String> =
         spec.as_ref().map_or(Vec::new(), |s| s.columns().into_iter().filter(|c| !numeric_inputs.contains(c)).collect());
     for c in &extra {
+        // A categorical input cannot also be read as an amount.
+        if file.schema.categorical_inputs().iter().any(|k| k.name == *c) {
+            return Err(crate::Error::SchemaMismatch {
+                path: args.costs.as_ref().map(|p| p.display().to_string()).unwrap_or_default(),
+                message: format!("the costs use column '{c}', which the model reads as categorical, not numeric"),
+            }
+            .into());
+        }
         if !ids.contains(c) {
             ids.push(c.clone());
         }
