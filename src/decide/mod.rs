@@ -29,6 +29,13 @@ pub struct Cost {
     pub column: Option<String>,
 }
 
+impl Cost {
+    /// The cost for one row: fixed + rate × the row's value of the column.
+    pub fn for_row(&self, values: &dyn Fn(&str) -> f64) -> f64 {
+        self.fixed + self.column.as_deref().map_or(0.0, |col| self.rate * values(col))
+    }
+}
+
 /// A limit on how many rows may take an action.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 #[serde(rename_all = "snake_case")]
@@ -178,16 +185,7 @@ impl CostSpec {
     /// Expected cost of every action for one row: `values(column)` gives the
     /// row's value of a column.
     pub fn expected_costs(&self, posterior: &[f64], values: &dyn Fn(&str) -> f64) -> Vec<f64> {
-        self.actions
-            .iter()
-            .map(|a| {
-                a.costs
-                    .iter()
-                    .zip(posterior)
-                    .map(|(c, p)| p * (c.fixed + c.column.as_deref().map_or(0.0, |col| c.rate * values(col))))
-                    .sum()
-            })
-            .collect()
+        self.actions.iter().map(|a| a.costs.iter().zip(posterior).map(|(c, p)| p * c.for_row(values)).sum()).collect()
     }
 
     /// The equivalent posterior cutoff for two classes and two actions with

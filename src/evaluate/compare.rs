@@ -983,14 +983,12 @@ pub fn cost_figures(
                 }
                 None => crate::decide::decide(spec, &costs),
             };
-            let realised: Vec<f64> = rows
-                .iter()
-                .zip(&decisions.action)
-                .map(|(&r, &a)| {
-                    let c = &spec.actions[a].costs[options.target[r] as usize];
-                    c.fixed + c.column.as_deref().map_or(0.0, |col| c.rate * values(col, r))
-                })
-                .collect();
+            // C(action, class, row), the cost a decision realises.
+            let cost_of = |action: usize, class: usize, r: usize| {
+                spec.actions[action].costs[class].for_row(&|col| values(col, r))
+            };
+            let realised: Vec<f64> =
+                rows.iter().zip(&decisions.action).map(|(&r, &a)| cost_of(a, options.target[r] as usize, r)).collect();
             let w: Vec<f64> = rows.iter().map(|&r| options.weights.map_or(1.0, |w| w[r])).collect();
             let total_weight: f64 = w.iter().sum();
             let total: f64 = realised.iter().zip(&w).map(|(c, w)| c * w).sum();
@@ -1028,19 +1026,10 @@ pub fn cost_figures(
             let (ci, method) = mean_interval(&realised, &w, draws, options.seed, se, mean);
             // The cutoff table: per row, the realised cost of the action for a
             // certain negative and for a certain positive.
-            let realised_of = |action: usize, r: usize| {
-                let c = &spec.actions[action].costs[options.target[r] as usize];
-                c.fixed + c.column.as_deref().map_or(0.0, |col| c.rate * values(col, r))
-            };
+            let realised_of = |action: usize, r: usize| cost_of(action, options.target[r] as usize, r);
             let cheapest_for = |class: usize, r: usize| {
                 (0..spec.actions.len())
-                    .min_by(|&a, &b| {
-                        let cost = |x: usize| {
-                            let c = &spec.actions[x].costs[class];
-                            c.fixed + c.column.as_deref().map_or(0.0, |col| c.rate * values(col, r))
-                        };
-                        cost(a).total_cmp(&cost(b))
-                    })
+                    .min_by(|&a, &b| cost_of(a, class, r).total_cmp(&cost_of(b, class, r)))
                     .unwrap_or(0)
             };
             let mut cutoffs: Vec<f64> = CUTOFF_LADDER.to_vec();
