@@ -1012,11 +1012,15 @@ pub fn cost_figures(
                 // Start with every row taking b; flag rows as `a` from the top.
                 let mut current: f64 = (0..rows.len()).map(|i| w[i] * cost(b, rows[i])).sum();
                 let (mut best_cost, mut best_z) = (current, f64::INFINITY);
-                for &i in &order {
+                // Tied scores move together: a cutoff cannot split them, so
+                // a candidate is judged only after the last row of a tie.
+                for (k, &i) in order.iter().enumerate() {
                     current += w[i] * (cost(a, rows[i]) - cost(b, rows[i]));
-                    if current < best_cost {
+                    let z = s.log_odds[0][i];
+                    let tie_continues = order.get(k + 1).is_some_and(|&j| s.log_odds[0][j] == z);
+                    if !tie_continues && current < best_cost {
                         best_cost = current;
-                        best_z = s.log_odds[0][i];
+                        best_z = z;
                     }
                 }
                 1.0 / (1.0 + (-best_z).exp())
@@ -1077,4 +1081,49 @@ pub fn cost_figures(
             }
         })
         .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A cutoff cannot split rows with the same score: one bad row and six
+    /// good ones all at p = 0.5 under the German Credit costs (5 for
+    /// approving a bad, 1 for declining a good). Declining only the bad row
+    /// would cost 0 but no cutoff does that; declining all seven costs 6,
+    /// approving all costs 5 — so the best realisable cutoff approves all.
+    #[test]
+    fn the_best_cutoff_does_not_split_ties() {
+        let classes = vec!["bad".to_string(), "good".to_string()];
+        let text = "[actions.approve]\ngood = 0\nbad = 5\n[actions.decline]\ngood = 1\nbad = 0\n";
+        let spec = crate::decide::CostSpec::parse("c.toml", text, &classes).expect("spec");
+        let target = [0, 1, 1, 1, 1, 1, 1];
+        let options = EvaluationOptions {
+            target: &target,
+            positive: 0,
+            classes: &classes,
+            weights: None,
+            amounts: None,
+            bootstrap: Some(0),
+            seed: 1,
+            segments: None,
+            split: String::new(),
+        };
+        let score = TestedScore {
+            name: "tied".into(),
+            family: None,
+            log_odds: vec![vec![0.0; 7]],
+            rows: vec![(0..7).collect()],
+            kind: ScoreKind::Probability,
+            warnings: Vec::new(),
+        };
+        let figures = cost_figures(&[score], &options, &spec, &|_, _| 0.0, None);
+        let f = &figures[0];
+        // The Bayes rule at p = 0.5 >= 1/6 declines all seven: cost 6/7 per row.
+        approx::assert_relative_eq!(f.expected_cost, 6.0 / 7.0, max_relative = 1e-12);
+        assert_eq!(f.best_cutoff_on_holdout, Some(1.0));
+        let at_best = f.cutoff_table.iter().find(|r| r.cutoff == 1.0).expect("best in the table");
+        approx::assert_relative_eq!(at_best.expected_cost, 5.0 / 7.0, max_relative = 1e-12);
+        assert!(f.cutoff_table.iter().all(|r| at_best.expected_cost <= r.expected_cost + 1e-12));
+    }
 }
