@@ -239,6 +239,16 @@ fn multi_class_results_carry_one_vs_rest_aucs() {
     let m = &v["results"][0]["metrics"];
     assert!(m["auc_macro"].as_f64().unwrap_or(0.0) > 0.9);
     assert_eq!(m["auc_by_class"].as_object().map(|o| o.len()), Some(3));
+    // Cost figures are for two classes; three are refused, not half-used.
+    write(
+        dir.path(),
+        "c.toml",
+        b"[actions.keep]\nsetosa = 0\nversicolor = 1\nvirginica = 1\n[actions.drop]\nsetosa = 1\nversicolor = 0\nvirginica = 0\n",
+    );
+    let (code, _, err) =
+        run(dir.path(), &["compare", "iris.csv", "--target", "target", "--family", "lda", "--costs", "c.toml"]);
+    assert_ne!(code, 0);
+    assert!(err.contains("c.toml") && err.contains("two-class"), "{err}");
 }
 
 #[test]

@@ -107,6 +107,12 @@ pub fn read_costs(path: &std::path::Path, dataset: &Dataset) -> crate::Result<Co
     let shown = path.display().to_string();
     let text = std::fs::read_to_string(path).map_err(|e| Error::io(&shown, e))?;
     let spec = crate::decide::CostSpec::parse(&shown, &text, &dataset.schema.target.classes)?;
+    if dataset.schema.target.classes.len() != 2 {
+        return Err(Error::Usage(format!(
+            "{shown}: cost figures in compare and assess need a two-class target; this one has {} classes (score applies costs to any number)",
+            dataset.schema.target.classes.len()
+        )));
+    }
     let mut columns: Vec<(String, Vec<f64>)> = Vec::new();
     for column in spec.columns() {
         let values = column_text(dataset, &column).ok_or_else(|| Error::SchemaMismatch {

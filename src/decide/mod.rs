@@ -165,6 +165,13 @@ impl CostSpec {
                 .collect::<Result<_>>()?;
             out.push(Action { name: name.clone(), costs, capacity });
         }
+        // A row turned away by every capacity would have nowhere to go.
+        if !out.is_empty() && out.iter().all(|a| a.capacity.is_some()) {
+            return Err(bad(
+                path,
+                "every action has a capacity; leave at least one without, for the rows the others turn away".into(),
+            ));
+        }
         Ok(CostSpec { actions: out })
     }
 
@@ -194,7 +201,12 @@ impl CostSpec {
     /// p* = (A₋ − B₋)/((A₋ − B₋) + (B₊ − A₊)) (Elkan 2001), A that action
     /// and B the other, ₊/₋ the costs under each truth. `None` otherwise.
     pub fn cutoff(&self, positive: usize) -> Option<(String, f64)> {
-        if self.actions.len() != 2 || self.row_dependent() || self.actions[0].costs.len() != 2 {
+        // A capacity makes the rule depend on the other rows: no single cutoff.
+        if self.actions.len() != 2
+            || self.row_dependent()
+            || self.actions[0].costs.len() != 2
+            || self.actions.iter().any(|a| a.capacity.is_some())
+        {
             return None;
         }
         let negative = 1 - positive;
@@ -206,14 +218,21 @@ impl CostSpec {
         let gain_negative = a.costs[negative].fixed - b.costs[negative].fixed;
         let gain_positive = b.costs[positive].fixed - a.costs[positive].fixed;
         let denominator = gain_negative + gain_positive;
-        (denominator > 0.0).then(|| (a.name.clone(), gain_negative / denominator))
+        // Outside (0, 1) one action is never worse than the other: no cutoff.
+        let cutoff = gain_negative / denominator;
+        (denominator > 0.0 && cutoff > 0.0 && cutoff < 1.0).then(|| (a.name.clone(), cutoff))
     }
 }
 
 /// The cutoff p* on one scale moved to the scale of another class mix:
 /// the cutoff on posteriors calibrated to `from` that is equivalent to p*
 /// on posteriors at `to` (odds scale by (π/(1 − π))/(π′/(1 − π′))).
+/// A mix at 0 or 1 leaves no odds to move by: p* is returned unchanged.
 pub fn cutoff_on_training_scale(cutoff: f64, from_positive: f64, to_positive: f64) -> f64 {
+    let inside = |p: f64| p > 0.0 && p < 1.0;
+    if !(inside(cutoff) && inside(from_positive) && inside(to_positive)) {
+        return cutoff;
+    }
     let odds = cutoff / (1.0 - cutoff) * (from_positive / (1.0 - from_positive)) / (to_positive / (1.0 - to_positive));
     odds / (1.0 + odds)
 }
@@ -420,6 +439,20 @@ mod tests {
     }
 
     #[test]
+    fn no_cutoff_where_no_single_cutoff_rules() {
+        let c = classes();
+        // One action is never worse (declining costs nothing either way).
+        let dominated = "[actions.approve]\ngood = 0\nbad = 5\n[actions.decline]\ngood = 0\nbad = 0\n";
+        assert!(CostSpec::parse("c.toml", dominated, &c).unwrap().cutoff(0).is_none());
+        // A capacity makes the decision depend on the other rows.
+        let capped = format!("{GERMAN}capacity = 10\n");
+        assert!(CostSpec::parse("c.toml", &capped, &c).unwrap().cutoff(0).is_none());
+        // A mix at 0 or 1 leaves the cutoff as it is, never NaN.
+        assert_eq!(cutoff_on_training_scale(0.25, 0.0, 0.1), 0.25);
+        assert_eq!(cutoff_on_training_scale(1.0, 0.3, 0.1), 1.0);
+    }
+
+    #[test]
     fn rejects_bad_cost_files() {
         let c = classes();
         for (text, message) in [
@@ -429,6 +462,7 @@ mod tests {
             ("[actions.a]\ngood = { rate = 2 }\nbad = 1\n", "a rate needs a column"),
             ("nonsense = 1\n", "[actions.NAME]"),
             ("[actions.a\n", "not a valid costs file"),
+            ("[actions.a]\ngood = 0\nbad = 1\ncapacity = 3\n", "every action has a capacity"),
         ] {
             let e = CostSpec::parse("c.toml", text, &c).unwrap_err().to_string();
             assert!(e.contains(message) && e.contains("c.toml"), "{text}: {e}");

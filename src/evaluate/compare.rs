@@ -1002,28 +1002,32 @@ pub fn cost_figures(
             }
             // The cutoff that minimises the realised cost, for the two-action
             // fixed-cost case: sweep the sorted scores.
+            // The sweep and the table both work on these probabilities, so
+            // that scores which round to the same probability stay tied.
+            let probabilities: Vec<f64> = s.log_odds[0].iter().map(|&z| 1.0 / (1.0 + (-z).exp())).collect();
             let theoretical = spec.cutoff(positive);
             let best = theoretical.as_ref().map(|(name, _)| {
                 let a = spec.actions.iter().position(|x| &x.name == name).unwrap_or(0);
                 let b = 1 - a;
                 let cost = |action: usize, r: usize| spec.actions[action].costs[options.target[r] as usize].fixed;
                 let mut order: Vec<usize> = (0..rows.len()).collect();
-                order.sort_by(|&i, &j| s.log_odds[0][j].total_cmp(&s.log_odds[0][i]));
+                order.sort_by(|&i, &j| probabilities[j].total_cmp(&probabilities[i]));
                 // Start with every row taking b; flag rows as `a` from the top.
                 let mut current: f64 = (0..rows.len()).map(|i| w[i] * cost(b, rows[i])).sum();
-                let (mut best_cost, mut best_z) = (current, f64::INFINITY);
+                // Flagging none is cutoff 1 (no probability reaches above it).
+                let (mut best_cost, mut best_p) = (current, 1.0);
                 // Tied scores move together: a cutoff cannot split them, so
                 // a candidate is judged only after the last row of a tie.
                 for (k, &i) in order.iter().enumerate() {
                     current += w[i] * (cost(a, rows[i]) - cost(b, rows[i]));
-                    let z = s.log_odds[0][i];
-                    let tie_continues = order.get(k + 1).is_some_and(|&j| s.log_odds[0][j] == z);
+                    let p = probabilities[i];
+                    let tie_continues = order.get(k + 1).is_some_and(|&j| probabilities[j] == p);
                     if !tie_continues && current < best_cost {
                         best_cost = current;
-                        best_z = z;
+                        best_p = p;
                     }
                 }
-                1.0 / (1.0 + (-best_z).exp())
+                best_p
             });
             let se = (variance / total_weight).sqrt();
             let draws = options.bootstrap.unwrap_or(if rows.len() <= BOOTSTRAP_ROW_LIMIT { 200 } else { 0 });
@@ -1040,8 +1044,7 @@ pub fn cost_figures(
             cutoffs.extend(theoretical.as_ref().map(|(_, c)| *c));
             cutoffs.extend(best);
             cutoffs.sort_by(f64::total_cmp);
-            cutoffs.dedup_by(|a, b| (*a - *b).abs() < 1e-12);
-            let probabilities: Vec<f64> = s.log_odds[0].iter().map(|&z| 1.0 / (1.0 + (-z).exp())).collect();
+            cutoffs.dedup();
             let cutoff_table = cutoffs
                 .into_iter()
                 .filter(|t| t.is_finite())
