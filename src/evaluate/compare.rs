@@ -493,6 +493,14 @@ pub struct EvaluationOptions<'a> {
     pub split: String,
 }
 
+impl EvaluationOptions<'_> {
+    /// Bootstrap draws for intervals over `rows` tested rows: as asked, or
+    /// 200 up to [`BOOTSTRAP_ROW_LIMIT`] rows and 0 (the normal interval) above.
+    fn bootstrap_draws(&self, rows: usize) -> usize {
+        self.bootstrap.unwrap_or(if rows <= BOOTSTRAP_ROW_LIMIT { 200 } else { 0 })
+    }
+}
+
 fn gather<T: Copy>(values: Option<&[T]>, rows: &[usize]) -> Option<Vec<T>> {
     values.map(|v| rows.iter().map(|&r| v[r]).collect())
 }
@@ -694,36 +702,18 @@ fn paired_probability(entry: &mut PairedEntry, a: &TestedScore, b: &TestedScore,
     entry.log_loss_diff = Some(mean_l);
     entry.log_loss_diff_se = Some(se_l);
     entry.brier_diff = Some(mean_b);
-    let draws = options.bootstrap.unwrap_or(if rows.len() <= BOOTSTRAP_ROW_LIMIT { 200 } else { 0 });
+    let draws = options.bootstrap_draws(rows.len());
     if draws == 0 {
         entry.log_loss_diff_ci = Some([mean_l - NORMAL_975 * se_l, mean_l + NORMAL_975 * se_l]);
         entry.brier_diff_ci = Some([mean_b - NORMAL_975 * se_b, mean_b + NORMAL_975 * se_b]);
         entry.interval_method = Some("normal, from the first-order standard error".into());
     } else {
         entry.interval_method = Some(format!("paired bootstrap, {draws} draws, seed {}", options.seed));
-        // Seeded paired bootstrap over rows (frequency weights kept).
+        // Paired: both differences are resampled with the same rows.
         let mut rng = Rng::new(Rng::stream_seed(options.seed, 77));
-        let n = rows.len();
-        let mut draws_l = Vec::with_capacity(draws);
-        let mut draws_b = Vec::with_capacity(draws);
-        for _ in 0..draws {
-            let (mut sl, mut sb, mut sw) = (0.0, 0.0, 0.0);
-            for _ in 0..n {
-                let i = (rng.next_u64() % n as u64) as usize;
-                sl += w[i] * dl[i];
-                sb += w[i] * db[i];
-                sw += w[i];
-            }
-            draws_l.push(sl / sw);
-            draws_b.push(sb / sw);
-        }
-        let interval = |mut d: Vec<f64>| {
-            d.sort_by(f64::total_cmp);
-            let at = |q: f64| d[((q * (d.len() - 1) as f64).round() as usize).min(d.len() - 1)];
-            [at(0.025), at(0.975)]
-        };
-        entry.log_loss_diff_ci = Some(interval(draws_l));
-        entry.brier_diff_ci = Some(interval(draws_b));
+        let intervals = bootstrap_mean_intervals(&[&dl, &db], &w, draws, &mut rng);
+        entry.log_loss_diff_ci = Some(intervals[0]);
+        entry.brier_diff_ci = Some(intervals[1]);
     }
     // McNemar at the 0.5 rule (Edwards' continuity correction).
     let (mut only_a, mut only_b) = (0.0, 0.0);
@@ -929,22 +919,39 @@ fn mean_interval(values: &[f64], w: &[f64], draws: usize, seed: u64, se: f64, me
             "normal, from the first-order standard error".into(),
         );
     }
-    let mut rng = Rng::new(seed);
-    let n = values.len();
-    let mut means: Vec<f64> = (0..draws)
-        .map(|_| {
-            let (mut sum, mut weight) = (0.0, 0.0);
-            for _ in 0..n {
-                let i = (rng.next_u64() % n as u64) as usize;
-                sum += w[i] * values[i];
-                weight += w[i];
+    let intervals = bootstrap_mean_intervals(&[values], w, draws, &mut Rng::new(seed));
+    (intervals[0], format!("bootstrap over rows, {draws} draws, seed {seed}"))
+}
+
+/// Seeded bootstrap over rows (frequency weights kept): the 95% percentile
+/// interval of the weighted mean of each series, every series resampled
+/// with the same rows in each draw (`draws` > 0, series of equal length).
+fn bootstrap_mean_intervals(series: &[&[f64]], w: &[f64], draws: usize, rng: &mut Rng) -> Vec<[f64; 2]> {
+    let n = w.len();
+    let mut means: Vec<Vec<f64>> = vec![Vec::with_capacity(draws); series.len()];
+    let mut sums = vec![0.0; series.len()];
+    for _ in 0..draws {
+        sums.fill(0.0);
+        let mut weight = 0.0;
+        for _ in 0..n {
+            let i = (rng.next_u64() % n as u64) as usize;
+            for (sum, values) in sums.iter_mut().zip(series) {
+                *sum += w[i] * values[i];
             }
-            sum / weight
+            weight += w[i];
+        }
+        for (m, sum) in means.iter_mut().zip(&sums) {
+            m.push(sum / weight);
+        }
+    }
+    means
+        .into_iter()
+        .map(|mut d| {
+            d.sort_by(f64::total_cmp);
+            let at = |q: f64| d[((q * (d.len() - 1) as f64).round() as usize).min(d.len() - 1)];
+            [at(0.025), at(0.975)]
         })
-        .collect();
-    means.sort_by(f64::total_cmp);
-    let at = |q: f64| means[((q * (draws - 1) as f64).round() as usize).min(draws - 1)];
-    ([at(0.025), at(0.975)], format!("bootstrap over rows, {draws} draws, seed {seed}"))
+        .collect()
 }
 
 /// Cost figures of each score. `values(column, row)` gives a row's value of
@@ -1030,7 +1037,7 @@ pub fn cost_figures(
                 best_p
             });
             let se = (variance / total_weight).sqrt();
-            let draws = options.bootstrap.unwrap_or(if rows.len() <= BOOTSTRAP_ROW_LIMIT { 200 } else { 0 });
+            let draws = options.bootstrap_draws(rows.len());
             let (ci, method) = mean_interval(&realised, &w, draws, options.seed, se, mean);
             // The cutoff table: per row, the realised cost of the action for a
             // certain negative and for a certain positive.
