@@ -970,8 +970,11 @@ pub fn cost_figures(
         .iter()
         .map(|s| {
             let rows = &s.rows[0];
-            let posterior = |z: f64| {
-                let p = 1.0 / (1.0 + (-z).exp());
+            // The posterior of the positive class: the rule, the best-cutoff
+            // sweep and the cutoff table all use these same numbers, so that
+            // scores which round to the same probability stay tied.
+            let probabilities: Vec<f64> = s.log_odds[0].iter().map(|&z| 1.0 / (1.0 + (-z).exp())).collect();
+            let posterior = |p: f64| {
                 let mut row = vec![0.0; 2];
                 row[positive] = p;
                 row[1 - positive] = 1.0 - p;
@@ -979,8 +982,8 @@ pub fn cost_figures(
             };
             let costs: Vec<Vec<f64>> = rows
                 .iter()
-                .zip(&s.log_odds[0])
-                .map(|(&r, &z)| spec.expected_costs(&posterior(z), &|c| values(c, r)))
+                .zip(&probabilities)
+                .map(|(&r, &p)| spec.expected_costs(&posterior(p), &|c| values(c, r)))
                 .collect();
             // Capacity is a per-run limit: each test fold is one run.
             let decisions = match fold_of {
@@ -994,8 +997,9 @@ pub fn cost_figures(
             let cost_of = |action: usize, class: usize, r: usize| {
                 spec.actions[action].costs[class].for_row(&|col| values(col, r))
             };
-            let realised: Vec<f64> =
-                rows.iter().zip(&decisions.action).map(|(&r, &a)| cost_of(a, options.target[r] as usize, r)).collect();
+            // What an action realises on a row, given the row's true class.
+            let realised_of = |action: usize, r: usize| cost_of(action, options.target[r] as usize, r);
+            let realised: Vec<f64> = rows.iter().zip(&decisions.action).map(|(&r, &a)| realised_of(a, r)).collect();
             let w: Vec<f64> = rows.iter().map(|&r| options.weights.map_or(1.0, |w| w[r])).collect();
             let total_weight: f64 = w.iter().sum();
             let total: f64 = realised.iter().zip(&w).map(|(c, w)| c * w).sum();
@@ -1009,24 +1013,20 @@ pub fn cost_figures(
             }
             // The cutoff that minimises the realised cost, for the two-action
             // fixed-cost case: sweep the sorted scores.
-            // The sweep and the table both work on these probabilities, so
-            // that scores which round to the same probability stay tied.
-            let probabilities: Vec<f64> = s.log_odds[0].iter().map(|&z| 1.0 / (1.0 + (-z).exp())).collect();
             let theoretical = spec.cutoff(positive);
             let best = theoretical.as_ref().map(|(name, _)| {
                 let a = spec.actions.iter().position(|x| &x.name == name).unwrap_or(0);
                 let b = 1 - a;
-                let cost = |action: usize, r: usize| spec.actions[action].costs[options.target[r] as usize].fixed;
                 let mut order: Vec<usize> = (0..rows.len()).collect();
                 order.sort_by(|&i, &j| probabilities[j].total_cmp(&probabilities[i]));
                 // Start with every row taking b; flag rows as `a` from the top.
-                let mut current: f64 = (0..rows.len()).map(|i| w[i] * cost(b, rows[i])).sum();
+                let mut current: f64 = (0..rows.len()).map(|i| w[i] * realised_of(b, rows[i])).sum();
                 // Flagging none is cutoff 1 (no probability reaches above it).
                 let (mut best_cost, mut best_p) = (current, 1.0);
                 // Tied scores move together: a cutoff cannot split them, so
                 // a candidate is judged only after the last row of a tie.
                 for (k, &i) in order.iter().enumerate() {
-                    current += w[i] * (cost(a, rows[i]) - cost(b, rows[i]));
+                    current += w[i] * (realised_of(a, rows[i]) - realised_of(b, rows[i]));
                     let p = probabilities[i];
                     let tie_continues = order.get(k + 1).is_some_and(|&j| probabilities[j] == p);
                     if !tie_continues && current < best_cost {
@@ -1041,7 +1041,6 @@ pub fn cost_figures(
             let (ci, method) = mean_interval(&realised, &w, draws, options.seed, se, mean);
             // The cutoff table: per row, the realised cost of the action for a
             // certain negative and for a certain positive.
-            let realised_of = |action: usize, r: usize| cost_of(action, options.target[r] as usize, r);
             let cheapest_for = |class: usize, r: usize| {
                 (0..spec.actions.len())
                     .min_by(|&a, &b| cost_of(a, class, r).total_cmp(&cost_of(b, class, r)))
