@@ -9,37 +9,13 @@
 
 mod common;
 
-use std::process::Command;
-
-/// Runs a command under Python's resource module and returns (seconds,
-/// peak RSS in MB) of the child.
-fn measure(command: &[&str]) -> Option<(f64, f64)> {
-    let script = r#"
-import resource, subprocess, sys, time
-t = time.perf_counter()
-r = subprocess.run(sys.argv[1:], stdout=subprocess.DEVNULL)
-elapsed = time.perf_counter() - t
-if r.returncode != 0:
-    sys.exit(r.returncode)
-print(elapsed, resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0)
-"#;
-    let output = Command::new("python3").arg("-c").arg(script).args(command).output().ok()?;
-    if !output.status.success() {
-        eprintln!("failed: {:?}: {}", command, String::from_utf8_lossy(&output.stderr));
-        return None;
-    }
-    let text = String::from_utf8_lossy(&output.stdout);
-    let mut parts = text.split_whitespace();
-    Some((parts.next()?.parse().ok()?, parts.next()?.parse().ok()?))
-}
-
 fn main() {
     let rows = common::workload_rows();
     let path = common::workload_file(rows);
     let path_text = path.display().to_string();
     let binary = env!("CARGO_BIN_EXE_baserate");
     println!("file: {path_text} ({rows} rows), 2 cores");
-    let ours = measure(&[binary, "compare", &path_text, "--target", "y", "--folds", "5"]);
+    let ours = common::measure(&[binary, "compare", &path_text, "--target", "y", "--folds", "5"]);
     match ours {
         Some((s, m)) => println!("baserate compare --folds 5 (all four families): {s:.2} s, peak {m:.0} MB"),
         None => {
@@ -53,7 +29,7 @@ fn main() {
         return;
     }
     if let (Some((s, m)), Some((ours_s, ours_m))) =
-        (measure(&["python3", &reference.display().to_string(), &path_text]), ours)
+        (common::measure(&["python3", &reference.display().to_string(), &path_text]), ours)
     {
         println!("scikit-learn sk_cv5.py: {s:.2} s, peak {m:.0} MB");
         println!(

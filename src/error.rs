@@ -282,6 +282,18 @@ pub enum Error {
         reason: String,
     },
 
+    /// A row of a file being scored cannot be scored, and no reject file
+    /// was given to set it aside.
+    #[error("{at}, column '{column}': {message}; give --rejects FILE to set such rows aside and score the rest")]
+    BadRow {
+        /// Where the row is.
+        at: Position,
+        /// The column involved (empty for the whole row).
+        column: String,
+        /// What is wrong.
+        message: String,
+    },
+
     /// An argument value is invalid (a usage error).
     #[error("{0}")]
     Usage(String),

@@ -14,6 +14,9 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
         let mut out = std::io::stdout().lock();
         return out.write_all(bytes).and_then(|_| out.flush()).map_err(|e| Error::io("<stdout>", e));
     }
+    if is_special(path) {
+        return std::fs::write(path, bytes).map_err(|e| Error::io(shown, e));
+    }
     let directory = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
     let file_name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
     let temporary = directory.join(format!(".{file_name}.partial-{}", std::process::id()));
@@ -72,6 +75,94 @@ pub fn utc_timestamp() -> String {
         (second_of_day / 60) % 60,
         second_of_day % 60
     )
+}
+
+/// A file written in a stream and put in place only when complete: the
+/// bytes go to a temporary file beside the target, which [`AtomicFile::commit`]
+/// flushes to disk and renames over it. Dropped without a commit (an error,
+/// a panic), the temporary file is removed; a killed process leaves at most
+/// a hidden `.NAME.partial-PID` file, never a partial target. `-` writes
+/// to stdout directly.
+pub struct AtomicFile {
+    target: std::path::PathBuf,
+    temporary: Option<std::path::PathBuf>,
+    writer: Option<Box<dyn Write + Send>>,
+}
+
+impl AtomicFile {
+    /// Starts writing `path`.
+    pub fn create(path: &Path) -> Result<AtomicFile> {
+        if path.as_os_str() == "-" {
+            let stdout: Box<dyn Write + Send> = Box::new(std::io::BufWriter::with_capacity(1 << 20, std::io::stdout()));
+            return Ok(AtomicFile { target: path.to_path_buf(), temporary: None, writer: Some(stdout) });
+        }
+        if is_special(path) {
+            let file = std::fs::OpenOptions::new()
+                .write(true)
+                .open(path)
+                .map_err(|e| Error::io(path.display().to_string(), e))?;
+            return Ok(AtomicFile { target: path.to_path_buf(), temporary: None, writer: Some(Box::new(file)) });
+        }
+        let directory = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+        let file_name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+        let temporary = directory.join(format!(".{file_name}.partial-{}", std::process::id()));
+        let file = std::fs::File::create(&temporary).map_err(|e| Error::io(path.display().to_string(), e))?;
+        Ok(AtomicFile {
+            target: path.to_path_buf(),
+            temporary: Some(temporary),
+            writer: Some(Box::new(std::io::BufWriter::with_capacity(1 << 20, file))),
+        })
+    }
+
+    /// Appends bytes.
+    pub fn write_all(&mut self, bytes: &[u8]) -> Result<()> {
+        let shown = self.shown();
+        match self.writer.as_mut() {
+            Some(w) => w.write_all(bytes).map_err(|e| Error::io(shown, e)),
+            None => Ok(()),
+        }
+    }
+
+    fn shown(&self) -> String {
+        if self.target.as_os_str() == "-" {
+            "<stdout>".to_string()
+        } else {
+            self.target.display().to_string()
+        }
+    }
+
+    /// Flushes, syncs and renames the file into place.
+    pub fn commit(mut self) -> Result<()> {
+        let shown = self.shown();
+        if let Some(mut writer) = self.writer.take() {
+            writer.flush().map_err(|e| Error::io(&shown, e))?;
+        }
+        if let Some(temporary) = self.temporary.take() {
+            let result = std::fs::File::open(&temporary)
+                .and_then(|f| f.sync_all())
+                .and_then(|_| std::fs::rename(&temporary, &self.target));
+            if let Err(e) = result {
+                let _ = std::fs::remove_file(&temporary);
+                return Err(Error::io(shown, e));
+            }
+        }
+        Ok(())
+    }
+}
+
+impl Drop for AtomicFile {
+    fn drop(&mut self) {
+        self.writer.take();
+        if let Some(temporary) = self.temporary.take() {
+            let _ = std::fs::remove_file(temporary);
+        }
+    }
+}
+
+/// True for an existing target that is not a regular file (`/dev/null`, a
+/// named pipe): it is written in place, never replaced by a rename.
+fn is_special(path: &Path) -> bool {
+    std::fs::metadata(path).is_ok_and(|m| !m.is_file() && !m.is_dir())
 }
 
 #[cfg(test)]

@@ -11,6 +11,7 @@
 // true for NaN as well.
 #![allow(clippy::needless_range_loop, clippy::neg_cmp_op_on_partial_ord)]
 
+pub mod batch;
 pub mod cli;
 pub mod data;
 pub mod decide;

@@ -134,3 +134,25 @@ pub fn python_seconds(script: &str, args: &[&str]) -> Option<f64> {
     }
     String::from_utf8_lossy(&output.stdout).trim().lines().last()?.trim().parse().ok()
 }
+
+/// Runs a command under Python's resource module and returns (seconds,
+/// peak RSS in MB) of the child.
+pub fn measure(command: &[&str]) -> Option<(f64, f64)> {
+    let script = r#"
+import resource, subprocess, sys, time
+t = time.perf_counter()
+r = subprocess.run(sys.argv[1:], stdout=subprocess.DEVNULL)
+elapsed = time.perf_counter() - t
+if r.returncode != 0:
+    sys.exit(r.returncode)
+print(elapsed, resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0)
+"#;
+    let output = Command::new("python3").arg("-c").arg(script).args(command).output().ok()?;
+    if !output.status.success() {
+        eprintln!("failed: {:?}: {}", command, String::from_utf8_lossy(&output.stderr));
+        return None;
+    }
+    let text = String::from_utf8_lossy(&output.stdout);
+    let mut parts = text.split_whitespace();
+    Some((parts.next()?.parse().ok()?, parts.next()?.parse().ok()?))
+}

@@ -345,6 +345,7 @@ fn execute(args: Args, talk: bool) -> Result<ExitCode, Failure> {
         held_out: None,
         calibration: None,
         sampling_rates,
+        drift_reference: None,
     };
     let mut file = file;
     let calibrated_to = file.calibrated_to().to_vec();
@@ -369,6 +370,12 @@ fn execute(args: Args, talk: bool) -> Result<ExitCode, Failure> {
         }
         .into());
     }
+    // The training rows' features and scores (at the model's prior, after
+    // any calibration), binned, for drift checks when scoring.
+    let positive = target.positive_index();
+    let scores: Vec<f64> =
+        file.log_posteriors(&dataset.inputs(), &file.prior).column(positive).iter().map(|v| v.exp()).collect();
+    file.drift_reference = Some(crate::batch::drift::reference(&dataset, &target.positive, &scores));
     file.validate().map_err(|m| Error::FitFailed { family: family.name().into(), message: m })?;
     file.save(&args.out)?;
 

@@ -1,19 +1,19 @@
-//! `baserate score MODEL DATA -o OUT [--prior SPEC | --base-rate P] [--id COLS]`
+//! `baserate score MODEL DATA -o OUT [--prior SPEC | --base-rate P] [--costs FILE] [--rejects FILE] [--summary FILE]`
 //!
-//! Posteriors for every row of DATA: the `--id` columns, then one column
-//! `p_<class>` per class, under the model's prior or the one given. The
-//! output is written atomically. This first version holds the file in
-//! memory.
+//! The batch job: posteriors (and actions with `--costs`) for every row of
+//! DATA, streamed in bounded memory by [`crate::batch`]. This file parses
+//! the arguments, shows progress on a terminal and prints the summary.
 
 use std::path::PathBuf;
 
 use std::process::ExitCode;
 
+use crate::batch::{Outputs, ScoreJob, Summary, UnseenPolicy};
 use crate::cli::data_args::parse_delimiter;
 use crate::cli::fit::prior_spec;
 use crate::cli::output::write_atomic;
 use crate::cli::Failure;
-use crate::data::scoring::read_for_scoring;
+use crate::data::options::MissingPolicy;
 use crate::model::file::ModelFile;
 
 /// Arguments of `score`.
@@ -47,6 +47,36 @@ pub struct Args {
     /// Missing-value tokens [default: the training file's].
     #[arg(long, value_name = "TOKENS", value_delimiter = ',', allow_hyphen_values = true)]
     pub na: Option<Vec<String>>,
+    /// Rows that cannot be scored go here (CSV: line, column, reason, message, row); without it such a row stops the run.
+    #[arg(long, value_name = "FILE")]
+    pub rejects: Option<PathBuf>,
+    /// Writes the run's summary as JSON (`-` for stdout).
+    #[arg(long, value_name = "FILE")]
+    pub summary: Option<PathBuf>,
+    /// Ends with exit code 3 when more than this share of the rows read was set aside.
+    #[arg(long, value_name = "R")]
+    pub max_reject_rate: Option<f64>,
+    /// Columns passed through at the end of each output row (comma-separated).
+    #[arg(long, value_name = "COLS", value_delimiter = ',')]
+    pub keep: Vec<String>,
+    /// A category the training data never had: stop, set the row aside, or take it as missing.
+    #[arg(long, value_enum, value_name = "POLICY", default_value = "error")]
+    pub unseen: UnseenPolicy,
+    /// A missing value the model has no fill for: stop (error), fill with the training median or the missing level (impute), or set the row aside (drop-rows) [default: the training policy].
+    #[arg(long, value_name = "POLICY")]
+    pub missing: Option<String>,
+    /// Adds the K features that moved each row most toward the positive class (logistic, lda, naive-bayes).
+    #[arg(long, value_name = "K")]
+    pub reasons: Option<usize>,
+    /// Worker threads [default: one per core].
+    #[arg(long, value_name = "N", default_value_t = 0)]
+    pub threads: usize,
+    /// Bytes of input per chunk (memory is a few chunks per thread).
+    #[arg(long, value_name = "BYTES", default_value_t = crate::batch::DEFAULT_CHUNK_BYTES)]
+    pub chunk_bytes: usize,
+    /// No progress display and no summary on stderr (errors are still shown).
+    #[arg(long, short = 'q')]
+    pub quiet: bool,
 }
 
 /// Runs `score`.
@@ -61,136 +91,187 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         (None, Some(from)) => crate::cli::shift::prior_from_file(from, &file.classes)?,
         (None, None) => file.prior.clone(),
     };
-    let spec = match &args.costs {
+    let costs = match &args.costs {
         Some(path) => {
             let shown = path.display().to_string();
             let text = std::fs::read_to_string(path).map_err(|e| crate::Error::io(&shown, e))?;
-            Some(crate::decide::CostSpec::parse(&shown, &text, &file.classes)?)
-        }
-        None => None,
-    };
-    // A capacity ranks every row by its saving before any row is assigned,
-    // so it needs the whole input in hand: a file, not a stream.
-    if args.data.as_os_str() == "-" && spec.as_ref().is_some_and(|s| s.actions.iter().any(|a| a.capacity.is_some())) {
-        return Err(crate::Error::Usage(
-            "a capacity in the costs file needs every row before any is assigned; give the data as a file, not on stdin"
-                .into(),
-        )
-        .into());
-    }
-    // Cost columns that are not numeric inputs of the model are read beside the ids.
-    let numeric_inputs = file.schema.numeric_inputs();
-    let mut ids = args.ids.clone();
-    let extra: Vec<String> =
-        spec.as_ref().map_or(Vec::new(), |s| s.columns().into_iter().filter(|c| !numeric_inputs.contains(c)).collect());
-    for c in &extra {
-        // A categorical input cannot also be read as an amount.
-        if file.schema.categorical_inputs().iter().any(|k| k.name == *c) {
-            return Err(crate::Error::SchemaMismatch {
-                path: args.costs.as_ref().map(|p| p.display().to_string()).unwrap_or_default(),
-                message: format!("the costs use column '{c}', which the model reads as categorical, not numeric"),
-            }
-            .into());
-        }
-        if !ids.contains(c) {
-            ids.push(c.clone());
-        }
-    }
-    let data = read_for_scoring(&args.data, &file.schema, &ids, parse_delimiter(&args.delimiter)?, args.na.clone())?;
-    let mut posteriors = file.log_posteriors(&data.inputs(), &prior);
-    posteriors.mapv_inplace(f64::exp);
-    // Decisions: the expected cost of every action per row, then the rule.
-    let decisions = match &spec {
-        Some(spec) => {
-            let mut columns: Vec<(String, Vec<f64>)> = Vec::new();
-            for column in spec.columns() {
-                if let Some(j) = numeric_inputs.iter().position(|n| *n == column) {
-                    columns.push((column, data.numeric.column(j).to_vec()));
-                } else {
-                    let values =
-                        &data.ids.iter().find(|(n, _)| *n == column).map(|(_, v)| v.clone()).unwrap_or_default();
-                    let mut parsed = Vec::with_capacity(values.len());
-                    for (r, v) in values.iter().enumerate() {
-                        match crate::data::number::parse_f64(v.trim().as_bytes()).filter(|x| x.is_finite()) {
-                            Some(x) => parsed.push(x),
-                            None => {
-                                return Err(crate::Error::SchemaMismatch {
-                                    path: args.data.display().to_string(),
-                                    message: format!(
-                                    "the costs use column '{column}', whose value '{v}' in data row {} is not a number",
-                                    r + 1
-                                ),
-                                }
-                                .into())
-                            }
-                        }
-                    }
-                    columns.push((column, parsed));
+            let spec = crate::decide::CostSpec::parse(&shown, &text, &file.classes)?;
+            // A categorical input cannot also be read as an amount.
+            if let Some(c) =
+                spec.columns().into_iter().find(|c| file.schema.categorical_inputs().iter().any(|k| k.name == *c))
+            {
+                return Err(crate::Error::SchemaMismatch {
+                    path: shown,
+                    message: format!("the costs use column '{c}', which the model reads as categorical, not numeric"),
                 }
+                .into());
             }
-            let costs: Vec<Vec<f64>> = (0..data.rows())
-                .map(|r| {
-                    let row: Vec<f64> = posteriors.row(r).to_vec();
-                    spec.expected_costs(&row, &|c| columns.iter().find(|(n, _)| n == c).map_or(0.0, |(_, v)| v[r]))
-                })
-                .collect();
-            Some(crate::decide::decide(spec, &costs))
+            Some(spec)
         }
         None => None,
     };
-    let mut writer = csv::Writer::from_writer(Vec::with_capacity(data.rows() * 40));
-    let shown_ids: Vec<usize> = (0..data.ids.len()).filter(|&i| args.ids.contains(&data.ids[i].0)).collect();
-    let mut header: Vec<String> = shown_ids.iter().map(|&i| data.ids[i].0.clone()).collect();
-    header.extend(file.classes.iter().map(|c| format!("p_{c}")));
-    if decisions.is_some() {
-        header.push("action".into());
-        header.push("expected_cost".into());
-    }
-    let io_error = |e: csv::Error| crate::Error::io(args.out.display().to_string(), std::io::Error::other(e));
-    writer.write_record(&header).map_err(io_error)?;
-    let mut record: Vec<String> = Vec::with_capacity(header.len());
-    for (r, row) in posteriors.rows().into_iter().enumerate() {
-        record.clear();
-        record.extend(shown_ids.iter().map(|&i| data.ids[i].1[r].clone()));
-        record.extend(row.iter().map(|p| crate::report::exact(*p)));
-        if let (Some(d), Some(spec)) = (&decisions, &spec) {
-            record.push(spec.actions[d.action[r]].name.clone());
-            record.push(crate::report::exact(d.expected_cost[r]));
+    if let Some(rate) = args.max_reject_rate {
+        if !(0.0..=1.0).contains(&rate) {
+            return Err(crate::Error::Usage(format!("--max-reject-rate must be between 0 and 1; got {rate}")).into());
         }
-        writer.write_record(&record).map_err(io_error)?;
     }
-    let bytes = writer.into_inner().map_err(|e| crate::Error::io(args.out.display().to_string(), e.into_error()))?;
-    write_atomic(&args.out, &bytes)?;
-    for (column, n) in &data.imputed {
-        eprintln!("note: column '{column}': {n} missing values filled as in training");
+    let missing = match args.missing.as_deref() {
+        None => None,
+        Some("error") => Some(MissingPolicy::Error),
+        Some("impute") => Some(MissingPolicy::Impute),
+        Some("drop-rows") => Some(MissingPolicy::DropRows),
+        Some(other) => {
+            return Err(crate::Error::Usage(format!("--missing takes error, impute or drop-rows; got '{other}'")).into())
+        }
+    };
+    if args.reasons == Some(0) {
+        return Err(crate::Error::Usage("--reasons K needs K of at least 1".into()).into());
     }
-    if args.out.as_os_str() != "-" {
+    let job = ScoreJob {
+        data: args.data.clone(),
+        prior: prior.clone(),
+        costs,
+        ids: args.ids.clone(),
+        keep: args.keep.clone(),
+        delimiter: parse_delimiter(&args.delimiter)?,
+        na_tokens: args.na.clone(),
+        unseen: args.unseen,
+        missing,
+        reasons: args.reasons.unwrap_or(0),
+        threads: args.threads,
+        chunk_bytes: args.chunk_bytes,
+    };
+    let outputs = Outputs { scores: args.out.clone(), rejects: args.rejects.clone() };
+    let total_bytes = if args.data.as_os_str() == "-" || args.data.extension().is_some_and(|e| e == "gz") {
+        None
+    } else {
+        std::fs::metadata(&args.data).ok().map(|m| m.len())
+    };
+    let bar = progress_bar(args.quiet, total_bytes);
+    let show = |rows: u64, bytes: u64| {
+        if let Some(bar) = &bar {
+            bar.set_position(if total_bytes.is_some() { bytes } else { rows });
+            bar.set_message(format!("{rows} rows"));
+        }
+    };
+    let summary = crate::batch::run(&file, &job, &outputs, &show);
+    if let Some(bar) = &bar {
+        bar.finish_and_clear();
+    }
+    let summary = summary.map_err(|e| match e {
+        crate::Error::Io { source, .. } if source.kind() == std::io::ErrorKind::BrokenPipe => Failure::BrokenPipe,
+        other => Failure::Library(other),
+    })?;
+    if let Some(path) = &args.summary {
+        let text = serde_json::to_string_pretty(&summary)
+            .map_err(|e| crate::Error::io(path.display().to_string(), std::io::Error::other(e)))?;
+        write_atomic(path, (text + "\n").as_bytes())?;
+    }
+    if !args.quiet {
+        print_summary(&file, &args, &job, &summary, positive);
+    }
+    if let Some(rate) = args.max_reject_rate {
+        if summary.reject_rate > rate {
+            eprintln!(
+                "limit breached: {} of {} rows ({:.4}%) were set aside, above --max-reject-rate {rate}",
+                summary.rows_rejected,
+                summary.rows_read,
+                100.0 * summary.reject_rate
+            );
+            return Ok(ExitCode::from(3));
+        }
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
+/// A progress display on stderr when it is a terminal: bytes with an ETA
+/// for a file of known size, rows otherwise.
+fn progress_bar(quiet: bool, total_bytes: Option<u64>) -> Option<indicatif::ProgressBar> {
+    use std::io::IsTerminal;
+    if quiet || !std::io::stderr().is_terminal() {
+        return None;
+    }
+    let bar = match total_bytes {
+        Some(total) => indicatif::ProgressBar::new(total).with_style(
+            indicatif::ProgressStyle::with_template(
+                "{spinner} {msg} scored  {bytes}/{total_bytes}  {bytes_per_sec}  eta {eta}",
+            )
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+        ),
+        None => indicatif::ProgressBar::new_spinner().with_style(
+            indicatif::ProgressStyle::with_template("{spinner} {msg} scored  {per_sec}")
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_spinner()),
+        ),
+    };
+    Some(bar)
+}
+
+/// The summary in a few lines on stderr.
+fn print_summary(file: &ModelFile, args: &Args, job: &ScoreJob, summary: &Summary, positive: usize) {
+    let set_aside = if summary.rows_rejected == 0 {
+        String::new()
+    } else {
+        let reasons: Vec<String> = summary.rejected_by_reason.iter().map(|(r, n)| format!("{r} {n}")).collect();
+        format!(" ({} set aside: {})", summary.rows_rejected, reasons.join(", "))
+    };
+    let target = if args.out.as_os_str() == "-" { "stdout".to_string() } else { args.out.display().to_string() };
+    if summary.rows_scored == summary.rows_read {
         eprintln!(
-            "scored {} rows with the {} model; posteriors written to {}",
-            data.rows(),
-            file.family.name(),
-            args.out.display()
+            "scored {} rows with the {} model; posteriors written to {target}",
+            summary.rows_scored,
+            file.family.name()
+        );
+    } else {
+        eprintln!(
+            "scored {} of {} rows with the {} model{set_aside}; posteriors written to {target}",
+            summary.rows_scored,
+            summary.rows_read,
+            file.family.name()
         );
     }
-    if let (Some(d), Some(spec)) = (&decisions, &spec) {
-        let counts: Vec<String> = spec
-            .actions
-            .iter()
-            .enumerate()
-            .map(|(a, action)| format!("{} {}", action.name, d.action.iter().filter(|&&x| x == a).count()))
-            .collect();
-        let total: f64 = d.expected_cost.iter().sum();
+    for (column, n) in &summary.filled_missing {
+        eprintln!("note: column '{column}': {n} missing values filled as in training");
+    }
+    for (column, n) in &summary.unseen_as_missing {
+        eprintln!("note: column '{column}': {n} unseen categories taken as missing");
+    }
+    let outside: Vec<String> = summary
+        .out_of_range
+        .iter()
+        .filter(|o| o.below + o.above > 0)
+        .map(|o| format!("{} {} below, {} above", o.feature, o.below, o.above))
+        .collect();
+    if !outside.is_empty() {
+        eprintln!("outside the training range: {}", outside.join("; "));
+    }
+    if let Some(drift) = &summary.drift {
+        let mut flagged: Vec<&crate::batch::Stability> = drift.features.iter().filter(|s| s.band != "stable").collect();
+        flagged.sort_by(|a, b| b.psi.total_cmp(&a.psi));
+        let features = if flagged.is_empty() {
+            "every feature stable".to_string()
+        } else {
+            flagged
+                .iter()
+                .map(|s| format!("{} {:.3} {}", s.feature.as_deref().unwrap_or(""), s.psi, s.band))
+                .collect::<Vec<_>>()
+                .join(", ")
+        };
+        eprintln!("drift (PSI vs training): score {:.3} {}; {features}", drift.score.psi, drift.score.band);
+    }
+    if let (Some(spec), Some(actions), Some(total)) = (&job.costs, &summary.actions, summary.total_expected_cost) {
+        let counts: Vec<String> =
+            spec.actions.iter().map(|a| format!("{} {}", a.name, actions.get(&a.name).copied().unwrap_or(0))).collect();
         eprintln!(
             "decisions: {}; total expected cost {total:.2} ({:.4} per row)",
             counts.join(", "),
-            total / data.rows().max(1) as f64
+            total / summary.rows_scored.max(1) as f64
         );
         if let Some((action, cutoff)) = spec.cutoff(positive) {
             let base = file.calibrated_to()[positive];
-            let on_model_scale = if (prior[positive] - base).abs() > 1e-12 {
+            let on_model_scale = if (job.prior[positive] - base).abs() > 1e-12 {
                 format!(
                     " (on the model's own scale, at its class mix {base:.4}: {:.6})",
-                    crate::decide::cutoff_on_training_scale(cutoff, base, prior[positive])
+                    crate::decide::cutoff_on_training_scale(cutoff, base, job.prior[positive])
                 )
             } else {
                 String::new()
@@ -198,6 +279,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             eprintln!("equivalent rule: {action} when p({}) >= {cutoff:.6}{on_model_scale}", file.positive);
         }
         eprintln!("{}", crate::report::wrap(crate::CAUTION, 100, 0));
+    } else if job.reasons > 0 {
+        eprintln!("{}", crate::report::wrap(crate::CAUTION, 100, 0));
     }
-    Ok(ExitCode::SUCCESS)
 }

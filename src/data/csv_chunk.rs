@@ -86,8 +86,14 @@ impl NaMatcher {
         NaMatcher { tokens, first_bytes }
     }
 
+    /// False when no token starts with `first`: the field is not missing.
     #[inline]
-    fn is_missing(&self, field: &[u8]) -> bool {
+    pub(crate) fn may_be_missing(&self, first: u8) -> bool {
+        self.first_bytes[first as usize]
+    }
+
+    #[inline]
+    pub(crate) fn is_missing(&self, field: &[u8]) -> bool {
         match field.first() {
             None => true,
             Some(&b) if self.first_bytes[b as usize] => self.tokens.iter().any(|t| t == field),

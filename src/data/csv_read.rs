@@ -303,7 +303,7 @@ fn compact(matrix: &mut Vec<f64>, capacities: &[usize], outs: &[ChunkOut], rows:
 
 /// Reads the header record; returns the names, the byte offset where data
 /// starts and the line number of the first data line.
-fn read_header(path: &str, bytes: &[u8], delimiter: u8) -> Result<(Vec<String>, usize, u64)> {
+pub(crate) fn read_header(path: &str, bytes: &[u8], delimiter: u8) -> Result<(Vec<String>, usize, u64)> {
     let mut reader =
         csv::ReaderBuilder::new().has_headers(false).delimiter(delimiter).flexible(true).from_reader(bytes);
     let mut record = csv::ByteRecord::new();

@@ -83,6 +83,10 @@ pub struct ModelFile {
     /// black-box shift estimation).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub held_out: Option<HeldOut>,
+    /// The training rows' distribution, binned, for drift checks when
+    /// scoring (absent in files written before it was kept).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub drift_reference: Option<crate::batch::drift::DriftReference>,
 }
 
 /// What out-of-fold predictions of the training rows showed.

@@ -1,0 +1,846 @@
+//! The work on one chunk: records split into fields, each row either
+//! parsed into model inputs or set aside with its reason, then scored,
+//! decided and formatted — everything that depends only on the chunk's own
+//! rows, so chunks run in parallel and their outputs join in file order.
+
+use std::io::Write;
+
+use ndarray::Array2;
+
+use crate::batch::capacity::{choose, Settled};
+use crate::batch::drift::{value_bin, DriftReference};
+use crate::batch::plan::{Fill, Plan};
+use crate::batch::reasons::ReasonCodes;
+use crate::batch::source::RawChunk;
+use crate::batch::UnseenPolicy;
+use crate::data::csv_chunk::NaMatcher;
+use crate::data::number::{parse_f64, scan_f64};
+use crate::data::options::MissingPolicy;
+use crate::data::Inputs;
+use crate::decide::CostSpec;
+use crate::error::{Error, Position};
+use crate::model::file::ModelFile;
+
+/// Why a row was set aside.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum RejectReason {
+    /// The row has more or fewer fields than the header.
+    FieldCount,
+    /// A quoted field is not closed, or text follows its closing quote.
+    Quoting,
+    /// A field the output carries is not valid UTF-8.
+    Encoding,
+    /// A numeric feature's value is not a number.
+    NotANumber,
+    /// A numeric feature's value is `inf` or `nan`.
+    NotFinite,
+    /// A categorical feature has a level the training data never had.
+    UnseenCategory,
+    /// A missing value the model cannot fill.
+    MissingValue,
+    /// A cost column's value is missing or not a finite number.
+    CostValue,
+}
+
+impl RejectReason {
+    /// Every reason, in the order the summary lists them.
+    pub const ALL: [RejectReason; 8] = [
+        RejectReason::FieldCount,
+        RejectReason::Quoting,
+        RejectReason::Encoding,
+        RejectReason::NotANumber,
+        RejectReason::NotFinite,
+        RejectReason::UnseenCategory,
+        RejectReason::MissingValue,
+        RejectReason::CostValue,
+    ];
+
+    /// The reason's name in the reject file and the summary.
+    pub fn name(self) -> &'static str {
+        match self {
+            RejectReason::FieldCount => "field-count",
+            RejectReason::Quoting => "quoting",
+            RejectReason::Encoding => "encoding",
+            RejectReason::NotANumber => "not-a-number",
+            RejectReason::NotFinite => "not-finite",
+            RejectReason::UnseenCategory => "unseen-category",
+            RejectReason::MissingValue => "missing-value",
+            RejectReason::CostValue => "cost-value",
+        }
+    }
+}
+
+/// What a pass over the file does with each chunk.
+#[derive(Debug, Clone, Copy)]
+pub enum Pass<'a> {
+    /// Counts the rows that can be scored (for a capacity given as a share).
+    Count,
+    /// Offers the rows that reach the ranking of a limited action.
+    Rank {
+        /// The cuts found so far.
+        settled: &'a [Settled],
+        /// The limited action being ranked.
+        action: usize,
+    },
+    /// Scores, decides and formats every row.
+    Write {
+        /// Every limited action's cut.
+        settled: &'a [Settled],
+    },
+}
+
+/// What every chunk of one run shares.
+pub struct Context<'a> {
+    pub(crate) path: &'a str,
+    pub(crate) file: &'a ModelFile,
+    pub(crate) plan: &'a Plan,
+    pub(crate) prior: &'a [f64],
+    pub(crate) delimiter: u8,
+    pub(crate) na: NaMatcher,
+    pub(crate) unseen: UnseenPolicy,
+    pub(crate) missing: MissingPolicy,
+    pub(crate) keep_rejects: bool,
+    pub(crate) spec: Option<&'a CostSpec>,
+    pub(crate) reasons: Option<&'a ReasonCodes>,
+    /// The drift reference and, per plan feature (numeric then
+    /// categorical), its entry in the reference.
+    pub(crate) drift: Option<(&'a DriftReference, Vec<Option<usize>>)>,
+    pub(crate) positive: usize,
+}
+
+/// Figures of one chunk, summed over chunks in file order.
+#[derive(Debug, Clone, Default)]
+pub struct ChunkStats {
+    /// Data records read.
+    pub rows_read: u64,
+    /// Rows scored.
+    pub rows_scored: u64,
+    /// Rows set aside, per [`RejectReason::ALL`].
+    pub rejected: [u64; 8],
+    /// Per numeric feature: values below the training minimum.
+    pub below_range: Vec<u64>,
+    /// Per numeric feature: values above the training maximum.
+    pub above_range: Vec<u64>,
+    /// Per feature (numeric, then categorical): missing values filled.
+    pub filled: Vec<u64>,
+    /// Per categorical feature: unseen levels taken as missing.
+    pub unseen_as_missing: Vec<u64>,
+    /// Rows per action.
+    pub actions: Vec<u64>,
+    /// Sum of the chosen actions' expected costs.
+    pub expected_cost: f64,
+    /// Per class: sum of the posteriors.
+    pub posterior_sum: Vec<f64>,
+    /// Per drift-reference feature: rows per bin.
+    pub feature_bins: Vec<Vec<u64>>,
+    /// Rows per score bin.
+    pub score_bins: Vec<u64>,
+}
+
+impl ChunkStats {
+    fn new(context: &Context<'_>) -> Self {
+        let plan = context.plan;
+        let (feature_bins, score_bins) = match &context.drift {
+            Some((reference, _)) => (
+                reference.features.iter().map(|f| vec![0; f.shares.len()]).collect(),
+                vec![0; reference.score.shares.len()],
+            ),
+            None => (Vec::new(), Vec::new()),
+        };
+        ChunkStats {
+            below_range: vec![0; plan.numeric.len()],
+            above_range: vec![0; plan.numeric.len()],
+            filled: vec![0; plan.numeric.len() + plan.categorical.len()],
+            unseen_as_missing: vec![0; plan.categorical.len()],
+            actions: vec![0; context.spec.map_or(0, |s| s.actions.len())],
+            posterior_sum: vec![0.0; context.file.classes.len()],
+            feature_bins,
+            score_bins,
+            ..ChunkStats::default()
+        }
+    }
+
+    /// Adds another chunk's figures.
+    pub fn merge(&mut self, other: &ChunkStats) {
+        fn add(a: &mut Vec<u64>, b: &[u64]) {
+            if a.len() < b.len() {
+                a.resize(b.len(), 0);
+            }
+            a.iter_mut().zip(b).for_each(|(x, y)| *x += y);
+        }
+        self.rows_read += other.rows_read;
+        self.rows_scored += other.rows_scored;
+        self.rejected.iter_mut().zip(&other.rejected).for_each(|(x, y)| *x += y);
+        add(&mut self.below_range, &other.below_range);
+        add(&mut self.above_range, &other.above_range);
+        add(&mut self.filled, &other.filled);
+        add(&mut self.unseen_as_missing, &other.unseen_as_missing);
+        add(&mut self.actions, &other.actions);
+        self.expected_cost += other.expected_cost;
+        if self.posterior_sum.len() < other.posterior_sum.len() {
+            self.posterior_sum.resize(other.posterior_sum.len(), 0.0);
+        }
+        self.posterior_sum.iter_mut().zip(&other.posterior_sum).for_each(|(x, y)| *x += y);
+        if self.feature_bins.len() < other.feature_bins.len() {
+            self.feature_bins.resize(other.feature_bins.len(), Vec::new());
+        }
+        self.feature_bins.iter_mut().zip(&other.feature_bins).for_each(|(x, y)| add(x, y));
+        add(&mut self.score_bins, &other.score_bins);
+    }
+}
+
+/// What one chunk produced.
+#[derive(Debug, Default)]
+pub struct ChunkResult {
+    /// The output rows, formatted.
+    pub output: Vec<u8>,
+    /// The reject rows: line within the chunk (0 = its first line) and the
+    /// rest of the reject record, formatted.
+    pub rejects: Vec<(u64, Vec<u8>)>,
+    /// Newlines in the chunk: where the next chunk's lines start.
+    pub newlines: u64,
+    /// The chunk's figures.
+    pub stats: ChunkStats,
+    /// Candidates (saving, place) of a ranking pass.
+    pub candidates: Vec<(f64, u64)>,
+    /// What stops the run, if anything.
+    pub fatal: Option<Fatal>,
+}
+
+/// What stops a run.
+#[derive(Debug)]
+pub enum Fatal {
+    /// A row that cannot be set aside: its line within the chunk, and why.
+    Row(u64, Problem),
+    /// Anything else.
+    Error(Error),
+}
+
+impl Fatal {
+    /// The error, with the row's line made absolute.
+    pub fn into_error(self, context: &Context<'_>, first_line: u64) -> Error {
+        match self {
+            Fatal::Row(line, problem) => fatal_error(context, first_line + line, problem),
+            Fatal::Error(e) => e,
+        }
+    }
+}
+
+/// A row's place in the file, for ranking: the chunk's index, then the
+/// line within it. It orders rows as the file does, and the chunks are
+/// the same in every pass.
+#[inline]
+fn place(chunk: usize, line: u64) -> u64 {
+    ((chunk as u64) << 32) | line
+}
+
+/// A row-level problem: the reason, the column (if one) and the detail.
+#[derive(Debug)]
+pub struct Problem {
+    reason: RejectReason,
+    column: String,
+    message: String,
+}
+
+/// Trims spaces, tabs and carriage returns from both ends.
+#[inline]
+fn trim(mut bytes: &[u8]) -> &[u8] {
+    while let [b' ' | b'\t' | b'\r', rest @ ..] = bytes {
+        bytes = rest;
+    }
+    while let [rest @ .., b' ' | b'\t' | b'\r'] = bytes {
+        bytes = rest;
+    }
+    bytes
+}
+
+/// Splits a record into fields. Plain records give ranges into the record;
+/// records with quotes are unescaped into `scratch` and the ranges point
+/// there (`true` is returned).
+fn split(record: &[u8], delimiter: u8, scratch: &mut Vec<u8>, ranges: &mut Vec<(usize, usize)>) -> Result<bool, ()> {
+    ranges.clear();
+    if memchr::memchr(b'"', record).is_none() {
+        let mut start = 0;
+        for at in memchr::memchr_iter(delimiter, record) {
+            ranges.push((start, at));
+            start = at + 1;
+        }
+        ranges.push((start, record.len()));
+        return Ok(false);
+    }
+    scratch.clear();
+    let n = record.len();
+    let mut i = 0;
+    loop {
+        let mut j = i;
+        while j < n && matches!(record[j], b' ' | b'\t') {
+            j += 1;
+        }
+        if j < n && record[j] == b'"' {
+            let start = scratch.len();
+            let mut k = j + 1;
+            loop {
+                let Some(offset) = memchr::memchr(b'"', &record[k..]) else { return Err(()) };
+                scratch.extend_from_slice(&record[k..k + offset]);
+                k += offset + 1;
+                if record.get(k) == Some(&b'"') {
+                    scratch.push(b'"');
+                    k += 1;
+                } else {
+                    break;
+                }
+            }
+            ranges.push((start, scratch.len()));
+            while k < n && matches!(record[k], b' ' | b'\t' | b'\r') {
+                k += 1;
+            }
+            if k == n {
+                return Ok(true);
+            }
+            if record[k] != delimiter {
+                return Err(());
+            }
+            i = k + 1;
+        } else {
+            let end = memchr::memchr(delimiter, &record[i..]).map_or(n, |o| i + o);
+            let start = scratch.len();
+            scratch.extend_from_slice(&record[i..end]);
+            ranges.push((start, scratch.len()));
+            if end == n {
+                return Ok(true);
+            }
+            i = end + 1;
+        }
+        if i == n {
+            ranges.push((scratch.len(), scratch.len()));
+            return Ok(true);
+        }
+    }
+}
+
+/// Appends a field to a CSV line, quoted when it must be.
+pub(crate) fn push_field(out: &mut Vec<u8>, field: &[u8]) {
+    if field.iter().any(|&b| matches!(b, b',' | b'"' | b'\n' | b'\r')) {
+        out.push(b'"');
+        for &b in field {
+            if b == b'"' {
+                out.push(b'"');
+            }
+            out.push(b);
+        }
+        out.push(b'"');
+    } else {
+        out.extend_from_slice(field);
+    }
+}
+
+/// Appends a number as the report module writes it: shortest round-trip
+/// digits, scientific below 1e-4.
+#[inline]
+pub(crate) fn push_number(out: &mut Vec<u8>, x: f64) {
+    let _ = if x != 0.0 && x.abs() < 1e-4 { write!(out, "{x:e}") } else { write!(out, "{x}") };
+}
+
+/// Parsed rows of a chunk, ready to score.
+struct Rows {
+    numeric: Vec<f64>,
+    numeric_missing: Vec<bool>,
+    categorical: Vec<Vec<u32>>,
+    text: Vec<u8>,
+    text_spans: Vec<(usize, usize)>,
+    costs: Vec<f64>,
+    lines: Vec<u64>,
+}
+
+/// Processes one chunk.
+pub fn process(context: &Context<'_>, chunk: &RawChunk, pass: Pass<'_>) -> ChunkResult {
+    let plan = context.plan;
+    let mut result = ChunkResult { stats: ChunkStats::new(context), ..ChunkResult::default() };
+    let mut rows = Rows {
+        numeric: Vec::new(),
+        numeric_missing: Vec::new(),
+        categorical: vec![Vec::new(); plan.categorical.len()],
+        text: Vec::new(),
+        text_spans: Vec::new(),
+        costs: Vec::new(),
+        lines: Vec::new(),
+    };
+    let width = plan.input_width;
+    let bytes = chunk.bytes.as_slice();
+    let mut scratch = Vec::new();
+    let mut ranges = Vec::new();
+    let quoted_chunk = memchr::memchr(b'"', bytes).is_some();
+    let mut position = 0;
+    let mut line = 0u64;
+    while position < bytes.len() {
+        let end = if quoted_chunk {
+            crate::batch::source::record_end(bytes, position)
+        } else {
+            memchr::memchr(b'\n', &bytes[position..]).map(|o| position + o)
+        }
+        .unwrap_or(bytes.len());
+        let mut record = &bytes[position..end];
+        let record_line = line;
+        let inner_newlines = if quoted_chunk { crate::batch::source::count_newlines(record) } else { 0 };
+        line += inner_newlines + u64::from(end < bytes.len());
+        position = end + 1;
+        if record.last() == Some(&b'\r') {
+            record = &record[..record.len() - 1];
+        }
+        if record.is_empty() {
+            continue;
+        }
+        result.stats.rows_read += 1;
+        let marks = (rows.numeric.len(), rows.numeric_missing.len(), rows.text.len(), rows.text_spans.len());
+        let cost_mark = rows.costs.len();
+        match parse_row(context, record, &mut scratch, &mut ranges, &mut rows, &mut result.stats) {
+            Ok(()) => {
+                rows.lines.push(record_line);
+                result.stats.rows_scored += 1;
+            }
+            Err(problem) => {
+                rows.numeric.truncate(marks.0);
+                rows.numeric_missing.truncate(marks.1);
+                rows.text.truncate(marks.2);
+                rows.text_spans.truncate(marks.3);
+                rows.costs.truncate(cost_mark);
+                let scored = rows.lines.len();
+                rows.categorical.iter_mut().for_each(|c| c.truncate(scored));
+                let fatal = !context.keep_rejects
+                    || (problem.reason == RejectReason::MissingValue && context.missing == MissingPolicy::Error)
+                    || (problem.reason == RejectReason::UnseenCategory && context.unseen == UnseenPolicy::Error);
+                if fatal {
+                    result.fatal = Some(Fatal::Row(record_line, problem));
+                    return result;
+                }
+                let reason = RejectReason::ALL.iter().position(|r| *r == problem.reason).unwrap_or(0);
+                result.stats.rejected[reason] += 1;
+                if matches!(pass, Pass::Write { .. }) {
+                    let mut out = Vec::new();
+                    push_field(&mut out, problem.column.as_bytes());
+                    out.push(b',');
+                    out.extend_from_slice(problem.reason.name().as_bytes());
+                    out.push(b',');
+                    push_field(&mut out, problem.message.as_bytes());
+                    out.push(b',');
+                    push_field(&mut out, String::from_utf8_lossy(record).as_bytes());
+                    out.push(b'\n');
+                    result.rejects.push((record_line, out));
+                }
+            }
+        }
+    }
+    result.newlines = line;
+    if matches!(pass, Pass::Count) {
+        return result;
+    }
+    let n = rows.lines.len();
+    let Ok(numeric) = Array2::from_shape_vec((n, width), std::mem::take(&mut rows.numeric)) else {
+        result.fatal = Some(Fatal::Error(Error::Usage("internal error: a chunk's inputs did not line up".into())));
+        return result;
+    };
+    let inputs = Inputs { numeric: numeric.view(), categorical: &rows.categorical };
+    let mut posteriors = context.file.log_posteriors(&inputs, context.prior);
+    posteriors.mapv_inplace(f64::exp);
+    let k = context.file.classes.len();
+    let costs_of = |r: usize| -> Option<Vec<f64>> {
+        let spec = context.spec?;
+        let row: Vec<f64> = posteriors.row(r).to_vec();
+        let values = &rows.costs[r * plan.cost_columns.len()..(r + 1) * plan.cost_columns.len()];
+        Some(spec.expected_costs(&row, &|c| plan.cost_columns.iter().position(|n| n == c).map_or(0.0, |i| values[i])))
+    };
+    let settled = match pass {
+        Pass::Rank { settled, action } => {
+            for r in 0..n {
+                if let Some(costs) = costs_of(r) {
+                    let at = place(chunk.index, rows.lines[r]);
+                    if let (_, Some(saving)) = choose(&costs, at, settled, Some(action)) {
+                        result.candidates.push((saving, at));
+                    }
+                }
+            }
+            return result;
+        }
+        Pass::Write { settled } => settled,
+        Pass::Count => return result,
+    };
+    let stats = &mut result.stats;
+    for r in 0..n {
+        for (c, total) in stats.posterior_sum.iter_mut().enumerate().take(k) {
+            *total += posteriors[(r, c)];
+        }
+    }
+    // Range and drift figures of the scored rows.
+    for r in 0..n {
+        for (j, feature) in plan.numeric.iter().enumerate() {
+            if rows.numeric_missing[r * plan.numeric.len() + j] {
+                continue;
+            }
+            let x = numeric[(r, j)];
+            if x < feature.min {
+                stats.below_range[j] += 1;
+            } else if x > feature.max {
+                stats.above_range[j] += 1;
+            }
+        }
+    }
+    if let Some((reference, slots)) = &context.drift {
+        for (j, slot) in slots.iter().enumerate().take(plan.numeric.len()) {
+            let Some(f) = *slot else { continue };
+            let edges = &reference.features[f].edges;
+            let bins = &mut stats.feature_bins[f];
+            for r in 0..n {
+                let bin = if rows.numeric_missing[r * plan.numeric.len() + j] {
+                    edges.len() + 1
+                } else {
+                    value_bin(edges, numeric[(r, j)])
+                };
+                if let Some(b) = bins.get_mut(bin) {
+                    *b += 1;
+                }
+            }
+        }
+        for (c, slot) in slots.iter().skip(plan.numeric.len()).enumerate() {
+            let Some(f) = *slot else { continue };
+            let bins = &mut stats.feature_bins[f];
+            let other = bins.len().saturating_sub(1);
+            for &code in &rows.categorical[c] {
+                if let Some(b) = bins.get_mut((code as usize).min(other)) {
+                    *b += 1;
+                }
+            }
+        }
+        // The score at the model's own prior, as the training deciles were.
+        let own: Vec<f64> = if context.prior == context.file.prior.as_slice() {
+            (0..n).map(|r| posteriors[(r, context.positive)]).collect()
+        } else {
+            let lp = context.file.log_posteriors(&inputs, &context.file.prior);
+            (0..n).map(|r| lp[(r, context.positive)].exp()).collect()
+        };
+        for s in own {
+            if let Some(b) = stats.score_bins.get_mut(value_bin(&reference.score.edges, s)) {
+                *b += 1;
+            }
+        }
+    }
+    let reasons = context.reasons.map(|codes| codes.reasons(context.file, &inputs));
+    let texts = plan.text_names.len();
+    let out = &mut result.output;
+    for r in 0..n {
+        let spans = &rows.text_spans[r * texts..(r + 1) * texts];
+        let mut first = true;
+        let mut separate = |out: &mut Vec<u8>| {
+            if !first {
+                out.push(b',');
+            }
+            first = false;
+        };
+        for &(a, b) in &spans[..plan.id_count] {
+            separate(out);
+            push_field(out, &rows.text[a..b]);
+        }
+        for c in 0..k {
+            separate(out);
+            push_number(out, posteriors[(r, c)]);
+        }
+        if let (Some(spec), Some(costs)) = (context.spec, costs_of(r)) {
+            let (action, _) = choose(&costs, place(chunk.index, rows.lines[r]), settled, None);
+            stats.actions[action] += 1;
+            stats.expected_cost += costs[action];
+            separate(out);
+            push_field(out, spec.actions[action].name.as_bytes());
+            separate(out);
+            push_number(out, costs[action]);
+        }
+        if let (Some(codes), Some(reasons)) = (context.reasons, &reasons) {
+            for i in 0..codes.count {
+                separate(out);
+                if let Some(&f) = reasons[r].get(i) {
+                    push_field(out, codes.features[f].as_bytes());
+                }
+            }
+        }
+        for &(a, b) in &spans[plan.id_count..] {
+            separate(out);
+            push_field(out, &rows.text[a..b]);
+        }
+        out.push(b'\n');
+    }
+    result
+}
+
+/// The error that stops a run at a row it cannot set aside.
+fn fatal_error(context: &Context<'_>, line: u64, problem: Problem) -> Error {
+    let at = Position { path: context.path.to_string(), line };
+    match problem.reason {
+        RejectReason::UnseenCategory if context.unseen == UnseenPolicy::Error => {
+            let known = context
+                .plan
+                .categorical
+                .iter()
+                .find(|c| c.name == problem.column)
+                .map(|c| {
+                    c.levels.iter().filter(|l| l.as_str() != crate::data::dataset::MISSING_LEVEL).cloned().collect()
+                })
+                .unwrap_or_default();
+            let level = problem.message.clone();
+            Error::UnseenCategory { at, column: problem.column, level, known }
+        }
+        RejectReason::MissingValue if context.missing == MissingPolicy::Error => Error::UnfillableMissing {
+            at,
+            column: problem.column,
+            reason: "the missing-value policy is 'error' (--missing impute fills it with the training median, --missing drop-rows sets the row aside)".into(),
+        },
+        _ => Error::BadRow { at, column: problem.column, message: problem.message },
+    }
+}
+
+/// Where one row's values go in [`Rows`].
+struct Slots {
+    numeric: usize,
+    missing: usize,
+    text: usize,
+    cost: usize,
+}
+
+/// Parses one record into `rows`; on a problem the caller rolls back.
+fn parse_row(
+    context: &Context<'_>,
+    record: &[u8],
+    scratch: &mut Vec<u8>,
+    ranges: &mut Vec<(usize, usize)>,
+    rows: &mut Rows,
+    stats: &mut ChunkStats,
+) -> Result<(), Problem> {
+    let plan = context.plan;
+    let width = plan.fields.len();
+    let delimiter = context.delimiter;
+    let field_count = |found: usize| Problem {
+        reason: RejectReason::FieldCount,
+        column: String::new(),
+        message: format!("the row has {found} fields but the header has {width}"),
+    };
+    let slots = Slots {
+        numeric: rows.numeric.len(),
+        missing: rows.numeric_missing.len(),
+        text: rows.text_spans.len(),
+        cost: rows.costs.len(),
+    };
+    rows.numeric.resize(slots.numeric + plan.input_width, 0.0);
+    rows.numeric_missing.resize(slots.missing + plan.numeric.len(), false);
+    rows.text_spans.resize(slots.text + plan.text_names.len(), (0, 0));
+    rows.costs.resize(slots.cost + plan.cost_columns.len(), 0.0);
+    // Filled counts wait until the row is known to be good.
+    let mut filled: Vec<usize> = Vec::new();
+    let mut unseen: Vec<usize> = Vec::new();
+    if memchr::memchr(b'"', record).is_none() {
+        // The common case, one pass: a plain number is scanned and converted
+        // where it stands; anything else is cut at the next delimiter.
+        let n = record.len();
+        let found = || 1 + memchr::memchr_iter(delimiter, record).count();
+        let mut position = 0;
+        for i in 0..width {
+            if position > n {
+                return Err(field_count(found()));
+            }
+            let usage = &plan.fields[i];
+            if let (Some(j), None, None, None) = (usage.numeric, usage.categorical, usage.text, usage.cost) {
+                if let Some(&first) = record.get(position) {
+                    if !context.na.may_be_missing(first) {
+                        if let Some((value, used)) = scan_f64(&record[position..]) {
+                            let end = position + used;
+                            if end == n || record[end] == delimiter {
+                                rows.numeric[slots.numeric + j] = value;
+                                position = end + 1;
+                                continue;
+                            }
+                        }
+                    }
+                }
+            }
+            let end = memchr::memchr(delimiter, &record[position..]).map_or(n, |o| position + o);
+            take_field(context, i, &record[position..end], rows, &slots, &mut filled, &mut unseen)?;
+            position = end + 1;
+        }
+        if position <= n {
+            return Err(field_count(found()));
+        }
+    } else {
+        let quoted = split(record, delimiter, scratch, ranges).map_err(|()| Problem {
+            reason: RejectReason::Quoting,
+            column: String::new(),
+            message: "a quoted field is not closed, or text follows its closing quote".into(),
+        })?;
+        if ranges.len() != width {
+            return Err(field_count(ranges.len()));
+        }
+        let source: &[u8] = if quoted { scratch } else { record };
+        for (i, &(a, b)) in ranges.iter().enumerate() {
+            take_field(context, i, &source[a..b], rows, &slots, &mut filled, &mut unseen)?;
+        }
+    }
+    for f in filled {
+        stats.filled[f] += 1;
+    }
+    for c in unseen {
+        stats.unseen_as_missing[c] += 1;
+    }
+    Ok(())
+}
+
+/// One field of a row, by what the plan says it feeds.
+fn take_field(
+    context: &Context<'_>,
+    i: usize,
+    field: &[u8],
+    rows: &mut Rows,
+    slots: &Slots,
+    filled: &mut Vec<usize>,
+    unseen: &mut Vec<usize>,
+) -> Result<(), Problem> {
+    let plan = context.plan;
+    let (row_start, missing_start, text_start, cost_start) = (slots.numeric, slots.missing, slots.text, slots.cost);
+    let usage = &plan.fields[i];
+    let field = trim(field);
+    let column = || plan.names[i].clone();
+    if let Some(j) = usage.numeric {
+        let feature = &plan.numeric[j];
+        if context.na.is_missing(field) {
+            match feature.fill {
+                Fill::Value(v) => {
+                    rows.numeric[row_start + j] = v;
+                    rows.numeric_missing[missing_start + j] = true;
+                    if let Some(indicator) = feature.indicator {
+                        rows.numeric[row_start + indicator] = 1.0;
+                    }
+                    filled.push(j);
+                }
+                Fill::Unfillable => {
+                    return Err(Problem {
+                        reason: RejectReason::MissingValue,
+                        column: column(),
+                        message: "the value is missing and the model has no fill for it".into(),
+                    })
+                }
+            }
+        } else {
+            match parse_f64(field) {
+                Some(x) if x.is_finite() => rows.numeric[row_start + j] = x,
+                Some(_) => {
+                    return Err(Problem {
+                        reason: RejectReason::NotFinite,
+                        column: column(),
+                        message: format!("'{}' is not a finite number", String::from_utf8_lossy(field)),
+                    })
+                }
+                None => {
+                    return Err(Problem {
+                        reason: RejectReason::NotANumber,
+                        column: column(),
+                        message: format!("'{}' is not a number", String::from_utf8_lossy(field)),
+                    })
+                }
+            }
+        }
+    }
+    if let Some(c) = usage.categorical {
+        let feature = &plan.categorical[c];
+        let code = if context.na.is_missing(field) {
+            feature.missing_code.map(|m| (m, false))
+        } else {
+            match feature.codes.get(field) {
+                Some(&code) => Some((code, true)),
+                None => match context.unseen {
+                    UnseenPolicy::Missing => {
+                        unseen.push(c);
+                        // Counted as unseen, not as a missing value filled.
+                        feature.missing_code.map(|m| (m, true))
+                    }
+                    _ => {
+                        return Err(Problem {
+                            reason: RejectReason::UnseenCategory,
+                            column: column(),
+                            message: String::from_utf8_lossy(field).into_owned(),
+                        })
+                    }
+                },
+            }
+        };
+        match code {
+            Some((code, known)) => {
+                if !known {
+                    filled.push(plan.numeric.len() + c);
+                }
+                rows.categorical[c].push(code);
+            }
+            None => {
+                return Err(Problem {
+                    reason: RejectReason::MissingValue,
+                    column: column(),
+                    message: "the value is missing and the model has no level for missing values".into(),
+                })
+            }
+        }
+    }
+    if let Some(t) = usage.text {
+        if std::str::from_utf8(field).is_err() {
+            return Err(Problem {
+                reason: RejectReason::Encoding,
+                column: column(),
+                message: "the value is not valid UTF-8".into(),
+            });
+        }
+        let start = rows.text.len();
+        rows.text.extend_from_slice(field);
+        rows.text_spans[text_start + t] = (start, rows.text.len());
+    }
+    if let Some(slot) = usage.cost {
+        match parse_f64(field).filter(|x| x.is_finite()) {
+            Some(x) => rows.costs[cost_start + slot] = x,
+            None => {
+                return Err(Problem {
+                    reason: RejectReason::CostValue,
+                    column: column(),
+                    message: format!(
+                        "the costs read this column, and '{}' is not a finite number",
+                        String::from_utf8_lossy(field)
+                    ),
+                })
+            }
+        }
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn fields(record: &str) -> Result<Vec<String>, ()> {
+        let mut scratch = Vec::new();
+        let mut ranges = Vec::new();
+        let quoted = split(record.as_bytes(), b',', &mut scratch, &mut ranges)?;
+        let source = if quoted { &scratch[..] } else { record.as_bytes() };
+        Ok(ranges.iter().map(|&(a, b)| String::from_utf8_lossy(&source[a..b]).into_owned()).collect())
+    }
+
+    #[test]
+    fn splits_plain_and_quoted_records() {
+        assert_eq!(fields("a,b,,c"), Ok(vec!["a".into(), "b".into(), "".into(), "c".into()]));
+        assert_eq!(fields("a,"), Ok(vec!["a".into(), "".into()]));
+        assert_eq!(fields("\"x,y\",\"say \"\"hi\"\"\",3"), Ok(vec!["x,y".into(), "say \"hi\"".into(), "3".into()]));
+        assert_eq!(fields("\"a\nb\",\"\""), Ok(vec!["a\nb".into(), "".into()]));
+        assert_eq!(fields("1,\"x\","), Ok(vec!["1".into(), "x".into(), "".into()]));
+        assert_eq!(fields("\"open,1"), Err(()));
+        assert_eq!(fields("\"a\"b,1"), Err(()));
+    }
+
+    #[test]
+    fn fields_are_quoted_only_when_they_must_be() {
+        let mut out = Vec::new();
+        push_field(&mut out, b"plain");
+        out.push(b'|');
+        push_field(&mut out, b"a,\"b\"");
+        assert_eq!(out, b"plain|\"a,\"\"b\"\"\"");
+    }
+}

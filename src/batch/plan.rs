@@ -1,0 +1,208 @@
+//! The column plan: the new file's header checked against the model's
+//! schema before any row is read, and what each field of a record is for.
+//!
+//! Every column the model needs must be in the header (the error lists all
+//! that are missing, before anything is scored). Columns may come in any
+//! order; columns the model does not use are ignored unless they are asked
+//! for (`--id`, `--keep`, a cost column).
+
+use std::collections::HashMap;
+
+use crate::data::dataset::MISSING_LEVEL;
+use crate::data::options::MissingPolicy;
+use crate::data::schema::{ColumnKind, Imputation, Schema};
+use crate::error::{Error, Result};
+
+/// What one field of a record feeds.
+#[derive(Debug, Clone, Default)]
+pub struct FieldUse {
+    /// The numeric feature it is (index into [`Plan::numeric`]).
+    pub numeric: Option<usize>,
+    /// The categorical feature it is (index into [`Plan::categorical`]).
+    pub categorical: Option<usize>,
+    /// The text slot it is copied into (ids and `--keep` columns).
+    pub text: Option<usize>,
+    /// The cost column it is (index into [`Plan::cost_columns`]).
+    pub cost: Option<usize>,
+}
+
+/// How a missing value of a feature is filled, if it can be.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Fill {
+    /// The model has a value for it (the training median).
+    Value(f64),
+    /// The model has no way to take it: the row cannot be scored.
+    Unfillable,
+}
+
+/// A numeric feature of the model.
+#[derive(Debug, Clone)]
+pub struct NumericFeature {
+    /// Its name.
+    pub name: String,
+    /// What a missing value becomes.
+    pub fill: Fill,
+    /// The model input of its missing-value indicator, if it has one.
+    pub indicator: Option<usize>,
+    /// The training range.
+    pub min: f64,
+    /// The training range.
+    pub max: f64,
+}
+
+/// A categorical feature of the model.
+#[derive(Debug, Clone)]
+pub struct CategoricalFeature {
+    /// Its name.
+    pub name: String,
+    /// The training levels and their codes.
+    pub codes: HashMap<Vec<u8>, u32>,
+    /// The levels, in code order (for messages).
+    pub levels: Vec<String>,
+    /// The code of the missing level, when the model has one.
+    pub missing_code: Option<u32>,
+}
+
+/// The plan for one file.
+#[derive(Debug, Clone)]
+pub struct Plan {
+    /// The header's names.
+    pub names: Vec<String>,
+    /// One entry per header field.
+    pub fields: Vec<FieldUse>,
+    /// Numeric features, in the schema's order.
+    pub numeric: Vec<NumericFeature>,
+    /// Categorical features, in the schema's order.
+    pub categorical: Vec<CategoricalFeature>,
+    /// Width of a row of numeric model inputs (features, then indicators).
+    pub input_width: usize,
+    /// Names of the text slots: the `--id` columns, then the `--keep` ones.
+    pub text_names: Vec<String>,
+    /// How many of the text slots are `--id` columns.
+    pub id_count: usize,
+    /// The cost columns, in the order of [`crate::decide::CostSpec::columns`].
+    pub cost_columns: Vec<String>,
+}
+
+/// What the plan is built from besides the header and the schema.
+#[derive(Debug, Clone, Default)]
+pub struct PlanRequest {
+    /// Columns passed through first (`--id`).
+    pub ids: Vec<String>,
+    /// Columns passed through last (`--keep`).
+    pub keep: Vec<String>,
+    /// Columns the costs read.
+    pub cost_columns: Vec<String>,
+    /// The missing-value policy in force.
+    pub missing: MissingPolicy,
+}
+
+impl Plan {
+    /// Checks `names` (the header of `path`) against `schema` and plans
+    /// every field.
+    pub fn new(path: &str, names: &[String], schema: &Schema, request: &PlanRequest) -> Result<Plan> {
+        let position: HashMap<&str, usize> = names.iter().enumerate().map(|(i, n)| (n.as_str(), i)).collect();
+        let features: Vec<_> = schema.features().collect();
+        let absent: Vec<&str> =
+            features.iter().map(|f| f.name.as_str()).filter(|n| !position.contains_key(n)).collect();
+        if !absent.is_empty() {
+            let hint = match crate::data::suggest::closest(absent[0], names) {
+                Some(close) => format!(" (the header has '{close}')"),
+                None => String::new(),
+            };
+            return Err(Error::SchemaMismatch {
+                path: path.to_string(),
+                message: format!(
+                    "the model needs column{} {}, which the header does not have{hint}; nothing was scored",
+                    if absent.len() == 1 { "" } else { "s" },
+                    absent.iter().map(|n| format!("'{n}'")).collect::<Vec<_>>().join(", ")
+                ),
+            });
+        }
+        let find = |flag: &str, column: &str| {
+            position.get(column).copied().ok_or_else(|| Error::UnknownColumn {
+                path: path.to_string(),
+                flag: flag.to_string(),
+                column: column.to_string(),
+                suggestion: crate::data::suggest::closest(column, names),
+            })
+        };
+        let mut fields = vec![FieldUse::default(); names.len()];
+        let mut numeric = Vec::new();
+        let mut categorical = Vec::new();
+        let numeric_count = features.iter().filter(|f| f.kind == Some(ColumnKind::Numeric)).count();
+        let mut next_indicator = numeric_count;
+        for feature in &features {
+            let at = position[feature.name.as_str()];
+            match feature.kind {
+                Some(ColumnKind::Numeric) => {
+                    let summary = feature.numeric.as_ref();
+                    let (fill, indicator) = match (&feature.imputation, request.missing) {
+                        (Some(Imputation::Median { value, .. }), _) => {
+                            next_indicator += 1;
+                            (Fill::Value(*value), Some(next_indicator - 1))
+                        }
+                        (_, MissingPolicy::Impute) => (Fill::Value(summary.map_or(0.0, |s| s.median)), None),
+                        _ => (Fill::Unfillable, None),
+                    };
+                    fields[at].numeric = Some(numeric.len());
+                    numeric.push(NumericFeature {
+                        name: feature.name.clone(),
+                        fill,
+                        indicator,
+                        min: summary.map_or(f64::NEG_INFINITY, |s| s.min),
+                        max: summary.map_or(f64::INFINITY, |s| s.max),
+                    });
+                }
+                _ => {
+                    let levels = feature.categorical.as_ref().map(|c| c.levels.clone()).unwrap_or_default();
+                    let missing_code = levels
+                        .iter()
+                        .position(|l| l == MISSING_LEVEL && feature.imputation.is_some())
+                        .map(|c| c as u32);
+                    fields[at].categorical = Some(categorical.len());
+                    categorical.push(CategoricalFeature {
+                        name: feature.name.clone(),
+                        codes: levels
+                            .iter()
+                            .enumerate()
+                            .filter(|(c, _)| Some(*c as u32) != missing_code)
+                            .map(|(c, l)| (l.as_bytes().to_vec(), c as u32))
+                            .collect(),
+                        levels,
+                        missing_code,
+                    });
+                }
+            }
+        }
+        let mut text_names = Vec::new();
+        let mut id_count = 0;
+        for (flag, list) in [("--id", &request.ids), ("--keep", &request.keep)] {
+            for column in list.iter() {
+                let at = find(flag, column)?;
+                // A column named twice is shown once, in its first place.
+                if fields[at].text.is_none() {
+                    fields[at].text = Some(text_names.len());
+                    text_names.push(column.clone());
+                }
+            }
+            if flag == "--id" {
+                id_count = text_names.len();
+            }
+        }
+        for (slot, column) in request.cost_columns.iter().enumerate() {
+            let at = find("the costs file", column)?;
+            fields[at].cost = Some(slot);
+        }
+        Ok(Plan {
+            names: names.to_vec(),
+            fields,
+            numeric,
+            categorical,
+            input_width: next_indicator,
+            text_names,
+            id_count,
+            cost_columns: request.cost_columns.clone(),
+        })
+    }
+}
