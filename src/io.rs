@@ -132,18 +132,28 @@ impl AtomicFile {
     }
 
     /// Flushes, syncs and renames the file into place.
-    pub fn commit(mut self) -> Result<()> {
-        let shown = self.shown();
-        if let Some(mut writer) = self.writer.take() {
-            writer.flush().map_err(|e| Error::io(&shown, e))?;
+    pub fn commit(self) -> Result<()> {
+        AtomicFile::commit_all(vec![self])
+    }
+
+    /// Flushes and syncs every file, then renames them all into place: a
+    /// failure while writing leaves none of them behind.
+    pub fn commit_all(mut files: Vec<AtomicFile>) -> Result<()> {
+        for file in &mut files {
+            let shown = file.shown();
+            if let Some(mut writer) = file.writer.take() {
+                writer.flush().map_err(|e| Error::io(&shown, e))?;
+            }
+            if let Some(temporary) = &file.temporary {
+                std::fs::File::open(temporary).and_then(|f| f.sync_all()).map_err(|e| Error::io(&shown, e))?;
+            }
         }
-        if let Some(temporary) = self.temporary.take() {
-            let result = std::fs::File::open(&temporary)
-                .and_then(|f| f.sync_all())
-                .and_then(|_| std::fs::rename(&temporary, &self.target));
-            if let Err(e) = result {
-                let _ = std::fs::remove_file(&temporary);
-                return Err(Error::io(shown, e));
+        for file in &mut files {
+            if let Some(temporary) = file.temporary.take() {
+                if let Err(e) = std::fs::rename(&temporary, &file.target) {
+                    let _ = std::fs::remove_file(&temporary);
+                    return Err(Error::io(file.shown(), e));
+                }
             }
         }
         Ok(())

@@ -548,3 +548,65 @@ fn logistic_reasons_are_the_largest_terms() {
     assert_eq!(code, 2);
     assert!(err.contains("QDA"), "{err}");
 }
+
+/// A quote inside an unquoted field is text (it joins no rows), quoted
+/// fields work with a tab delimiter, and an unclosed quote costs one row.
+#[test]
+fn stray_quotes_and_tab_delimited_quoted_fields() {
+    let dir = temp_dir();
+    setup(dir.path(), "lda");
+    let text = demo("new_portfolio.csv");
+    let mut lines: Vec<String> = text.lines().map(String::from).collect();
+    // application_id is the first column: a stray quote inside it, and a
+    // quote that opens and never closes.
+    lines[5] = lines[5].replacen("QL26-", "QL26\"-", 1);
+    lines[9] = format!("\"{}", lines[9]);
+    write(dir.path(), "stray.csv", (lines.join("\n") + "\n").as_bytes());
+    let (code, _, err) = run(
+        dir.path(),
+        &[
+            "score",
+            "m.json",
+            "stray.csv",
+            "--id",
+            "application_id",
+            "--rejects",
+            "r.csv",
+            "--summary",
+            "s.json",
+            "-o",
+            "o.csv",
+        ],
+    );
+    assert_eq!(code, 0, "{err}");
+    let s = summary(dir.path(), "s.json");
+    assert_eq!(s["rows_read"], 5000);
+    assert_eq!(s["rows_rejected"], 1, "{s}");
+    let rejects = std::fs::read_to_string(dir.path().join("r.csv")).expect("rejects");
+    assert!(rejects.lines().nth(1).is_some_and(|l| l.starts_with("10,")), "{rejects}");
+    let out = std::fs::read_to_string(dir.path().join("o.csv")).expect("out");
+    assert!(out.contains("\"QL26\"\"-000005\""), "the stray quote is kept as text");
+    // Tab-delimited, every id quoted.
+    let tabbed: Vec<String> = text
+        .lines()
+        .map(|l| {
+            let mut f: Vec<String> = l.split(',').map(String::from).collect();
+            f[0] = format!("\"{}\"", f[0]);
+            f.join("\t")
+        })
+        .collect();
+    write(dir.path(), "tabbed.tsv", (tabbed.join("\n") + "\n").as_bytes());
+    let (code, _, err) = run(
+        dir.path(),
+        &["score", "m.json", "tabbed.tsv", "--delimiter", "tab", "--id", "application_id", "-o", "t.csv"],
+    );
+    assert_eq!(code, 0, "{err}");
+    let (code, _, err) = run(dir.path(), &["score", "m.json", "new.csv", "--id", "application_id", "-o", "n.csv"]);
+    assert_eq!(code, 0, "{err}");
+    assert_eq!(std::fs::read(dir.path().join("t.csv")).ok(), std::fs::read(dir.path().join("n.csv")).ok());
+    // Two outputs on one path are refused before anything is written.
+    let (code, _, err) = run(dir.path(), &["score", "m.json", "new.csv", "--rejects", "same.csv", "-o", "same.csv"]);
+    assert_eq!(code, 2);
+    assert!(err.contains("same file"), "{err}");
+    assert!(!dir.path().join("same.csv").exists());
+}

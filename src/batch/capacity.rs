@@ -30,12 +30,12 @@ pub enum Cut {
         /// The last kept row's saving.
         saving: f64,
         /// Its line.
-        line: u64,
+        line: u128,
     },
 }
 
 impl Cut {
-    fn keeps(self, saving: f64, line: u64) -> bool {
+    fn keeps(self, saving: f64, line: u128) -> bool {
         match self {
             Cut::KeepAll => true,
             Cut::KeepNone => false,
@@ -45,7 +45,7 @@ impl Cut {
 }
 
 /// The ranking order of `decide`: larger saving first, then earlier line.
-fn rank(saving: f64, line: u64, other_saving: f64, other_line: u64) -> Ordering {
+fn rank(saving: f64, line: u128, other_saving: f64, other_line: u128) -> Ordering {
     other_saving.total_cmp(&saving).then(line.cmp(&other_line))
 }
 
@@ -74,7 +74,7 @@ pub fn limit(capacity: Capacity, rows: u64) -> u64 {
 /// One row's action under the cuts found so far. When `ranking` names the
 /// next limited action and the row reaches its ranking, the row's saving
 /// over its next-best open action comes back too.
-pub fn choose(costs: &[f64], line: u64, settled: &[Settled], ranking: Option<usize>) -> (usize, Option<f64>) {
+pub fn choose(costs: &[f64], line: u128, settled: &[Settled], ranking: Option<usize>) -> (usize, Option<f64>) {
     let m = costs.len();
     let mut order: Vec<usize> = (0..m).collect();
     order.sort_by(|&a, &b| costs[a].total_cmp(&costs[b]).then(a.cmp(&b)));
@@ -105,7 +105,7 @@ pub fn choose(costs: &[f64], line: u64, settled: &[Settled], ranking: Option<usi
 #[derive(Debug, Clone, Copy)]
 struct Candidate {
     saving: f64,
-    line: u64,
+    line: u128,
 }
 
 impl PartialEq for Candidate {
@@ -140,7 +140,7 @@ impl Ranking {
     }
 
     /// Offers one row.
-    pub fn offer(&mut self, saving: f64, line: u64) {
+    pub fn offer(&mut self, saving: f64, line: u128) {
         self.seen += 1;
         if self.limit == 0 {
             return;
@@ -184,7 +184,7 @@ mod tests {
             })
             .collect();
         let whole = crate::decide::decide(&spec, &costs);
-        let lines: Vec<u64> = (0..costs.len() as u64).map(|r| 2 + 3 * r).collect();
+        let lines: Vec<u128> = (0..costs.len() as u128).map(|r| 2 + 3 * r).collect();
         let mut settled = Vec::new();
         for (a, capacity) in limited_actions(&spec) {
             let mut ranking = Ranking::new(limit(capacity, costs.len() as u64));

@@ -59,10 +59,12 @@ pub struct DriftReference {
     pub score: ScoreBins,
 }
 
-/// The bin of a value among `edges`: the count of edges below it.
+/// The bin of a value among `edges` (sorted): the count of edges below
+/// it. Counted without branches: a binary search over ten edges costs
+/// more in mispredicted jumps than ten comparisons.
 #[inline]
 pub fn value_bin(edges: &[f64], value: f64) -> usize {
-    edges.partition_point(|&e| e < value)
+    edges.iter().map(|&e| usize::from(e < value)).sum()
 }
 
 /// Type 7 deciles of `values` (sorted in place), repeats merged.

@@ -58,6 +58,9 @@ pub enum UnseenPolicy {
 /// small enough that a few chunks per thread stay in flight.
 pub const DEFAULT_CHUNK_BYTES: usize = 1 << 20;
 
+/// The largest chunk asked for is taken as this (1 GiB).
+pub const MAX_CHUNK_BYTES: usize = 1 << 30;
+
 /// A scoring job.
 #[derive(Debug, Clone)]
 pub struct ScoreJob {
@@ -94,6 +97,27 @@ pub struct Outputs {
     pub scores: PathBuf,
     /// The reject file, if rows may be set aside.
     pub rejects: Option<PathBuf>,
+    /// The summary as JSON, if wanted.
+    pub summary: Option<PathBuf>,
+}
+
+impl Outputs {
+    /// Refuses two outputs on one path, an output on the input, and two
+    /// outputs on stdout.
+    fn check(&self, data: &std::path::Path) -> Result<()> {
+        let mut named: Vec<(&str, &PathBuf)> = vec![("-o", &self.scores)];
+        named.extend(self.rejects.iter().map(|p| ("--rejects", p)));
+        named.extend(self.summary.iter().map(|p| ("--summary", p)));
+        for (i, (flag, path)) in named.iter().enumerate() {
+            if path.as_os_str() != "-" && path.as_path() == data {
+                return Err(Error::Usage(format!("{flag} names the input file; write the output elsewhere")));
+            }
+            if let Some((other, _)) = named[..i].iter().find(|(_, p)| p == path) {
+                return Err(Error::Usage(format!("{other} and {flag} name the same file, {}", path.display())));
+            }
+        }
+        Ok(())
+    }
 }
 
 /// Progress so far: rows read and input bytes consumed.
@@ -182,6 +206,7 @@ pub struct Summary {
 /// Runs `job` with `file`, writing `outputs`; the summary comes back.
 pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progress<'_>) -> Result<Summary> {
     let shown = shown_path(&job.data);
+    outputs.check(&job.data)?;
     let missing = job.missing.unwrap_or(file.schema.missing_policy);
     if outputs.rejects.is_none() {
         let needs = match (job.unseen, missing) {
@@ -194,9 +219,10 @@ pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progre
         }
     }
     let limited = job.costs.as_ref().map(limited_actions).unwrap_or_default();
-    if !limited.is_empty() && job.data.as_os_str() == "-" {
+    let regular_file = std::fs::metadata(&job.data).is_ok_and(|m| m.is_file());
+    if !limited.is_empty() && (job.data.as_os_str() == "-" || !regular_file) {
         return Err(Error::Usage(
-            "a capacity in the costs file needs every row before any is assigned; give the data as a file, not on stdin"
+            "a capacity in the costs file needs every row before any is assigned, so the data is read more than once; give it as a regular file, not on stdin or a pipe"
                 .into(),
         ));
     }
@@ -313,17 +339,25 @@ pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progre
         progress,
     )?;
     passes += 1;
-    scores.commit()?;
-    if let Some(r) = rejects {
-        r.commit()?;
+    let summary = summarise(file, job, &plan, &context, &stats, passes, reason_codes.as_ref());
+    let mut files = vec![scores];
+    files.extend(rejects);
+    if let Some(path) = &outputs.summary {
+        let text = serde_json::to_string_pretty(&summary)
+            .map_err(|e| Error::io(path.display().to_string(), std::io::Error::other(e)))?;
+        let mut json = AtomicFile::create(path)?;
+        json.write_all(text.as_bytes())?;
+        json.write_all(b"\n")?;
+        files.push(json);
     }
-    Ok(summarise(file, job, &plan, &context, &stats, passes, reason_codes.as_ref()))
+    AtomicFile::commit_all(files)?;
+    Ok(summary)
 }
 
 /// Opens the input and reads its header: the names, and the reader
 /// positioned at the first record.
 fn open_input(job: &ScoreJob, shown: &str) -> Result<(Vec<String>, ChunkReader)> {
-    let mut reader = open_chunked(&job.data, job.chunk_bytes.max(1))?;
+    let mut reader = open_chunked(&job.data, job.chunk_bytes.clamp(1, MAX_CHUNK_BYTES), job.delimiter)?;
     let Some(mut header) = reader.header()? else {
         return Err(Error::EmptyFile { path: shown.to_string() });
     };
@@ -371,50 +405,73 @@ fn scan(
     context: &Context<'_>,
     pool: &rayon::ThreadPool,
     pass: Pass<'_>,
-    mut consume: Option<Consumer<'_>>,
+    consume: Option<Consumer<'_>>,
     progress: Progress<'_>,
 ) -> Result<(ChunkStats, u64)> {
     let mut reader = reader;
-    let first_data_line = reader.first_data_line();
-    let queue = 2 * pool.current_num_threads().max(1);
-    let mut total = ChunkStats::default();
-    let mut bytes = 0u64;
-    std::thread::scope(|scope| -> Result<()> {
-        let (sender, receiver) = std::sync::mpsc::sync_channel::<Result<RawChunk>>(queue);
-        scope.spawn(move || loop {
-            match reader.next_chunk() {
-                Ok(Some(chunk)) => {
-                    if sender.send(Ok(chunk)).is_err() {
-                        return;
-                    }
-                }
-                Ok(None) => return,
-                Err(e) => {
-                    let _ = sender.send(Err(e));
+    let mut joiner = Joiner {
+        context,
+        consume,
+        first_line: reader.first_data_line(),
+        rejects: Vec::new(),
+        total: ChunkStats::default(),
+        bytes: 0,
+    };
+    if pool.current_num_threads() == 1 {
+        // One thread does everything — read, score, write — so that a
+        // single-thread run is what it says.
+        while let Some(raw) = reader.next_chunk()? {
+            let result = pool.install(|| chunk::process(context, &raw, pass));
+            joiner.take(result, &raw)?;
+            progress(joiner.total.rows_read, joiner.bytes);
+        }
+        return Ok((joiner.total, joiner.bytes));
+    }
+    let queue = 2 * pool.current_num_threads();
+    // The reader owns its thread and is not waited for on failure: a
+    // producer that stalls (a pipe left open) cannot hold an error back.
+    let (sender, receiver) = std::sync::mpsc::sync_channel::<Result<RawChunk>>(queue);
+    std::thread::spawn(move || loop {
+        match reader.next_chunk() {
+            Ok(Some(chunk)) => {
+                if sender.send(Ok(chunk)).is_err() {
                     return;
                 }
             }
-        });
+            Ok(None) => return,
+            Err(e) => {
+                let _ = sender.send(Err(e));
+                return;
+            }
+        }
+    });
+    {
         // Chunks go to the pool as they arrive; results are put back in
         // file order as they finish, so no worker waits for a batch.
-        let limit = 4 * pool.current_num_threads().max(1);
-        let (done_sender, done) = std::sync::mpsc::channel::<(usize, ChunkResult, RawChunk)>();
+        let limit = 4 * pool.current_num_threads();
+        type Done = (std::thread::Result<ChunkResult>, RawChunk);
+        let (done_sender, done) = std::sync::mpsc::channel::<Done>();
+        let mut panicked = None;
         let mut finished: BTreeMap<usize, (ChunkResult, RawChunk)> = BTreeMap::new();
         let mut next = 0usize;
         let mut in_flight = 0usize;
         let mut exhausted = false;
         let mut failure: Option<Error> = None;
-        let mut first_line = first_data_line;
-        let mut rejects = Vec::new();
         pool.in_place_scope(|scope| loop {
-            while failure.is_none() && !exhausted && in_flight < limit {
+            // Finished chunks waiting for an earlier one count against the
+            // limit too, so a slow chunk cannot let memory grow.
+            while failure.is_none() && !exhausted && in_flight + finished.len() < limit {
                 match receiver.recv() {
                     Ok(Ok(chunk)) => {
                         in_flight += 1;
                         let sender = done_sender.clone();
                         scope.spawn(move |_| {
-                            let result = chunk::process(context, &chunk, pass);
-                            let _ = sender.send((chunk.index, result, chunk));
+                            // A panic is caught and sent on, so the loop
+                            // below never waits for a result that will not come.
+                            let result = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+                                chunk::process(context, &chunk, pass)
+                            }));
+                            let _ = sender.send((result, chunk));
                         });
                     }
                     Ok(Err(e)) => failure = Some(e),
@@ -424,43 +481,71 @@ fn scan(
             if in_flight == 0 {
                 break;
             }
-            let Ok((index, result, raw)) = done.recv() else { break };
+            let Ok((result, raw)) = done.recv() else { break };
             in_flight -= 1;
-            finished.insert(index, (result, raw));
-            while let Some((mut result, raw)) = finished.remove(&next) {
+            let result = match result {
+                Ok(result) => result,
+                Err(payload) => {
+                    panicked.get_or_insert(payload);
+                    failure.get_or_insert(Error::Usage("internal error in a scoring worker".into()));
+                    continue;
+                }
+            };
+            finished.insert(raw.index, (result, raw));
+            while let Some((result, raw)) = finished.remove(&next) {
                 next += 1;
-                raw.bytes.release(RELEASE_MARGIN);
-                if failure.is_some() {
-                    continue;
-                }
-                if let Some(fatal) = result.fatal.take() {
-                    failure = Some(fatal.into_error(context, first_line));
-                    continue;
-                }
-                rejects.clear();
-                for (line, rest) in &result.rejects {
-                    let _ = write!(rejects, "{},", first_line + line);
-                    rejects.extend_from_slice(rest);
-                }
-                if let Some(consume) = consume.as_mut() {
-                    if let Err(e) = consume(&result, &rejects) {
+                if failure.is_none() {
+                    if let Err(e) = joiner.take(result, &raw) {
                         failure = Some(e);
-                        continue;
                     }
+                } else {
+                    raw.bytes.release(RELEASE_MARGIN);
                 }
-                first_line += result.newlines;
-                total.merge(&result.stats);
-                bytes += raw.bytes.as_slice().len() as u64;
             }
-            progress(total.rows_read, bytes);
+            progress(joiner.total.rows_read, joiner.bytes);
         });
         drop(receiver);
-        match failure {
-            Some(e) => Err(e),
-            None => Ok(()),
+        if let Some(payload) = panicked {
+            // A bug: let it reach the binary's handler (exit code 4).
+            std::panic::resume_unwind(payload);
         }
-    })?;
-    Ok((total, bytes))
+        if let Some(e) = failure {
+            return Err(e);
+        }
+    }
+    Ok((joiner.total, joiner.bytes))
+}
+
+/// Takes chunk results in file order: settles their line numbers, hands
+/// them on, sums their figures and gives their pages back.
+struct Joiner<'a, 'c> {
+    context: &'a Context<'a>,
+    consume: Option<Consumer<'c>>,
+    first_line: u64,
+    rejects: Vec<u8>,
+    total: ChunkStats,
+    bytes: u64,
+}
+
+impl Joiner<'_, '_> {
+    fn take(&mut self, mut result: ChunkResult, raw: &RawChunk) -> Result<()> {
+        raw.bytes.release(RELEASE_MARGIN);
+        if let Some(fatal) = result.fatal.take() {
+            return Err(fatal.into_error(self.context, self.first_line));
+        }
+        self.rejects.clear();
+        for (line, rest) in &result.rejects {
+            let _ = write!(self.rejects, "{},", self.first_line + line);
+            self.rejects.extend_from_slice(rest);
+        }
+        if let Some(consume) = self.consume.as_mut() {
+            consume(&result, &self.rejects)?;
+        }
+        self.first_line += result.newlines;
+        self.total.merge(&result.stats);
+        self.bytes += raw.bytes.as_slice().len() as u64;
+        Ok(())
+    }
 }
 
 fn summarise(

@@ -38,7 +38,7 @@ pub fn open(path: &Path) -> Result<Input> {
 /// uncompressed file is memory-mapped (the reading thread then only finds
 /// record boundaries; the workers touch the bytes), anything else is read
 /// as a stream.
-pub fn open_chunked(path: &Path, target: usize) -> Result<ChunkReader> {
+pub fn open_chunked(path: &Path, target: usize, delimiter: u8) -> Result<ChunkReader> {
     let shown = shown_path(path);
     let plain = path.as_os_str() != "-" && !path.extension().is_some_and(|e| e.eq_ignore_ascii_case("gz"));
     if plain {
@@ -48,13 +48,13 @@ pub fn open_chunked(path: &Path, target: usize) -> Result<ChunkReader> {
             // nobody truncates the file while baserate reads it (the same
             // condition as every mmap-based reader).
             if let Ok(map) = unsafe { memmap2::Mmap::map(&file) } {
-                let mut reader = ChunkReader::new(Box::new(std::io::empty()), shown, target);
+                let mut reader = ChunkReader::new(Box::new(std::io::empty()), shown, target, delimiter);
                 reader.mapped = Some((Arc::new(map), 0));
                 return Ok(reader);
             }
         }
     }
-    Ok(ChunkReader::new(open(path)?, shown, target))
+    Ok(ChunkReader::new(open(path)?, shown, target, delimiter))
 }
 
 /// How a path is named in messages: `<stdin>` for `-`.
@@ -125,11 +125,12 @@ pub struct ChunkReader {
     pub bytes_read: u64,
     /// A mapped file and the position reached in it.
     mapped: Option<(Arc<memmap2::Mmap>, usize)>,
+    delimiter: u8,
 }
 
 impl ChunkReader {
     /// A reader handing out chunks of about `target` bytes.
-    pub fn new(input: Input, path: String, target: usize) -> Self {
+    pub fn new(input: Input, path: String, target: usize, delimiter: u8) -> Self {
         ChunkReader {
             input,
             path,
@@ -140,6 +141,7 @@ impl ChunkReader {
             finished: false,
             bytes_read: 0,
             mapped: None,
+            delimiter,
         }
     }
 
@@ -170,7 +172,7 @@ impl ChunkReader {
     /// byte-order mark removed. `None` for an empty input.
     pub fn header(&mut self) -> Result<Option<Vec<u8>>> {
         if let Some((map, position)) = &mut self.mapped {
-            let end = record_end(map, 0).unwrap_or(map.len());
+            let end = record_end(map, 0, self.delimiter).unwrap_or(map.len());
             let mut header = map[..end].to_vec();
             *position = (end + 1).min(map.len());
             self.next_line += count_newlines(&map[..*position]);
@@ -181,7 +183,7 @@ impl ChunkReader {
             return Ok(if header.is_empty() && end == map.len() { None } else { Some(header) });
         }
         loop {
-            if let Some(end) = record_end(&self.pending, 0) {
+            if let Some(end) = record_end(&self.pending, 0, self.delimiter) {
                 let mut header: Vec<u8> = self.pending.drain(..=end).collect();
                 self.next_line += count_newlines(&header);
                 header.pop();
@@ -204,15 +206,15 @@ impl ChunkReader {
             if start >= map.len() {
                 return Ok(None);
             }
-            let mut end = (start + self.target).min(map.len());
+            let mut end = start.saturating_add(self.target).min(map.len());
             while end < map.len() {
-                match last_record_end(&map[start..end]) {
+                match last_record_end(&map[start..end], self.delimiter) {
                     Some(at) => {
                         end = start + at + 1;
                         break;
                     }
-                    // One record longer than the target: look further.
-                    None => end = (end + self.target).min(map.len()),
+                    // One record longer than the window: look twice as far.
+                    None => end = start.saturating_add(2 * (end - start)).min(map.len()),
                 }
             }
             *position = end;
@@ -233,7 +235,7 @@ impl ChunkReader {
                 let bytes = std::mem::take(&mut self.pending);
                 return Ok(Some(self.hand_out(ChunkBytes::Owned(bytes))));
             }
-            if let Some(end) = last_record_end(&self.pending) {
+            if let Some(end) = last_record_end(&self.pending, self.delimiter) {
                 let rest = self.pending.split_off(end + 1);
                 let bytes = std::mem::replace(&mut self.pending, rest);
                 return Ok(Some(self.hand_out(ChunkBytes::Owned(bytes))));
@@ -268,37 +270,73 @@ pub fn count_newlines(bytes: &[u8]) -> u64 {
     memchr::memchr_iter(b'\n', bytes).count() as u64
 }
 
-/// The position of the newline that ends the record starting at `from`,
-/// quotes respected; `None` when the record does not end in `bytes`.
-pub fn record_end(bytes: &[u8], from: usize) -> Option<usize> {
+/// The longest a quoted field may run on before it is taken to be an
+/// unclosed quote: its record then ends at the first newline after its
+/// start, and is set aside as malformed, instead of swallowing the rest of
+/// the file.
+pub const MAX_QUOTED_RECORD: usize = 1 << 20;
+
+/// The position of the newline that ends the record starting at `from`, or
+/// `None` when the record does not end within `bytes`.
+///
+/// The rules are the field splitter's: a `"` opens a quoted field only as
+/// a field's first byte; inside one, `""` is a quote and a newline or a
+/// delimiter is text; elsewhere a `"` is an ordinary byte. A record still
+/// inside quotes more than [`MAX_QUOTED_RECORD`] bytes after its start ends
+/// at its first newline.
+pub fn record_end(bytes: &[u8], from: usize, delimiter: u8) -> Option<usize> {
     let mut quoted = false;
+    let mut field_start = from;
     let mut position = from;
-    while let Some(offset) = memchr::memchr2(b'"', b'\n', &bytes[position..]) {
+    loop {
+        if quoted {
+            let Some(offset) = memchr::memchr(b'"', &bytes[position..]) else {
+                return unclosed(bytes, from);
+            };
+            let at = position + offset;
+            if at - from > MAX_QUOTED_RECORD {
+                return unclosed(bytes, from);
+            }
+            if bytes.get(at + 1) == Some(&b'"') {
+                position = at + 2;
+            } else {
+                quoted = false;
+                position = at + 1;
+            }
+            continue;
+        }
+        let offset = memchr::memchr3(b'"', b'\n', delimiter, &bytes[position..])?;
         let at = position + offset;
-        if bytes[at] == b'"' {
-            quoted = !quoted;
-        } else if !quoted {
-            return Some(at);
+        match bytes[at] {
+            b'\n' => return Some(at),
+            b'"' if at == field_start => quoted = true,
+            b'"' => {}
+            _ => field_start = at + 1,
         }
         position = at + 1;
     }
-    None
 }
 
-/// The position of the last newline outside quotes in `bytes`, which start
-/// on a record boundary.
-fn last_record_end(bytes: &[u8]) -> Option<usize> {
+/// Where a record with an unclosed quote ends: at its first newline, once
+/// more than [`MAX_QUOTED_RECORD`] bytes show the quote is not closing.
+fn unclosed(bytes: &[u8], from: usize) -> Option<usize> {
+    if bytes.len() - from <= MAX_QUOTED_RECORD {
+        return None;
+    }
+    memchr::memchr(b'\n', &bytes[from..]).map(|o| from + o)
+}
+
+/// The position of the last record end in `bytes`, which start on a record
+/// boundary.
+fn last_record_end(bytes: &[u8], delimiter: u8) -> Option<usize> {
     if memchr::memchr(b'"', bytes).is_none() {
         return memchr::memrchr(b'\n', bytes);
     }
-    let mut quoted = false;
     let mut last = None;
-    for at in memchr::memchr2_iter(b'"', b'\n', bytes) {
-        if bytes[at] == b'"' {
-            quoted = !quoted;
-        } else if !quoted {
-            last = Some(at);
-        }
+    let mut from = 0;
+    while let Some(end) = record_end(bytes, from, delimiter) {
+        last = Some(end);
+        from = end + 1;
     }
     last
 }
@@ -308,7 +346,8 @@ mod tests {
     use super::*;
 
     fn chunks_of(text: &str, target: usize) -> (Vec<u8>, Vec<(u64, String)>) {
-        let mut reader = ChunkReader::new(Box::new(std::io::Cursor::new(text.as_bytes().to_vec())), "t".into(), target);
+        let mut reader =
+            ChunkReader::new(Box::new(std::io::Cursor::new(text.as_bytes().to_vec())), "t".into(), target, b',');
         let header = reader.header().unwrap_or_default().unwrap_or_default();
         let mut line = reader.first_data_line();
         let mut out = Vec::new();
@@ -338,10 +377,35 @@ mod tests {
         }
     }
 
+    /// A quote inside an unquoted field is text, not the start of a quoted
+    /// field: it does not join records.
+    #[test]
+    fn stray_quotes_do_not_join_records() {
+        let text = "id,h,x\n1,5'11\",3\n2,6'0\",4\n3,\"a\"\"b\",5\n";
+        for target in [1, 3, 8, 100] {
+            let (_, chunks) = chunks_of(text, target);
+            assert!(chunks.iter().all(|(_, c)| c.ends_with('\n')), "{target}: {chunks:?}");
+            let joined: String = chunks.iter().map(|(_, c)| c.as_str()).collect();
+            let mut records = Vec::new();
+            let mut from = 0;
+            while let Some(end) = record_end(joined.as_bytes(), from, b',') {
+                records.push(&joined[from..end]);
+                from = end + 1;
+            }
+            assert_eq!(records, ["1,5'11\",3", "2,6'0\",4", "3,\"a\"\"b\",5"], "{target}");
+        }
+        // An unclosed quote ends its record at its first newline once it has
+        // run past the limit.
+        let mut long = String::from("\"open,1\n");
+        long.push_str(&"2,3\n".repeat(MAX_QUOTED_RECORD / 4 + 10));
+        assert_eq!(record_end(long.as_bytes(), 0, b','), Some(7));
+        assert_eq!(record_end(&long.as_bytes()[..100], 0, b','), None);
+    }
+
     #[test]
     fn bom_and_empty_inputs() {
         assert_eq!(chunks_of("\u{feff}a,b\n1,2\n", 4).0, b"a,b");
-        let mut reader = ChunkReader::new(Box::new(std::io::Cursor::new(Vec::new())), "t".into(), 4);
+        let mut reader = ChunkReader::new(Box::new(std::io::Cursor::new(Vec::new())), "t".into(), 4, b',');
         assert!(matches!(reader.header(), Ok(None)));
     }
 }

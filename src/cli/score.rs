@@ -11,7 +11,6 @@ use std::process::ExitCode;
 use crate::batch::{Outputs, ScoreJob, Summary, UnseenPolicy};
 use crate::cli::data_args::parse_delimiter;
 use crate::cli::fit::prior_spec;
-use crate::cli::output::write_atomic;
 use crate::cli::Failure;
 use crate::data::options::MissingPolicy;
 use crate::model::file::ModelFile;
@@ -141,7 +140,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         threads: args.threads,
         chunk_bytes: args.chunk_bytes,
     };
-    let outputs = Outputs { scores: args.out.clone(), rejects: args.rejects.clone() };
+    let outputs = Outputs { scores: args.out.clone(), rejects: args.rejects.clone(), summary: args.summary.clone() };
     let total_bytes = if args.data.as_os_str() == "-" || args.data.extension().is_some_and(|e| e == "gz") {
         None
     } else {
@@ -151,7 +150,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let show = |rows: u64, bytes: u64| {
         if let Some(bar) = &bar {
             bar.set_position(if total_bytes.is_some() { bytes } else { rows });
-            bar.set_message(format!("{rows} rows"));
+            bar.set_message(format!("{rows} rows read,"));
         }
     };
     let summary = crate::batch::run(&file, &job, &outputs, &show);
@@ -162,11 +161,6 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         crate::Error::Io { source, .. } if source.kind() == std::io::ErrorKind::BrokenPipe => Failure::BrokenPipe,
         other => Failure::Library(other),
     })?;
-    if let Some(path) = &args.summary {
-        let text = serde_json::to_string_pretty(&summary)
-            .map_err(|e| crate::Error::io(path.display().to_string(), std::io::Error::other(e)))?;
-        write_atomic(path, (text + "\n").as_bytes())?;
-    }
     if !args.quiet {
         print_summary(&file, &args, &job, &summary, positive);
     }
@@ -194,12 +188,12 @@ fn progress_bar(quiet: bool, total_bytes: Option<u64>) -> Option<indicatif::Prog
     let bar = match total_bytes {
         Some(total) => indicatif::ProgressBar::new(total).with_style(
             indicatif::ProgressStyle::with_template(
-                "{spinner} {msg} scored  {bytes}/{total_bytes}  {bytes_per_sec}  eta {eta}",
+                "{spinner} {msg} {bytes}/{total_bytes}  {bytes_per_sec}  eta {eta}",
             )
             .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
         ),
         None => indicatif::ProgressBar::new_spinner().with_style(
-            indicatif::ProgressStyle::with_template("{spinner} {msg} scored  {per_sec}")
+            indicatif::ProgressStyle::with_template("{spinner} {msg} {elapsed}")
                 .unwrap_or_else(|_| indicatif::ProgressStyle::default_spinner()),
         ),
     };
