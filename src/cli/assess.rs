@@ -189,7 +189,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     if let Some(path) = &args.evaluation.report {
         let description =
             format!("{}: {} rows; scores {}", args.data.display(), dataset.rows(), args.scores.join(", "));
-        write_atomic(path, evaluation_html(&evaluation, &[], &description).as_bytes())?;
+        write_atomic(path, evaluation_html(&evaluation, &[], &[], &description).as_bytes())?;
     }
     if args.evaluation.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
         return Ok(ExitCode::SUCCESS);

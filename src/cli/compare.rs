@@ -249,6 +249,12 @@ pub fn parse_candidate(spec: &str) -> crate::Result<Candidate> {
             "class-weight" => options.class_weight = Some(value.to_string()),
             "max-iterations" => options.max_iterations = Some(number(value)? as usize),
             "tolerance" => options.tolerance = Some(number(value)?),
+            "penalty" => options.penalty = Some(value.to_string()),
+            "mixing" => options.mixing = Some(number(value)?),
+            "lambda" => options.lambda = Some(value.to_string()),
+            "path-length" => options.path_length = Some(number(value)? as usize),
+            "lambda-rule" => options.lambda_rule = Some(value.to_string()),
+            "cv-folds" => options.cv_folds = Some(number(value)? as usize),
             "smoothing" => options.smoothing = Some(number(value)?),
             "variance-floor" => options.variance_floor = Some(number(value)?),
             "shrinkage" => options.shrinkage = Some(value.to_string()),
@@ -450,6 +456,24 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
     }
     let multiclass_figures = if k > 2 { multiclass(&predictions, &dataset) } else { Vec::new() };
     let scores: Vec<TestedScore> = predictions.iter().map(|p| TestedScore::from_predictions(p, positive)).collect();
+    // Penalised logistic candidates, fitted on all rows, for their path
+    // and cross-validation charts.
+    let mut penalised = Vec::new();
+    for candidate in candidates.iter().filter(|_| args.evaluation.report.is_some()) {
+        if let crate::model::FamilyParams::Logistic(p) = &candidate.params {
+            if p.penalty != crate::model::penalised::Penalty::None {
+                match crate::model::fit(&dataset, &candidate.params) {
+                    Ok((crate::model::FittedModel::Logistic(m), _)) => {
+                        if let Some(record) = m.penalty {
+                            penalised.push((candidate.name.clone(), m.encoding.terms(), record));
+                        }
+                    }
+                    Ok(_) => {}
+                    Err(e) => eprintln!("note: {}: the path chart could not be drawn: {e}", candidate.name),
+                }
+            }
+        }
+    }
     // What the evaluation does not need is freed first: the inputs matrix
     // and the full posterior tables (the scores keep the log odds).
     drop(predictions);
@@ -517,7 +541,7 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
                 .collect::<Vec<_>>()
                 .join(", ")
         );
-        write_atomic(path, evaluation_html(&evaluation, &learning, &description).as_bytes())?;
+        write_atomic(path, evaluation_html(&evaluation, &learning, &penalised, &description).as_bytes())?;
     }
     if args.evaluation.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
         return Ok(ExitCode::SUCCESS);

@@ -15,6 +15,7 @@ use crate::model::discriminant::{Divisor, LdaParams, QdaParams, Shrinkage};
 use crate::model::file::{ModelFile, TrainingInfo, FORMAT, FORMAT_VERSION};
 use crate::model::logistic::{ClassWeight, LogisticParams};
 use crate::model::naive_bayes::NaiveBayesParams;
+use crate::model::penalised::{LambdaChoice, LambdaRule, Penalty};
 use crate::model::{Family, FamilyParams, PriorSpec};
 use crate::report::{count, number, percent, wrap, CAUTION};
 
@@ -66,6 +67,24 @@ pub struct FamilyOptions {
     /// logistic: convergence tolerance on the largest standardised step [default: 1e-8].
     #[arg(long, value_name = "T")]
     pub tolerance: Option<f64>,
+    /// logistic: a penalty fitted along a λ path by coordinate descent: none, ridge, lasso or elastic-net [default: none].
+    #[arg(long, value_name = "P")]
+    pub penalty: Option<String>,
+    /// logistic: elastic-net mixing α in (0, 1): α·‖β‖₁ + (1−α)/2·‖β‖² [default: 0.5].
+    #[arg(long, value_name = "A")]
+    pub mixing: Option<f64>,
+    /// logistic: λ of the penalty, or `auto` (K-fold cross-validated deviance) [default: auto].
+    #[arg(long, value_name = "VALUE|auto")]
+    pub lambda: Option<String>,
+    /// logistic: points on the λ path [default: 100].
+    #[arg(long, value_name = "N")]
+    pub path_length: Option<usize>,
+    /// logistic: which cross-validated λ: one-se (largest within one standard error of the minimum) or min [default: one-se].
+    #[arg(long, value_name = "RULE")]
+    pub lambda_rule: Option<String>,
+    /// logistic: folds for --lambda auto [default: 5].
+    #[arg(long, value_name = "K")]
+    pub cv_folds: Option<usize>,
     /// naive-bayes: additive smoothing of categorical likelihoods [default: 1].
     #[arg(long, value_name = "ALPHA")]
     pub smoothing: Option<f64>,
@@ -95,6 +114,12 @@ impl FamilyOptions {
             ("--class-weight", self.class_weight.is_some()),
             ("--max-iterations", self.max_iterations.is_some()),
             ("--tolerance", self.tolerance.is_some()),
+            ("--penalty", self.penalty.is_some()),
+            ("--mixing", self.mixing.is_some()),
+            ("--lambda", self.lambda.is_some()),
+            ("--path-length", self.path_length.is_some()),
+            ("--lambda-rule", self.lambda_rule.is_some()),
+            ("--cv-folds", self.cv_folds.is_some()),
         ];
         let nb_flags = [("--smoothing", self.smoothing.is_some()), ("--variance-floor", self.variance_floor.is_some())];
         let check = |flags: &[(&str, bool)], families: &str, allowed: bool| -> crate::Result<()> {
@@ -119,11 +144,64 @@ impl FamilyOptions {
         let params = match family {
             Family::Logistic => {
                 let defaults = LogisticParams::default();
+                let penalty = match self.penalty.as_deref() {
+                    None | Some("none") => Penalty::None,
+                    Some("ridge") => Penalty::Ridge,
+                    Some("lasso") => Penalty::Lasso,
+                    Some("elastic-net") => Penalty::ElasticNet,
+                    Some(other) => {
+                        return Err(Error::Usage(format!(
+                            "--penalty takes none, ridge, lasso or elastic-net, not '{other}'"
+                        )))
+                    }
+                };
+                let path_flags = [
+                    ("--mixing", self.mixing.is_some()),
+                    ("--lambda", self.lambda.is_some()),
+                    ("--path-length", self.path_length.is_some()),
+                    ("--lambda-rule", self.lambda_rule.is_some()),
+                    ("--cv-folds", self.cv_folds.is_some()),
+                ];
+                if penalty == Penalty::None {
+                    if let Some((flag, _)) = path_flags.iter().find(|(_, set)| *set) {
+                        return Err(Error::Usage(format!("{flag} needs --penalty ridge, lasso or elastic-net")));
+                    }
+                } else if self.l2.is_some() {
+                    return Err(Error::Usage(
+                        "--l2 is the Newton fit's ridge; with --penalty give --lambda instead".into(),
+                    ));
+                }
+                if self.mixing.is_some() && penalty != Penalty::ElasticNet {
+                    return Err(Error::Usage("--mixing is for --penalty elastic-net (ridge is 0, lasso is 1)".into()));
+                }
+                let lambda = match self.lambda.as_deref() {
+                    None | Some("auto") => LambdaChoice::Auto,
+                    Some(v) => LambdaChoice::Value(
+                        v.parse::<f64>()
+                            .ok()
+                            .filter(|x| *x >= 0.0 && x.is_finite())
+                            .ok_or_else(|| Error::Usage(format!("--lambda takes a number ≥ 0 or auto, not '{v}'")))?,
+                    ),
+                };
+                let lambda_rule = match self.lambda_rule.as_deref() {
+                    None | Some("one-se") => LambdaRule::OneSe,
+                    Some("min") => LambdaRule::Min,
+                    Some(other) => {
+                        return Err(Error::Usage(format!("--lambda-rule takes one-se or min, not '{other}'")))
+                    }
+                };
                 FamilyParams::Logistic(LogisticParams {
                     l2: self.l2.unwrap_or(defaults.l2),
                     class_weight: parse_class_weight(self.class_weight.as_deref())?,
                     max_iterations: self.max_iterations.unwrap_or(defaults.max_iterations),
                     tolerance: self.tolerance.unwrap_or(defaults.tolerance),
+                    penalty,
+                    mixing: self.mixing,
+                    lambda,
+                    path_length: self.path_length.unwrap_or(defaults.path_length),
+                    lambda_rule,
+                    cv_folds: self.cv_folds.unwrap_or(defaults.cv_folds),
+                    cv_seed: defaults.cv_seed,
                 })
             }
             Family::NaiveBayes => {
@@ -349,7 +427,19 @@ fn execute(args: Args, talk: bool) -> Result<ExitCode, Failure> {
     };
     let mut file = file;
     let calibrated_to = file.calibrated_to().to_vec();
-    if let Some((held_out, log_odds)) = held_out_summary(&dataset, &params, &calibrated_to, args.seed)? {
+    // Out-of-fold predictions of a penalised fit use the λ chosen on all
+    // rows (choosing it again inside every fold would cost a cross-
+    // validation per fold for a summary of the predictions' mix).
+    let fold_params = match (&params, &file.model) {
+        (FamilyParams::Logistic(p), crate::model::FittedModel::Logistic(m)) => match &m.penalty {
+            Some(record) => {
+                FamilyParams::Logistic(LogisticParams { lambda: LambdaChoice::Value(record.lambda), ..p.clone() })
+            }
+            None => params.clone(),
+        },
+        _ => params.clone(),
+    };
+    if let Some((held_out, log_odds)) = held_out_summary(&dataset, &fold_params, &calibrated_to, args.seed)? {
         if let Some(method) = args.calibrate {
             if target.classes.len() != 2 {
                 return Err(Error::Usage("--calibrate is for two classes".into()).into());

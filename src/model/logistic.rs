@@ -29,6 +29,7 @@ use crate::data::{Dataset, Inputs};
 use crate::error::{Error, Result};
 use crate::model::design::{tiles, Encoding, TILE_ROWS};
 use crate::model::linalg::{cholesky, dot};
+use crate::model::penalised::{LambdaChoice, LambdaRule, PathSettings, Penalty, PenaltyFit};
 use crate::model::{normalise_log, Diagnostics};
 
 /// How classes are weighted in the fit.
@@ -62,11 +63,58 @@ pub struct LogisticParams {
     pub max_iterations: usize,
     /// Convergence tolerance on the standardised step.
     pub tolerance: f64,
+    /// A penalty fitted by coordinate descent along a λ path
+    /// ([`crate::model::penalised`]); `none` keeps the Newton fit.
+    #[serde(default)]
+    pub penalty: Penalty,
+    /// Elastic-net mixing α (0 ridge, 1 lasso) [default 0.5].
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub mixing: Option<f64>,
+    /// λ, or `auto` (cross-validated).
+    #[serde(default = "auto_lambda")]
+    pub lambda: LambdaChoice,
+    /// Points on the λ path.
+    #[serde(default = "default_path_length")]
+    pub path_length: usize,
+    /// Which cross-validated λ: one-se or min.
+    #[serde(default)]
+    pub lambda_rule: LambdaRule,
+    /// Folds for `--lambda auto`.
+    #[serde(default = "default_cv_folds")]
+    pub cv_folds: usize,
+    /// Seed of those folds.
+    #[serde(default = "default_cv_seed")]
+    pub cv_seed: u64,
+}
+
+fn auto_lambda() -> LambdaChoice {
+    LambdaChoice::Auto
+}
+fn default_path_length() -> usize {
+    100
+}
+fn default_cv_folds() -> usize {
+    5
+}
+fn default_cv_seed() -> u64 {
+    1
 }
 
 impl Default for LogisticParams {
     fn default() -> Self {
-        LogisticParams { l2: 0.0, class_weight: ClassWeight::None, max_iterations: 50, tolerance: 1e-8 }
+        LogisticParams {
+            l2: 0.0,
+            class_weight: ClassWeight::None,
+            max_iterations: 50,
+            tolerance: 1e-8,
+            penalty: Penalty::None,
+            mixing: None,
+            lambda: auto_lambda(),
+            path_length: default_path_length(),
+            lambda_rule: LambdaRule::OneSe,
+            cv_folds: default_cv_folds(),
+            cv_seed: default_cv_seed(),
+        }
     }
 }
 
@@ -100,6 +148,9 @@ pub struct LogisticModel {
     pub covariance: Option<Vec<f64>>,
     /// The ridge penalty used.
     pub l2: f64,
+    /// A coordinate-descent penalty's record: λ, how it was chosen, the path.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub penalty: Option<PenaltyFit>,
 }
 
 impl LogisticModel {
@@ -421,6 +472,47 @@ pub fn fit(
             hint: "the column is constant; remove it with --exclude".into(),
         });
     }
+    if params.penalty != Penalty::None {
+        let settings = PathSettings {
+            mixing: params.penalty.mixing(params.mixing),
+            lambda: params.lambda,
+            path_length: params.path_length,
+            folds: params.cv_folds,
+            rule: params.lambda_rule,
+            seed: params.cv_seed,
+            // In gradient units: the largest coordinate step times its curvature.
+            tolerance: params.tolerance / 100.0,
+        };
+        let fitted = crate::model::penalised::fit(dataset, &encoding, reference, &weights, params.penalty, &settings)?;
+        let order: Vec<usize> = (0..k).filter(|&c| c != reference).collect();
+        let coefficients = order
+            .iter()
+            .enumerate()
+            .map(|(position, &class)| ClassCoefficients {
+                class,
+                intercept: fitted.intercepts[position],
+                slopes: fitted.slopes[position * d..(position + 1) * d].to_vec(),
+            })
+            .collect();
+        let mut warnings = Vec::new();
+        if !fitted.converged {
+            warnings.push("coordinate descent did not converge at every λ of the path (1,000 outer iterations)".into());
+        }
+        let iterations = fitted.record.path.len();
+        let model = LogisticModel {
+            encoding,
+            classes,
+            reference,
+            class_mix,
+            coefficients,
+            covariance: None,
+            l2: 0.0,
+            penalty: Some(fitted.record),
+        };
+        let diagnostics =
+            Diagnostics { iterations, converged: fitted.converged, log_likelihood: fitted.log_likelihood, warnings };
+        return Ok((model, diagnostics));
+    }
     let mut slot = vec![None; k];
     let mut order = Vec::new();
     for c in 0..k {
@@ -605,6 +697,7 @@ pub fn fit(
     } else {
         None
     };
-    let model = LogisticModel { encoding, classes, reference, class_mix, coefficients, covariance, l2: lambda };
+    let model =
+        LogisticModel { encoding, classes, reference, class_mix, coefficients, covariance, l2: lambda, penalty: None };
     Ok((model, Diagnostics { iterations, converged, log_likelihood: current.log_likelihood, warnings }))
 }

@@ -24,6 +24,7 @@ pub mod linalg;
 pub mod logistic;
 pub mod moments;
 pub mod naive_bayes;
+pub mod penalised;
 pub mod prior;
 
 use ndarray::Array2;
@@ -115,6 +116,17 @@ impl FamilyParams {
                 }
                 if !(p.tolerance > 0.0) {
                     return bad("--tolerance must be positive");
+                }
+                if let Some(a) = p.mixing {
+                    if !(a > 0.0 && a < 1.0) {
+                        return bad("--mixing must lie strictly between 0 and 1 (ridge is 0, lasso is 1)");
+                    }
+                }
+                if p.path_length == 0 || p.path_length > 10_000 {
+                    return bad("--path-length must be between 1 and 10000");
+                }
+                if p.cv_folds < 2 {
+                    return bad("--cv-folds must be at least 2");
                 }
             }
             FamilyParams::NaiveBayes(p) => {

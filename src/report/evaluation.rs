@@ -253,10 +253,89 @@ fn distribution_chart(name: &str, scores: &[(f64, bool)], positive: &str) -> Res
     )
 }
 
+/// The coefficient path (standardised slopes against λ, one line per term
+/// that is ever non-zero) and, when λ was cross-validated, the mean held-out
+/// deviance with ±1 standard error lines.
+fn penalty_charts(
+    name: &str,
+    terms: &[String],
+    record: &crate::model::penalised::PenaltyFit,
+) -> Vec<(String, Result<String, String>)> {
+    let mut out = Vec::new();
+    let lambdas: Vec<f64> = record.path.iter().map(|p| p.lambda).collect();
+    let (lo, hi) =
+        (lambdas.iter().copied().fold(f64::INFINITY, f64::min), lambdas.iter().copied().fold(0.0f64, f64::max));
+    if !(lo > 0.0 && hi > lo) {
+        return out;
+    }
+    let width = terms.len().max(1);
+    let scale = |j: usize| record.scale.get(j % width).copied().unwrap_or(1.0);
+    let slopes = record.path.first().map_or(0, |p| p.slopes.len());
+    let lines: Lines = (0..slopes)
+        .filter(|&j| record.path.iter().any(|p| p.slopes[j] != 0.0))
+        .map(|j| {
+            let label = terms.get(j % width).cloned().unwrap_or_default();
+            (label, record.path.iter().map(|p| (p.lambda, p.slopes[j] * scale(j))).collect())
+        })
+        .collect();
+    let values = lines.iter().flat_map(|(_, p)| p.iter().map(|q| q.1));
+    let (y0, y1) = (values.clone().fold(0.0f64, f64::min), values.fold(0.0f64, f64::max));
+    let pad = ((y1 - y0) * 0.05).max(1e-9);
+    out.push((
+        format!("coefficient path: {name}"),
+        line_chart(
+            &format!("coefficient path: {name}"),
+            "λ (log scale)",
+            "slope on the standardised input",
+            lo..hi,
+            y0 - pad..y1 + pad,
+            &lines,
+            false,
+            true,
+        ),
+    ));
+    let cv: Vec<(f64, f64, f64)> =
+        record.path.iter().filter_map(|p| Some((p.lambda, p.cv_deviance?, p.cv_se.unwrap_or(0.0)))).collect();
+    if !cv.is_empty() {
+        let lines: Lines = vec![
+            ("mean held-out deviance".to_string(), cv.iter().map(|c| (c.0, c.1)).collect()),
+            ("+1 standard error".to_string(), cv.iter().map(|c| (c.0, c.1 + c.2)).collect()),
+            ("−1 standard error".to_string(), cv.iter().map(|c| (c.0, c.1 - c.2)).collect()),
+        ];
+        let y0 = cv.iter().map(|c| c.1 - c.2).fold(f64::INFINITY, f64::min);
+        let y1 = cv.iter().map(|c| c.1 + c.2).fold(f64::NEG_INFINITY, f64::max);
+        let pad = ((y1 - y0) * 0.05).max(1e-9);
+        out.push((
+            format!("cross-validation curve: {name}"),
+            line_chart(
+                &format!("cross-validation: {name} (λ used {:.4e})", record.lambda),
+                "λ (log scale)",
+                "deviance per row, held out",
+                lo..hi,
+                y0 - pad..y1 + pad,
+                &lines,
+                false,
+                true,
+            ),
+        ));
+    }
+    out
+}
+
 /// The self-contained HTML report: no network, no external scripts or
 /// fonts; every string from the data escaped.
-pub fn evaluation_html(e: &Evaluation, learning: &[LearningPoint], data_description: &str) -> String {
+pub fn evaluation_html(
+    e: &Evaluation,
+    learning: &[LearningPoint],
+    penalised: &[(String, Vec<String>, crate::model::penalised::PenaltyFit)],
+    data_description: &str,
+) -> String {
     let mut charts: Vec<(String, Result<String, String>)> = Vec::new();
+    // Penalised logistic fits on all rows: the coefficient path and the
+    // cross-validation curve behind the choice of λ.
+    for (name, terms, record) in penalised {
+        charts.extend(penalty_charts(name, terms, record));
+    }
     let roc: Lines = e
         .results
         .iter()

@@ -70,6 +70,9 @@ pub struct InspectJson {
     /// LDA's linear discriminant coefficients.
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub discriminant_coefficients: Vec<Coefficient>,
+    /// A penalised logistic fit: λ, how it was chosen, the sparsity.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub penalty: Option<PenaltyJson>,
     /// Iterations of the fit.
     pub iterations: usize,
     /// Whether the fit converged.
@@ -86,6 +89,53 @@ pub struct InspectJson {
     pub created: String,
     /// SHA-256 of the training file.
     pub input_sha256: String,
+}
+
+/// What `inspect --json` says of a penalised fit.
+#[derive(Debug, Clone, Serialize)]
+pub struct PenaltyJson {
+    /// ridge, lasso or elastic-net.
+    pub penalty: String,
+    /// α.
+    pub mixing: f64,
+    /// The λ used.
+    pub lambda: f64,
+    /// The rule that chose it: one-se or min (absent when λ was given).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub rule: Option<String>,
+    /// The λ of the smallest cross-validated deviance.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub lambda_min: Option<f64>,
+    /// The largest λ within one standard error of it.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub lambda_1se: Option<f64>,
+    /// The smallest λ with every slope zero.
+    pub lambda_max: f64,
+    /// Folds of the cross-validation (0 when λ was given).
+    pub folds: usize,
+    /// Points on the path.
+    pub path_length: usize,
+    /// Slopes not zero at the λ used.
+    pub nonzero: usize,
+    /// Slopes in all.
+    pub slopes: usize,
+}
+
+fn penalty_json(m: &LogisticModel) -> Option<PenaltyJson> {
+    let record = m.penalty.as_ref()?;
+    Some(PenaltyJson {
+        penalty: record.penalty.name().to_string(),
+        mixing: record.mixing,
+        lambda: record.lambda,
+        rule: record.rule.map(|r| r.name().to_string()),
+        lambda_min: record.lambda_min,
+        lambda_1se: record.lambda_1se,
+        lambda_max: record.lambda_max,
+        folds: record.folds,
+        path_length: record.path.len(),
+        nonzero: m.coefficients.iter().flat_map(|c| &c.slopes).filter(|b| **b != 0.0).count(),
+        slopes: m.coefficients.iter().map(|c| c.slopes.len()).sum(),
+    })
 }
 
 /// The logistic coefficient table.
@@ -166,6 +216,10 @@ pub fn inspect_json(file: &ModelFile) -> InspectJson {
         training_rows: file.training.rows,
         coefficients,
         discriminant_coefficients: discriminant,
+        penalty: match &file.model {
+            FittedModel::Logistic(m) => penalty_json(m),
+            _ => None,
+        },
         iterations: file.diagnostics.iterations,
         converged: file.diagnostics.converged,
         log_likelihood: file.diagnostics.log_likelihood,
@@ -236,6 +290,28 @@ pub fn inspect_text(path: &str, file: &ModelFile) -> String {
     match &file.model {
         FittedModel::Logistic(m) => {
             let reference = &m.classes[m.reference];
+            if let Some(p) = &json.penalty {
+                let chosen = match (&p.rule, p.lambda_min, p.lambda_1se) {
+                    (Some(rule), Some(min), Some(one_se)) => format!(
+                        "chosen by {}-fold cross-validated deviance, {} rule (λ_min {}, λ_1se {})",
+                        p.folds,
+                        rule,
+                        number(min, 6),
+                        number(one_se, 6)
+                    ),
+                    _ => "as given".to_string(),
+                };
+                out.push_str(&format!(
+                    "penalty: {} (α = {}), λ = {} {chosen}; λ_max {}; {} of {} slopes not zero (zero ones not shown)\n",
+                    p.penalty,
+                    number(p.mixing, 4),
+                    number(p.lambda, 6),
+                    number(p.lambda_max, 6),
+                    p.nonzero,
+                    p.slopes
+                ));
+                out.push_str("objective: (1/N)·Σ weighted negative log-likelihood + λ·(α‖β‖₁ + (1−α)/2·‖β‖²₂), β on standardised inputs\n");
+            }
             out.push_str(&format!("coefficients (log-odds against '{reference}', original scale):\n"));
             let mut table = Table::new(&[
                 ("term", Align::Left),
@@ -248,6 +324,9 @@ pub fn inspect_text(path: &str, file: &ModelFile) -> String {
                 ("odds ratio", Align::Right),
             ]);
             for c in &json.coefficients {
+                if json.penalty.is_some() && c.term != "(intercept)" && c.estimate == 0.0 {
+                    continue;
+                }
                 let interval = match (c.ci_low, c.ci_high) {
                     (Some(a), Some(b)) => format!("{} … {}", number(a, 4), number(b, 4)),
                     _ => String::new(),
@@ -264,7 +343,9 @@ pub fn inspect_text(path: &str, file: &ModelFile) -> String {
                 ]);
             }
             out.push_str(&table.render());
-            if m.covariance.is_none() {
+            if m.penalty.is_some() {
+                out.push_str("(penalised fit: no standard errors; a penalised estimate's sampling error is not the inverse information)\n");
+            } else if m.covariance.is_none() {
                 out.push_str(&format!("(penalised fit, --l2 {}: no standard errors)\n", m.l2));
             }
         }

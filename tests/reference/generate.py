@@ -241,6 +241,28 @@ def metric_fixtures(data):
     }}
 
 
+def penalised_fixtures(data):
+    """scikit-learn's LogisticRegression with an L1 or elastic-net penalty
+    (solver 'saga', tol 1e-12) on breast_cancer standardised here (divisor
+    n), so that its problem is exactly ours: C = 1/(n*lambda), l1_ratio =
+    alpha, for the objective (1/n)*sum(log-loss) + lambda*(alpha*|b|_1 +
+    (1-alpha)/2*|b|^2). Positive class: malignant."""
+    import warnings
+    import numpy as np
+    from sklearn.linear_model import LogisticRegression
+    x, y = data["breast_cancer"]
+    z = (x - x.mean(axis=0)) / x.std(axis=0)
+    labels = (y == "malignant").astype(int)
+    n = len(labels)
+    cases = {}
+    for name, alpha, lam in [("lasso_0.02", 1.0, 0.02), ("lasso_0.005", 1.0, 0.005), ("elastic_net_0.5_0.01", 0.5, 0.01)]:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            m = LogisticRegression(l1_ratio=alpha, C=1.0 / (n * lam), solver="saga", tol=1e-12, max_iter=1000000, random_state=0).fit(z, labels)
+        cases[name] = {"alpha": alpha, "lambda": lam, "intercept": float(m.intercept_[0]), "coef": m.coef_[0].tolist()}
+    return {"penalised_logistic": {"source": "scikit-learn LogisticRegression(l1_ratio, C=1/(n*lambda), solver='saga', tol=1e-12) on standardised breast_cancer", "cases": cases}}
+
+
 def generate(out):
     os.makedirs(os.path.join(out, "data"), exist_ok=True)
     os.makedirs(os.path.join(out, "expected"), exist_ok=True)
@@ -248,6 +270,7 @@ def generate(out):
     fixtures = discriminant_fixtures(out, data)
     fixtures.update(metric_fixtures(data))
     fixtures.update(logit_fixtures(out))
+    fixtures.update(penalised_fixtures(data))
     write_json(os.path.join(out, "expected", "python.json"), {"versions": versions(), "fixtures": fixtures})
 
 

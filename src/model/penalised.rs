@@ -1,0 +1,780 @@
+//! Penalised logistic regression — ridge, lasso and elastic net — along a
+//! path of λ, by cyclic coordinate descent inside an IRLS outer loop, with λ
+//! chosen by K-fold cross-validation when asked (Friedman, Hastie &
+//! Tibshirani 2010, "Regularization paths for generalized linear models via
+//! coordinate descent", J. Stat. Softw. 33(1)).
+//!
+//! The objective, with N the total weight, vᵢ the row weight times its
+//! class weight, and β the slopes on internally standardised design
+//! columns (centred, divided by the standard deviation with divisor N):
+//!
+//!   (1/N)·Σᵢ vᵢ·(−log p(yᵢ | xᵢ)) + λ·(α‖β‖₁ + (1−α)/2·‖β‖²₂),  intercepts unpenalised.
+//!
+//! With α = 0 this is the objective of the Newton fit's `--l2`. Classes are
+//! compared with the reference class, as in [`crate::model::logistic`]; a
+//! multinomial fit cycles over the non-reference classes, each step a
+//! penalised weighted least-squares problem in that class's coefficients
+//! (a block coordinate descent of the same convex objective).
+//!
+//! Per λ: the quadratic approximation at the current fit (weights
+//! vᵢpᵢ(1−pᵢ)/N, working residuals (yᵢ − pᵢ)/(pᵢ(1−pᵢ))), then coordinate
+//! updates βⱼ ← S(gⱼ + cⱼβⱼ, λα)/(cⱼ + λ(1−α)) (S the soft-threshold),
+//! cycling over the active set until it settles, then over every column to
+//! confirm; the standardisation is applied on the fly to the raw columns,
+//! so each fold of a cross-validation standardises by its own rows. λ_max
+//! = maxⱼ |(1/N)Σ vᵢ x̃ᵢⱼ(yᵢ − ȳ)|/α is the smallest λ at which every slope
+//! is zero (α floored at 0.001 for ridge, as Friedman et al. do); the path
+//! runs from it down to ε·λ_max on a log scale (ε = 1e-4 when rows exceed
+//! columns, else 1e-2).
+
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+
+use crate::data::split::{assign, SplitPlan};
+use crate::data::Dataset;
+use crate::error::{Error, Result};
+use crate::model::design::Encoding;
+use crate::model::linalg::dot;
+
+/// The penalty's form.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "kebab-case")]
+pub enum Penalty {
+    /// No penalty from this solver (the Newton fit, with its `--l2`).
+    #[default]
+    None,
+    /// α = 0.
+    Ridge,
+    /// α = 1.
+    Lasso,
+    /// 0 < α < 1 (`--mixing`, default 0.5).
+    ElasticNet,
+}
+
+impl Penalty {
+    /// The mixing α the penalty implies, or the one given.
+    pub fn mixing(self, given: Option<f64>) -> f64 {
+        match self {
+            Penalty::Ridge => 0.0,
+            Penalty::Lasso => 1.0,
+            Penalty::ElasticNet => given.unwrap_or(0.5),
+            Penalty::None => 0.0,
+        }
+    }
+
+    /// The name on the command line.
+    pub fn name(self) -> &'static str {
+        match self {
+            Penalty::None => "none",
+            Penalty::Ridge => "ridge",
+            Penalty::Lasso => "lasso",
+            Penalty::ElasticNet => "elastic-net",
+        }
+    }
+}
+
+/// How λ is chosen.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum LambdaChoice {
+    /// As given.
+    Value(f64),
+    /// By K-fold cross-validated deviance.
+    Auto,
+}
+
+/// Which λ cross-validation picks.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "kebab-case")]
+pub enum LambdaRule {
+    /// The largest λ whose mean deviance is within one standard error of
+    /// the minimum (a sparser, steadier model).
+    #[default]
+    OneSe,
+    /// The λ of the smallest mean deviance.
+    Min,
+}
+
+impl LambdaRule {
+    /// The name on the command line.
+    pub fn name(self) -> &'static str {
+        match self {
+            LambdaRule::OneSe => "one-se",
+            LambdaRule::Min => "min",
+        }
+    }
+}
+
+/// The path settings.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PathSettings {
+    /// α in [0, 1].
+    pub mixing: f64,
+    /// λ as given, or chosen.
+    pub lambda: LambdaChoice,
+    /// Points on the path.
+    pub path_length: usize,
+    /// Folds for the choice of λ.
+    pub folds: usize,
+    /// The rule.
+    pub rule: LambdaRule,
+    /// Seed of the folds.
+    pub seed: u64,
+    /// Convergence tolerance: the largest coordinate step times its
+    /// curvature (a change of the gradient, in its units).
+    pub tolerance: f64,
+}
+
+/// One point of the path.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PathPoint {
+    /// λ.
+    pub lambda: f64,
+    /// Slopes not zero.
+    pub nonzero: usize,
+    /// Mean held-out deviance −2·log p(y) per unit weight over the folds.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cv_deviance: Option<f64>,
+    /// Its standard error (the spread of the fold means / √K).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cv_se: Option<f64>,
+    /// Intercepts on the original scale, non-reference classes in order.
+    pub intercepts: Vec<f64>,
+    /// Slopes on the original scale, non-reference classes in order
+    /// (class-major).
+    pub slopes: Vec<f64>,
+}
+
+/// What a penalised fit records.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PenaltyFit {
+    /// The penalty.
+    pub penalty: Penalty,
+    /// α.
+    pub mixing: f64,
+    /// The λ used.
+    pub lambda: f64,
+    /// The rule that chose it (absent when λ was given).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub rule: Option<LambdaRule>,
+    /// The λ of the smallest cross-validated deviance.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub lambda_min: Option<f64>,
+    /// The largest λ within one standard error of it.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub lambda_1se: Option<f64>,
+    /// The smallest λ with every slope zero.
+    pub lambda_max: f64,
+    /// Folds used to choose λ (0 when it was given).
+    pub folds: usize,
+    /// The standard deviation (divisor N) of each design column: a slope
+    /// times it is the slope on the standardised scale the penalty sees.
+    #[serde(default)]
+    pub scale: Vec<f64>,
+    /// The path, largest λ first.
+    pub path: Vec<PathPoint>,
+}
+
+/// The raw design, column-major, and what one fit needs.
+pub(crate) struct Design {
+    rows: usize,
+    width: usize,
+    columns: Vec<f64>,
+    /// Class index of each row.
+    target: Vec<u32>,
+    classes: usize,
+    reference: usize,
+}
+
+impl Design {
+    /// The design of a dataset's inputs.
+    pub(crate) fn new(dataset: &Dataset, encoding: &Encoding, reference: usize) -> Design {
+        let rows = dataset.rows();
+        let width = encoding.width();
+        let mut columns = vec![0.0; rows * width];
+        let inputs = dataset.inputs();
+        let tile_rows = crate::model::design::TILE_ROWS;
+        let mut tile = vec![0.0; tile_rows * width];
+        for range in crate::model::design::tiles(rows) {
+            let len = range.len();
+            encoding.fill_tile(&inputs, range.clone(), &mut tile[..len * width]);
+            for j in 0..width {
+                columns[j * rows + range.start..j * rows + range.end].copy_from_slice(&tile[j * len..(j + 1) * len]);
+            }
+        }
+        Design {
+            rows,
+            width,
+            columns,
+            target: dataset.target.clone(),
+            classes: dataset.schema.target.classes.len(),
+            reference,
+        }
+    }
+
+    fn column(&self, j: usize) -> &[f64] {
+        &self.columns[j * self.rows..(j + 1) * self.rows]
+    }
+
+    /// The non-reference classes, in order.
+    fn others(&self) -> Vec<usize> {
+        (0..self.classes).filter(|&c| c != self.reference).collect()
+    }
+}
+
+/// A solution on the standardised scale of one fit.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct Solution {
+    /// Intercepts, one per non-reference class.
+    pub(crate) intercepts: Vec<f64>,
+    /// Slopes, class-major (q × width).
+    pub(crate) slopes: Vec<f64>,
+}
+
+/// One fit's weights and standardisation.
+pub(crate) struct Scaled<'a> {
+    design: &'a Design,
+    /// vᵢ/N.
+    weights: Vec<f64>,
+    centre: Vec<f64>,
+    scale: Vec<f64>,
+}
+
+impl<'a> Scaled<'a> {
+    /// Weights `v` (zero leaves a row out); `None` when some class has no
+    /// weight or a column is constant on these rows.
+    pub(crate) fn new(design: &'a Design, v: &[f64]) -> std::result::Result<Scaled<'a>, String> {
+        let total: f64 = v.iter().sum();
+        if !(total > 0.0) {
+            return Err("no rows with positive weight".into());
+        }
+        let mut class_weight = vec![0.0; design.classes];
+        for (i, &y) in design.target.iter().enumerate() {
+            class_weight[y as usize] += v[i];
+        }
+        if class_weight.iter().any(|w| !(*w > 0.0)) {
+            return Err("every class needs rows with positive weight".into());
+        }
+        let weights: Vec<f64> = v.iter().map(|w| w / total).collect();
+        let mut centre = vec![0.0; design.width];
+        let mut scale = vec![0.0; design.width];
+        for j in 0..design.width {
+            let x = design.column(j);
+            let mean: f64 = x.iter().zip(&weights).map(|(x, w)| x * w).sum();
+            let variance: f64 = x.iter().zip(&weights).map(|(x, w)| w * (x - mean) * (x - mean)).sum();
+            centre[j] = mean;
+            scale[j] = variance.sqrt();
+            if !(scale[j] > 0.0) {
+                return Err(format!("design column {} is constant on the rows of this fit", j + 1));
+            }
+        }
+        Ok(Scaled { design, weights, centre, scale })
+    }
+
+    fn q(&self) -> usize {
+        self.design.classes - 1
+    }
+
+    /// The intercept-only solution: log class-mix ratios.
+    fn null_solution(&self) -> Solution {
+        let mut mix = vec![0.0; self.design.classes];
+        for (i, &y) in self.design.target.iter().enumerate() {
+            mix[y as usize] += self.weights[i];
+        }
+        let reference = self.design.reference;
+        let intercepts = self.design.others().iter().map(|&c| (mix[c] / mix[reference]).ln()).collect();
+        Solution { intercepts, slopes: vec![0.0; self.q() * self.design.width] }
+    }
+
+    /// Linear predictors (q per row, class-major).
+    fn linear_predictors(&self, s: &Solution) -> Vec<f64> {
+        let (n, d, q) = (self.design.rows, self.design.width, self.q());
+        let mut eta = vec![0.0; q * n];
+        for c in 0..q {
+            let e = &mut eta[c * n..(c + 1) * n];
+            let mut offset = s.intercepts[c];
+            for j in 0..d {
+                let b = s.slopes[c * d + j] / self.scale[j];
+                if b != 0.0 {
+                    offset -= b * self.centre[j];
+                    e.iter_mut().zip(self.design.column(j)).for_each(|(e, x)| *e += b * x);
+                }
+            }
+            e.iter_mut().for_each(|e| *e += offset);
+        }
+        eta
+    }
+
+    /// Probabilities of the non-reference classes (class-major) from the
+    /// linear predictors.
+    fn probabilities(&self, eta: &[f64]) -> Vec<f64> {
+        let (n, q) = (self.design.rows, self.q());
+        let mut p = vec![0.0; q * n];
+        for i in 0..n {
+            let max = (0..q).map(|c| eta[c * n + i]).fold(0.0f64, f64::max);
+            let denominator = (-max).exp() + (0..q).map(|c| (eta[c * n + i] - max).exp()).sum::<f64>();
+            for c in 0..q {
+                p[c * n + i] = (eta[c * n + i] - max).exp() / denominator;
+            }
+        }
+        p
+    }
+
+    /// Standardised gradient of the mean log-likelihood for each slope
+    /// ((1/N)Σ vᵢ x̃ᵢⱼ(yᵢₖ − pᵢₖ)), class-major, and for each intercept.
+    pub(crate) fn gradient(&self, s: &Solution) -> (Vec<f64>, Vec<f64>) {
+        let (n, d, q) = (self.design.rows, self.design.width, self.q());
+        let p = self.probabilities(&self.linear_predictors(s));
+        let others = self.design.others();
+        let mut slopes = vec![0.0; q * d];
+        let mut intercepts = vec![0.0; q];
+        for (c, &class) in others.iter().enumerate() {
+            let residual: Vec<f64> = (0..n)
+                .map(|i| {
+                    self.weights[i] * (f64::from(u8::from(self.design.target[i] as usize == class)) - p[c * n + i])
+                })
+                .collect();
+            let total: f64 = residual.iter().sum();
+            intercepts[c] = total;
+            for j in 0..d {
+                let dot: f64 = self.design.column(j).iter().zip(&residual).map(|(x, r)| x * r).sum();
+                slopes[c * d + j] = (dot - self.centre[j] * total) / self.scale[j];
+            }
+        }
+        (slopes, intercepts)
+    }
+
+    /// The penalised objective from the linear predictors of `s`.
+    fn objective_at(&self, eta: &[f64], s: &Solution, lambda: f64, alpha: f64) -> f64 {
+        let (n, q) = (self.design.rows, self.q());
+        let others = self.design.others();
+        let mut loss = 0.0;
+        for i in 0..n {
+            if self.weights[i] == 0.0 {
+                continue;
+            }
+            let max = (0..q).map(|c| eta[c * n + i]).fold(0.0f64, f64::max);
+            let log_total = max + ((-max).exp() + (0..q).map(|c| (eta[c * n + i] - max).exp()).sum::<f64>()).ln();
+            let y = self.design.target[i] as usize;
+            let own = others.iter().position(|&c| c == y).map_or(0.0, |c| eta[c * n + i]);
+            loss -= self.weights[i] * (own - log_total);
+        }
+        let l1: f64 = s.slopes.iter().map(|b| b.abs()).sum();
+        let l2: f64 = s.slopes.iter().map(|b| b * b).sum();
+        loss + lambda * (alpha * l1 + 0.5 * (1.0 - alpha) * l2)
+    }
+
+    /// λ_max: the smallest λ at which every slope is zero.
+    pub(crate) fn lambda_max(&self, alpha: f64) -> f64 {
+        let (slopes, _) = self.gradient(&self.null_solution());
+        slopes.iter().fold(0.0f64, |m, g| m.max(g.abs())) / alpha.max(1e-3)
+    }
+
+    /// Minimises the objective at `lambda`, starting from `start`, over the
+    /// coefficients marked in `include` (class-major, q × width) and any
+    /// that are not zero at the start; then checks the optimality condition
+    /// |gⱼ| ≤ λα of every other coefficient on the full gradient, adds the
+    /// ones that break it and solves again, until none does. Returns the
+    /// solution, whether every solve converged, and the gradient of the mean
+    /// log-likelihood there (for the next λ's screening).
+    pub(crate) fn solve(
+        &self,
+        start: &Solution,
+        lambda: f64,
+        alpha: f64,
+        tolerance: f64,
+        include: &[bool],
+    ) -> (Solution, bool, Vec<f64>) {
+        let mut include: Vec<bool> = include.iter().zip(&start.slopes).map(|(&keep, &b)| keep || b != 0.0).collect();
+        let mut s = start.clone();
+        let mut converged = true;
+        loop {
+            converged &= self.descend(&mut s, lambda, alpha, tolerance, &include);
+            let (gradient, _) = self.gradient(&s);
+            let mut added = false;
+            for (i, g) in gradient.iter().enumerate() {
+                if !include[i] && g.abs() > lambda * alpha {
+                    include[i] = true;
+                    added = true;
+                }
+            }
+            if !added {
+                return (s, converged, gradient);
+            }
+        }
+    }
+
+    /// IRLS with coordinate descent over the included coefficients.
+    fn descend(&self, s: &mut Solution, lambda: f64, alpha: f64, tolerance: f64, include: &[bool]) -> bool {
+        let (n, d) = (self.design.rows, self.design.width);
+        let others = self.design.others();
+        let mut eta = self.linear_predictors(s);
+        let l1 = lambda * alpha;
+        let l2 = lambda * (1.0 - alpha);
+        let mut w = vec![0.0; n];
+        let mut wr = vec![0.0; n];
+        let mut curvature: Vec<Option<(f64, f64)>> = vec![None; d];
+        // The inner solves start loose and tighten with the outer steps: an
+        // early quadratic approximation is not worth solving exactly.
+        let mut inner_tolerance = tolerance.max(1e-4);
+        for _outer in 0..1000 {
+            let mut largest_change = 0.0f64;
+            for (c, &class) in others.iter().enumerate() {
+                let included: Vec<usize> = (0..d).filter(|&j| include[c * d + j]).collect();
+                let p = self.probabilities(&eta);
+                // The quadratic approximation in class c's coefficients.
+                let mut total_w = 0.0;
+                let mut total_wr = 0.0;
+                for i in 0..n {
+                    let pi = p[c * n + i];
+                    let variance = (pi * (1.0 - pi)).max(1e-5);
+                    let y = f64::from(u8::from(self.design.target[i] as usize == class));
+                    w[i] = self.weights[i] * variance;
+                    // w·r with r = (y − p)/variance: the weighted residual.
+                    wr[i] = self.weights[i] * (y - pi);
+                    total_w += w[i];
+                    total_wr += wr[i];
+                }
+                curvature.iter_mut().for_each(|v| *v = None);
+                // Where the block starts, to step back to if the Newton step
+                // on it overshoots (near separation it can).
+                let before = (s.slopes[c * d..(c + 1) * d].to_vec(), s.intercepts[c], eta[c * n..(c + 1) * n].to_vec());
+                let objective_before = self.objective_at(&eta, s, lambda, alpha);
+                let eta_c = &mut eta[c * n..(c + 1) * n];
+                let slopes = &mut s.slopes[c * d..(c + 1) * d];
+                let update = |j: usize,
+                              slopes: &mut [f64],
+                              eta_c: &mut [f64],
+                              wr: &mut [f64],
+                              total_wr: &mut f64,
+                              curvature: &mut Vec<Option<(f64, f64)>>|
+                 -> f64 {
+                    let x = self.design.column(j);
+                    let (m, sd) = (self.centre[j], self.scale[j]);
+                    // (curvature, Σ wᵢxᵢ) of the column under this
+                    // approximation's weights, once per approximation.
+                    let (cj, sw) = *curvature[j].get_or_insert_with(|| {
+                        let sw = dot(x, &w[..]);
+                        let wx: Vec<f64> = x.iter().zip(w.iter()).map(|(a, b)| a * b).collect();
+                        let sxx = dot(&wx, x);
+                        ((sxx - 2.0 * m * sw + m * m * total_w) / (sd * sd), sw)
+                    });
+                    let g = (dot(x, wr) - m * *total_wr) / sd;
+                    let u = g + cj * slopes[j];
+                    let new = soft_threshold(u, l1) / (cj + l2);
+                    let delta = new - slopes[j];
+                    if delta != 0.0 {
+                        slopes[j] = new;
+                        let (b, shift) = (delta / sd, -delta * m / sd);
+                        // No running sum in the loop, so it vectorises: the
+                        // change of Σ w·r is known from Σ wᵢxᵢ.
+                        for ((e, r), (&xi, &wi)) in eta_c.iter_mut().zip(wr.iter_mut()).zip(x.iter().zip(w.iter())) {
+                            let step = b * xi + shift;
+                            *e += step;
+                            *r -= wi * step;
+                        }
+                        *total_wr -= b * sw + shift * total_w;
+                    }
+                    cj * delta.abs()
+                };
+                // Cycles over the included set, and over its non-zero part
+                // in between, until a cycle over the included set is still.
+                for _cycle in 0..100 {
+                    let mut cycle_change = 0.0f64;
+                    for &j in &included {
+                        cycle_change =
+                            cycle_change.max(update(j, slopes, eta_c, &mut wr, &mut total_wr, &mut curvature));
+                    }
+                    intercept_step(&mut s.intercepts[c], eta_c, &w, &mut wr, &mut total_wr, total_w);
+                    largest_change = largest_change.max(cycle_change);
+                    if cycle_change < inner_tolerance {
+                        break;
+                    }
+                    for _ in 0..1000 {
+                        let active: Vec<usize> = included.iter().copied().filter(|&j| slopes[j] != 0.0).collect();
+                        let mut change = 0.0f64;
+                        for &j in &active {
+                            change = change.max(update(j, slopes, eta_c, &mut wr, &mut total_wr, &mut curvature));
+                        }
+                        intercept_step(&mut s.intercepts[c], eta_c, &w, &mut wr, &mut total_wr, total_w);
+                        if change < inner_tolerance {
+                            break;
+                        }
+                    }
+                }
+                // Step-halving on the block while the objective rose.
+                let (old_slopes, old_intercept, old_eta) = before;
+                let new_slopes = s.slopes[c * d..(c + 1) * d].to_vec();
+                let new_intercept = s.intercepts[c];
+                let new_eta = eta[c * n..(c + 1) * n].to_vec();
+                let mut t = 1.0;
+                for _ in 0..30 {
+                    if self.objective_at(&eta, s, lambda, alpha) <= objective_before + 1e-15 * objective_before.abs() {
+                        break;
+                    }
+                    t *= 0.5;
+                    for j in 0..d {
+                        s.slopes[c * d + j] = old_slopes[j] + t * (new_slopes[j] - old_slopes[j]);
+                    }
+                    s.intercepts[c] = old_intercept + t * (new_intercept - old_intercept);
+                    for i in 0..n {
+                        eta[c * n + i] = old_eta[i] + t * (new_eta[i] - old_eta[i]);
+                    }
+                }
+            }
+            if largest_change < tolerance {
+                return true;
+            }
+            inner_tolerance = tolerance.max(0.01 * largest_change).min(inner_tolerance);
+        }
+        false
+    }
+
+    /// Original-scale coefficients: (intercepts, slopes class-major).
+    pub(crate) fn original(&self, s: &Solution) -> (Vec<f64>, Vec<f64>) {
+        let (d, q) = (self.design.width, self.q());
+        let mut intercepts = s.intercepts.clone();
+        let mut slopes = vec![0.0; q * d];
+        for c in 0..q {
+            for j in 0..d {
+                let b = s.slopes[c * d + j] / self.scale[j];
+                slopes[c * d + j] = b;
+                intercepts[c] -= b * self.centre[j];
+            }
+        }
+        (intercepts, slopes)
+    }
+
+    /// Mean deviance −2·log p(y) per unit weight of the rows with `weights`
+    /// (the held-out rows), under original-scale coefficients.
+    fn deviance(&self, coefficients: &(Vec<f64>, Vec<f64>), weights: &[f64]) -> f64 {
+        let (n, d) = (self.design.rows, self.design.width);
+        let others = self.design.others();
+        let (intercepts, slopes) = coefficients;
+        let mut total = 0.0;
+        let mut weight = 0.0;
+        let mut eta = vec![0.0; others.len()];
+        for i in 0..n {
+            if weights[i] == 0.0 {
+                continue;
+            }
+            for (c, e) in eta.iter_mut().enumerate() {
+                *e = intercepts[c] + (0..d).map(|j| slopes[c * d + j] * self.design.columns[j * n + i]).sum::<f64>();
+            }
+            let max = eta.iter().copied().fold(0.0f64, f64::max);
+            let log_total = max + ((-max).exp() + eta.iter().map(|e| (e - max).exp()).sum::<f64>()).ln();
+            let y = self.design.target[i] as usize;
+            let log_p = others.iter().position(|&c| c == y).map_or(0.0, |c| eta[c]) - log_total;
+            total += -2.0 * weights[i] * log_p;
+            weight += weights[i];
+        }
+        total / weight
+    }
+}
+
+fn soft_threshold(u: f64, threshold: f64) -> f64 {
+    if u > threshold {
+        u - threshold
+    } else if u < -threshold {
+        u + threshold
+    } else {
+        0.0
+    }
+}
+
+/// The unpenalised intercept's exact step: the weighted residuals sum to 0.
+fn intercept_step(intercept: &mut f64, eta_c: &mut [f64], w: &[f64], wr: &mut [f64], total_wr: &mut f64, total_w: f64) {
+    let delta = *total_wr / total_w;
+    if delta != 0.0 {
+        *intercept += delta;
+        eta_c.iter_mut().for_each(|e| *e += delta);
+        wr.iter_mut().zip(w).for_each(|(r, w)| *r -= w * delta);
+        *total_wr = 0.0;
+    }
+}
+
+/// The λ path: `length` values from `lambda_max` down to `ratio`·λ_max on
+/// a log scale.
+pub(crate) fn lambda_path(lambda_max: f64, ratio: f64, length: usize) -> Vec<f64> {
+    let length = length.max(1);
+    if length == 1 {
+        return vec![lambda_max];
+    }
+    (0..length).map(|i| lambda_max * ratio.powf(i as f64 / (length - 1) as f64)).collect()
+}
+
+/// Solutions along `lambdas` with warm starts. At each λ the coefficients
+/// first tried are the sequential strong set (Tibshirani et al. 2012,
+/// "Strong rules for discarding predictors in lasso-type problems", JRSS B
+/// 74(2)): those with |gⱼ(λ_prev)| ≥ α(2λ − λ_prev), plus the non-zero
+/// ones; [`Scaled::solve`] then checks every other coefficient, so the
+/// screening changes the work, never the answer.
+///
+/// With `stop_early`, the path ends once the training deviance changes by
+/// less than 1e-5 of itself from one λ to the next: further down, the fits
+/// only chase noise (the rule Friedman et al. use).
+pub(crate) fn solve_path(
+    scaled: &Scaled<'_>,
+    lambdas: &[f64],
+    alpha: f64,
+    tolerance: f64,
+    stop_early: bool,
+) -> (Vec<Solution>, bool) {
+    let all: Vec<f64> = scaled.weights.clone();
+    let mut last_deviance = f64::INFINITY;
+    let mut current = scaled.null_solution();
+    let (mut gradient, _) = scaled.gradient(&current);
+    let mut previous = lambdas.first().copied().unwrap_or(0.0);
+    let mut all_converged = true;
+    let mut out = Vec::with_capacity(lambdas.len());
+    for &lambda in lambdas {
+        let threshold = alpha * (2.0 * lambda - previous);
+        let strong: Vec<bool> = gradient.iter().map(|g| g.abs() >= threshold).collect();
+        let (next, converged, next_gradient) = scaled.solve(&current, lambda, alpha, tolerance, &strong);
+        all_converged &= converged;
+        current = next;
+        gradient = next_gradient;
+        previous = lambda;
+        out.push(current.clone());
+        if stop_early && out.len() >= 5 {
+            let deviance = scaled.deviance(&scaled.original(&current), &all);
+            if (last_deviance - deviance).abs() < 1e-5 * deviance {
+                break;
+            }
+            last_deviance = deviance;
+        } else if stop_early {
+            last_deviance = scaled.deviance(&scaled.original(&current), &all);
+        }
+    }
+    (out, all_converged)
+}
+
+/// What [`fit`] returns: the chosen coefficients on the original scale,
+/// the record of the path, and whether every solve converged.
+pub struct PenalisedFit {
+    /// Intercepts of the non-reference classes.
+    pub intercepts: Vec<f64>,
+    /// Slopes, class-major.
+    pub slopes: Vec<f64>,
+    /// The record.
+    pub record: PenaltyFit,
+    /// Every solve converged.
+    pub converged: bool,
+    /// The weighted log-likelihood of the training rows at the chosen fit.
+    pub log_likelihood: f64,
+}
+
+/// Fits the penalised model with row weights `v` (row weight × class weight).
+pub fn fit(
+    dataset: &Dataset,
+    encoding: &Encoding,
+    reference: usize,
+    v: &[f64],
+    penalty: Penalty,
+    settings: &PathSettings,
+) -> Result<PenalisedFit> {
+    let failed = |message: String| Error::FitFailed { family: "logistic".into(), message };
+    let design = Design::new(dataset, encoding, reference);
+    let scaled = Scaled::new(&design, v).map_err(failed)?;
+    let alpha = settings.mixing;
+    let lambda_max = scaled.lambda_max(alpha);
+    let ratio = if design.rows > design.width { 1e-4 } else { 1e-2 };
+    let lambdas = match settings.lambda {
+        LambdaChoice::Value(lambda) if lambda >= lambda_max => vec![lambda],
+        LambdaChoice::Value(lambda) => {
+            let mut path = lambda_path(lambda_max, lambda / lambda_max, settings.path_length.max(2));
+            if let Some(last) = path.last_mut() {
+                *last = lambda;
+            }
+            path
+        }
+        LambdaChoice::Auto => lambda_path(lambda_max, ratio, settings.path_length),
+    };
+    let stop_early = settings.lambda == LambdaChoice::Auto;
+    let (solutions, mut converged) = solve_path(&scaled, &lambdas, alpha, settings.tolerance, stop_early);
+    let lambdas: Vec<f64> = lambdas[..solutions.len()].to_vec();
+    let originals: Vec<(Vec<f64>, Vec<f64>)> = solutions.iter().map(|s| scaled.original(s)).collect();
+    let mut path: Vec<PathPoint> = lambdas
+        .iter()
+        .zip(&originals)
+        .map(|(&lambda, (intercepts, slopes))| PathPoint {
+            lambda,
+            nonzero: slopes.iter().filter(|b| **b != 0.0).count(),
+            cv_deviance: None,
+            cv_se: None,
+            intercepts: intercepts.clone(),
+            slopes: slopes.clone(),
+        })
+        .collect();
+    let (chosen, rule, lambda_min, lambda_1se, folds) = match settings.lambda {
+        LambdaChoice::Value(_) => (lambdas.len() - 1, None, None, None, 0),
+        LambdaChoice::Auto => {
+            let folds = settings.folds.max(2);
+            // Folds over the rows this fit uses: rows of weight 0 (another
+            // fold's test rows, when this is itself a fold's fit) take no part.
+            let used: Vec<usize> = (0..design.rows).filter(|&i| v[i] > 0.0).collect();
+            let used_target: Vec<u32> = used.iter().map(|&i| design.target[i]).collect();
+            let inner = assign(&SplitPlan::KFold { folds, repeats: 1 }, &used_target, design.classes, settings.seed)?;
+            let mut fold_of = vec![crate::data::split::LEFT_OUT; design.rows];
+            for (position, &i) in used.iter().enumerate() {
+                fold_of[i] = inner.folds[0][position];
+            }
+            let per_fold: Vec<std::result::Result<(Vec<f64>, bool), String>> = (0..folds)
+                .into_par_iter()
+                .map(|fold| {
+                    let f = fold as u32;
+                    let train: Vec<f64> = (0..design.rows)
+                        .map(|i| if fold_of[i] != f && fold_of[i] != crate::data::split::LEFT_OUT { v[i] } else { 0.0 })
+                        .collect();
+                    let test: Vec<f64> = (0..design.rows).map(|i| if fold_of[i] == f { v[i] } else { 0.0 }).collect();
+                    let fold_scaled = Scaled::new(&design, &train)?;
+                    let (solutions, converged) = solve_path(&fold_scaled, &lambdas, alpha, settings.tolerance, false);
+                    let deviances =
+                        solutions.iter().map(|s| fold_scaled.deviance(&fold_scaled.original(s), &test)).collect();
+                    Ok((deviances, converged))
+                })
+                .collect();
+            let mut deviances = Vec::with_capacity(folds);
+            for result in per_fold {
+                let (d, c) = result.map_err(|m| failed(format!("a cross-validation fold could not be fitted: {m}")))?;
+                converged &= c;
+                deviances.push(d);
+            }
+            for (l, point) in path.iter_mut().enumerate() {
+                let values: Vec<f64> = deviances.iter().map(|d: &Vec<f64>| d[l]).collect();
+                let mean = values.iter().sum::<f64>() / folds as f64;
+                let variance = values.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / (folds - 1) as f64;
+                point.cv_deviance = Some(mean);
+                point.cv_se = Some((variance / folds as f64).sqrt());
+            }
+            let mean = |l: usize| path[l].cv_deviance.unwrap_or(f64::INFINITY);
+            let best = (0..path.len()).min_by(|&a, &b| mean(a).total_cmp(&mean(b))).unwrap_or(0);
+            let bound = mean(best) + path[best].cv_se.unwrap_or(0.0);
+            // Largest λ (earliest on the path) within one SE of the minimum.
+            let one_se = (0..=best).find(|&l| mean(l) <= bound).unwrap_or(best);
+            let chosen = if settings.rule == LambdaRule::Min { best } else { one_se };
+            (chosen, Some(settings.rule), Some(lambdas[best]), Some(lambdas[one_se]), folds)
+        }
+    };
+    let (intercepts, slopes) = originals[chosen].clone();
+    let all: Vec<f64> = v.to_vec();
+    let log_likelihood = -0.5 * scaled.deviance(&originals[chosen], &all) * v.iter().sum::<f64>();
+    Ok(PenalisedFit {
+        log_likelihood,
+        intercepts,
+        slopes,
+        record: PenaltyFit {
+            penalty,
+            mixing: alpha,
+            lambda: lambdas[chosen],
+            rule,
+            lambda_min,
+            lambda_1se,
+            lambda_max,
+            folds,
+            scale: scaled.scale.clone(),
+            path,
+        },
+        converged,
+    })
+}
