@@ -110,7 +110,9 @@ fn kkt_conditions_hold_at_every_lambda_of_the_path() {
             logistic(&data, LogisticParams { path_length: 40, ..penalised(penalty, mixing, LambdaChoice::Auto) });
         let record = model.penalty.as_ref().expect("a penalised fit");
         let alpha = record.mixing;
-        assert_eq!(record.path.len(), 40);
+        // The walk may stop early (the deviance settled, or the
+        // cross-validated deviance rose past its minimum).
+        assert!((10..=40).contains(&record.path.len()), "{}", record.path.len());
         for point in &record.path {
             let (b0, b) = to_standardised(&data, point.intercepts[0], &point.slopes);
             let worst = kkt_violation(&columns, &labels, b0, &b, point.lambda, alpha);
@@ -249,7 +251,7 @@ fn multinomial_kkt_conditions_hold() {
     let model =
         logistic(&data, LogisticParams { path_length: 20, ..penalised(Penalty::Lasso, None, LambdaChoice::Auto) });
     let record = model.penalty.as_ref().expect("record");
-    assert_eq!(record.path.len(), 20);
+    assert!((10..=20).contains(&record.path.len()), "{}", record.path.len());
     let classes = data.schema.target.classes.len();
     let others: Vec<usize> = (0..classes).filter(|&c| c != model.reference).collect();
     let n = data.rows() as f64;

@@ -603,50 +603,37 @@ pub(crate) fn lambda_path(lambda_max: f64, ratio: f64, length: usize) -> Vec<f64
     (0..length).map(|i| lambda_max * ratio.powf(i as f64 / (length - 1) as f64)).collect()
 }
 
-/// Solutions along `lambdas` with warm starts. At each λ the coefficients
+/// A walk down the λ path with warm starts. At each λ the coefficients
 /// first tried are the sequential strong set (Tibshirani et al. 2012,
 /// "Strong rules for discarding predictors in lasso-type problems", JRSS B
 /// 74(2)): those with |gⱼ(λ_prev)| ≥ α(2λ − λ_prev), plus the non-zero
 /// ones; [`Scaled::solve`] then checks every other coefficient, so the
 /// screening changes the work, never the answer.
-///
-/// With `stop_early`, the path ends once the training deviance changes by
-/// less than 1e-5 of itself from one λ to the next: further down, the fits
-/// only chase noise (the rule Friedman et al. use).
-pub(crate) fn solve_path(
-    scaled: &Scaled<'_>,
-    lambdas: &[f64],
-    alpha: f64,
-    tolerance: f64,
-    stop_early: bool,
-) -> (Vec<Solution>, bool) {
-    let all: Vec<f64> = scaled.weights.clone();
-    let mut last_deviance = f64::INFINITY;
-    let mut current = scaled.null_solution();
-    let (mut gradient, _) = scaled.gradient(&current);
-    let mut previous = lambdas.first().copied().unwrap_or(0.0);
-    let mut all_converged = true;
-    let mut out = Vec::with_capacity(lambdas.len());
-    for &lambda in lambdas {
-        let threshold = alpha * (2.0 * lambda - previous);
-        let strong: Vec<bool> = gradient.iter().map(|g| g.abs() >= threshold).collect();
-        let (next, converged, next_gradient) = scaled.solve(&current, lambda, alpha, tolerance, &strong);
-        all_converged &= converged;
-        current = next;
-        gradient = next_gradient;
-        previous = lambda;
-        out.push(current.clone());
-        if stop_early && out.len() >= 5 {
-            let deviance = scaled.deviance(&scaled.original(&current), &all);
-            if (last_deviance - deviance).abs() < 1e-5 * deviance {
-                break;
-            }
-            last_deviance = deviance;
-        } else if stop_early {
-            last_deviance = scaled.deviance(&scaled.original(&current), &all);
-        }
+struct Walker<'s, 'd> {
+    scaled: &'s Scaled<'d>,
+    current: Solution,
+    gradient: Vec<f64>,
+    previous: Option<f64>,
+    converged: bool,
+}
+
+impl<'s, 'd> Walker<'s, 'd> {
+    fn new(scaled: &'s Scaled<'d>) -> Self {
+        let current = scaled.null_solution();
+        let (gradient, _) = scaled.gradient(&current);
+        Walker { scaled, current, gradient, previous: None, converged: true }
     }
-    (out, all_converged)
+
+    fn step(&mut self, lambda: f64, alpha: f64, tolerance: f64) -> &Solution {
+        let threshold = alpha * (2.0 * lambda - self.previous.unwrap_or(lambda));
+        let strong: Vec<bool> = self.gradient.iter().map(|g| g.abs() >= threshold).collect();
+        let (next, converged, gradient) = self.scaled.solve(&self.current, lambda, alpha, tolerance, &strong);
+        self.converged &= converged;
+        self.current = next;
+        self.gradient = gradient;
+        self.previous = Some(lambda);
+        &self.current
+    }
 }
 
 /// What [`fit`] returns: the chosen coefficients on the original scale,
@@ -690,18 +677,92 @@ pub fn fit(
         }
         LambdaChoice::Auto => lambda_path(lambda_max, ratio, settings.path_length),
     };
-    let stop_early = settings.lambda == LambdaChoice::Auto;
-    let (solutions, mut converged) = solve_path(&scaled, &lambdas, alpha, settings.tolerance, stop_early);
+    // Per λ: the fit on every row and, with `auto`, the fits of the folds,
+    // walked down the path together so the walk can stop early: once the
+    // training deviance changes by less than 1e-5 of itself from one λ to
+    // the next (Friedman et al.'s rule), or once the cross-validated
+    // deviance has stayed above its minimum plus one standard error for ten
+    // λ in a row (past there the path only fits noise, at the most cost).
+    let mut folds_used = 0;
+    let mut fold_tasks: Vec<(Scaled<'_>, Vec<f64>)> = Vec::new();
+    if settings.lambda == LambdaChoice::Auto {
+        let folds = settings.folds.max(2);
+        folds_used = folds;
+        // Folds over the rows this fit uses: rows of weight 0 (another
+        // fold's test rows, when this is itself a fold's fit) take no part.
+        let used: Vec<usize> = (0..design.rows).filter(|&i| v[i] > 0.0).collect();
+        let used_target: Vec<u32> = used.iter().map(|&i| design.target[i]).collect();
+        let inner = assign(&SplitPlan::KFold { folds, repeats: 1 }, &used_target, design.classes, settings.seed)?;
+        let mut fold_of = vec![crate::data::split::LEFT_OUT; design.rows];
+        for (position, &i) in used.iter().enumerate() {
+            fold_of[i] = inner.folds[0][position];
+        }
+        for fold in 0..folds as u32 {
+            let train: Vec<f64> = (0..design.rows)
+                .map(|i| if fold_of[i] != fold && fold_of[i] != crate::data::split::LEFT_OUT { v[i] } else { 0.0 })
+                .collect();
+            let test: Vec<f64> = (0..design.rows).map(|i| if fold_of[i] == fold { v[i] } else { 0.0 }).collect();
+            let fold_scaled = Scaled::new(&design, &train)
+                .map_err(|m| failed(format!("a cross-validation fold could not be fitted: {m}")))?;
+            fold_tasks.push((fold_scaled, test));
+        }
+    }
+    let mut walkers: Vec<Walker<'_, '_>> =
+        std::iter::once(Walker::new(&scaled)).chain(fold_tasks.iter().map(|(s, _)| Walker::new(s))).collect();
+    let everything: Vec<f64> = scaled.weights.clone();
+    let mut solutions: Vec<Solution> = Vec::new();
+    let mut cv: Vec<(f64, f64)> = Vec::new();
+    let mut last_deviance = f64::INFINITY;
+    for &lambda in &lambdas {
+        let steps: Vec<(Solution, f64)> = walkers
+            .par_iter_mut()
+            .enumerate()
+            .map(|(t, walker)| {
+                let solution = walker.step(lambda, alpha, settings.tolerance).clone();
+                let deviance = match t {
+                    0 => scaled.deviance(&scaled.original(&solution), &everything),
+                    f => {
+                        let (fold_scaled, test) = &fold_tasks[f - 1];
+                        fold_scaled.deviance(&fold_scaled.original(&solution), test)
+                    }
+                };
+                (solution, deviance)
+            })
+            .collect();
+        let mut steps = steps.into_iter();
+        let Some((solution, training_deviance)) = steps.next() else { break };
+        solutions.push(solution);
+        if !fold_tasks.is_empty() {
+            let values: Vec<f64> = steps.map(|(_, d)| d).collect();
+            let k = values.len() as f64;
+            let mean = values.iter().sum::<f64>() / k;
+            let variance = values.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / (k - 1.0);
+            cv.push((mean, (variance / k).sqrt()));
+        }
+        if fold_tasks.is_empty() {
+            continue;
+        }
+        let settled = solutions.len() >= 5 && (last_deviance - training_deviance).abs() < 1e-5 * training_deviance;
+        last_deviance = training_deviance;
+        let best = (0..cv.len()).min_by(|&a, &b| cv[a].0.total_cmp(&cv[b].0)).unwrap_or(0);
+        let rising =
+            cv.len() >= best + 11 && cv[best + 1..].iter().rev().take(10).all(|c| c.0 > cv[best].0 + cv[best].1);
+        if settled || rising {
+            break;
+        }
+    }
+    let converged = walkers.iter().all(|w| w.converged);
     let lambdas: Vec<f64> = lambdas[..solutions.len()].to_vec();
     let originals: Vec<(Vec<f64>, Vec<f64>)> = solutions.iter().map(|s| scaled.original(s)).collect();
-    let mut path: Vec<PathPoint> = lambdas
+    let path: Vec<PathPoint> = lambdas
         .iter()
         .zip(&originals)
-        .map(|(&lambda, (intercepts, slopes))| PathPoint {
+        .enumerate()
+        .map(|(l, (&lambda, (intercepts, slopes)))| PathPoint {
             lambda,
             nonzero: slopes.iter().filter(|b| **b != 0.0).count(),
-            cv_deviance: None,
-            cv_se: None,
+            cv_deviance: cv.get(l).map(|c| c.0),
+            cv_se: cv.get(l).map(|c| c.1),
             intercepts: intercepts.clone(),
             slopes: slopes.clone(),
         })
@@ -709,51 +770,13 @@ pub fn fit(
     let (chosen, rule, lambda_min, lambda_1se, folds) = match settings.lambda {
         LambdaChoice::Value(_) => (lambdas.len() - 1, None, None, None, 0),
         LambdaChoice::Auto => {
-            let folds = settings.folds.max(2);
-            // Folds over the rows this fit uses: rows of weight 0 (another
-            // fold's test rows, when this is itself a fold's fit) take no part.
-            let used: Vec<usize> = (0..design.rows).filter(|&i| v[i] > 0.0).collect();
-            let used_target: Vec<u32> = used.iter().map(|&i| design.target[i]).collect();
-            let inner = assign(&SplitPlan::KFold { folds, repeats: 1 }, &used_target, design.classes, settings.seed)?;
-            let mut fold_of = vec![crate::data::split::LEFT_OUT; design.rows];
-            for (position, &i) in used.iter().enumerate() {
-                fold_of[i] = inner.folds[0][position];
-            }
-            let per_fold: Vec<std::result::Result<(Vec<f64>, bool), String>> = (0..folds)
-                .into_par_iter()
-                .map(|fold| {
-                    let f = fold as u32;
-                    let train: Vec<f64> = (0..design.rows)
-                        .map(|i| if fold_of[i] != f && fold_of[i] != crate::data::split::LEFT_OUT { v[i] } else { 0.0 })
-                        .collect();
-                    let test: Vec<f64> = (0..design.rows).map(|i| if fold_of[i] == f { v[i] } else { 0.0 }).collect();
-                    let fold_scaled = Scaled::new(&design, &train)?;
-                    let (solutions, converged) = solve_path(&fold_scaled, &lambdas, alpha, settings.tolerance, false);
-                    let deviances =
-                        solutions.iter().map(|s| fold_scaled.deviance(&fold_scaled.original(s), &test)).collect();
-                    Ok((deviances, converged))
-                })
-                .collect();
-            let mut deviances = Vec::with_capacity(folds);
-            for result in per_fold {
-                let (d, c) = result.map_err(|m| failed(format!("a cross-validation fold could not be fitted: {m}")))?;
-                converged &= c;
-                deviances.push(d);
-            }
-            for (l, point) in path.iter_mut().enumerate() {
-                let values: Vec<f64> = deviances.iter().map(|d: &Vec<f64>| d[l]).collect();
-                let mean = values.iter().sum::<f64>() / folds as f64;
-                let variance = values.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / (folds - 1) as f64;
-                point.cv_deviance = Some(mean);
-                point.cv_se = Some((variance / folds as f64).sqrt());
-            }
             let mean = |l: usize| path[l].cv_deviance.unwrap_or(f64::INFINITY);
             let best = (0..path.len()).min_by(|&a, &b| mean(a).total_cmp(&mean(b))).unwrap_or(0);
             let bound = mean(best) + path[best].cv_se.unwrap_or(0.0);
             // Largest λ (earliest on the path) within one SE of the minimum.
             let one_se = (0..=best).find(|&l| mean(l) <= bound).unwrap_or(best);
             let chosen = if settings.rule == LambdaRule::Min { best } else { one_se };
-            (chosen, Some(settings.rule), Some(lambdas[best]), Some(lambdas[one_se]), folds)
+            (chosen, Some(settings.rule), Some(lambdas[best]), Some(lambdas[one_se]), folds_used)
         }
     };
     let (intercepts, slopes) = originals[chosen].clone();
