@@ -4,15 +4,8 @@
 
 mod common;
 
-use common::{baserate, temp_dir, write};
+use common::{run, temp_dir, write};
 use serde_json::Value;
-
-fn run(dir: &std::path::Path, args: &[&str]) -> (i32, String, String) {
-    let output = baserate(dir, args);
-    let stderr = String::from_utf8_lossy(&output.stderr).into_owned();
-    assert!(!stderr.contains("panicked") && !stderr.contains("internal error"), "{stderr}");
-    (output.status.code().unwrap_or(-1), String::from_utf8_lossy(&output.stdout).into_owned(), stderr)
-}
 
 fn lending(dir: &std::path::Path) {
     let files = baserate::demo::generate(baserate::demo::DEFAULT_SEED, baserate::demo::DemoSize::standard());

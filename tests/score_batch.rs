@@ -9,15 +9,8 @@ use std::io::Write;
 use std::path::Path;
 use std::process::{Command, Stdio};
 
-use common::{baserate, close, temp_dir, write};
+use common::{close, run, temp_dir, write};
 use serde_json::Value;
-
-fn run(dir: &Path, args: &[&str]) -> (i32, String, String) {
-    let output = baserate(dir, args);
-    let stderr = String::from_utf8_lossy(&output.stderr).into_owned();
-    assert!(!stderr.contains("panicked") && !stderr.contains("internal error"), "{stderr}");
-    (output.status.code().unwrap_or(-1), String::from_utf8_lossy(&output.stdout).into_owned(), stderr)
-}
 
 fn demo(name: &str) -> String {
     let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data/lending").join(name);

@@ -344,21 +344,30 @@ impl<'a> Scaled<'a> {
         (slopes, intercepts)
     }
 
+    /// log p(yᵢ | xᵢ) of row i from the linear predictors (class-major, q
+    /// per row), by log-sum-exp with the reference class at 0.
+    fn log_probability(&self, eta: &[f64], i: usize) -> f64 {
+        let (n, q) = (self.design.rows, self.q());
+        let max = (0..q).map(|c| eta[c * n + i]).fold(0.0f64, f64::max);
+        let log_total = max + ((-max).exp() + (0..q).map(|c| (eta[c * n + i] - max).exp()).sum::<f64>()).ln();
+        // The row's class among the non-reference ones (the reference's
+        // predictor is 0).
+        let y = self.design.target[i] as usize;
+        let reference = self.design.reference;
+        let own = match y.cmp(&reference) {
+            std::cmp::Ordering::Less => eta[y * n + i],
+            std::cmp::Ordering::Greater => eta[(y - 1) * n + i],
+            std::cmp::Ordering::Equal => 0.0,
+        };
+        own - log_total
+    }
+
     /// The penalised objective from the linear predictors of `s`.
     fn objective_at(&self, eta: &[f64], s: &Solution, lambda: f64, alpha: f64) -> f64 {
-        let (n, q) = (self.design.rows, self.q());
-        let others = self.design.others();
-        let mut loss = 0.0;
-        for i in 0..n {
-            if self.weights[i] == 0.0 {
-                continue;
-            }
-            let max = (0..q).map(|c| eta[c * n + i]).fold(0.0f64, f64::max);
-            let log_total = max + ((-max).exp() + (0..q).map(|c| (eta[c * n + i] - max).exp()).sum::<f64>()).ln();
-            let y = self.design.target[i] as usize;
-            let own = others.iter().position(|&c| c == y).map_or(0.0, |c| eta[c * n + i]);
-            loss -= self.weights[i] * (own - log_total);
-        }
+        let loss: f64 = (0..self.design.rows)
+            .filter(|&i| self.weights[i] != 0.0)
+            .map(|i| -self.weights[i] * self.log_probability(eta, i))
+            .sum();
         let l1: f64 = s.slopes.iter().map(|b| b.abs()).sum();
         let l2: f64 = s.slopes.iter().map(|b| b * b).sum();
         loss + lambda * (alpha * l1 + 0.5 * (1.0 - alpha) * l2)
@@ -546,27 +555,13 @@ impl<'a> Scaled<'a> {
     }
 
     /// Mean deviance −2·log p(y) per unit weight of the rows with `weights`
-    /// (the held-out rows), under original-scale coefficients.
-    fn deviance(&self, coefficients: &(Vec<f64>, Vec<f64>), weights: &[f64]) -> f64 {
-        let (n, d) = (self.design.rows, self.design.width);
-        let others = self.design.others();
-        let (intercepts, slopes) = coefficients;
-        let mut total = 0.0;
-        let mut weight = 0.0;
-        let mut eta = vec![0.0; others.len()];
-        for i in 0..n {
-            if weights[i] == 0.0 {
-                continue;
-            }
-            for (c, e) in eta.iter_mut().enumerate() {
-                *e = intercepts[c] + (0..d).map(|j| slopes[c * d + j] * self.design.columns[j * n + i]).sum::<f64>();
-            }
-            let max = eta.iter().copied().fold(0.0f64, f64::max);
-            let log_total = max + ((-max).exp() + eta.iter().map(|e| (e - max).exp()).sum::<f64>()).ln();
-            let y = self.design.target[i] as usize;
-            let log_p = others.iter().position(|&c| c == y).map_or(0.0, |c| eta[c]) - log_total;
-            total += -2.0 * weights[i] * log_p;
-            weight += weights[i];
+    /// (the held-out rows, or all of them) at `s`.
+    fn deviance(&self, s: &Solution, weights: &[f64]) -> f64 {
+        let eta = self.linear_predictors(s);
+        let (mut total, mut weight) = (0.0, 0.0);
+        for (i, &w) in weights.iter().enumerate().filter(|(_, &w)| w != 0.0) {
+            total += -2.0 * w * self.log_probability(&eta, i);
+            weight += w;
         }
         total / weight
     }
@@ -720,10 +715,10 @@ pub fn fit(
             .map(|(t, walker)| {
                 let solution = walker.step(lambda, alpha, settings.tolerance).clone();
                 let deviance = match t {
-                    0 => scaled.deviance(&scaled.original(&solution), &everything),
+                    0 => scaled.deviance(&solution, &everything),
                     f => {
                         let (fold_scaled, test) = &fold_tasks[f - 1];
-                        fold_scaled.deviance(&fold_scaled.original(&solution), test)
+                        fold_scaled.deviance(&solution, test)
                     }
                 };
                 (solution, deviance)
@@ -781,7 +776,7 @@ pub fn fit(
     };
     let (intercepts, slopes) = originals[chosen].clone();
     let all: Vec<f64> = v.to_vec();
-    let log_likelihood = -0.5 * scaled.deviance(&originals[chosen], &all) * v.iter().sum::<f64>();
+    let log_likelihood = -0.5 * scaled.deviance(&solutions[chosen], &all) * v.iter().sum::<f64>();
     Ok(PenalisedFit {
         log_likelihood,
         intercepts,

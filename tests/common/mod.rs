@@ -20,6 +20,15 @@ pub fn baserate(dir: &Path, args: &[&str]) -> Output {
     Command::new(env!("CARGO_BIN_EXE_baserate")).args(args).current_dir(dir).output().expect("run baserate")
 }
 
+/// Runs the binary and returns (exit code, stdout, stderr), failing the
+/// test on a panic or an internal error: every outcome must be a clear one.
+pub fn run(dir: &Path, args: &[&str]) -> (i32, String, String) {
+    let output = baserate(dir, args);
+    let stderr = String::from_utf8_lossy(&output.stderr).into_owned();
+    assert!(!stderr.contains("panicked") && !stderr.contains("internal error"), "{stderr}");
+    (output.status.code().unwrap_or(-1), String::from_utf8_lossy(&output.stdout).into_owned(), stderr)
+}
+
 /// A fresh temporary directory.
 pub fn temp_dir() -> tempfile::TempDir {
     tempfile::tempdir().expect("temporary directory")
