@@ -18,6 +18,7 @@ pub mod decide;
 pub mod demo;
 pub mod error;
 pub mod evaluate;
+pub mod export;
 pub mod io;
 pub mod model;
 pub mod prior;

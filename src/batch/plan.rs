@@ -142,7 +142,11 @@ impl Plan {
                             next_indicator += 1;
                             (Fill::Value(*value), Some(next_indicator - 1))
                         }
-                        (_, MissingPolicy::Impute) => (Fill::Value(summary.map_or(0.0, |s| s.median)), None),
+                        // A model fitted from aggregates without deciles has no median.
+                        (_, MissingPolicy::Impute) => match summary.and_then(|s| s.known_median()) {
+                            Some(median) => (Fill::Value(median), None),
+                            None => (Fill::Unfillable, None),
+                        },
                         _ => (Fill::Unfillable, None),
                     };
                     fields[at].numeric = Some(numeric.len());

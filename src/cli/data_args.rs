@@ -19,9 +19,9 @@ pub enum MissingArg {
 /// Options describing a data file.
 #[derive(Debug, Clone, ClapArgs)]
 pub struct DataArgs {
-    /// The class label column.
+    /// The class label column (required, except by `fit --from-stats`, where the aggregates name it).
     #[arg(long, value_name = "COL")]
-    pub target: String,
+    pub target: Option<String>,
     /// Field delimiter: one character, or `tab`.
     #[arg(long, value_name = "C", default_value = ",")]
     pub delimiter: String,
@@ -63,7 +63,11 @@ pub fn parse_delimiter(text: &str) -> Result<u8> {
 impl DataArgs {
     /// Turns the raw arguments into the library's read options.
     pub fn to_options(&self) -> Result<ReadOptions> {
-        let mut options = ReadOptions::new(self.target.clone());
+        let target = self
+            .target
+            .clone()
+            .ok_or_else(|| Error::Usage("--target COL is required: name the class label column".into()))?;
+        let mut options = ReadOptions::new(target);
         options.delimiter = parse_delimiter(&self.delimiter)?;
         options.ids = self.ids.clone();
         options.weight = self.weight.clone();

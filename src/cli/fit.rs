@@ -265,8 +265,11 @@ pub fn prior_spec(prior: Option<&str>, base_rate: Option<f64>) -> crate::Result<
 /// Arguments of `fit`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// The training CSV file.
+    /// The training CSV file (with --from-stats: the aggregates stats-sql's query returned, as CSV).
     pub data: PathBuf,
+    /// DATA is the result of `baserate stats-sql`: fit lda, qda or naive-bayes from those aggregates.
+    #[arg(long)]
+    pub from_stats: bool,
     /// Data options.
     #[command(flatten)]
     pub data_args: DataArgs,
@@ -364,6 +367,75 @@ fn held_out_summary(
     Ok(Some((crate::model::file::HeldOut { folds: FOLDS, confusion, mean_posterior }, log_odds)))
 }
 
+/// `fit STATS.csv --from-stats`: the family fitted from an engine's aggregates.
+fn fit_from_stats(args: &Args, params: FamilyParams, spec: Option<PriorSpec>, talk: bool) -> Result<ExitCode, Failure> {
+    use crate::export::stats::{model_from_stats, read_stats, FromStats};
+    if args.calibrate.is_some() || args.sampled.is_some() {
+        return Err(Error::Usage(
+            "--calibrate needs out-of-fold predictions and --sampled a training file; neither goes with --from-stats"
+                .into(),
+        )
+        .into());
+    }
+    let aggregates = read_stats(&args.data)?;
+    if let Some(target) = &args.data_args.target {
+        if *target != aggregates.target {
+            return Err(Error::Usage(format!(
+                "--target names '{target}', but the aggregates are of target '{}'",
+                aggregates.target
+            ))
+            .into());
+        }
+    }
+    let missing = match args.data_args.missing {
+        crate::cli::data_args::MissingArg::Error => crate::data::MissingPolicy::Error,
+        crate::cli::data_args::MissingArg::DropRows => crate::data::MissingPolicy::DropRows,
+        crate::cli::data_args::MissingArg::Impute => {
+            return Err(Error::Usage(
+                "--missing impute needs each column's median before the sums, which one aggregate pass cannot give; use drop-rows or error".into(),
+            )
+            .into())
+        }
+    };
+    let request = FromStats {
+        params,
+        prior: spec,
+        positive: args.data_args.positive.clone(),
+        missing,
+        na_tokens: args
+            .data_args
+            .na
+            .clone()
+            .unwrap_or_else(|| crate::data::options::DEFAULT_NA_TOKENS.iter().map(|s| s.to_string()).collect()),
+    };
+    let file = model_from_stats(&aggregates, &request, crate::io::sha256_file(&args.data)?)?;
+    file.save(&args.out)?;
+    if talk {
+        let target = &file.schema.target;
+        let mix: Vec<String> = target
+            .classes
+            .iter()
+            .zip(&target.counts)
+            .zip(&target.class_mix())
+            .map(|((c, n), s)| format!("{c} {} ({})", count(*n), percent(*s)))
+            .collect();
+        println!(
+            "fitted {} from the aggregates in {} ({} rows): {}",
+            file.family.name(),
+            args.data.display(),
+            count(file.training.rows),
+            mix.join(", ")
+        );
+        println!("positive class: {}", target.positive);
+        for w in &file.diagnostics.warnings {
+            eprintln!("note: {}", wrap(w, 100, 6));
+        }
+        println!("model written to {} (see it with: baserate inspect {})", args.out.display(), args.out.display());
+        println!("\n{}", wrap(CAUTION, 100, 0));
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
 /// Runs `fit`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
     execute(args, true)
@@ -378,6 +450,9 @@ fn execute(args: Args, talk: bool) -> Result<ExitCode, Failure> {
     let family: Family = args.family.into();
     let params = args.family_options.params(family)?;
     let spec = prior_spec(args.prior.as_deref(), args.base_rate)?;
+    if args.from_stats {
+        return fit_from_stats(&args, params, spec, talk);
+    }
     let options = args.data_args.to_options()?;
     let (dataset, notices) = Dataset::read(&args.data, &options)?;
     for n in &notices {

@@ -15,11 +15,13 @@ pub mod compare;
 pub mod data_args;
 pub mod demo;
 pub mod describe;
+pub mod export_sql;
 pub mod fit;
 pub mod inspect;
 pub mod output;
 pub mod score;
 pub mod shift;
+pub mod stats_sql;
 
 /// Bayes-rule classifiers for credit and fraud work, with base-rate
 /// correction and expected-cost decisions. Decision support, not a decision.
@@ -52,6 +54,10 @@ pub enum Command {
     Score(score::Args),
     /// Estimate the class mix (base rate) of an unlabeled new portfolio.
     Shift(shift::Args),
+    /// Write the scoring job as one SQL statement for the engine where the data lives.
+    ExportSql(export_sql::Args),
+    /// Write the aggregate query that fits lda, qda or naive-bayes inside the engine.
+    StatsSql(stats_sql::Args),
 }
 
 /// What a command failed with: a library error, or an internal one.
@@ -90,6 +96,8 @@ pub fn run(cli: Cli) -> Result<ExitCode, Failure> {
         Command::Inspect(args) => inspect::run(args),
         Command::Score(args) => score::run(args),
         Command::Shift(args) => shift::run(args),
+        Command::ExportSql(args) => export_sql::run(args),
+        Command::StatsSql(args) => stats_sql::run(args),
     }
 }
 

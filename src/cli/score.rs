@@ -78,37 +78,45 @@ pub struct Args {
     pub quiet: bool,
 }
 
+/// The prior a run scores with: `--prior`/`--base-rate`, a `shift` result
+/// (`--prior-from`), or the model's own.
+pub fn resolve_prior(
+    file: &ModelFile,
+    prior: Option<&str>,
+    base_rate: Option<f64>,
+    prior_from: Option<&str>,
+) -> crate::Result<Vec<f64>> {
+    let positive = file.classes.iter().position(|c| *c == file.positive).unwrap_or(0);
+    match (prior_spec(prior, base_rate)?, prior_from) {
+        (Some(_), Some(_)) => Err(crate::Error::Usage("give --prior/--base-rate or --prior-from, not both".into())),
+        (Some(spec), None) => spec.resolve(&file.classes, &file.training_class_mix, positive),
+        (None, Some(from)) => crate::cli::shift::prior_from_file(from, &file.classes),
+        (None, None) => Ok(file.prior.clone()),
+    }
+}
+
+/// Reads a costs file for a model: its classes, and no categorical input
+/// read as an amount.
+pub fn read_costs(path: &std::path::Path, file: &ModelFile) -> crate::Result<crate::decide::CostSpec> {
+    let shown = path.display().to_string();
+    let text = std::fs::read_to_string(path).map_err(|e| crate::Error::io(&shown, e))?;
+    let spec = crate::decide::CostSpec::parse(&shown, &text, &file.classes)?;
+    if let Some(c) = spec.columns().into_iter().find(|c| file.schema.categorical_inputs().iter().any(|k| k.name == *c))
+    {
+        return Err(crate::Error::SchemaMismatch {
+            path: shown,
+            message: format!("the costs use column '{c}', which the model reads as categorical, not numeric"),
+        });
+    }
+    Ok(spec)
+}
+
 /// Runs `score`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let file = ModelFile::load(&args.model)?;
     let positive = file.classes.iter().position(|c| *c == file.positive).unwrap_or(0);
-    let prior = match (prior_spec(args.prior.as_deref(), args.base_rate)?, &args.prior_from) {
-        (Some(_), Some(_)) => {
-            return Err(crate::Error::Usage("give --prior/--base-rate or --prior-from, not both".into()).into())
-        }
-        (Some(spec), None) => spec.resolve(&file.classes, &file.training_class_mix, positive)?,
-        (None, Some(from)) => crate::cli::shift::prior_from_file(from, &file.classes)?,
-        (None, None) => file.prior.clone(),
-    };
-    let costs = match &args.costs {
-        Some(path) => {
-            let shown = path.display().to_string();
-            let text = std::fs::read_to_string(path).map_err(|e| crate::Error::io(&shown, e))?;
-            let spec = crate::decide::CostSpec::parse(&shown, &text, &file.classes)?;
-            // A categorical input cannot also be read as an amount.
-            if let Some(c) =
-                spec.columns().into_iter().find(|c| file.schema.categorical_inputs().iter().any(|k| k.name == *c))
-            {
-                return Err(crate::Error::SchemaMismatch {
-                    path: shown,
-                    message: format!("the costs use column '{c}', which the model reads as categorical, not numeric"),
-                }
-                .into());
-            }
-            Some(spec)
-        }
-        None => None,
-    };
+    let prior = resolve_prior(&file, args.prior.as_deref(), args.base_rate, args.prior_from.as_deref())?;
+    let costs = args.costs.as_deref().map(|path| read_costs(path, &file)).transpose()?;
     if let Some(rate) = args.max_reject_rate {
         if !(0.0..=1.0).contains(&rate) {
             return Err(crate::Error::Usage(format!("--max-reject-rate must be between 0 and 1; got {rate}")).into());

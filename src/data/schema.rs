@@ -67,6 +67,14 @@ pub struct NumericSummary {
     pub median: f64,
 }
 
+impl NumericSummary {
+    /// The median, when the summary has one: a model fitted from SQL
+    /// aggregates without deciles records none (its deciles are empty).
+    pub fn known_median(&self) -> Option<f64> {
+        (!self.deciles.is_empty()).then_some(self.median)
+    }
+}
+
 /// Summary of a categorical feature.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct CategoricalSummary {

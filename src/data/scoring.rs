@@ -93,20 +93,28 @@ fn from_table(table: ReadTable, schema: &Schema) -> Result<ScoringData> {
         };
         let source = table.numeric.column(index);
         if let Some(line) = read.facts.first_missing_line {
-            let fill = match (&feature.imputation, policy) {
-                (Some(Imputation::Median { value, .. }), _) => *value,
-                (_, MissingPolicy::Impute) => feature.numeric.as_ref().map_or(0.0, |s| s.median),
-                (_, MissingPolicy::Error) => {
-                    return Err(missing_error(&feature.name, line, "the model was fitted with --missing error"))
-                }
-                (_, MissingPolicy::DropRows) => {
-                    return Err(missing_error(
-                        &feature.name,
-                        line,
-                        "the model was fitted with --missing drop-rows, and scoring never drops rows",
-                    ))
-                }
-            };
+            let fill =
+                match (&feature.imputation, policy) {
+                    (Some(Imputation::Median { value, .. }), _) => *value,
+                    (_, MissingPolicy::Impute) => match feature.numeric.as_ref().and_then(|s| s.known_median()) {
+                        Some(median) => median,
+                        None => return Err(missing_error(
+                            &feature.name,
+                            line,
+                            "the model was fitted from aggregates without deciles, so it has no median to fill with",
+                        )),
+                    },
+                    (_, MissingPolicy::Error) => {
+                        return Err(missing_error(&feature.name, line, "the model was fitted with --missing error"))
+                    }
+                    (_, MissingPolicy::DropRows) => {
+                        return Err(missing_error(
+                            &feature.name,
+                            line,
+                            "the model was fitted with --missing drop-rows, and scoring never drops rows",
+                        ))
+                    }
+                };
             imputed.push((feature.name.clone(), read.facts.missing));
             numeric.column_mut(j).iter_mut().zip(source).for_each(|(t, v)| *t = if v.is_nan() { fill } else { *v });
         } else {

@@ -236,12 +236,12 @@ impl DiscriminantModel {
     }
 }
 
-fn check_classes(family: &str, dataset: &Dataset, moments: &[Moments], needed: usize, hint: &str) -> Result<()> {
+fn check_classes(family: &str, classes: &[String], moments: &[Moments], needed: usize, hint: &str) -> Result<()> {
     for (k, m) in moments.iter().enumerate() {
         if m.rows < needed {
             return Err(Error::TooFewRows {
                 family: family.into(),
-                class: dataset.schema.target.classes[k].clone(),
+                class: classes.get(k).cloned().unwrap_or_default(),
                 rows: m.rows,
                 needed,
                 hint: hint.into(),
@@ -352,9 +352,27 @@ pub fn fit_lda_from_moments(
     encoding: Encoding,
     moments: Vec<Moments>,
 ) -> Result<(DiscriminantModel, Diagnostics)> {
+    let fourth = |means: &[Vec<f64>], scale: &[f64]| fourth_moment(&encoding, dataset, weights, means, scale);
+    let classes = dataset.schema.target.classes.clone();
+    lda_from_moments(&classes, params, encoding.clone(), moments, Some(&fourth))
+}
+
+/// Σᵢ wᵢ‖zᵢ‖⁴ of the rows given the class means and the column scales.
+pub type FourthMoment<'a> = dyn Fn(&[Vec<f64>], &[f64]) -> f64 + 'a;
+
+/// Fits LDA from per-class moments alone. `fourth_moment(means, scale)`
+/// gives Σᵢ wᵢ‖zᵢ‖⁴ for the Ledoit–Wolf intensity; without it (moments
+/// computed elsewhere, e.g. by an SQL engine) that shrinkage is refused.
+pub fn lda_from_moments(
+    classes: &[String],
+    params: &LdaParams,
+    encoding: Encoding,
+    moments: Vec<Moments>,
+    fourth_moment: Option<&FourthMoment<'_>>,
+) -> Result<(DiscriminantModel, Diagnostics)> {
     let d = encoding.width();
-    let k = dataset.schema.target.classes.len();
-    check_classes("lda", dataset, &moments, 1, "collect more rows of that class")?;
+    let k = classes.len();
+    check_classes("lda", classes, &moments, 1, "collect more rows of that class")?;
     let n: f64 = moments.iter().map(|m| m.weight).sum();
     let divisor = match params.divisor {
         Divisor::Unbiased => n - k as f64,
@@ -387,7 +405,13 @@ pub fn fit_lda_from_moments(
                 ));
             }
             let r = DMatrix::from_fn(d, d, |i, j| scatter[(i, j)] / n / (scale[i] * scale[j]));
-            let fourth = fourth_moment(&encoding, dataset, weights, &means, &scale);
+            let Some(fourth_moment) = fourth_moment else {
+                return Err(Error::FitFailed {
+                    family: "lda".into(),
+                    message: "Ledoit–Wolf shrinkage needs fourth moments of the rows, which aggregates of sums and cross-products do not hold; give --shrinkage none or a value in [0, 1]".into(),
+                });
+            };
+            let fourth = fourth_moment(&means, &scale);
             ledoit_wolf_intensity(&r, fourth, n)
         }
     };
@@ -401,7 +425,7 @@ pub fn fit_lda_from_moments(
         joint_log_likelihood(&moments, std::slice::from_ref(&factor), std::slice::from_ref(&covariance));
     let model = DiscriminantModel {
         encoding,
-        classes: dataset.schema.target.classes.clone(),
+        classes: classes.to_vec(),
         class_weights: moments.iter().map(|m| m.weight).collect(),
         means,
         covariances: vec![covariance.transpose().as_slice().to_vec()],
@@ -431,8 +455,18 @@ pub fn fit_qda_from_moments(
     encoding: Encoding,
     moments: Vec<Moments>,
 ) -> Result<(DiscriminantModel, Diagnostics)> {
+    qda_from_moments(&dataset.schema.target.classes, params, encoding, moments)
+}
+
+/// Fits QDA from per-class moments alone, for classes named `classes`.
+pub fn qda_from_moments(
+    classes: &[String],
+    params: &QdaParams,
+    encoding: Encoding,
+    moments: Vec<Moments>,
+) -> Result<(DiscriminantModel, Diagnostics)> {
     let d = encoding.width();
-    let k = dataset.schema.target.classes.len();
+    let k = classes.len();
     if d == 0 {
         return Err(Error::FitFailed { family: "qda".into(), message: "there are no inputs to model".into() });
     }
@@ -440,7 +474,7 @@ pub fn fit_qda_from_moments(
         Divisor::Unbiased => 2,
         Divisor::Rows => 1,
     };
-    check_classes("qda", dataset, &moments, needed.max(if params.reg < 1.0 { d + 1 } else { needed }), QDA_HINT)?;
+    check_classes("qda", classes, &moments, needed.max(if params.reg < 1.0 { d + 1 } else { needed }), QDA_HINT)?;
     let n: f64 = moments.iter().map(|m| m.weight).sum();
     let pooled = if params.reg > 0.0 {
         let divisor = match params.divisor {
@@ -461,7 +495,7 @@ pub fn fit_qda_from_moments(
         if !(divisor > 0.0) {
             return Err(Error::TooFewRows {
                 family: "qda".into(),
-                class: dataset.schema.target.classes[class].clone(),
+                class: classes[class].clone(),
                 rows: m.rows,
                 needed: 2,
                 hint: "the class's weights sum to 1 or less; collect more rows of it".into(),
@@ -469,7 +503,7 @@ pub fn fit_qda_from_moments(
         }
         let own = DMatrix::from_fn(d, d, |i, j| m.scatter_at(i, j) / divisor);
         let covariance = own * (1.0 - params.reg) + &pooled * params.reg;
-        let whose = format!("of class '{}'", dataset.schema.target.classes[class]);
+        let whose = format!("of class '{}'", classes[class]);
         let factor = cholesky(&covariance).map_err(|s| singular("qda", whose, &encoding, s, QDA_HINT))?;
         covariances.push(covariance);
         factors.push(factor);
@@ -477,7 +511,7 @@ pub fn fit_qda_from_moments(
     let log_likelihood = joint_log_likelihood(&moments, &factors, &covariances);
     let model = DiscriminantModel {
         encoding,
-        classes: dataset.schema.target.classes.clone(),
+        classes: classes.to_vec(),
         class_weights: moments.iter().map(|m| m.weight).collect(),
         means: moments.iter().map(|m| m.mean.clone()).collect(),
         covariances: covariances.iter().map(|c| c.transpose().as_slice().to_vec()).collect(),

@@ -25,7 +25,7 @@ use crate::data::schema::ColumnKind;
 use crate::data::{Dataset, Inputs};
 use crate::error::{Error, Result};
 use crate::model::design::Encoding;
-use crate::model::moments::class_moments;
+use crate::model::moments::{class_moments, Moments};
 use crate::model::Diagnostics;
 
 /// Naive Bayes hyperparameters.
@@ -166,6 +166,21 @@ impl NaiveBayesModel {
     }
 }
 
+/// The weighted counts naive Bayes fits on: per class, the moments of the
+/// numeric inputs (diagonal), for each 0/1 indicator input the weight of its
+/// ones, and for each categorical input the weight of each level.
+#[derive(Debug, Clone, PartialEq)]
+pub struct NaiveBayesSummaries {
+    /// Numeric input names.
+    pub numeric: Vec<String>,
+    /// Diagonal moments of the numeric inputs, per class.
+    pub moments: Vec<Moments>,
+    /// Indicator inputs: (index among the numeric inputs, weight of ones per class).
+    pub indicators: Vec<(usize, Vec<f64>)>,
+    /// Categorical inputs: (column, levels, weight per class and level).
+    pub categorical: Vec<(String, Vec<String>, Vec<Vec<f64>>)>,
+}
+
 /// Fits naive Bayes with the given row weights (the dataset's own, or those
 /// of a training fold).
 pub fn fit(
@@ -179,11 +194,55 @@ pub fn fit(
     let p = numeric_only.numeric.len();
     let inputs = dataset.inputs();
     let moments = class_moments(&numeric_only, &inputs, &dataset.target, weights, k, true);
+    let indicator_names: Vec<String> = schema
+        .features()
+        .filter_map(|c| match &c.imputation {
+            Some(crate::data::schema::Imputation::Median { indicator, .. }) => Some(indicator.clone()),
+            _ => None,
+        })
+        .collect();
+    let indicators = (0..p)
+        .filter(|&j| indicator_names.contains(&numeric_only.numeric[j]))
+        .map(|j| {
+            let mut ones = vec![0.0; k];
+            let column = dataset.numeric.column(j);
+            for (r, &y) in dataset.target.iter().enumerate() {
+                if column[r] > 0.5 {
+                    ones[y as usize] += weights.map_or(1.0, |w| w[r]);
+                }
+            }
+            (j, ones)
+        })
+        .collect();
+    let mut categorical = Vec::new();
+    for (c, column) in schema.categorical_inputs().iter().enumerate() {
+        debug_assert_eq!(column.kind, Some(ColumnKind::Categorical));
+        let levels = column.categorical.as_ref().map(|s| s.levels.clone()).unwrap_or_default();
+        let mut counts = vec![vec![0.0; levels.len()]; k];
+        for (r, &code) in dataset.categorical[c].iter().enumerate() {
+            counts[dataset.target[r] as usize][code as usize] += weights.map_or(1.0, |w| w[r]);
+        }
+        categorical.push((column.name.clone(), levels, counts));
+    }
+    let summaries = NaiveBayesSummaries { numeric: numeric_only.numeric, moments, indicators, categorical };
+    fit_summaries(&schema.target.classes, params, &summaries)
+}
+
+/// Fits naive Bayes from its weighted counts alone (the data is not read):
+/// the same fit as [`fit`] on the rows they summarise.
+pub fn fit_summaries(
+    classes: &[String],
+    params: &NaiveBayesParams,
+    summaries: &NaiveBayesSummaries,
+) -> Result<(NaiveBayesModel, Diagnostics)> {
+    let k = classes.len();
+    let moments = &summaries.moments;
+    let p = summaries.numeric.len();
     for (class, m) in moments.iter().enumerate() {
         if m.rows == 0 {
             return Err(Error::TooFewRows {
                 family: "naive-bayes".into(),
-                class: schema.target.classes[class].clone(),
+                class: classes[class].clone(),
                 rows: 0,
                 needed: 1,
                 hint: "collect rows of that class".into(),
@@ -195,33 +254,22 @@ pub fn fit(
     for m in &moments[1..] {
         overall.merge(m);
     }
-    let indicators: Vec<usize> = {
-        let names: Vec<String> = schema
-            .features()
-            .filter_map(|c| match &c.imputation {
-                Some(crate::data::schema::Imputation::Median { indicator, .. }) => Some(indicator.clone()),
-                _ => None,
-            })
-            .collect();
-        (0..p).filter(|&j| names.contains(&numeric_only.numeric[j])).collect()
-    };
+    let indicators: Vec<usize> = summaries.indicators.iter().map(|(j, _)| *j).collect();
     let mut bernoulli = Vec::new();
-    for &j in &indicators {
-        let mut ones = vec![0.0; k];
-        let column = dataset.numeric.column(j);
-        for (r, &y) in dataset.target.iter().enumerate() {
-            if column[r] > 0.5 {
-                ones[y as usize] += weights.map_or(1.0, |w| w[r]);
-            }
-        }
-        let log_probabilities = (0..k)
+    let mut log_likelihood = 0.0;
+    for (j, ones) in &summaries.indicators {
+        let log_probabilities: Vec<[f64; 2]> = (0..k)
             .map(|class| {
                 let p1 = ((ones[class] + params.smoothing) / (moments[class].weight + 2.0 * params.smoothing))
                     .clamp(SMALLEST_PROBABILITY, 1.0 - f64::EPSILON);
                 [p1.ln(), (1.0 - p1).ln()]
             })
             .collect();
-        bernoulli.push(BernoulliInput { index: j, log_probabilities });
+        for class in 0..k {
+            let [one, zero] = log_probabilities[class];
+            log_likelihood += ones[class] * one + (moments[class].weight - ones[class]) * zero;
+        }
+        bernoulli.push(BernoulliInput { index: *j, log_probabilities });
     }
     let mut warnings = Vec::new();
     let mut variances = Vec::with_capacity(k);
@@ -237,7 +285,7 @@ pub fn fit(
                 return Err(Error::SingularCovariance {
                     family: "naive-bayes".into(),
                     whose: "of every class".into(),
-                    columns: vec![numeric_only.numeric[j].clone()],
+                    columns: vec![summaries.numeric[j].clone()],
                     hint: "the column is constant; remove it with --exclude".into(),
                 });
             }
@@ -246,7 +294,7 @@ pub fn fit(
             if variance < floor {
                 warnings.push(format!(
                     "column '{}' is (nearly) constant in class '{}'; its variance was floored at {floor:.3e}",
-                    numeric_only.numeric[j], schema.target.classes[class]
+                    summaries.numeric[j], classes[class]
                 ));
             }
             row.push(variance.max(floor).max(f64::MIN_POSITIVE));
@@ -255,16 +303,10 @@ pub fn fit(
     }
     // Categorical likelihoods from weighted counts.
     let mut categorical = Vec::new();
-    for (c, column) in schema.categorical_inputs().iter().enumerate() {
-        debug_assert_eq!(column.kind, Some(ColumnKind::Categorical));
-        let levels = column.categorical.as_ref().map(|s| s.levels.clone()).unwrap_or_default();
-        let mut counts = vec![vec![0.0; levels.len()]; k];
-        for (r, &code) in dataset.categorical[c].iter().enumerate() {
-            counts[dataset.target[r] as usize][code as usize] += weights.map_or(1.0, |w| w[r]);
-        }
-        let log_probabilities = counts
+    for (column, levels, counts) in &summaries.categorical {
+        let log_probabilities: Vec<Vec<f64>> = counts
             .iter()
-            .zip(&moments)
+            .zip(moments)
             .map(|(row, m)| {
                 let denominator = m.weight + params.smoothing * levels.len() as f64;
                 row.iter()
@@ -272,33 +314,22 @@ pub fn fit(
                     .collect()
             })
             .collect();
-        categorical.push(CategoricalLikelihood { column: column.name.clone(), levels, log_probabilities });
+        for (row, lp) in counts.iter().zip(&log_probabilities) {
+            log_likelihood += row.iter().zip(lp).map(|(c, l)| c * l).sum::<f64>();
+        }
+        categorical.push(CategoricalLikelihood { column: column.clone(), levels: levels.clone(), log_probabilities });
     }
     // Σᵢ wᵢ log p(xᵢ | yᵢ) in closed form.
-    let mut log_likelihood = 0.0;
     for (class, m) in moments.iter().enumerate() {
         for j in (0..p).filter(|j| !indicators.contains(j)) {
             let v = variances[class][j];
             log_likelihood -= 0.5 * (m.weight * (std::f64::consts::TAU * v).ln() + m.scatter[j] / v);
         }
     }
-    for b in &bernoulli {
-        let column = dataset.numeric.column(b.index);
-        for (r, &y) in dataset.target.iter().enumerate() {
-            log_likelihood +=
-                weights.map_or(1.0, |w| w[r]) * b.log_probabilities[y as usize][usize::from(column[r] <= 0.5)];
-        }
-    }
-    for (c, table) in categorical.iter().enumerate() {
-        for (r, &code) in dataset.categorical[c].iter().enumerate() {
-            log_likelihood +=
-                weights.map_or(1.0, |w| w[r]) * table.log_probabilities[dataset.target[r] as usize][code as usize];
-        }
-    }
     let model = NaiveBayesModel {
-        classes: schema.target.classes.clone(),
+        classes: classes.to_vec(),
         class_weights: moments.iter().map(|m| m.weight).collect(),
-        numeric: numeric_only.numeric,
+        numeric: summaries.numeric.clone(),
         means: moments.iter().map(|m| m.mean.clone()).collect(),
         variances,
         categorical,

@@ -1,0 +1,101 @@
+//! `baserate export-sql MODEL --table NAME [--prior SPEC | --base-rate P | --prior-from SHIFT.json] [--costs FILE] [--dialect D] [-o FILE]`
+//!
+//! Writes the scoring job as one SQL statement (see [`crate::export::scoring`]).
+
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use crate::batch::UnseenPolicy;
+use crate::cli::output::write_atomic;
+use crate::cli::score::{read_costs, resolve_prior};
+use crate::cli::Failure;
+use crate::data::options::MissingPolicy;
+use crate::export::scoring::{scoring_sql, ScoringRequest};
+use crate::export::Dialect;
+use crate::model::file::ModelFile;
+
+/// Arguments of `export-sql`.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// The model file.
+    pub model: PathBuf,
+    /// The table or view to score: NAME or SCHEMA.NAME (each part quoted as written).
+    #[arg(long, value_name = "NAME")]
+    pub table: String,
+    /// The prior to score with: empirical, uniform, or CLASS=P,... [default: the model's].
+    #[arg(long, value_name = "SPEC")]
+    pub prior: Option<String>,
+    /// Binary shorthand for --prior POSITIVE=P,OTHER=1-P.
+    #[arg(long, value_name = "P")]
+    pub base_rate: Option<f64>,
+    /// The prior estimated by `shift`: SHIFT.json (the EM estimate) or SHIFT.json:bbse.
+    #[arg(long, value_name = "SHIFT.json[:METHOD]")]
+    pub prior_from: Option<String>,
+    /// A loss specification (TOML): adds the columns `action` and `expected_cost`.
+    #[arg(long, value_name = "FILE")]
+    pub costs: Option<PathBuf>,
+    /// Columns passed through first (comma-separated; repeatable); they also break ties in a capacity's ranking.
+    #[arg(long = "id", value_name = "COLS", value_delimiter = ',')]
+    pub ids: Vec<String>,
+    /// The SQL spelling: ansi (standard SQL) or postgres.
+    #[arg(long, value_enum, value_name = "D", default_value = "ansi")]
+    pub dialect: Dialect,
+    /// A category the training data never had: marked as a reject (error, reject) or taken as missing.
+    #[arg(long, value_enum, value_name = "POLICY", default_value = "error")]
+    pub unseen: UnseenPolicy,
+    /// A missing value the model has no fill for: error or drop-rows (both mark the row), or impute [default: the training policy].
+    #[arg(long, value_name = "POLICY")]
+    pub missing: Option<String>,
+    /// Text values that count as missing in categorical columns, besides NULL and '' [default: the training file's].
+    #[arg(long, value_name = "TOKENS", value_delimiter = ',', allow_hyphen_values = true)]
+    pub na: Option<Vec<String>>,
+    /// Where to write the SQL (`-` for stdout).
+    #[arg(long, short = 'o', value_name = "FILE", default_value = "-")]
+    pub out: PathBuf,
+}
+
+/// Parses a `--missing` value.
+pub fn parse_missing(text: Option<&str>) -> crate::Result<Option<MissingPolicy>> {
+    match text {
+        None => Ok(None),
+        Some("error") => Ok(Some(MissingPolicy::Error)),
+        Some("impute") => Ok(Some(MissingPolicy::Impute)),
+        Some("drop-rows") => Ok(Some(MissingPolicy::DropRows)),
+        Some(other) => Err(crate::Error::Usage(format!("--missing takes error, impute or drop-rows; got '{other}'"))),
+    }
+}
+
+/// Runs `export-sql`.
+pub fn run(args: Args) -> Result<ExitCode, Failure> {
+    let file = ModelFile::load(&args.model)?;
+    let prior = resolve_prior(&file, args.prior.as_deref(), args.base_rate, args.prior_from.as_deref())?;
+    let costs = args.costs.as_deref().map(|path| read_costs(path, &file)).transpose()?;
+    let request = ScoringRequest {
+        table: args.table.clone(),
+        dialect: args.dialect,
+        prior,
+        costs,
+        ids: args.ids.clone(),
+        missing: parse_missing(args.missing.as_deref())?,
+        unseen: args.unseen,
+        na_tokens: args.na.clone(),
+    };
+    let text = scoring_sql(&file, &request)?;
+    write_atomic(&args.out, text.as_bytes())?;
+    if args.out.as_os_str() != "-" {
+        let mut columns: Vec<String> = args.ids.clone();
+        columns.extend(file.classes.iter().map(|c| format!("p_{c}")));
+        if request.costs.is_some() {
+            columns.extend(["action".to_string(), "expected_cost".to_string()]);
+        }
+        columns.push("reject_reason".into());
+        eprintln!(
+            "wrote {}: one SELECT over {} ({} dialect) returning {}",
+            args.out.display(),
+            args.table,
+            args.dialect.name(),
+            columns.join(", ")
+        );
+    }
+    Ok(ExitCode::SUCCESS)
+}
