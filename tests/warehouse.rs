@@ -16,131 +16,21 @@ use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
-use baserate::export::sql::ident;
+use common::postgres::Postgres;
 use common::{external_tool, python_with, run, temp_dir, write};
 
 /// Posteriors from the SQL and from `score` agree to this, absolutely: the
 /// two compute the same formulas in double precision in different orders.
 const POSTERIOR_TOLERANCE: f64 = 1e-9;
 
-/// A throwaway PostgreSQL cluster, stopped when dropped.
-struct Postgres {
-    dir: tempfile::TempDir,
-    bin: PathBuf,
-    as_postgres: bool,
-}
-
-impl Postgres {
-    fn find_bin() -> Option<PathBuf> {
-        let mut found: Vec<PathBuf> = std::fs::read_dir("/usr/lib/postgresql")
-            .ok()?
-            .filter_map(|e| e.ok().map(|e| e.path().join("bin")))
-            .filter(|p| p.join("initdb").exists())
-            .collect();
-        found.sort_by_key(|p| {
-            p.parent().and_then(|v| v.file_name()).and_then(|v| v.to_str()).and_then(|v| v.parse::<u32>().ok())
-        });
-        found.pop()
+/// The cluster, or `None` (a notice, or a failure under
+/// BASERATE_REQUIRE_EXTERNAL=1) when PostgreSQL is not installed.
+fn postgres() -> Option<Postgres> {
+    let started = Postgres::start();
+    if started.is_none() {
+        external_tool("PostgreSQL (initdb)", &mut Command::new("false"));
     }
-
-    fn start() -> Option<Postgres> {
-        let bin = Self::find_bin();
-        let probe = bin.as_ref().map(|b| b.join("initdb")).unwrap_or_else(|| PathBuf::from("initdb"));
-        if !external_tool("PostgreSQL (initdb)", Command::new(probe).arg("--version")) {
-            return None;
-        }
-        let bin = bin?;
-        let dir = temp_dir();
-        // PostgreSQL refuses to run as root: the cluster belongs to the
-        // postgres system user then.
-        let root = Command::new("id").arg("-u").output().map(|o| o.stdout == b"0\n").unwrap_or(false);
-        if root {
-            let status = Command::new("chown").args(["-R", "postgres"]).arg(dir.path()).status().expect("chown");
-            assert!(status.success(), "chown of the cluster directory failed");
-        }
-        let pg = Postgres { dir, bin, as_postgres: root };
-        let data = pg.dir.path().join("data");
-        pg.server_command(
-            "initdb",
-            &["-D", data.to_str().unwrap_or(""), "-A", "trust", "-U", "postgres", "-E", "UTF8"],
-        );
-        let options = format!("-c listen_addresses='' -k {} -p 54329 -c fsync=off", pg.dir.path().display());
-        let log = pg.dir.path().join("log");
-        pg.server_command(
-            "pg_ctl",
-            &["-D", data.to_str().unwrap_or(""), "-o", &options, "-l", log.to_str().unwrap_or(""), "-w", "start"],
-        );
-        Some(pg)
-    }
-
-    fn server_command(&self, program: &str, args: &[&str]) {
-        let path = self.bin.join(program);
-        let output = if self.as_postgres {
-            Command::new("runuser").args(["-u", "postgres", "--"]).arg(&path).args(args).output()
-        } else {
-            Command::new(&path).args(args).output()
-        }
-        .expect("run a PostgreSQL server program");
-        assert!(
-            output.status.success(),
-            "{program} failed: {}{}",
-            String::from_utf8_lossy(&output.stdout),
-            String::from_utf8_lossy(&output.stderr)
-        );
-    }
-
-    /// Runs SQL text with psql; returns stdout.
-    fn psql(&self, sql: &str) -> String {
-        let file = self.dir.path().join(format!("statement-{}.sql", std::process::id()));
-        std::fs::write(&file, sql).expect("write SQL");
-        let output = Command::new(self.bin.join("psql"))
-            .args(["-X", "-q", "-v", "ON_ERROR_STOP=1", "-U", "postgres", "-p", "54329", "-h"])
-            .arg(self.dir.path())
-            .arg("-f")
-            .arg(&file)
-            .output()
-            .expect("run psql");
-        assert!(output.status.success(), "psql failed: {}", String::from_utf8_lossy(&output.stderr));
-        String::from_utf8_lossy(&output.stdout).into_owned()
-    }
-
-    /// Loads a CSV file into a new table: `numeric` columns as double
-    /// precision, the rest as text (empty fields are NULL).
-    fn load(&self, table: &str, csv: &Path, numeric: &[String]) {
-        let header = csv::Reader::from_path(csv).expect("read csv").headers().expect("header").clone();
-        let columns: Vec<String> = header
-            .iter()
-            .map(|h| {
-                let kind = if numeric.iter().any(|n| n == h) { "DOUBLE PRECISION" } else { "TEXT" };
-                format!("{} {kind}", ident(h).expect("name"))
-            })
-            .collect();
-        let name = ident(table).expect("table");
-        let copy = format!(
-            "COPY {name} FROM STDIN WITH (FORMAT csv, HEADER true);\n{}\\.\n",
-            std::fs::read_to_string(csv).expect("read csv")
-        );
-        self.psql(&format!("DROP TABLE IF EXISTS {name};\nCREATE TABLE {name} ({});\n{copy}", columns.join(", ")));
-    }
-
-    /// The rows a query returns, as CSV with a header.
-    fn query_csv(&self, sql: &str) -> String {
-        let statement = sql.trim_end().trim_end_matches(';');
-        self.psql(&format!("COPY (\n{statement}\n) TO STDOUT WITH (FORMAT csv, HEADER true);\n"))
-    }
-}
-
-impl Drop for Postgres {
-    fn drop(&mut self) {
-        let data = self.dir.path().join("data");
-        let path = self.bin.join("pg_ctl");
-        let args = ["-D", data.to_str().unwrap_or(""), "-m", "immediate", "stop"];
-        let _ = if self.as_postgres {
-            Command::new("runuser").args(["-u", "postgres", "--"]).arg(&path).args(args).output()
-        } else {
-            Command::new(&path).args(args).output()
-        };
-    }
+    started
 }
 
 /// Rows of a CSV text keyed by `key`.
@@ -216,6 +106,21 @@ fn with<'a>(mut base: Vec<&'a str>, more: &[&'a str]) -> Vec<&'a str> {
     base
 }
 
+/// `fit STATS --from-stats --family F EXTRA... -o MODEL`, which must succeed.
+fn fit_from_stats(dir: &Path, stats: &Path, family: &str, extra: &[&str], model: &Path) {
+    let mut args = vec!["fit", stats.to_str().expect("path"), "--from-stats", "--family", family];
+    args.extend(extra);
+    args.extend(["-o", model.to_str().expect("path")]);
+    let (code, _, stderr) = run(dir, &args);
+    assert_eq!(code, 0, "fit --from-stats --family {family}: {stderr}");
+}
+
+/// `fit` on the demo's lending training file, as the demo fits it.
+fn fit_lending<'a>(train: &'a str, family: &'a str) -> Vec<&'a str> {
+    let id = "application_id,application_month";
+    vec!["fit", train, "--target", "outcome", "--family", family, "--id", id, "--missing", "impute"]
+}
+
 /// The demo scenarios, generated once per test.
 fn demo(dir: &Path) -> PathBuf {
     let out = dir.join("demo");
@@ -247,42 +152,60 @@ struct Case<'a> {
     key: &'a str,
 }
 
-fn run_case(pg: &Postgres, dir: &Path, case: &Case<'_>) -> (usize, f64) {
+/// What one case leaves for an engine: `score`'s outputs and the statement.
+struct Prepared {
+    name: String,
+    scores: PathBuf,
+    rejects: PathBuf,
+    sql: PathBuf,
+}
+
+/// Fits the case's model, scores its data and exports the statement, all
+/// under file names ending in `tag`.
+fn prepare(dir: &Path, case: &Case<'_>, tag: &str) -> Prepared {
     let name = format!("{} ({})", case.name, case.table);
-    let model = dir.join("case.json");
+    let file = |stem: &str, extension: &str| dir.join(format!("{stem}{tag}.{extension}"));
+    let (model, scores, rejects, sql) =
+        (file("case", "json"), file("scores", "csv"), file("rejects", "csv"), file("job", "sql"));
     let mut fit = case.fit.clone();
     fit.extend(["-o", model.to_str().expect("path")]);
     let (code, _, stderr) = run(dir, &fit);
     assert_eq!(code, 0, "{name}: fit: {stderr}");
-    let scores = dir.join("scores.csv");
-    let rejects = dir.join("rejects.csv");
     let mut score = vec!["score", model.to_str().expect("path"), case.data.to_str().expect("path")];
     score.extend(["-o", scores.to_str().expect("path"), "--rejects", rejects.to_str().expect("path"), "-q"]);
     score.extend(case.flags.iter().copied());
     let (code, _, stderr) = run(dir, &score);
     assert_eq!(code, 0, "{name}: score: {stderr}");
-    let sql = dir.join("job.sql");
     let mut export = vec!["export-sql", model.to_str().expect("path"), "--table", case.table];
     export.extend(["-o", sql.to_str().expect("path")]);
-    export.extend(case.flags.iter().copied().filter(|f| *f != "--rejects"));
+    export.extend(case.flags.iter().copied());
     let (code, _, stderr) = run(dir, &export);
     assert_eq!(code, 0, "{name}: export-sql: {stderr}");
-    let statement = std::fs::read_to_string(&sql).expect("sql");
-    let engine = pg.query_csv(&statement);
+    Prepared { name, scores, rejects, sql }
+}
+
+/// Checks an engine's result (CSV text) against the prepared case.
+fn check(prepared: &Prepared, engine: &str, key: &str) -> (usize, f64) {
     let result = assert_same(
-        &name,
-        &std::fs::read_to_string(&scores).expect("scores"),
-        Some(&std::fs::read_to_string(&rejects).expect("rejects")),
-        &engine,
-        case.key,
+        &prepared.name,
+        &std::fs::read_to_string(&prepared.scores).expect("scores"),
+        Some(&std::fs::read_to_string(&prepared.rejects).expect("rejects")),
+        engine,
+        key,
     );
-    eprintln!("{name}: {} rows, worst posterior difference {:.1e}", result.0, result.1);
+    eprintln!("{}: {} rows, worst posterior difference {:.1e}", prepared.name, result.0, result.1);
     result
+}
+
+fn run_case(pg: &Postgres, dir: &Path, case: &Case<'_>) -> (usize, f64) {
+    let prepared = prepare(dir, case, "");
+    let engine = pg.query_csv(&std::fs::read_to_string(&prepared.sql).expect("sql"));
+    check(&prepared, &engine, case.key)
 }
 
 #[test]
 fn exported_sql_reproduces_score_in_postgresql() {
-    let Some(pg) = Postgres::start() else { return };
+    let Some(pg) = postgres() else { return };
     let dir = temp_dir();
     let d = dir.path();
     let demo = demo(d);
@@ -310,20 +233,7 @@ fn exported_sql_reproduces_score_in_postgresql() {
     );
     let purpose_costs = purpose_costs.to_str().unwrap();
 
-    let lending_fit = |family: &'static str| {
-        vec![
-            "fit",
-            train,
-            "--target",
-            "outcome",
-            "--family",
-            family,
-            "--id",
-            "application_id,application_month",
-            "--missing",
-            "impute",
-        ]
-    };
+    let lending_fit = |family| fit_lending(train, family);
     // The tables, typed by a model's schema.
     let probe = d.join("probe.json");
     let mut fit = lending_fit("lda");
@@ -486,7 +396,7 @@ fn edited(source: &Path, target: &Path, change: impl Fn(usize, &str, &str) -> St
 
 #[test]
 fn missing_values_and_unseen_categories_follow_the_policy_of_score() {
-    let Some(pg) = Postgres::start() else { return };
+    let Some(pg) = postgres() else { return };
     let dir = temp_dir();
     let d = dir.path();
     let demo = demo(d);
@@ -526,20 +436,7 @@ fn missing_values_and_unseen_categories_follow_the_policy_of_score() {
     assert_eq!(run(d, &fit).0, 0);
     pg.load("damaged", &damaged, &numeric_columns(&model));
     let (train, damaged_path, costs) = (train.to_str().unwrap(), damaged.as_path(), costs.to_str().unwrap());
-    let fit = |family: &'static str| {
-        vec![
-            "fit",
-            train,
-            "--target",
-            "outcome",
-            "--family",
-            family,
-            "--id",
-            "application_id,application_month",
-            "--missing",
-            "impute",
-        ]
-    };
+    let fit = |family| fit_lending(train, family);
     let cases = [
         ("unseen set aside, missing imputed", "lda", vec!["--unseen", "reject", "--missing", "impute"]),
         ("unseen as missing", "naive-bayes", vec!["--unseen", "missing", "--missing", "impute"]),
@@ -563,7 +460,7 @@ fn missing_values_and_unseen_categories_follow_the_policy_of_score() {
 
 #[test]
 fn hostile_names_are_only_names() {
-    let Some(pg) = Postgres::start() else { return };
+    let Some(pg) = postgres() else { return };
     let dir = temp_dir();
     let d = dir.path();
     let demo = demo(d);
@@ -703,21 +600,7 @@ fn hostile_names_are_only_names() {
     let stats =
         write(d, "hostile_stats.csv", pg.query_csv(&std::fs::read_to_string(&stats_sql).expect("sql")).as_bytes());
     let from_stats = d.join("hostile_from_stats.json");
-    let (code, _, stderr) = run(
-        d,
-        &[
-            "fit",
-            stats.to_str().unwrap(),
-            "--from-stats",
-            "--family",
-            "lda",
-            "--missing",
-            "drop-rows",
-            "-o",
-            from_stats.to_str().unwrap(),
-        ],
-    );
-    assert_eq!(code, 0, "{stderr}");
+    fit_from_stats(d, &stats, "lda", &["--missing", "drop-rows"], &from_stats);
     assert_eq!(
         pg.psql("SELECT count(*) FROM keepme;").lines().filter(|l| l.trim() == "1").count(),
         1,
@@ -741,9 +624,23 @@ fn worst_difference(a: &Path, b: &Path, key: &str) -> f64 {
     worst
 }
 
+/// Scores `data` with two models (with `flags`) and returns the worst
+/// difference of their posteriors, row by row.
+fn score_difference(dir: &Path, a: &Path, b: &Path, data: &Path, flags: &[&str], key: &str) -> f64 {
+    let outputs = [dir.join("scores-a.csv"), dir.join("scores-b.csv")];
+    for (model, out) in [a, b].iter().zip(&outputs) {
+        let mut args = vec!["score", model.to_str().expect("path"), data.to_str().expect("path")];
+        args.extend(["-o", out.to_str().expect("path"), "-q"]);
+        args.extend(flags);
+        let (code, _, stderr) = run(dir, &args);
+        assert_eq!(code, 0, "score {}: {stderr}", model.display());
+    }
+    worst_difference(&outputs[0], &outputs[1], key)
+}
+
 #[test]
 fn fitting_from_postgresql_aggregates_equals_fitting_from_the_file() {
-    let Some(pg) = Postgres::start() else { return };
+    let Some(pg) = postgres() else { return };
     let dir = temp_dir();
     let d = dir.path();
     let demo = demo(d);
@@ -846,28 +743,9 @@ fn fitting_from_postgresql_aggregates_equals_fitting_from_the_file() {
         args.extend(options);
         let (code, _, stderr) = run(d, &args);
         assert_eq!(code, 0, "{name}: {stderr}");
-        let (a, b) = (d.join("a.csv"), d.join("b.csv"));
-        for (model, out) in [(&from_stats, &a), (&direct, &b)] {
-            let (code, _, stderr) = run(
-                d,
-                &[
-                    "score",
-                    model.to_str().unwrap(),
-                    portfolio.to_str().unwrap(),
-                    "-o",
-                    out.to_str().unwrap(),
-                    "-q",
-                    "--id",
-                    "application_id",
-                    "--missing",
-                    "drop-rows",
-                    "--rejects",
-                    d.join("r.csv").to_str().unwrap(),
-                ],
-            );
-            assert_eq!(code, 0, "{name}: {stderr}");
-        }
-        let worst = worst_difference(&a, &b, "application_id");
+        let rejects = d.join("r.csv");
+        let flags = ["--id", "application_id", "--missing", "drop-rows", "--rejects", rejects.to_str().unwrap()];
+        let worst = score_difference(d, &from_stats, &direct, &portfolio, &flags, "application_id");
         if dialect == "ansi" {
             let (_, shown, _) = run(d, &["inspect", from_stats.to_str().unwrap()]);
             assert!(shown.contains("no deciles either"), "{name}: {shown}");
@@ -944,50 +822,30 @@ fn the_ansi_dialect_runs_in_duckdb_too() {
     let payments_costs = demo.join("payments").join("costs.toml");
     let (train, portfolio, costs) = (train.to_str().unwrap(), portfolio.to_str().unwrap(), costs.to_str().unwrap());
     let (payments, payments_costs) = (payments.to_str().unwrap(), payments_costs.to_str().unwrap());
-    let lending_fit = |family: &'static str| {
-        vec![
-            "fit",
-            train,
-            "--target",
-            "outcome",
-            "--family",
-            family,
-            "--id",
-            "application_id,application_month",
-            "--missing",
-            "impute",
-        ]
-    };
+    let lending_fit = |family| fit_lending(train, family);
     let lending_flags = |more: &[&'static str]| with(vec!["--id", "application_id", "--costs", costs], more);
-    // (name, fit, flags, table, data, key)
-    #[allow(clippy::type_complexity)]
-    let cases: Vec<(&str, Vec<&str>, Vec<&str>, &str, &str, &str)> = vec![
-        ("lda, capacity", lending_fit("lda"), lending_flags(&[]), "new_portfolio", portfolio, "application_id"),
-        (
-            "qda, base rate",
-            lending_fit("qda"),
-            lending_flags(&["--base-rate", "0.03"]),
-            "new_portfolio",
-            portfolio,
-            "application_id",
-        ),
-        (
+    let lending_case = |name, fit, flags| Case {
+        name,
+        fit,
+        flags,
+        table: "new_portfolio",
+        data: Path::new(portfolio),
+        key: "application_id",
+    };
+    let cases = [
+        lending_case("lda, capacity", lending_fit("lda"), lending_flags(&[])),
+        lending_case("qda, base rate", lending_fit("qda"), lending_flags(&["--base-rate", "0.03"])),
+        lending_case(
             "naive-bayes + platt",
             with(lending_fit("naive-bayes"), &["--calibrate", "platt"]),
             lending_flags(&["--base-rate", "0.03"]),
-            "new_portfolio",
-            portfolio,
-            "application_id",
         ),
-        (
+        lending_case(
             "logistic + isotonic",
             with(lending_fit("logistic"), &["--calibrate", "isotonic"]),
             lending_flags(&[]),
-            "new_portfolio",
-            portfolio,
-            "application_id",
         ),
-        (
+        lending_case(
             "four classes",
             vec![
                 "fit",
@@ -1004,13 +862,10 @@ fn the_ansi_dialect_runs_in_duckdb_too() {
                 "impute",
             ],
             vec!["--id", "application_id", "--prior", "uniform"],
-            "new_portfolio",
-            portfolio,
-            "application_id",
         ),
-        (
-            "payments logistic",
-            vec![
+        Case {
+            name: "payments logistic",
+            fit: vec![
                 "fit",
                 payments,
                 "--target",
@@ -1020,54 +875,19 @@ fn the_ansi_dialect_runs_in_duckdb_too() {
                 "--id",
                 "transaction_id,transaction_day",
             ],
-            vec!["--id", "transaction_id", "--costs", payments_costs],
-            "transactions",
-            payments,
-            "transaction_id",
-        ),
+            flags: vec!["--id", "transaction_id", "--costs", payments_costs],
+            table: "transactions",
+            data: Path::new(payments),
+            key: "transaction_id",
+        },
     ];
     let mut arguments = vec![format!("table:new_portfolio={portfolio}"), format!("table:transactions={payments}")];
     let mut expected = Vec::new();
-    for (i, (name, fit, flags, table, data, key)) in cases.iter().enumerate() {
-        let model = d.join(format!("model{i}.json"));
-        let mut f = fit.clone();
-        f.extend(["-o", model.to_str().unwrap()]);
-        let (code, _, stderr) = run(d, &f);
-        assert_eq!(code, 0, "{name}: {stderr}");
-        let (scores, rejects, sql, result) = (
-            d.join(format!("s{i}.csv")),
-            d.join(format!("r{i}.csv")),
-            d.join(format!("q{i}.sql")),
-            d.join(format!("e{i}.csv")),
-        );
-        let mut score = vec![
-            "score",
-            model.to_str().unwrap(),
-            data,
-            "-o",
-            scores.to_str().unwrap(),
-            "-q",
-            "--rejects",
-            rejects.to_str().unwrap(),
-        ];
-        score.extend(flags.iter().copied());
-        let (code, _, stderr) = run(d, &score);
-        assert_eq!(code, 0, "{name}: {stderr}");
-        let mut export = vec![
-            "export-sql",
-            model.to_str().unwrap(),
-            "--table",
-            table,
-            "--dialect",
-            "ansi",
-            "-o",
-            sql.to_str().unwrap(),
-        ];
-        export.extend(flags.iter().copied());
-        let (code, _, stderr) = run(d, &export);
-        assert_eq!(code, 0, "{name}: {stderr}");
-        arguments.push(format!("query:{}={}", sql.display(), result.display()));
-        expected.push((name, scores, rejects, result, key));
+    for (i, case) in cases.iter().enumerate() {
+        let prepared = prepare(d, case, &format!("-duckdb{i}"));
+        let result = d.join(format!("engine{i}.csv"));
+        arguments.push(format!("query:{}={}", prepared.sql.display(), result.display()));
+        expected.push((prepared, result, case.key));
     }
     // Aggregates for LDA in DuckDB, fitted and compared with the direct fit.
     let stats_sql = d.join("stats.sql");
@@ -1091,32 +911,11 @@ fn the_ansi_dialect_runs_in_duckdb_too() {
     arguments.push(format!("table:train={train}"));
     arguments.push(format!("query:{}={}", stats_sql.display(), stats.display()));
     duckdb(&arguments);
-    for (name, scores, rejects, result, key) in expected {
-        let (rows, worst) = assert_same(
-            name,
-            &std::fs::read_to_string(&scores).expect("scores"),
-            Some(&std::fs::read_to_string(&rejects).expect("rejects")),
-            &std::fs::read_to_string(&result).expect("result"),
-            key,
-        );
-        eprintln!("duckdb {name}: {rows} rows, worst posterior difference {worst:.1e}");
+    for (prepared, result, key) in &expected {
+        check(prepared, &std::fs::read_to_string(result).expect("result"), key);
     }
     let (from_stats, direct) = (d.join("from_stats.json"), d.join("direct.json"));
-    let (code, _, stderr) = run(
-        d,
-        &[
-            "fit",
-            stats.to_str().unwrap(),
-            "--from-stats",
-            "--family",
-            "lda",
-            "--missing",
-            "drop-rows",
-            "-o",
-            from_stats.to_str().unwrap(),
-        ],
-    );
-    assert_eq!(code, 0, "{stderr}");
+    fit_from_stats(d, &stats, "lda", &["--missing", "drop-rows"], &from_stats);
     let args = [
         "fit",
         train,
@@ -1135,30 +934,20 @@ fn the_ansi_dialect_runs_in_duckdb_too() {
     ];
     let (code, _, stderr) = run(d, &args);
     assert_eq!(code, 0, "{stderr}");
-    let (a, b) = (d.join("a.csv"), d.join("b.csv"));
-    for (model, out) in [(&from_stats, &a), (&direct, &b)] {
-        let (code, _, stderr) = run(
-            d,
-            &[
-                "score",
-                model.to_str().unwrap(),
-                portfolio,
-                "-o",
-                out.to_str().unwrap(),
-                "-q",
-                "--id",
-                "application_id",
-                "--missing",
-                "drop-rows",
-                "--rejects",
-                d.join("r.csv").to_str().unwrap(),
-            ],
-        );
-        assert_eq!(code, 0, "{stderr}");
-    }
-    let worst = worst_difference(&a, &b, "application_id");
+    let rejects = d.join("r.csv");
+    let flags = ["--id", "application_id", "--missing", "drop-rows", "--rejects", rejects.to_str().unwrap()];
+    let worst = score_difference(d, &from_stats, &direct, Path::new(portfolio), &flags, "application_id");
     assert!(worst <= POSTERIOR_TOLERANCE, "duckdb aggregates: posteriors differ by {worst}");
     eprintln!("duckdb aggregates: worst posterior difference against the direct fit {worst:.1e}");
+}
+
+/// Runs a command that must fail with `code`, its message containing
+/// `needle`; returns the message.
+fn refused(dir: &Path, args: &[&str], code: i32, needle: &str) -> String {
+    let (got, _, stderr) = run(dir, args);
+    assert_eq!(got, code, "{args:?}: {stderr}");
+    assert!(stderr.contains(needle), "{args:?}: expected '{needle}' in: {stderr}");
+    stderr
 }
 
 /// Aggregates written by hand for six rows (class a: x = 1, 2, 3; class b:
@@ -1182,24 +971,7 @@ fn aggregates_written_by_hand_fit_as_the_rows_do_and_bad_ones_are_named() {
         let (code, _, stderr) =
             run(d, &["fit", rows.to_str().unwrap(), "--target", "y", "--family", family, "-o", b.to_str().unwrap()]);
         assert_eq!(code, 0, "{family}: {stderr}");
-        let (sa, sb) = (d.join("sa.csv"), d.join("sb.csv"));
-        for (m, out) in [(&a, &sa), (&b, &sb)] {
-            let (code, _, stderr) = run(
-                d,
-                &[
-                    "score",
-                    m.to_str().unwrap(),
-                    new.to_str().unwrap(),
-                    "-o",
-                    out.to_str().unwrap(),
-                    "-q",
-                    "--keep",
-                    "x",
-                ],
-            );
-            assert_eq!(code, 0, "{stderr}");
-        }
-        let worst = worst_difference(&sa, &sb, "x");
+        let worst = score_difference(d, &a, &b, &new, &["--keep", "x"], "x");
         assert!(worst <= 1e-12, "{family}: from hand-made aggregates the posteriors differ by {worst}");
     }
     // The pooled variance by hand: (2 + 8) / (6 − 2) = 2.5.
@@ -1212,92 +984,35 @@ fn aggregates_written_by_hand_fit_as_the_rows_do_and_bad_ones_are_named() {
     let variance = json["model"]["covariances"][0][0].as_f64().expect("variance");
     assert!(common::close(variance, 2.5, 1e-12), "pooled variance {variance}");
 
-    // A corrupt cell is named by line and column.
+    // A corrupt cell is named by line and column; nothing is written.
+    let out = d.join("c.json");
+    let out = out.to_str().unwrap();
     let corrupt = write(d, "corrupt.csv", HAND_STATS.replace(",15,83,", ",1x5,83,").as_bytes());
-    let (code, _, stderr) = run(
-        d,
-        &[
-            "fit",
-            corrupt.to_str().unwrap(),
-            "--from-stats",
-            "--family",
-            "lda",
-            "-o",
-            d.join("c.json").to_str().unwrap(),
-        ],
-    );
-    assert_eq!(code, 1, "{stderr}");
-    assert!(stderr.contains("line 3") && stderr.contains("'sum_1'") && stderr.contains("1x5"), "{stderr}");
-    assert!(!d.join("c.json").exists(), "no model file from a failed fit");
+    let stderr =
+        refused(d, &["fit", corrupt.to_str().unwrap(), "--from-stats", "--family", "lda", "-o", out], 1, "line 3");
+    assert!(stderr.contains("'sum_1'") && stderr.contains("1x5"), "{stderr}");
+    assert!(!Path::new(out).exists(), "no model file from a failed fit");
     // Not a statistics result at all.
-    let (code, _, stderr) = run(
-        d,
-        &["fit", rows.to_str().unwrap(), "--from-stats", "--family", "lda", "-o", d.join("c.json").to_str().unwrap()],
-    );
-    assert_eq!(code, 1);
-    assert!(stderr.contains("not the result of baserate stats-sql"), "{stderr}");
-    // Naive Bayes aggregates lack what LDA needs; Ledoit–Wolf needs the rows.
+    let not_stats = ["fit", rows.to_str().unwrap(), "--from-stats", "--family", "lda", "-o", out];
+    refused(d, &not_stats, 1, "not the result of baserate stats-sql");
+    // Naive Bayes aggregates lack what QDA needs; Ledoit–Wolf needs the rows.
     let diagonal = write(d, "nb.csv", HAND_STATS.replace(",lda,", ",naive-bayes,").as_bytes());
-    let (code, _, stderr) = run(
-        d,
-        &[
-            "fit",
-            diagonal.to_str().unwrap(),
-            "--from-stats",
-            "--family",
-            "qda",
-            "-o",
-            d.join("c.json").to_str().unwrap(),
-        ],
-    );
-    assert_eq!(code, 1);
-    assert!(stderr.contains("stats-sql --family qda"), "{stderr}");
-    let (code, _, stderr) = run(
-        d,
-        &[
-            "fit",
-            stats.to_str().unwrap(),
-            "--from-stats",
-            "--family",
-            "lda",
-            "--shrinkage",
-            "ledoit-wolf",
-            "-o",
-            d.join("c.json").to_str().unwrap(),
-        ],
-    );
-    assert_eq!(code, 1);
-    assert!(stderr.contains("Ledoit–Wolf shrinkage needs fourth moments"), "{stderr}");
+    let for_qda = ["fit", diagonal.to_str().unwrap(), "--from-stats", "--family", "qda", "-o", out];
+    refused(d, &for_qda, 1, "stats-sql --family qda");
+    let shrunk =
+        ["fit", stats.to_str().unwrap(), "--from-stats", "--family", "lda", "--shrinkage", "ledoit-wolf", "-o", out];
+    refused(d, &shrunk, 1, "Ledoit–Wolf shrinkage needs fourth moments");
     // Usage errors: logistic has no aggregates; a malformed table name.
-    let (code, _, stderr) = run(d, &["stats-sql", "--family", "logistic", "--table", "t", "--target", "y", "x"]);
-    assert_eq!(code, 2, "{stderr}");
-    let (code, _, stderr) = run(d, &["export-sql", model.to_str().unwrap(), "--table", "mart..t"]);
-    assert_eq!(code, 2, "{stderr}");
+    refused(d, &["stats-sql", "--family", "logistic", "--table", "t", "--target", "y", "x"], 2, "logistic");
+    refused(d, &["export-sql", model.to_str().unwrap(), "--table", "mart..t"], 2, "--table");
     // A class name PostgreSQL would cut to 63 bytes is refused in that dialect.
     let long = "c".repeat(70);
     let long_rows = write(d, "long.csv", format!("x,y\n1,a\n2,a\n3,a\n4,{long}\n6,{long}\n8,{long}\n").as_bytes());
     let long_model = d.join("long.json");
-    assert_eq!(
-        run(
-            d,
-            &[
-                "fit",
-                long_rows.to_str().unwrap(),
-                "--target",
-                "y",
-                "--family",
-                "lda",
-                "-o",
-                long_model.to_str().unwrap()
-            ]
-        )
-        .0,
-        0
-    );
-    let (code, _, stderr) =
-        run(d, &["export-sql", long_model.to_str().unwrap(), "--table", "t", "--dialect", "postgres"]);
-    assert_eq!(code, 2, "{stderr}");
-    assert!(stderr.contains("63"), "{stderr}");
+    let fit =
+        ["fit", long_rows.to_str().unwrap(), "--target", "y", "--family", "lda", "-o", long_model.to_str().unwrap()];
+    assert_eq!(run(d, &fit).0, 0);
+    refused(d, &["export-sql", long_model.to_str().unwrap(), "--table", "t", "--dialect", "postgres"], 2, "63");
     let (code, sql, _) = run(d, &["export-sql", long_model.to_str().unwrap(), "--table", "t"]);
     assert_eq!(code, 0);
     assert!(sql.contains("decision support, not a decision"), "the statement carries the caution");

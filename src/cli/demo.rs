@@ -191,7 +191,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let model_path = args.out.join("lending/lda.json");
     let shift_path = args.out.join("lending/shift.json");
     let new_portfolio = args.out.join("lending/new_portfolio.csv");
-    let commands: [Vec<String>; 3] = [
+    let commands: [Vec<String>; 4] = [
         vec![
             "fit".into(),
             lending_training.display().to_string(),
@@ -236,6 +236,21 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             "-o".into(),
             args.out.join("lending/new_portfolio_scores.csv").display().to_string(),
         ],
+        // The same job, with the decisions, as SQL for the database.
+        vec![
+            "export-sql".into(),
+            model_path.display().to_string(),
+            "--table".into(),
+            "new_portfolio".into(),
+            "--id".into(),
+            "application_id".into(),
+            "--prior-from".into(),
+            shift_path.display().to_string(),
+            "--costs".into(),
+            args.out.join("lending/costs.toml").display().to_string(),
+            "-o".into(),
+            args.out.join("lending/new_portfolio_scoring.sql").display().to_string(),
+        ],
     ];
     // A stale estimate from an earlier run must not be shown.
     let _ = std::fs::remove_file(&shift_path);
@@ -246,6 +261,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             crate::cli::Command::Fit(a) => crate::cli::fit::run_quietly(a),
             crate::cli::Command::Shift(a) => crate::cli::shift::run_quietly(a),
             crate::cli::Command::Score(a) => crate::cli::score::run(a),
+            crate::cli::Command::ExportSql(a) => crate::cli::export_sql::run(a),
             _ => Ok(ExitCode::SUCCESS),
         };
         if let Err(Failure::Library(e)) = outcome {

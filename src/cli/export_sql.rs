@@ -7,7 +7,7 @@ use std::process::ExitCode;
 
 use crate::batch::UnseenPolicy;
 use crate::cli::output::write_atomic;
-use crate::cli::score::{read_costs, resolve_prior};
+use crate::cli::score::{read_costs, PriorArgs};
 use crate::cli::Failure;
 use crate::data::options::MissingPolicy;
 use crate::export::scoring::{scoring_sql, ScoringRequest};
@@ -22,15 +22,9 @@ pub struct Args {
     /// The table or view to score: NAME or SCHEMA.NAME (each part quoted as written).
     #[arg(long, value_name = "NAME")]
     pub table: String,
-    /// The prior to score with: empirical, uniform, or CLASS=P,... [default: the model's].
-    #[arg(long, value_name = "SPEC")]
-    pub prior: Option<String>,
-    /// Binary shorthand for --prior POSITIVE=P,OTHER=1-P.
-    #[arg(long, value_name = "P")]
-    pub base_rate: Option<f64>,
-    /// The prior estimated by `shift`: SHIFT.json (the EM estimate) or SHIFT.json:bbse.
-    #[arg(long, value_name = "SHIFT.json[:METHOD]")]
-    pub prior_from: Option<String>,
+    /// The prior to score with.
+    #[command(flatten)]
+    pub priors: PriorArgs,
     /// A loss specification (TOML): adds the columns `action` and `expected_cost`.
     #[arg(long, value_name = "FILE")]
     pub costs: Option<PathBuf>,
@@ -68,7 +62,7 @@ pub fn parse_missing(text: Option<&str>) -> crate::Result<Option<MissingPolicy>>
 /// Runs `export-sql`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let file = ModelFile::load(&args.model)?;
-    let prior = resolve_prior(&file, args.prior.as_deref(), args.base_rate, args.prior_from.as_deref())?;
+    let prior = args.priors.resolve(&file)?;
     let costs = args.costs.as_deref().map(|path| read_costs(path, &file)).transpose()?;
     let request = ScoringRequest {
         table: args.table.clone(),

@@ -412,21 +412,15 @@ fn fit_from_stats(args: &Args, params: FamilyParams, spec: Option<PriorSpec>, ta
     file.save(&args.out)?;
     if talk {
         let target = &file.schema.target;
-        let mix: Vec<String> = target
-            .classes
-            .iter()
-            .zip(&target.counts)
-            .zip(&target.class_mix())
-            .map(|((c, n), s)| format!("{c} {} ({})", count(*n), percent(*s)))
-            .collect();
+        let mix = class_mix_text(target);
         println!(
             "fitted {} from the aggregates in {} ({} rows): {}",
             file.family.name(),
             args.data.display(),
             count(file.training.rows),
-            mix.join(", ")
+            mix
         );
-        println!("positive class: {}", target.positive);
+        println!("positive class: {}", file.schema.target.positive);
         for w in &file.diagnostics.warnings {
             eprintln!("note: {}", wrap(w, 100, 6));
         }
@@ -434,6 +428,18 @@ fn fit_from_stats(args: &Args, params: FamilyParams, spec: Option<PriorSpec>, ta
         println!("\n{}", wrap(CAUTION, 100, 0));
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// "CLASS COUNT (SHARE), ..." for the training classes.
+fn class_mix_text(target: &crate::data::schema::TargetSchema) -> String {
+    let parts: Vec<String> = target
+        .classes
+        .iter()
+        .zip(&target.counts)
+        .zip(&target.class_mix())
+        .map(|((c, n), s)| format!("{c} {} ({})", count(*n), percent(*s)))
+        .collect();
+    parts.join(", ")
 }
 
 /// Runs `fit`.
@@ -547,20 +553,8 @@ fn execute(args: Args, talk: bool) -> Result<ExitCode, Failure> {
     if !talk {
         return Ok(ExitCode::SUCCESS);
     }
-    let mix: Vec<String> = target
-        .classes
-        .iter()
-        .zip(&target.counts)
-        .zip(&target.class_mix())
-        .map(|((c, n), s)| format!("{c} {} ({})", count(*n), percent(*s)))
-        .collect();
-    println!(
-        "fitted {} on {} rows of {}: {}",
-        family.name(),
-        count(dataset.rows()),
-        args.data.display(),
-        mix.join(", ")
-    );
+    let mix = class_mix_text(target);
+    println!("fitted {} on {} rows of {}: {}", family.name(), count(dataset.rows()), args.data.display(), mix);
     println!(
         "positive class: {}; {} iteration{}, {}, log-likelihood {}",
         target.positive,

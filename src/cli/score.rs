@@ -25,15 +25,9 @@ pub struct Args {
     /// Where to write the scores (`-` for stdout).
     #[arg(long, short = 'o', value_name = "OUT")]
     pub out: PathBuf,
-    /// The prior to score with: empirical, uniform, or CLASS=P,... [default: the model's].
-    #[arg(long, value_name = "SPEC")]
-    pub prior: Option<String>,
-    /// Binary shorthand for --prior POSITIVE=P,OTHER=1-P.
-    #[arg(long, value_name = "P")]
-    pub base_rate: Option<f64>,
-    /// The prior estimated by `shift`: SHIFT.json (the EM estimate) or SHIFT.json:bbse.
-    #[arg(long, value_name = "SHIFT.json[:METHOD]")]
-    pub prior_from: Option<String>,
+    /// The prior to score with.
+    #[command(flatten)]
+    pub priors: PriorArgs,
     /// A loss specification (TOML): adds the columns `action` and `expected_cost`.
     #[arg(long, value_name = "FILE")]
     pub costs: Option<PathBuf>,
@@ -78,9 +72,29 @@ pub struct Args {
     pub quiet: bool,
 }
 
-/// The prior a run scores with: `--prior`/`--base-rate`, a `shift` result
-/// (`--prior-from`), or the model's own.
-pub fn resolve_prior(
+/// The prior flags of the commands that apply a model (`score`, `export-sql`).
+#[derive(Debug, Clone, clap::Args)]
+pub struct PriorArgs {
+    /// The prior to score with: empirical, uniform, or CLASS=P,... [default: the model's].
+    #[arg(long, value_name = "SPEC")]
+    pub prior: Option<String>,
+    /// Binary shorthand for --prior POSITIVE=P,OTHER=1-P.
+    #[arg(long, value_name = "P")]
+    pub base_rate: Option<f64>,
+    /// The prior estimated by `shift`: SHIFT.json (the EM estimate) or SHIFT.json:bbse.
+    #[arg(long, value_name = "SHIFT.json[:METHOD]")]
+    pub prior_from: Option<String>,
+}
+
+impl PriorArgs {
+    /// The prior a run scores with: `--prior`/`--base-rate`, a `shift`
+    /// result (`--prior-from`), or the model's own.
+    pub fn resolve(&self, file: &ModelFile) -> crate::Result<Vec<f64>> {
+        resolve_prior(file, self.prior.as_deref(), self.base_rate, self.prior_from.as_deref())
+    }
+}
+
+fn resolve_prior(
     file: &ModelFile,
     prior: Option<&str>,
     base_rate: Option<f64>,
@@ -115,7 +129,7 @@ pub fn read_costs(path: &std::path::Path, file: &ModelFile) -> crate::Result<cra
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let file = ModelFile::load(&args.model)?;
     let positive = file.classes.iter().position(|c| *c == file.positive).unwrap_or(0);
-    let prior = resolve_prior(&file, args.prior.as_deref(), args.base_rate, args.prior_from.as_deref())?;
+    let prior = args.priors.resolve(&file)?;
     let costs = args.costs.as_deref().map(|path| read_costs(path, &file)).transpose()?;
     if let Some(rate) = args.max_reject_rate {
         if !(0.0..=1.0).contains(&rate) {
