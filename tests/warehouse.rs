@@ -751,6 +751,37 @@ fn fitting_from_postgresql_aggregates_equals_fitting_from_the_file() {
             assert!(shown.contains("no deciles either"), "{name}: {shown}");
         }
         assert!(worst <= POSTERIOR_TOLERANCE, "{name}: posteriors differ by {worst}");
+        // The drift reference from counted decile bins is the one `fit`
+        // builds from the rows (inputs only: no training scores).
+        let drift = |m: &Path| -> serde_json::Value {
+            serde_json::from_str::<serde_json::Value>(&std::fs::read_to_string(m).expect("model")).expect("json")
+                ["drift_reference"]
+                .clone()
+        };
+        let (ours, theirs) = (drift(&from_stats), drift(&direct));
+        if dialect == "postgres" {
+            assert!(ours["score"].is_null(), "{name}: no score bins from aggregates");
+            let features = ours["features"].as_array().expect("features");
+            assert_eq!(features.len(), inputs.len() + 3, "{name}");
+            for f in features {
+                let other = theirs["features"]
+                    .as_array()
+                    .expect("features")
+                    .iter()
+                    .find(|g| g["feature"] == f["feature"])
+                    .expect("the same feature");
+                for key in ["edges", "shares"] {
+                    let (x, y) = (f[key].as_array().expect(key), other[key].as_array().expect(key));
+                    assert_eq!(x.len(), y.len(), "{name}: {} {key}: {x:?} vs {y:?}", f["feature"]);
+                    for (u, v) in x.iter().zip(y) {
+                        let (u, v) = (u.as_f64().expect("number"), v.as_f64().expect("number"));
+                        assert!(common::close(u, v, 1e-12), "{name}: {} {key}: {x:?} vs {y:?}", f["feature"]);
+                    }
+                }
+            }
+        } else {
+            assert!(ours.is_null(), "{name}: a drift reference without deciles");
+        }
         // Deciles by percentile_cont are the library's type-7 deciles.
         let schema = |m: &Path| -> serde_json::Value {
             serde_json::from_str::<serde_json::Value>(&std::fs::read_to_string(m).expect("model")).expect("json")

@@ -143,7 +143,7 @@ impl ChunkStats {
         let (feature_bins, score_bins) = match &context.drift {
             Some((reference, _)) => (
                 reference.features.iter().map(|f| vec![0; f.shares.len()]).collect(),
-                vec![0; reference.score.shares.len()],
+                vec![0; reference.score.as_ref().map_or(0, |s| s.shares.len())],
             ),
             None => (Vec::new(), Vec::new()),
         };
@@ -520,15 +520,17 @@ pub fn process(context: &Context<'_>, chunk: &RawChunk, pass: Pass<'_>) -> Chunk
             }
         }
         // The score at the model's own prior, as the training deciles were.
-        let own: Vec<f64> = if context.prior == context.file.prior.as_slice() {
-            (0..n).map(|r| posteriors[(r, context.positive)]).collect()
-        } else {
-            let lp = context.file.log_posteriors(&inputs, &context.file.prior);
-            (0..n).map(|r| lp[(r, context.positive)].exp()).collect()
-        };
-        for s in own {
-            if let Some(b) = stats.score_bins.get_mut(value_bin(&reference.score.edges, s)) {
-                *b += 1;
+        if let Some(score) = &reference.score {
+            let own: Vec<f64> = if context.prior == context.file.prior.as_slice() {
+                (0..n).map(|r| posteriors[(r, context.positive)]).collect()
+            } else {
+                let lp = context.file.log_posteriors(&inputs, &context.file.prior);
+                (0..n).map(|r| lp[(r, context.positive)].exp()).collect()
+            };
+            for s in own {
+                if let Some(b) = stats.score_bins.get_mut(value_bin(&score.edges, s)) {
+                    *b += 1;
+                }
             }
         }
     }

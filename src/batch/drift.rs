@@ -55,8 +55,10 @@ pub struct ScoreBins {
 pub struct DriftReference {
     /// One entry per feature, in the schema's order.
     pub features: Vec<FeatureBins>,
-    /// The score.
-    pub score: ScoreBins,
+    /// The score; absent for a model fitted from aggregates, which never
+    /// saw the training rows' scores.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub score: Option<ScoreBins>,
 }
 
 /// The bin of a value among `edges` (sorted): the count of edges below
@@ -141,7 +143,10 @@ pub fn reference(dataset: &Dataset, score_class: &str, score: &[f64]) -> DriftRe
     for &s in score {
         counts[value_bin(&edges, s)] += 1;
     }
-    DriftReference { features, score: ScoreBins { class: score_class.to_string(), edges, shares: shares(&counts) } }
+    DriftReference {
+        features,
+        score: Some(ScoreBins { class: score_class.to_string(), edges, shares: shares(&counts) }),
+    }
 }
 
 /// The population stability index of new bin counts against training

@@ -149,8 +149,11 @@ pub struct Stability {
 /// Drift of the scored rows from the training rows.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Drift {
-    /// The score (the positive class's posterior at the model's prior).
-    pub score: Stability,
+    /// The score (the positive class's posterior at the model's prior);
+    /// absent when the model has no training score distribution (fitted
+    /// from aggregates).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub score: Option<Stability>,
     /// Each feature, in the schema's order.
     pub features: Vec<Stability>,
 }
@@ -569,7 +572,10 @@ fn summarise(
     let feature_names: Vec<&String> =
         plan.numeric.iter().map(|f| &f.name).chain(plan.categorical.iter().map(|f| &f.name)).collect();
     let drift = context.drift.as_ref().and_then(|(reference, _)| {
-        let score = drift::psi(&reference.score.shares, &stats.score_bins)?;
+        let score = match &reference.score {
+            Some(bins) => Some(drift::psi(&bins.shares, &stats.score_bins)?),
+            None => None,
+        };
         let features = reference
             .features
             .iter()
@@ -582,7 +588,8 @@ fn summarise(
                 })
             })
             .collect();
-        Some(Drift { score: Stability { feature: None, psi: score, band: drift::band(score).into() }, features })
+        let score = score.map(|psi| Stability { feature: None, psi, band: drift::band(psi).into() });
+        Some(Drift { score, features })
     });
     Summary {
         input: shown_path(&job.data),

@@ -272,7 +272,11 @@ fn print_summary(file: &ModelFile, args: &Args, job: &ScoreJob, summary: &Summar
                 .collect::<Vec<_>>()
                 .join(", ")
         };
-        eprintln!("drift (PSI vs training): score {:.3} {}; {features}", drift.score.psi, drift.score.band);
+        let score = match &drift.score {
+            Some(s) => format!("score {:.3} {}", s.psi, s.band),
+            None => "score not available (no training score distribution in the model)".into(),
+        };
+        eprintln!("drift (PSI vs training): {score}; {features}");
     }
     if let (Some(spec), Some(actions), Some(total)) = (&job.costs, &summary.actions, summary.total_expected_cost) {
         let counts: Vec<String> =

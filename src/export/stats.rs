@@ -253,10 +253,35 @@ pub fn stats_sql(request: &StatsRequest) -> Result<String> {
                 "\"__br_deciles\" AS (\n  SELECT\n    {}\n  FROM \"__br_rows\"\n  WHERE \"__br_ok\" = 1\n),\n",
                 deciles.join(",\n    ")
             ));
+            // Each row's decile bin (the count of deciles below its value, as
+            // the drift check bins new rows), counted per bin: the training
+            // shares of the drift reference.
+            let binned: Vec<String> = (1..=p)
+                .map(|j| {
+                    let above: Vec<String> = (1..10)
+                        .map(|i| {
+                            format!(
+                                "CASE WHEN \"__br_v{j}\" > (\"__br_deciles\".\"deciles_{j}\")[{i}] THEN 1 ELSE 0 END"
+                            )
+                        })
+                        .collect();
+                    format!("{} AS \"__br_b{j}\"", above.join(" + "))
+                })
+                .collect();
+            let counts: Vec<String> = (1..=p)
+                .map(|j| {
+                    let bins: Vec<String> =
+                        (0..10).map(|b| format!("SUM(CASE WHEN \"__br_b{j}\" = {b} THEN 1 ELSE 0 END)")).collect();
+                    format!("ARRAY[{}] AS \"bins_{j}\"", bins.join(", "))
+                })
+                .collect();
+            text.push_str(&format!(
+                "\"__br_binned\" AS (\n  SELECT\n    {}\n  FROM \"__br_rows\" CROSS JOIN \"__br_deciles\"\n  WHERE \"__br_ok\" = 1\n  OFFSET 0 ROWS\n),\n\"__br_bins\" AS (\n  SELECT\n    {}\n  FROM \"__br_binned\"\n),\n",
+                binned.join(",\n    "),
+                counts.join(",\n    ")
+            ));
             text.push_str(&format!("\"__br_sums\" AS (\n  {aggregate}\n)\n"));
-            text.push_str(
-                "SELECT \"__br_sums\".*, \"__br_deciles\".*\nFROM \"__br_sums\" CROSS JOIN \"__br_deciles\";\n",
-            );
+            text.push_str("SELECT \"__br_sums\".*, \"__br_deciles\".*, \"__br_bins\".*\nFROM \"__br_sums\" CROSS JOIN \"__br_deciles\" CROSS JOIN \"__br_bins\";\n");
         }
         _ => {
             text.push_str(&format!("\"__br_sums\" AS (\n  {aggregate}\n)\nSELECT * FROM \"__br_sums\";\n"));
@@ -310,6 +335,8 @@ pub struct Aggregates {
     /// (class, a, level of a, b, level of b) → weight.
     pairs: BTreeMap<(String, usize, String, usize, String), f64>,
     deciles: Option<Vec<Vec<f64>>>,
+    /// Per numeric input, the complete rows in each of the ten decile bins.
+    bins: Option<Vec<Vec<f64>>>,
 }
 
 /// Reads a statistics result (CSV with a header, as the engine wrote it).
@@ -365,6 +392,7 @@ pub fn read_stats(path: &Path) -> Result<Aggregates> {
         levels: BTreeMap::new(),
         pairs: BTreeMap::new(),
         deciles: None,
+        bins: None,
     };
     let mut first = true;
     for record in reader.records() {
@@ -410,15 +438,7 @@ pub fn read_stats(path: &Path) -> Result<Aggregates> {
                 for j in 1..=p {
                     let name = format!("deciles_{j}");
                     let raw = text(&name);
-                    let values: Option<Vec<f64>> = raw
-                        .trim()
-                        .strip_prefix('{')
-                        .and_then(|r| r.strip_suffix('}'))
-                        .map(|inner| {
-                            inner.split(',').map(|v| v.trim().parse::<f64>().ok()).collect::<Option<Vec<f64>>>()
-                        })
-                        .unwrap_or(None)
-                        .filter(|v| v.len() == 9 && v.iter().all(|x| x.is_finite()));
+                    let values = braced_numbers(&raw).filter(|v| v.len() == 9 && v.iter().all(|x| x.is_finite()));
                     let Some(values) = values else {
                         return Err(Error::Malformed {
                             at: at(&record),
@@ -429,6 +449,23 @@ pub fn read_stats(path: &Path) -> Result<Aggregates> {
                     all.push(values);
                 }
                 aggregates.deciles = Some(all);
+            }
+            if column("bins_1").is_some() {
+                let mut all = Vec::new();
+                for j in 1..=p {
+                    let name = format!("bins_{j}");
+                    let raw = text(&name);
+                    let values = braced_numbers(&raw).filter(|v| v.len() == 10 && v.iter().all(|x| *x >= 0.0));
+                    let Some(values) = values else {
+                        return Err(Error::Malformed {
+                            at: at(&record),
+                            column: name,
+                            message: format!("'{raw}' is not a list of ten counts in braces"),
+                        });
+                    };
+                    all.push(values);
+                }
+                aggregates.bins = Some(all);
             }
             first = false;
         }
@@ -493,6 +530,49 @@ pub fn read_stats(path: &Path) -> Result<Aggregates> {
         return Err(bad("the result has no rows: the table has no row with every input and the label".into()));
     }
     Ok(aggregates)
+}
+
+/// `{1,2.5,3}` (an SQL array as PostgreSQL writes it) as numbers.
+fn braced_numbers(raw: &str) -> Option<Vec<f64>> {
+    let inner = raw.trim().strip_prefix('{')?.strip_suffix('}')?;
+    inner.split(',').map(|v| v.trim().parse::<f64>().ok()).collect()
+}
+
+/// The drift reference of a model fitted from aggregates: numeric inputs
+/// binned at their deciles (repeats merged, as `fit` bins them) with the
+/// counted training shares, categorical inputs by level; no score bins.
+fn drift_reference(
+    aggregates: &Aggregates,
+    levels: &[Vec<String>],
+    level_rows: &dyn Fn(usize, &str) -> f64,
+    total: f64,
+) -> Option<crate::batch::drift::DriftReference> {
+    use crate::batch::drift::{DriftReference, FeatureBins};
+    let (deciles, bins) = (aggregates.deciles.as_ref()?, aggregates.bins.as_ref()?);
+    let mut features = Vec::new();
+    for (j, name) in aggregates.numeric.iter().enumerate() {
+        // Raw bin r (r deciles below the value) is merged bin "distinct
+        // deciles among the first r".
+        let mut edges: Vec<f64> = Vec::new();
+        let mut counts = vec![0.0];
+        for (r, &count) in bins[j].iter().enumerate() {
+            if r > 0 && edges.last() != Some(&deciles[j][r - 1]) {
+                edges.push(deciles[j][r - 1]);
+                counts.push(0.0);
+            }
+            if let Some(last) = counts.last_mut() {
+                *last += count;
+            }
+        }
+        counts.push(0.0); // the missing-value bin: no complete row is in it
+        features.push(FeatureBins { feature: name.clone(), edges, shares: counts.iter().map(|c| c / total).collect() });
+    }
+    for (g, name) in aggregates.categorical.iter().enumerate() {
+        let mut shares: Vec<f64> = levels[g].iter().map(|l| level_rows(g, l) / total).collect();
+        shares.push(0.0);
+        features.push(FeatureBins { feature: name.clone(), edges: Vec::new(), shares });
+    }
+    Some(DriftReference { features, score: None })
 }
 
 /// How to fit from aggregates.
@@ -741,12 +821,15 @@ pub fn model_from_stats(aggregates: &Aggregates, request: &FromStats, input_sha2
         }
         FamilyParams::Logistic(_) => return Err(Error::Usage("--from-stats fits lda, qda or naive-bayes".into())),
     };
+    let level_rows = |g: usize, level: &str| classes.iter().map(|c| level_sums(c, g, level).rows).sum::<f64>();
+    let drift = drift_reference(aggregates, &levels, &level_rows, total_rows);
     diagnostics.warnings.push(format!(
-        "fitted from aggregates ({path}): no out-of-fold predictions (so no BBSE shift estimate and no calibration) and no drift reference{}",
-        if aggregates.deciles.is_none() && p > 0 {
-            "; no deciles either, so median imputation is unavailable"
-        } else {
-            ""
+        "fitted from aggregates ({path}): no out-of-fold predictions (so no BBSE shift estimate and no calibration){}",
+        match (&drift, p > 0) {
+            (Some(_), _) =>
+                "; drift is checked for the inputs, not for the score (the training scores were never seen)",
+            (None, true) => "; no deciles either, so median imputation and drift figures are unavailable",
+            (None, false) => "; no drift reference",
         }
     ));
     let total_weight: f64 = weighted_counts.iter().sum();
@@ -777,7 +860,7 @@ pub fn model_from_stats(aggregates: &Aggregates, request: &FromStats, input_sha2
         held_out: None,
         calibration: None,
         sampling_rates: None,
-        drift_reference: None,
+        drift_reference: drift,
     };
     file.validate().map_err(|m| Error::FitFailed { family: family.name().into(), message: m })?;
     Ok(file)
