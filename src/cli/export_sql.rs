@@ -7,9 +7,8 @@ use std::process::ExitCode;
 
 use crate::batch::UnseenPolicy;
 use crate::cli::output::write_atomic;
-use crate::cli::score::{read_costs, PriorArgs};
+use crate::cli::score::{parse_missing, read_costs, PriorArgs};
 use crate::cli::Failure;
-use crate::data::options::MissingPolicy;
 use crate::export::scoring::{scoring_sql, ScoringRequest};
 use crate::export::Dialect;
 use crate::model::file::ModelFile;
@@ -46,17 +45,6 @@ pub struct Args {
     /// Where to write the SQL (`-` for stdout).
     #[arg(long, short = 'o', value_name = "FILE", default_value = "-")]
     pub out: PathBuf,
-}
-
-/// Parses a `--missing` value.
-pub fn parse_missing(text: Option<&str>) -> crate::Result<Option<MissingPolicy>> {
-    match text {
-        None => Ok(None),
-        Some("error") => Ok(Some(MissingPolicy::Error)),
-        Some("impute") => Ok(Some(MissingPolicy::Impute)),
-        Some("drop-rows") => Ok(Some(MissingPolicy::DropRows)),
-        Some(other) => Err(crate::Error::Usage(format!("--missing takes error, impute or drop-rows; got '{other}'"))),
-    }
 }
 
 /// Runs `export-sql`.

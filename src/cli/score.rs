@@ -109,6 +109,17 @@ fn resolve_prior(
     }
 }
 
+/// Parses a `--missing` value of the commands that apply a model.
+pub fn parse_missing(text: Option<&str>) -> crate::Result<Option<MissingPolicy>> {
+    match text {
+        None => Ok(None),
+        Some("error") => Ok(Some(MissingPolicy::Error)),
+        Some("impute") => Ok(Some(MissingPolicy::Impute)),
+        Some("drop-rows") => Ok(Some(MissingPolicy::DropRows)),
+        Some(other) => Err(crate::Error::Usage(format!("--missing takes error, impute or drop-rows; got '{other}'"))),
+    }
+}
+
 /// Reads a costs file for a model: its classes, and no categorical input
 /// read as an amount.
 pub fn read_costs(path: &std::path::Path, file: &ModelFile) -> crate::Result<crate::decide::CostSpec> {
@@ -136,15 +147,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             return Err(crate::Error::Usage(format!("--max-reject-rate must be between 0 and 1; got {rate}")).into());
         }
     }
-    let missing = match args.missing.as_deref() {
-        None => None,
-        Some("error") => Some(MissingPolicy::Error),
-        Some("impute") => Some(MissingPolicy::Impute),
-        Some("drop-rows") => Some(MissingPolicy::DropRows),
-        Some(other) => {
-            return Err(crate::Error::Usage(format!("--missing takes error, impute or drop-rows; got '{other}'")).into())
-        }
-    };
+    let missing = parse_missing(args.missing.as_deref())?;
     if args.reasons == Some(0) {
         return Err(crate::Error::Usage("--reasons K needs K of at least 1".into()).into());
     }

@@ -321,6 +321,21 @@ fn build_target(
         counts[c as usize] += 1;
         weighted_counts[c as usize] += weights.map_or(1.0, |w| w[i]);
     }
+    settle_target(path, column, classes, counts, weighted_counts, options.positive.as_deref())
+}
+
+/// The target's schema from its per-class row counts and weights: at least
+/// two classes with rows, and the positive class as stated or the minority
+/// one (ties to the later class in byte order). Shared by every way of
+/// fitting: from a file, or from an engine's aggregates.
+pub fn settle_target(
+    path: &str,
+    column: &str,
+    classes: &[String],
+    counts: Vec<usize>,
+    weighted_counts: Vec<f64>,
+    positive: Option<&str>,
+) -> Result<TargetSchema> {
     // A class whose rows were all dropped is not a class of the training data.
     let present: Vec<usize> = (0..classes.len()).filter(|&k| counts[k] > 0).collect();
     if present.len() < 2 {
@@ -330,17 +345,17 @@ fn build_target(
             classes: present.iter().map(|&k| classes[k].clone()).collect(),
         });
     }
-    let (positive, positive_rule) = match &options.positive {
+    let (positive, positive_rule) = match positive {
         Some(p) => {
-            if !classes.contains(p) {
+            if !classes.iter().any(|c| c == p) {
                 return Err(Error::UnknownClass {
                     path: path.to_string(),
                     column: column.to_string(),
-                    class: p.clone(),
+                    class: p.to_string(),
                     classes: classes.to_vec(),
                 });
             }
-            (p.clone(), PositiveRule::Stated)
+            (p.to_string(), PositiveRule::Stated)
         }
         None => {
             // Among the classes with rows (a class whose rows were all

@@ -32,6 +32,7 @@
 //! posteriors and a `reject_reason` (SQL has no portable way to stop a
 //! query with a message), so no row is dropped silently.
 
+use crate::batch::chunk::RejectReason;
 use crate::batch::plan::{Fill, Plan, PlanRequest};
 use crate::batch::UnseenPolicy;
 use crate::data::options::MissingPolicy;
@@ -271,7 +272,11 @@ fn input_stage(stages: &mut Stages, plan: &Plan, request: &ScoringRequest, cost_
     let mut columns = Vec::new();
     for (j, feature) in plan.numeric.iter().enumerate() {
         let raw = col(&format!("__br_r{j}"));
-        reasons.push(format!("WHEN {} THEN {}", not_finite(&raw), reason("not-finite", &feature.name)?));
+        reasons.push(format!(
+            "WHEN {} THEN {}",
+            not_finite(&raw),
+            reason(RejectReason::NotFinite.name(), &feature.name)?
+        ));
         match feature.fill {
             Fill::Value(v) => {
                 columns.push(alias(format!("COALESCE({raw}, {})", number(v)), &format!("__br_x{j}")));
@@ -283,7 +288,10 @@ fn input_stage(stages: &mut Stages, plan: &Plan, request: &ScoringRequest, cost_
                 }
             }
             Fill::Unfillable => {
-                reasons.push(format!("WHEN {raw} IS NULL THEN {}", reason("missing-value", &feature.name)?));
+                reasons.push(format!(
+                    "WHEN {raw} IS NULL THEN {}",
+                    reason(RejectReason::MissingValue.name(), &feature.name)?
+                ));
                 columns.push(alias(&raw, &format!("__br_x{j}")));
             }
         }
@@ -291,14 +299,18 @@ fn input_stage(stages: &mut Stages, plan: &Plan, request: &ScoringRequest, cost_
     for (c, feature) in plan.categorical.iter().enumerate() {
         let code = col(&format!("__br_c{c}"));
         if request.unseen != UnseenPolicy::Missing {
-            reasons.push(format!("WHEN {code} = -2 THEN {}", reason("unseen-category", &feature.name)?));
+            reasons
+                .push(format!("WHEN {code} = -2 THEN {}", reason(RejectReason::UnseenCategory.name(), &feature.name)?));
         }
         match feature.missing_code {
             Some(m) => {
                 columns.push(alias(format!("CASE WHEN {code} < 0 THEN {m} ELSE {code} END"), &format!("__br_g{c}")))
             }
             None => {
-                reasons.push(format!("WHEN {code} < 0 THEN {}", reason("missing-value", &feature.name)?));
+                reasons.push(format!(
+                    "WHEN {code} < 0 THEN {}",
+                    reason(RejectReason::MissingValue.name(), &feature.name)?
+                ));
                 columns.push(alias(&code, &format!("__br_g{c}")));
             }
         }
@@ -309,7 +321,7 @@ fn input_stage(stages: &mut Stages, plan: &Plan, request: &ScoringRequest, cost_
             "WHEN {value} IS NULL OR NOT ({value} BETWEEN {} AND {}) THEN {}",
             number(-FINITE),
             number(FINITE),
-            reason("cost-value", column)?
+            reason(RejectReason::CostValue.name(), column)?
         ));
     }
     let reject = if reasons.is_empty() {
@@ -376,7 +388,7 @@ fn evidence_stages(stages: &mut Stages, file: &ModelFile, plan: &Plan, base: &[f
     match &file.model {
         FittedModel::Logistic(m) => {
             let terms = design_terms(&m.encoding);
-            check_width(plan, &m.encoding)?;
+            check_width(file, plan, m.encoding.numeric.len(), m.encoding.one_hot.len())?;
             for class in 0..k {
                 let expression = match m.coefficients.iter().find(|c| c.class == class) {
                     Some(c) => guarded(linear_form(c.intercept, &terms, &c.slopes)),
@@ -386,7 +398,7 @@ fn evidence_stages(stages: &mut Stages, file: &ModelFile, plan: &Plan, base: &[f
             }
         }
         FittedModel::Lda(m) => {
-            check_width(plan, &m.encoding)?;
+            check_width(file, plan, m.encoding.numeric.len(), m.encoding.one_hot.len())?;
             let terms = design_terms(&m.encoding);
             let reference = 0;
             let discriminants = m.linear_discriminant(base, reference)?;
@@ -396,7 +408,7 @@ fn evidence_stages(stages: &mut Stages, file: &ModelFile, plan: &Plan, base: &[f
             }
         }
         FittedModel::Qda(m) => {
-            check_width(plan, &m.encoding)?;
+            check_width(file, plan, m.encoding.numeric.len(), m.encoding.one_hot.len())?;
             let terms = design_terms(&m.encoding);
             let d = terms.len();
             let factors = m.factors()?;
@@ -408,7 +420,7 @@ fn evidence_stages(stages: &mut Stages, file: &ModelFile, plan: &Plan, base: &[f
                     .clone()
                     .solve_lower_triangular(&nalgebra::DMatrix::identity(d, d))
                     .ok_or_else(|| Error::ModelFile {
-                        path: file.training.input_path.clone(),
+                        path: model_name(file),
                         message: format!("the covariance factor of class '{}' cannot be inverted", file.classes[class]),
                     })?;
                 let deviations: Vec<String> = terms
@@ -438,29 +450,14 @@ fn evidence_stages(stages: &mut Stages, file: &ModelFile, plan: &Plan, base: &[f
         }
         FittedModel::NaiveBayes(m) => {
             let p = m.numeric.len();
-            if p != plan.input_width {
-                return Err(mismatch(file));
-            }
-            let mut gaussian = vec![true; p];
-            for b in &m.bernoulli {
-                gaussian[b.index] = false;
-            }
+            check_width(file, plan, m.numeric.len(), m.categorical.len())?;
+            let gaussian_part = m.gaussian_terms();
             for class in 0..k {
-                let constant: f64 = -0.5
-                    * m.variances[class]
-                        .iter()
-                        .zip(&gaussian)
-                        .filter(|(_, &g)| g)
-                        .map(|(s, _)| (std::f64::consts::TAU * s).ln())
-                        .sum::<f64>();
-                let mut terms = vec![number(constant)];
-                for j in (0..p).filter(|&j| gaussian[j]) {
+                let mut terms = vec![number(gaussian_part.constants[class])];
+                for j in (0..p).filter(|&j| gaussian_part.gaussian[j]) {
                     let deviation = format!("(\"__br_x{j}\" - {})", number(m.means[class][j]));
-                    terms.push(format!(
-                        "{} * {deviation} * {deviation} * {}",
-                        number(-1.0),
-                        number(0.5 / m.variances[class][j])
-                    ));
+                    let inverse = number(gaussian_part.inverse[class][j]);
+                    terms.push(format!("{} * {deviation} * {deviation} * {inverse}", number(-1.0)));
                 }
                 for b in &m.bernoulli {
                     let [one, zero] = b.log_probabilities[class];
@@ -488,16 +485,19 @@ fn evidence_stages(stages: &mut Stages, file: &ModelFile, plan: &Plan, base: &[f
     Ok((0..k).map(|c| col(&format!("__br_s{c}"))).collect())
 }
 
-fn mismatch(file: &ModelFile) -> Error {
-    Error::ModelFile {
-        path: file.training.input_path.clone(),
-        message: "the model's inputs do not match its schema".into(),
-    }
+/// How errors name the model (the request does not carry its file name).
+fn model_name(file: &ModelFile) -> String {
+    format!("the {} model trained on {}", file.family.name(), file.training.input_path)
 }
 
-fn check_width(plan: &Plan, encoding: &Encoding) -> Result<()> {
-    if encoding.numeric.len() != plan.input_width || encoding.one_hot.len() != plan.categorical.len() {
-        return Err(Error::Usage("the model's inputs do not match its schema".into()));
+/// The model's inputs must be the plan's (a hand-edited model file could
+/// disagree with its own schema).
+fn check_width(file: &ModelFile, plan: &Plan, numeric: usize, categorical: usize) -> Result<()> {
+    if numeric != plan.input_width || categorical != plan.categorical.len() {
+        return Err(Error::ModelFile {
+            path: model_name(file),
+            message: "the model's inputs do not match its schema".into(),
+        });
     }
     Ok(())
 }

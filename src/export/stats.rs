@@ -33,10 +33,10 @@
 use std::collections::BTreeMap;
 use std::path::Path;
 
+use crate::data::dataset::settle_target;
 use crate::data::options::MissingPolicy;
 use crate::data::schema::{
-    CategoricalSummary, ColumnKind, ColumnRole, ColumnSchema, KindSource, NumericSummary, PositiveRule, Schema,
-    TargetSchema,
+    CategoricalSummary, ColumnKind, ColumnRole, ColumnSchema, KindSource, NumericSummary, Schema,
 };
 use crate::error::{Error, Position, Result};
 use crate::export::sql::{self, ident, number, string, Dialect};
@@ -433,39 +433,27 @@ pub fn read_stats(path: &Path) -> Result<Aggregates> {
             aggregates.target = text("target");
             aggregates.numeric = (1..=p).map(|j| text(&format!("feature_{j}"))).collect();
             aggregates.categorical = (1..=c).map(|g| text(&format!("categorical_{g}"))).collect();
+            // Per numeric input, an SQL array of `len` numbers that pass `valid`.
+            let arrays = |prefix: &str, len: usize, valid: fn(f64) -> bool, what: &str| -> Result<Vec<Vec<f64>>> {
+                (1..=p)
+                    .map(|j| {
+                        let name = format!("{prefix}_{j}");
+                        let raw = text(&name);
+                        braced_numbers(&raw).filter(|v| v.len() == len && v.iter().all(|&x| valid(x))).ok_or_else(
+                            || Error::Malformed {
+                                at: at(&record),
+                                column: name,
+                                message: format!("'{raw}' is not a list of {what} in braces"),
+                            },
+                        )
+                    })
+                    .collect()
+            };
             if has_deciles {
-                let mut all = Vec::new();
-                for j in 1..=p {
-                    let name = format!("deciles_{j}");
-                    let raw = text(&name);
-                    let values = braced_numbers(&raw).filter(|v| v.len() == 9 && v.iter().all(|x| x.is_finite()));
-                    let Some(values) = values else {
-                        return Err(Error::Malformed {
-                            at: at(&record),
-                            column: name,
-                            message: format!("'{raw}' is not a list of nine finite numbers in braces"),
-                        });
-                    };
-                    all.push(values);
-                }
-                aggregates.deciles = Some(all);
+                aggregates.deciles = Some(arrays("deciles", 9, f64::is_finite, "nine finite numbers")?);
             }
             if column("bins_1").is_some() {
-                let mut all = Vec::new();
-                for j in 1..=p {
-                    let name = format!("bins_{j}");
-                    let raw = text(&name);
-                    let values = braced_numbers(&raw).filter(|v| v.len() == 10 && v.iter().all(|x| *x >= 0.0));
-                    let Some(values) = values else {
-                        return Err(Error::Malformed {
-                            at: at(&record),
-                            column: name,
-                            message: format!("'{raw}' is not a list of ten counts in braces"),
-                        });
-                    };
-                    all.push(values);
-                }
-                aggregates.bins = Some(all);
+                aggregates.bins = Some(arrays("bins", 10, |x| x >= 0.0, "ten counts")?);
             }
             first = false;
         }
@@ -645,14 +633,15 @@ pub fn model_from_stats(aggregates: &Aggregates, request: &FromStats, input_sha2
     }
     let classes: Vec<String> =
         aggregates.classes.iter().filter(|(_, r)| r.sums.rows > 0.0).map(|(c, _)| c.clone()).collect();
-    if classes.len() < 2 {
-        return Err(Error::TooFewClasses {
-            path: path.clone(),
-            column: aggregates.target.clone(),
-            classes: classes.clone(),
-        });
-    }
     let rows_of = |c: &str| aggregates.classes.get(c).map(|r| r.sums.clone()).unwrap_or_default();
+    let target = settle_target(
+        path,
+        &aggregates.target,
+        &classes,
+        classes.iter().map(|c| rows_of(c).rows as usize).collect(),
+        classes.iter().map(|c| rows_of(c).weight).collect(),
+        request.positive.as_deref(),
+    )?;
     // Levels: every level with a complete row, in byte order.
     let mut levels: Vec<Vec<String>> = vec![Vec::new(); aggregates.categorical.len()];
     for ((class, g, level), sums) in &aggregates.levels {
@@ -725,37 +714,6 @@ pub fn model_from_stats(aggregates: &Aggregates, request: &FromStats, input_sha2
             imputation: None,
         });
     }
-    let counts: Vec<usize> = classes.iter().map(|c| rows_of(c).rows as usize).collect();
-    let weighted_counts: Vec<f64> = classes.iter().map(|c| rows_of(c).weight).collect();
-    let (positive, positive_rule) = match &request.positive {
-        Some(p) if classes.contains(p) => (p.clone(), PositiveRule::Stated),
-        Some(p) => {
-            return Err(Error::UnknownClass {
-                path: path.clone(),
-                column: aggregates.target.clone(),
-                class: p.clone(),
-                classes,
-            })
-        }
-        None => {
-            // The smallest weighted count; ties to the later class in byte order.
-            let mut best = 0;
-            for i in 1..classes.len() {
-                if weighted_counts[i] <= weighted_counts[best] {
-                    best = i;
-                }
-            }
-            (classes[best].clone(), PositiveRule::Minority)
-        }
-    };
-    let target = TargetSchema {
-        column: aggregates.target.clone(),
-        classes: classes.clone(),
-        counts: counts.clone(),
-        weighted_counts: weighted_counts.clone(),
-        positive: positive.clone(),
-        positive_rule,
-    };
     let schema = Schema {
         columns,
         target,
@@ -832,10 +790,14 @@ pub fn model_from_stats(aggregates: &Aggregates, request: &FromStats, input_sha2
             (None, false) => "; no drift reference",
         }
     ));
-    let total_weight: f64 = weighted_counts.iter().sum();
-    let class_mix: Vec<f64> = weighted_counts.iter().map(|w| w / total_weight).collect();
-    let positive_index = classes.iter().position(|c| *c == positive).unwrap_or(0);
-    let prior = request.prior.clone().unwrap_or(PriorSpec::Empirical).resolve(&classes, &class_mix, positive_index)?;
+    let class_mix = schema.target.class_mix();
+    let prior = request.prior.clone().unwrap_or(PriorSpec::Empirical).resolve(
+        &classes,
+        &class_mix,
+        schema.target.positive_index(),
+    )?;
+    let (positive, counts, weighted_counts) =
+        (schema.target.positive.clone(), schema.target.counts.clone(), schema.target.weighted_counts.clone());
     let file = ModelFile {
         format: FORMAT.to_string(),
         format_version: FORMAT_VERSION,

@@ -88,20 +88,29 @@ pub struct BernoulliInput {
     pub log_probabilities: Vec<[f64; 2]>,
 }
 
+/// See [`NaiveBayesModel::gaussian_terms`].
+#[derive(Debug, Clone, PartialEq)]
+pub struct GaussianTerms {
+    /// Whether each numeric input is Gaussian (not a 0/1 indicator).
+    pub gaussian: Vec<bool>,
+    /// −½ Σⱼ ln(2πσ²ₖⱼ) over the Gaussian inputs, per class.
+    pub constants: Vec<f64>,
+    /// 1/(2σ²ₖⱼ) for the Gaussian inputs, 0 for the others, per class.
+    pub inverse: Vec<Vec<f64>>,
+}
+
 /// The smallest probability a smoothed level can have.
 const SMALLEST_PROBABILITY: f64 = f64::MIN_POSITIVE;
 
 impl NaiveBayesModel {
-    /// Writes log p(x | k) for `rows` into `out` (row-major, K per row).
-    pub fn log_likelihoods(&self, inputs: &Inputs<'_>, rows: &[usize], out: &mut [f64]) {
-        let k = self.classes.len();
-        let p = self.numeric.len();
-        // Per class: −½ Σⱼ ln(2πσ²) once, then the quadratic terms per row.
-        let mut gaussian = vec![true; p];
+    /// The Gaussian part of log p(x | k) = constantₖ − Σⱼ (xⱼ − μₖⱼ)²·inverseₖⱼ,
+    /// with the 0/1 indicator inputs (modelled as Bernoulli) left out.
+    pub fn gaussian_terms(&self) -> GaussianTerms {
+        let mut gaussian = vec![true; self.numeric.len()];
         for b in &self.bernoulli {
             gaussian[b.index] = false;
         }
-        let constants: Vec<f64> = self
+        let constants = self
             .variances
             .iter()
             .map(|v| {
@@ -113,11 +122,20 @@ impl NaiveBayesModel {
                     .sum::<f64>()
             })
             .collect();
-        let inverse: Vec<Vec<f64>> = self
+        let inverse = self
             .variances
             .iter()
             .map(|v| v.iter().zip(&gaussian).map(|(s, &g)| if g { 0.5 / s } else { 0.0 }).collect())
             .collect();
+        GaussianTerms { gaussian, constants, inverse }
+    }
+
+    /// Writes log p(x | k) for `rows` into `out` (row-major, K per row).
+    pub fn log_likelihoods(&self, inputs: &Inputs<'_>, rows: &[usize], out: &mut [f64]) {
+        let k = self.classes.len();
+        let p = self.numeric.len();
+        // Per class: −½ Σⱼ ln(2πσ²) once, then the quadratic terms per row.
+        let GaussianTerms { constants, inverse, .. } = self.gaussian_terms();
         for (i, &r) in rows.iter().enumerate() {
             for class in 0..k {
                 let mut ll = constants[class];
