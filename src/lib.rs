@@ -22,6 +22,7 @@ pub mod export;
 pub mod io;
 pub mod model;
 pub mod prior;
+pub mod records;
 pub mod report;
 pub mod rng;
 

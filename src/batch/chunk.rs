@@ -40,11 +40,13 @@ pub enum RejectReason {
     MissingValue,
     /// A cost column's value is missing or not a finite number.
     CostValue,
+    /// The record runs past the record-size cap without ending.
+    RecordSize,
 }
 
 impl RejectReason {
     /// Every reason, in the order the summary lists them.
-    pub const ALL: [RejectReason; 8] = [
+    pub const ALL: [RejectReason; 9] = [
         RejectReason::FieldCount,
         RejectReason::Quoting,
         RejectReason::Encoding,
@@ -53,6 +55,7 @@ impl RejectReason {
         RejectReason::UnseenCategory,
         RejectReason::MissingValue,
         RejectReason::CostValue,
+        RejectReason::RecordSize,
     ];
 
     /// The reason's name in the reject file and the summary.
@@ -66,6 +69,7 @@ impl RejectReason {
             RejectReason::UnseenCategory => "unseen-category",
             RejectReason::MissingValue => "missing-value",
             RejectReason::CostValue => "cost-value",
+            RejectReason::RecordSize => "record-size",
         }
     }
 }
@@ -95,7 +99,7 @@ pub struct Context<'a> {
     pub(crate) file: &'a ModelFile,
     pub(crate) plan: &'a Plan,
     pub(crate) prior: &'a [f64],
-    pub(crate) delimiter: u8,
+    pub(crate) dialect: crate::records::Dialect,
     pub(crate) na: NaMatcher,
     pub(crate) unseen: UnseenPolicy,
     pub(crate) missing: MissingPolicy,
@@ -116,7 +120,7 @@ pub struct ChunkStats {
     /// Rows scored.
     pub rows_scored: u64,
     /// Rows set aside, per [`RejectReason::ALL`].
-    pub rejected: [u64; 8],
+    pub rejected: [u64; RejectReason::ALL.len()],
     /// Per numeric feature: values below the training minimum.
     pub below_range: Vec<u64>,
     /// Per numeric feature: values above the training maximum.
@@ -254,67 +258,6 @@ fn trim(mut bytes: &[u8]) -> &[u8] {
     bytes
 }
 
-/// Splits a record into fields. Plain records give ranges into the record;
-/// records with quotes are unescaped into `scratch` and the ranges point
-/// there (`true` is returned).
-fn split(record: &[u8], delimiter: u8, scratch: &mut Vec<u8>, ranges: &mut Vec<(usize, usize)>) -> Result<bool, ()> {
-    ranges.clear();
-    if memchr::memchr(b'"', record).is_none() {
-        let mut start = 0;
-        for at in memchr::memchr_iter(delimiter, record) {
-            ranges.push((start, at));
-            start = at + 1;
-        }
-        ranges.push((start, record.len()));
-        return Ok(false);
-    }
-    scratch.clear();
-    let n = record.len();
-    let mut i = 0;
-    loop {
-        let j = i;
-        if j < n && record[j] == b'"' {
-            let start = scratch.len();
-            let mut k = j + 1;
-            loop {
-                let Some(offset) = memchr::memchr(b'"', &record[k..]) else { return Err(()) };
-                scratch.extend_from_slice(&record[k..k + offset]);
-                k += offset + 1;
-                if record.get(k) == Some(&b'"') {
-                    scratch.push(b'"');
-                    k += 1;
-                } else {
-                    break;
-                }
-            }
-            ranges.push((start, scratch.len()));
-            while k < n && record[k] != delimiter && matches!(record[k], b' ' | b'\t' | b'\r') {
-                k += 1;
-            }
-            if k == n {
-                return Ok(true);
-            }
-            if record[k] != delimiter {
-                return Err(());
-            }
-            i = k + 1;
-        } else {
-            let end = memchr::memchr(delimiter, &record[i..]).map_or(n, |o| i + o);
-            let start = scratch.len();
-            scratch.extend_from_slice(&record[i..end]);
-            ranges.push((start, scratch.len()));
-            if end == n {
-                return Ok(true);
-            }
-            i = end + 1;
-        }
-        if i == n {
-            ranges.push((scratch.len(), scratch.len()));
-            return Ok(true);
-        }
-    }
-}
-
 /// Appends a field to a CSV line, quoted when it must be.
 pub(crate) fn push_field(out: &mut Vec<u8>, field: &[u8]) {
     if field.iter().any(|&b| matches!(b, b',' | b'"' | b'\n' | b'\r')) {
@@ -376,36 +319,33 @@ pub fn process(context: &Context<'_>, chunk: &RawChunk, pass: Pass<'_>) -> Chunk
     };
     let width = plan.input_width;
     let bytes = chunk.bytes.as_slice();
-    let mut scratch = Vec::new();
-    let mut ranges = Vec::new();
-    let quoted_chunk = memchr::memchr(b'"', bytes).is_some();
+    let mut fields = crate::records::Fields::new();
     let mut position = 0;
     let mut line = 0u64;
-    while position < bytes.len() {
-        let newline = || memchr::memchr(b'\n', &bytes[position..]).map(|o| position + o);
-        let end = if quoted_chunk {
-            // A quote still open at the chunk's end is unclosed: the record
-            // ends at its first newline (the reader cut the chunk there).
-            crate::batch::source::record_end(bytes, position, context.delimiter).or_else(newline)
-        } else {
-            newline()
-        }
-        .unwrap_or(bytes.len());
-        let mut record = &bytes[position..end];
+    while let Some(end) = crate::records::record_end(bytes, position, &context.dialect, true) {
+        let record = &bytes[position..end.end];
         let record_line = line;
-        let inner_newlines = if quoted_chunk { crate::batch::source::count_newlines(record) } else { 0 };
-        line += inner_newlines + u64::from(end < bytes.len());
-        position = end + 1;
-        if record.last() == Some(&b'\r') {
-            record = &record[..record.len() - 1];
-        }
+        line += crate::records::count_line_ends(&bytes[position..end.next]);
+        position = end.next;
         if record.is_empty() {
             continue;
         }
+        // A record cut at the chunk's end inside quotes, in a chunk that
+        // does not end the input, was cut by the size cap.
+        let oversized = end.oversized || (end.unclosed && !chunk.last);
         result.stats.rows_read += 1;
         let marks = (rows.numeric.len(), rows.numeric_missing.len(), rows.text.len(), rows.text_spans.len());
         let cost_mark = rows.costs.len();
-        match parse_row(context, record, &mut scratch, &mut ranges, &mut rows, &mut result.stats) {
+        let parsed = if oversized {
+            Err(Problem {
+                reason: RejectReason::RecordSize,
+                column: String::new(),
+                message: crate::data::csv_read::oversized_message(&context.dialect),
+            })
+        } else {
+            parse_row(context, record, &mut fields, &mut rows, &mut result.stats)
+        };
+        match parsed {
             Ok(()) => {
                 rows.lines.push(record_line);
                 result.stats.rows_scored += 1;
@@ -618,14 +558,13 @@ struct Slots {
 fn parse_row(
     context: &Context<'_>,
     record: &[u8],
-    scratch: &mut Vec<u8>,
-    ranges: &mut Vec<(usize, usize)>,
+    fields: &mut crate::records::Fields,
     rows: &mut Rows,
     stats: &mut ChunkStats,
 ) -> Result<(), Problem> {
     let plan = context.plan;
     let width = plan.fields.len();
-    let delimiter = context.delimiter;
+    let delimiter = context.dialect.delimiter;
     let field_count = |found: usize| Problem {
         reason: RejectReason::FieldCount,
         column: String::new(),
@@ -677,17 +616,16 @@ fn parse_row(
             return Err(field_count(found()));
         }
     } else {
-        let quoted = split(record, delimiter, scratch, ranges).map_err(|()| Problem {
+        fields.split(record, delimiter).map_err(|e| Problem {
             reason: RejectReason::Quoting,
             column: String::new(),
-            message: "a quoted field is not closed, or text follows its closing quote".into(),
+            message: e.message().into(),
         })?;
-        if ranges.len() != width {
-            return Err(field_count(ranges.len()));
+        if fields.len() != width {
+            return Err(field_count(fields.len()));
         }
-        let source: &[u8] = if quoted { scratch } else { record };
-        for (i, &(a, b)) in ranges.iter().enumerate() {
-            take_field(context, i, &source[a..b], rows, &slots, &mut filled, &mut unseen)?;
+        for (i, field) in fields.iter(record).enumerate() {
+            take_field(context, i, field, rows, &slots, &mut filled, &mut unseen)?;
         }
     }
     for f in filled {
@@ -826,25 +764,6 @@ fn take_field(
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    fn fields(record: &str) -> Result<Vec<String>, ()> {
-        let mut scratch = Vec::new();
-        let mut ranges = Vec::new();
-        let quoted = split(record.as_bytes(), b',', &mut scratch, &mut ranges)?;
-        let source = if quoted { &scratch[..] } else { record.as_bytes() };
-        Ok(ranges.iter().map(|&(a, b)| String::from_utf8_lossy(&source[a..b]).into_owned()).collect())
-    }
-
-    #[test]
-    fn splits_plain_and_quoted_records() {
-        assert_eq!(fields("a,b,,c"), Ok(vec!["a".into(), "b".into(), "".into(), "c".into()]));
-        assert_eq!(fields("a,"), Ok(vec!["a".into(), "".into()]));
-        assert_eq!(fields("\"x,y\",\"say \"\"hi\"\"\",3"), Ok(vec!["x,y".into(), "say \"hi\"".into(), "3".into()]));
-        assert_eq!(fields("\"a\nb\",\"\""), Ok(vec!["a\nb".into(), "".into()]));
-        assert_eq!(fields("1,\"x\","), Ok(vec!["1".into(), "x".into(), "".into()]));
-        assert_eq!(fields("\"open,1"), Err(()));
-        assert_eq!(fields("\"a\"b,1"), Err(()));
-    }
 
     /// The fast layout reads back exactly, is as short as the report
     /// module's, and uses an exponent exactly when it does.

@@ -88,6 +88,15 @@ pub struct ScoreJob {
     pub threads: usize,
     /// Target chunk size in bytes.
     pub chunk_bytes: usize,
+    /// The longest record, in bytes (see [`crate::records::Dialect`]).
+    pub max_record_bytes: usize,
+}
+
+impl ScoreJob {
+    /// How the input's records are delimited.
+    pub fn dialect(&self) -> crate::records::Dialect {
+        crate::records::Dialect { delimiter: self.delimiter, max_record_bytes: self.max_record_bytes }
+    }
 }
 
 /// Where the job writes.
@@ -270,7 +279,7 @@ pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progre
         file,
         plan: &plan,
         prior: &job.prior,
-        delimiter: job.delimiter,
+        dialect: job.dialect(),
         na: NaMatcher::new(job.na_tokens.as_ref().unwrap_or(&file.schema.na_tokens)),
         unseen: job.unseen,
         missing,
@@ -360,12 +369,11 @@ pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progre
 /// Opens the input and reads its header: the names, and the reader
 /// positioned at the first record.
 fn open_input(job: &ScoreJob, shown: &str) -> Result<(Vec<String>, ChunkReader)> {
-    let mut reader = open_chunked(&job.data, job.chunk_bytes.clamp(1, MAX_CHUNK_BYTES), job.delimiter)?;
-    let Some(mut header) = reader.header()? else {
+    let mut reader = open_chunked(&job.data, job.chunk_bytes.clamp(1, MAX_CHUNK_BYTES), job.dialect())?;
+    let Some(header) = reader.header()? else {
         return Err(Error::EmptyFile { path: shown.to_string() });
     };
-    header.push(b'\n');
-    let (names, _, _) = crate::data::csv_read::read_header(shown, &header, job.delimiter)?;
+    let names = crate::data::csv_read::header_names(shown, &header, job.delimiter, 1)?;
     Ok((names, reader))
 }
 

@@ -11,7 +11,8 @@ use std::io::Read;
 use std::path::Path;
 use std::sync::Arc;
 
-use crate::error::{Error, Result};
+use crate::error::{Error, Position, Result};
+use crate::records::{record_end, whole_records_len, Dialect};
 
 /// A readable input, boxed so that file, gzip and stdin look the same.
 pub type Input = Box<dyn Read + Send>;
@@ -38,7 +39,7 @@ pub fn open(path: &Path) -> Result<Input> {
 /// uncompressed file is memory-mapped (the reading thread then only finds
 /// record boundaries; the workers touch the bytes), anything else is read
 /// as a stream.
-pub fn open_chunked(path: &Path, target: usize, delimiter: u8) -> Result<ChunkReader> {
+pub fn open_chunked(path: &Path, target: usize, dialect: Dialect) -> Result<ChunkReader> {
     let shown = shown_path(path);
     let plain = path.as_os_str() != "-" && !path.extension().is_some_and(|e| e.eq_ignore_ascii_case("gz"));
     if plain {
@@ -48,13 +49,13 @@ pub fn open_chunked(path: &Path, target: usize, delimiter: u8) -> Result<ChunkRe
             // nobody truncates the file while baserate reads it (the same
             // condition as every mmap-based reader).
             if let Ok(map) = unsafe { memmap2::Mmap::map(&file) } {
-                let mut reader = ChunkReader::new(Box::new(std::io::empty()), shown, target, delimiter);
+                let mut reader = ChunkReader::new(Box::new(std::io::empty()), shown, target, dialect);
                 reader.mapped = Some((Arc::new(map), 0));
                 return Ok(reader);
             }
         }
     }
-    Ok(ChunkReader::new(open(path)?, shown, target, delimiter))
+    Ok(ChunkReader::new(open(path)?, shown, target, dialect))
 }
 
 /// How a path is named in messages: `<stdin>` for `-`.
@@ -71,10 +72,13 @@ pub fn shown_path(path: &Path) -> String {
 pub struct RawChunk {
     /// Position of the chunk in the stream (0, 1, 2, ...).
     pub index: usize,
-    /// The records' bytes, newlines included. (Line numbers are settled
-    /// when results join in order: counting newlines here would put a pass
+    /// The records' bytes, line ends included. (Line numbers are settled
+    /// when results join in order: counting line ends here would put a pass
     /// over every byte on the one reading thread.)
     pub bytes: ChunkBytes,
+    /// The chunk ends the input. In any other chunk, a record that reaches
+    /// the chunk's end inside quotes was cut by the size cap.
+    pub last: bool,
 }
 
 /// A chunk's bytes: read into memory, or a range of a mapped file.
@@ -125,12 +129,12 @@ pub struct ChunkReader {
     pub bytes_read: u64,
     /// A mapped file and the position reached in it.
     mapped: Option<(Arc<memmap2::Mmap>, usize)>,
-    delimiter: u8,
+    dialect: Dialect,
 }
 
 impl ChunkReader {
     /// A reader handing out chunks of about `target` bytes.
-    pub fn new(input: Input, path: String, target: usize, delimiter: u8) -> Self {
+    pub fn new(input: Input, path: String, target: usize, dialect: Dialect) -> Self {
         ChunkReader {
             input,
             path,
@@ -141,7 +145,7 @@ impl ChunkReader {
             finished: false,
             bytes_read: 0,
             mapped: None,
-            delimiter,
+            dialect,
         }
     }
 
@@ -168,33 +172,51 @@ impl ChunkReader {
         Ok(filled > start)
     }
 
-    /// The header record's bytes (without its line end), with a UTF-8
-    /// byte-order mark removed. `None` for an empty input.
+    /// The header record's bytes (without its line end; a UTF-8 byte-order
+    /// mark and empty lines before it dropped). `None` for an empty input.
     pub fn header(&mut self) -> Result<Option<Vec<u8>>> {
-        if let Some((map, position)) = &mut self.mapped {
-            let end = record_end(map, 0, self.delimiter).unwrap_or(map.len());
-            let mut header = map[..end].to_vec();
-            *position = (end + 1).min(map.len());
-            self.next_line += count_newlines(&map[..*position]);
-            if header.last() == Some(&b'\r') {
-                header.pop();
-            }
-            let header = strip_bom(header);
-            return Ok(if header.is_empty() && end == map.len() { None } else { Some(header) });
-        }
         loop {
-            if let Some(end) = record_end(&self.pending, 0, self.delimiter) {
-                let mut header: Vec<u8> = self.pending.drain(..=end).collect();
-                self.next_line += count_newlines(&header);
-                header.pop();
-                if header.last() == Some(&b'\r') {
-                    header.pop();
+            let (bytes, complete): (&[u8], bool) = match &self.mapped {
+                Some((map, _)) => (map, true),
+                None => (&self.pending, self.finished),
+            };
+            let mut from = if bytes.starts_with(b"\xEF\xBB\xBF") { 3 } else { 0 };
+            let mut found = None;
+            while let Some(end) = record_end(bytes, from, &self.dialect, complete) {
+                if end.end > from {
+                    found = Some((from, end));
+                    break;
                 }
-                return Ok(Some(strip_bom(header)));
+                from = end.next;
             }
-            if !self.fill(64 * 1024)? {
-                let header = std::mem::take(&mut self.pending);
-                return Ok(if header.is_empty() || header == b"\xEF\xBB\xBF" { None } else { Some(strip_bom(header)) });
+            match found {
+                Some((start, end)) => {
+                    if end.oversized || end.unclosed {
+                        let line = self.next_line + crate::records::count_line_ends(&bytes[..start]);
+                        let message = if end.oversized {
+                            crate::data::csv_read::oversized_message(&self.dialect)
+                        } else {
+                            crate::records::FieldError::UnclosedQuote.message().to_string()
+                        };
+                        let at = Position { path: self.path.clone(), line };
+                        return Err(Error::Malformed { at, column: "(header)".to_string(), message });
+                    }
+                    let header = bytes[start..end.end].to_vec();
+                    self.next_line += crate::records::count_line_ends(&bytes[..end.next]);
+                    match &mut self.mapped {
+                        Some((_, position)) => *position = end.next,
+                        None => {
+                            self.pending.drain(..end.next);
+                        }
+                    }
+                    return Ok(Some(header));
+                }
+                None if complete => return Ok(None),
+                None => {
+                    if !self.fill(64 * 1024)? {
+                        self.finished = true;
+                    }
+                }
             }
         }
     }
@@ -208,9 +230,9 @@ impl ChunkReader {
             }
             let mut end = start.saturating_add(self.target).min(map.len());
             while end < map.len() {
-                match last_record_end(&map[start..end], self.delimiter) {
-                    Some(at) => {
-                        end = start + at + 1;
+                match whole_records_len(&map[start..end], &self.dialect, false) {
+                    Some(length) => {
+                        end = start + length;
                         break;
                     }
                     // One record longer than the window: look twice as far.
@@ -220,7 +242,8 @@ impl ChunkReader {
             *position = end;
             self.bytes_read += (end - start) as u64;
             let bytes = ChunkBytes::Mapped(Arc::clone(map), start..end);
-            return Ok(Some(self.hand_out(bytes)));
+            let last = end == map.len();
+            return Ok(Some(self.hand_out(bytes, last)));
         }
         while self.pending.len() < self.target && !self.finished {
             let want = self.target - self.pending.len();
@@ -233,12 +256,12 @@ impl ChunkReader {
             if self.finished {
                 // What is left is the last records (perhaps without a final newline).
                 let bytes = std::mem::take(&mut self.pending);
-                return Ok(Some(self.hand_out(ChunkBytes::Owned(bytes))));
+                return Ok(Some(self.hand_out(ChunkBytes::Owned(bytes), true)));
             }
-            if let Some(end) = last_record_end(&self.pending, self.delimiter) {
-                let rest = self.pending.split_off(end + 1);
+            if let Some(length) = whole_records_len(&self.pending, &self.dialect, false) {
+                let rest = self.pending.split_off(length);
                 let bytes = std::mem::replace(&mut self.pending, rest);
-                return Ok(Some(self.hand_out(ChunkBytes::Owned(bytes))));
+                return Ok(Some(self.hand_out(ChunkBytes::Owned(bytes), false)));
             }
             // One record longer than the target: read on until it ends.
             let want = self.pending.len().max(self.target);
@@ -246,8 +269,8 @@ impl ChunkReader {
         }
     }
 
-    fn hand_out(&mut self, bytes: ChunkBytes) -> RawChunk {
-        let chunk = RawChunk { index: self.next_index, bytes };
+    fn hand_out(&mut self, bytes: ChunkBytes, last: bool) -> RawChunk {
+        let chunk = RawChunk { index: self.next_index, bytes, last };
         self.next_index += 1;
         chunk
     }
@@ -258,101 +281,19 @@ impl ChunkReader {
     }
 }
 
-fn strip_bom(mut bytes: Vec<u8>) -> Vec<u8> {
-    if bytes.starts_with(b"\xEF\xBB\xBF") {
-        bytes.drain(..3);
-    }
-    bytes
-}
-
-/// Newlines in `bytes` (quoted ones included: they are lines of the file).
-pub fn count_newlines(bytes: &[u8]) -> u64 {
-    memchr::memchr_iter(b'\n', bytes).count() as u64
-}
-
-/// The longest a quoted field may run on before it is taken to be an
-/// unclosed quote: its record then ends at the first newline after its
-/// start, and is set aside as malformed, instead of swallowing the rest of
-/// the file.
-pub const MAX_QUOTED_RECORD: usize = 1 << 20;
-
-/// The position of the newline that ends the record starting at `from`, or
-/// `None` when the record does not end within `bytes`.
-///
-/// The rules are the field splitter's: a `"` opens a quoted field only as
-/// a field's first byte; inside one, `""` is a quote and a newline or a
-/// delimiter is text; elsewhere a `"` is an ordinary byte. A record still
-/// inside quotes more than [`MAX_QUOTED_RECORD`] bytes after its start ends
-/// at its first newline.
-pub fn record_end(bytes: &[u8], from: usize, delimiter: u8) -> Option<usize> {
-    let mut quoted = false;
-    let mut field_start = from;
-    let mut position = from;
-    loop {
-        if quoted {
-            let Some(offset) = memchr::memchr(b'"', &bytes[position..]) else {
-                return unclosed(bytes, from);
-            };
-            let at = position + offset;
-            if at - from > MAX_QUOTED_RECORD {
-                return unclosed(bytes, from);
-            }
-            if bytes.get(at + 1) == Some(&b'"') {
-                position = at + 2;
-            } else {
-                quoted = false;
-                position = at + 1;
-            }
-            continue;
-        }
-        let offset = memchr::memchr3(b'"', b'\n', delimiter, &bytes[position..])?;
-        let at = position + offset;
-        match bytes[at] {
-            b'\n' => return Some(at),
-            b'"' if at == field_start => quoted = true,
-            b'"' => {}
-            _ => field_start = at + 1,
-        }
-        position = at + 1;
-    }
-}
-
-/// Where a record with an unclosed quote ends: at its first newline, once
-/// more than [`MAX_QUOTED_RECORD`] bytes show the quote is not closing.
-fn unclosed(bytes: &[u8], from: usize) -> Option<usize> {
-    if bytes.len() - from <= MAX_QUOTED_RECORD {
-        return None;
-    }
-    memchr::memchr(b'\n', &bytes[from..]).map(|o| from + o)
-}
-
-/// The position of the last record end in `bytes`, which start on a record
-/// boundary.
-fn last_record_end(bytes: &[u8], delimiter: u8) -> Option<usize> {
-    if memchr::memchr(b'"', bytes).is_none() {
-        return memchr::memrchr(b'\n', bytes);
-    }
-    let mut last = None;
-    let mut from = 0;
-    while let Some(end) = record_end(bytes, from, delimiter) {
-        last = Some(end);
-        from = end + 1;
-    }
-    last
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::records::count_line_ends;
 
     fn chunks_of(text: &str, target: usize) -> (Vec<u8>, Vec<(u64, String)>) {
-        let mut reader =
-            ChunkReader::new(Box::new(std::io::Cursor::new(text.as_bytes().to_vec())), "t".into(), target, b',');
+        let input = Box::new(std::io::Cursor::new(text.as_bytes().to_vec()));
+        let mut reader = ChunkReader::new(input, "t".into(), target, Dialect::default());
         let header = reader.header().unwrap_or_default().unwrap_or_default();
         let mut line = reader.first_data_line();
         let mut out = Vec::new();
         while let Ok(Some(c)) = reader.next_chunk() {
-            let newlines = count_newlines(c.bytes.as_slice());
+            let newlines = count_line_ends(c.bytes.as_slice());
             out.push((line, String::from_utf8(c.bytes.as_slice().to_vec()).unwrap_or_default()));
             line += newlines;
         }
@@ -361,18 +302,18 @@ mod tests {
 
     #[test]
     fn chunks_are_whole_records_with_their_first_lines() {
-        let text = "a,b\r\n1,2\n\"x\ny\",3\n4,5";
+        let text = "a,b\r\n1,2\n\"x\ny\",3\r4,5";
         for target in 1..30 {
             let (header, chunks) = chunks_of(text, target);
             assert_eq!(header, b"a,b");
             let joined: String = chunks.iter().map(|(_, c)| c.as_str()).collect();
-            assert_eq!(joined, "1,2\n\"x\ny\",3\n4,5");
+            assert_eq!(joined, "1,2\n\"x\ny\",3\r4,5");
             let mut line = 2;
             for (first, c) in &chunks {
                 assert_eq!(*first, line);
-                assert!(c.ends_with('\n') || c.ends_with('5'), "target {target}: {c:?}");
+                assert!(c.ends_with('\n') || c.ends_with('\r') || c.ends_with('5'), "target {target}: {c:?}");
                 assert_eq!(c.matches('"').count() % 2, 0, "target {target}: {c:?}");
-                line += c.matches('\n').count() as u64;
+                line += count_line_ends(c.as_bytes());
             }
         }
     }
@@ -386,26 +327,19 @@ mod tests {
             let (_, chunks) = chunks_of(text, target);
             assert!(chunks.iter().all(|(_, c)| c.ends_with('\n')), "{target}: {chunks:?}");
             let joined: String = chunks.iter().map(|(_, c)| c.as_str()).collect();
-            let mut records = Vec::new();
-            let mut from = 0;
-            while let Some(end) = record_end(joined.as_bytes(), from, b',') {
-                records.push(&joined[from..end]);
-                from = end + 1;
-            }
-            assert_eq!(records, ["1,5'11\",3", "2,6'0\",4", "3,\"a\"\"b\",5"], "{target}");
+            let dialect = Dialect::default();
+            let records: Vec<&[u8]> =
+                crate::records::records(joined.as_bytes(), &dialect, 1).map(|r| r.bytes).collect();
+            let expected: [&[u8]; 3] = [b"1,5'11\",3", b"2,6'0\",4", b"3,\"a\"\"b\",5"];
+            assert_eq!(records, expected, "{target}");
         }
-        // An unclosed quote ends its record at its first newline once it has
-        // run past the limit.
-        let mut long = String::from("\"open,1\n");
-        long.push_str(&"2,3\n".repeat(MAX_QUOTED_RECORD / 4 + 10));
-        assert_eq!(record_end(long.as_bytes(), 0, b','), Some(7));
-        assert_eq!(record_end(&long.as_bytes()[..100], 0, b','), None);
     }
 
     #[test]
     fn bom_and_empty_inputs() {
         assert_eq!(chunks_of("\u{feff}a,b\n1,2\n", 4).0, b"a,b");
-        let mut reader = ChunkReader::new(Box::new(std::io::Cursor::new(Vec::new())), "t".into(), 4, b',');
+        let mut reader =
+            ChunkReader::new(Box::new(std::io::Cursor::new(Vec::new())), "t".into(), 4, Dialect::default());
         assert!(matches!(reader.header(), Ok(None)));
     }
 }

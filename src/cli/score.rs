@@ -67,6 +67,9 @@ pub struct Args {
     /// Bytes of input per chunk (memory is a few chunks per thread).
     #[arg(long, value_name = "BYTES", default_value_t = crate::batch::DEFAULT_CHUNK_BYTES)]
     pub chunk_bytes: usize,
+    /// The longest record, in bytes; a longer one is set aside as `record-size` (an unclosed quote, usually).
+    #[arg(long, value_name = "BYTES", default_value_t = crate::records::DEFAULT_MAX_RECORD_BYTES)]
+    pub max_record_bytes: usize,
     /// No progress display and no summary on stderr (errors are still shown).
     #[arg(long, short = 'q')]
     pub quiet: bool,
@@ -164,6 +167,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         reasons: args.reasons.unwrap_or(0),
         threads: args.threads,
         chunk_bytes: args.chunk_bytes,
+        max_record_bytes: args.max_record_bytes.max(1),
     };
     let outputs = Outputs { scores: args.out.clone(), rejects: args.rejects.clone(), summary: args.summary.clone() };
     let total_bytes = if args.data.as_os_str() == "-" || args.data.extension().is_some_and(|e| e == "gz") {

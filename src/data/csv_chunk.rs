@@ -9,9 +9,9 @@
 //!
 //! Two paths, one meaning: a chunk with no quote byte is split by hand in a
 //! single pass (a number is scanned and converted where it stands); a chunk
-//! with quotes goes through the csv crate. Both skip empty lines and treat
-//! `\n` as the record terminator (a `\r` before it is trimmed with the
-//! field's surrounding whitespace).
+//! with quotes is read record by record through [`crate::records`], the
+//! rules every reader shares. Both skip empty lines and end a record at LF,
+//! CRLF or a lone CR.
 
 use std::collections::HashMap;
 
@@ -109,7 +109,7 @@ pub(crate) type Release<'a> = &'a (dyn Fn(&[u8]) + Sync);
 pub(crate) struct ParseContext<'a> {
     pub(crate) path: &'a str,
     pub(crate) names: &'a [String],
-    pub(crate) delimiter: u8,
+    pub(crate) dialect: crate::records::Dialect,
     pub(crate) na: NaMatcher,
     /// Called with each chunk's bytes once parsed, so a memory-mapped file
     /// can give its pages back (resident memory stays at a few chunks).
@@ -264,35 +264,28 @@ pub(crate) fn parse_chunk(
     sink.out
 }
 
-/// A chunk with quotes, through the csv crate.
+/// A chunk with quotes, record by record through the record layer.
 fn parse_quoted(sink: &mut RecordSink<'_, '_>, bytes: &[u8], first_line: u64) {
     let context = sink.context;
-    let mut reader = csv::ReaderBuilder::new()
-        .has_headers(false)
-        .delimiter(context.delimiter)
-        .terminator(csv::Terminator::Any(b'\n'))
-        .flexible(true)
-        .from_reader(bytes);
-    let mut record = csv::ByteRecord::new();
-    loop {
-        match reader.read_byte_record(&mut record) {
-            Ok(true) => {}
-            Ok(false) => return,
-            Err(e) => {
-                let line = e.position().map_or(first_line, |p| first_line + p.line() - 1);
-                sink.fail(
-                    line,
-                    Error::Malformed { at: context.at(line), column: "(row)".to_string(), message: e.to_string() },
-                );
-                return;
-            }
-        }
-        let line = record.position().map_or(first_line, |p| first_line + p.line() - 1);
-        if record.len() != sink.plan.len() {
-            sink.ragged(line, record.len());
+    let mut fields = crate::records::Fields::new();
+    for record in crate::records::records(bytes, &context.dialect, first_line) {
+        let line = record.line;
+        let malformed = if record.oversized {
+            Some(crate::data::csv_read::oversized_message(&context.dialect))
+        } else if record.unclosed {
+            Some(crate::records::FieldError::UnclosedQuote.message().to_string())
+        } else {
+            fields.split(record.bytes, context.dialect.delimiter).err().map(|e| e.message().to_string())
+        };
+        if let Some(message) = malformed {
+            sink.fail(line, Error::Malformed { at: context.at(line), column: "(row)".to_string(), message });
             return;
         }
-        for (column, field) in record.iter().enumerate() {
+        if fields.len() != sink.plan.len() {
+            sink.ragged(line, fields.len());
+            return;
+        }
+        for (column, field) in fields.iter(record.bytes).enumerate() {
             if !sink.field(line, column, field) {
                 return;
             }
@@ -306,16 +299,17 @@ fn parse_quoted(sink: &mut RecordSink<'_, '_>, bytes: &[u8], first_line: u64) {
 /// twice; any other field is delimited with memchr and goes through
 /// [`RecordSink::field`].
 fn parse_plain(sink: &mut RecordSink<'_, '_>, bytes: &[u8], first_line: u64) {
-    let delimiter = sink.context.delimiter;
+    let delimiter = sink.context.dialect.delimiter;
     let width = sink.plan.len();
     let mut position = 0;
     let mut line = first_line;
     while position < bytes.len() {
-        let line_end = |from: usize| memchr::memchr(b'\n', &bytes[from..]).map_or(bytes.len(), |o| from + o);
-        // Empty lines (possibly a lone carriage return) are skipped.
-        let rest = &bytes[position..];
-        if rest[0] == b'\n' || (rest[0] == b'\r' && rest.get(1) == Some(&b'\n')) {
-            position += if rest[0] == b'\n' { 1 } else { 2 };
+        let line_end = |from: usize| memchr::memchr2(b'\n', b'\r', &bytes[from..]).map_or(bytes.len(), |o| from + o);
+        // After the line end at `at` (LF, CRLF or a lone CR).
+        let after_line_end = |at: usize| at + 1 + usize::from(bytes[at] == b'\r' && bytes.get(at + 1) == Some(&b'\n'));
+        // Empty lines are skipped.
+        if matches!(bytes[position], b'\n' | b'\r') {
+            position = after_line_end(position);
             line += 1;
             continue;
         }
@@ -337,8 +331,8 @@ fn parse_plain(sink: &mut RecordSink<'_, '_>, bytes: &[u8], first_line: u64) {
                     position + used
                 }
                 None => {
-                    let end =
-                        memchr::memchr2(delimiter, b'\n', &bytes[position..]).map_or(bytes.len(), |o| position + o);
+                    let end = memchr::memchr3(delimiter, b'\n', b'\r', &bytes[position..])
+                        .map_or(bytes.len(), |o| position + o);
                     if !sink.field(line, column, &bytes[position..end]) {
                         return;
                     }
@@ -347,22 +341,21 @@ fn parse_plain(sink: &mut RecordSink<'_, '_>, bytes: &[u8], first_line: u64) {
             };
             // What ends the field must fit its place in the record.
             let terminator = bytes.get(field_end).copied();
-            let fits = if last {
-                match terminator {
-                    None | Some(b'\n') => true,
-                    Some(b'\r') => matches!(bytes.get(field_end + 1), None | Some(b'\n')),
-                    Some(_) => false,
-                }
-            } else {
-                terminator == Some(delimiter)
-            };
+            let fits =
+                if last { matches!(terminator, None | Some(b'\n' | b'\r')) } else { terminator == Some(delimiter) };
             if !fits {
                 let end = line_end(record_start);
                 let found = 1 + bytes[record_start..end].iter().filter(|&&b| b == delimiter).count();
                 sink.ragged(line, found);
                 return;
             }
-            position = if last { line_end(field_end) + 1 } else { field_end + 1 };
+            position = if !last {
+                field_end + 1
+            } else if field_end < bytes.len() {
+                after_line_end(field_end)
+            } else {
+                bytes.len()
+            };
         }
         sink.out.rows += 1;
         line += 1;

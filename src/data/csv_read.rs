@@ -149,7 +149,7 @@ pub(crate) fn read_bytes_chunked(
     if bytes.iter().all(|b| b.is_ascii_whitespace()) {
         return Err(Error::EmptyFile { path: path.to_string() });
     }
-    let (names, data_start, data_first_line) = read_header(path, bytes, options.delimiter)?;
+    let (names, data_start, data_first_line) = read_header(path, bytes, &options.dialect())?;
     let roles = settle_roles(path, &names, options)?;
     let mut plan: Vec<Parse> = names
         .iter()
@@ -168,15 +168,10 @@ pub(crate) fn read_bytes_chunked(
         .collect();
 
     let data = &bytes[data_start..];
-    let chunks = split_chunks(data, chunk_bytes);
+    let dialect = options.dialect();
+    let chunks = crate::records::split_chunks(data, chunk_bytes, &dialect);
     let (first_lines, capacities) = chunk_lines(data, &chunks, data_first_line);
-    let context = ParseContext {
-        path,
-        names: &names,
-        delimiter: options.delimiter,
-        na: NaMatcher::new(&options.na_tokens),
-        release,
-    };
+    let context = ParseContext { path, names: &names, dialect, na: NaMatcher::new(&options.na_tokens), release };
 
     // The first chunk settles the kinds it shows, so that a file whose text
     // columns are not declared still needs only one parallel pass.
@@ -301,23 +296,60 @@ fn compact(matrix: &mut Vec<f64>, capacities: &[usize], outs: &[ChunkOut], rows:
     Array2::from_shape_vec((rows, width).f(), std::mem::take(matrix)).unwrap_or_else(|_| Array2::zeros((rows, 0)))
 }
 
-/// Reads the header record; returns the names, the byte offset where data
+/// Reads the header record (the first record of the file, by the rules of
+/// [`crate::records`]); returns the names, the byte offset where data
 /// starts and the line number of the first data line.
-pub(crate) fn read_header(path: &str, bytes: &[u8], delimiter: u8) -> Result<(Vec<String>, usize, u64)> {
-    let mut reader =
-        csv::ReaderBuilder::new().has_headers(false).delimiter(delimiter).flexible(true).from_reader(bytes);
-    let mut record = csv::ByteRecord::new();
-    let header_at = Position { path: path.to_string(), line: 1 };
-    match reader.read_byte_record(&mut record) {
-        Ok(true) => {}
-        Ok(false) => return Err(Error::EmptyFile { path: path.to_string() }),
-        Err(e) => {
-            return Err(Error::Malformed { at: header_at, column: "(header)".to_string(), message: e.to_string() })
+pub(crate) fn read_header(
+    path: &str,
+    bytes: &[u8],
+    dialect: &crate::records::Dialect,
+) -> Result<(Vec<String>, usize, u64)> {
+    let mut from = 0;
+    let mut line = 1;
+    loop {
+        let Some(end) = crate::records::record_end(bytes, from, dialect, true) else {
+            return Err(Error::EmptyFile { path: path.to_string() });
+        };
+        let record = &bytes[from..end.end];
+        let next_line = line + crate::records::count_line_ends(&bytes[from..end.next]);
+        if record.is_empty() {
+            from = end.next;
+            line = next_line;
+            continue;
         }
+        let at = Position { path: path.to_string(), line };
+        if end.oversized || end.unclosed {
+            let message =
+                if end.oversized { oversized_message(dialect) } else { "a quoted field is not closed".into() };
+            return Err(Error::Malformed { at, column: "(header)".to_string(), message });
+        }
+        let names = header_names(path, record, dialect.delimiter, line)?;
+        return Ok((names, end.next, next_line));
     }
-    let mut names = Vec::with_capacity(record.len());
+}
+
+/// What a record over the size cap is told.
+pub(crate) fn oversized_message(dialect: &crate::records::Dialect) -> String {
+    format!(
+        "the record runs past {} bytes without ending (an unclosed quote?); the record-size cap is a setting",
+        dialect.max_record_bytes
+    )
+}
+
+/// The column names of a header record (without its line end): split,
+/// trimmed, and checked for emptiness and duplicates. `line` is the
+/// header's line, for messages.
+pub(crate) fn header_names(path: &str, record: &[u8], delimiter: u8, line: u64) -> Result<Vec<String>> {
+    let header_at = Position { path: path.to_string(), line };
+    let mut fields = crate::records::Fields::new();
+    fields.split(record, delimiter).map_err(|e| Error::Malformed {
+        at: header_at.clone(),
+        column: "(header)".to_string(),
+        message: e.message().to_string(),
+    })?;
+    let mut names = Vec::with_capacity(fields.len());
     let mut seen: HashMap<String, usize> = HashMap::new();
-    for (i, field) in record.iter().enumerate() {
+    for (i, field) in fields.iter(record).enumerate() {
         let name = std::str::from_utf8(field)
             .map_err(|_| Error::Malformed {
                 at: header_at.clone(),
@@ -335,8 +367,7 @@ pub(crate) fn read_header(path: &str, bytes: &[u8], delimiter: u8) -> Result<(Ve
         seen.insert(name.clone(), i);
         names.push(name);
     }
-    let position = reader.position();
-    Ok((names, position.byte() as usize, position.line()))
+    Ok(names)
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -432,62 +463,22 @@ fn settle_roles(path: &str, names: &[String], options: &ReadOptions) -> Result<V
         .collect())
 }
 
-/// Splits `data` into byte ranges that each end just after a record
-/// terminator (a newline outside quotes), each about `target` bytes long.
-pub(crate) fn split_chunks(data: &[u8], target: usize) -> Vec<std::ops::Range<usize>> {
-    let mut ranges = Vec::new();
-    if data.is_empty() {
-        return ranges;
-    }
-    let mut start = 0;
-    if memchr::memchr(b'"', data).is_none() {
-        // No quotes anywhere: every newline ends a record.
-        while start < data.len() {
-            let want = start + target;
-            let end = if want >= data.len() {
-                data.len()
-            } else {
-                match memchr::memchr(b'\n', &data[want..]) {
-                    Some(offset) => want + offset + 1,
-                    None => data.len(),
-                }
-            };
-            ranges.push(start..end);
-            start = end;
-        }
-        return ranges;
-    }
-    // Quotes present: a newline ends a record only when an even number of
-    // quote bytes precede it (doubled quotes inside fields keep the parity).
-    let mut in_quotes = false;
-    let mut next_cut = target;
-    for position in memchr::memchr2_iter(b'"', b'\n', data) {
-        if data[position] == b'"' {
-            in_quotes = !in_quotes;
-        } else if !in_quotes && position + 1 >= next_cut {
-            ranges.push(start..position + 1);
-            start = position + 1;
-            next_cut = start + target;
-        }
-    }
-    if start < data.len() {
-        ranges.push(start..data.len());
-    }
-    ranges
-}
-
 /// The line number each chunk starts on, and the most records it can hold
 /// (its newlines, plus one when it does not end with a newline).
 fn chunk_lines(data: &[u8], chunks: &[Range<usize>], data_first_line: u64) -> (Vec<u64>, Vec<usize>) {
-    let counts: Vec<usize> = chunks.par_iter().map(|r| memchr::memchr_iter(b'\n', &data[r.clone()]).count()).collect();
+    let counts: Vec<usize> =
+        chunks.par_iter().map(|r| crate::records::count_line_ends(&data[r.clone()]) as usize).collect();
     let mut lines = Vec::with_capacity(chunks.len());
     let mut line = data_first_line;
     for &count in &counts {
         lines.push(line);
         line += count as u64;
     }
-    let capacities =
-        counts.iter().zip(chunks).map(|(&count, r)| count + usize::from(data[r.end - 1] != b'\n')).collect();
+    let capacities = counts
+        .iter()
+        .zip(chunks)
+        .map(|(&count, r)| count + usize::from(!matches!(data[r.end - 1], b'\n' | b'\r')))
+        .collect();
     (lines, capacities)
 }
 
@@ -599,7 +590,7 @@ mod tests {
     fn chunks_split_only_outside_quotes() {
         let data = b"1,\"a\nb\",2\n3,\"c\",4\n5,6,7\n";
         for target in 1..data.len() + 2 {
-            let ranges = split_chunks(data, target);
+            let ranges = crate::records::split_chunks(data, target, &crate::records::Dialect::default());
             let mut joined = Vec::new();
             for r in &ranges {
                 joined.extend_from_slice(&data[r.clone()]);

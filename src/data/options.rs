@@ -58,6 +58,8 @@ pub struct ReadOptions {
     /// When reading a file to score: the feature columns the model needs
     /// (each must be present; every other column without a role is ignored).
     pub model_columns: Option<Vec<String>>,
+    /// The longest record, in bytes (see [`crate::records::Dialect`]).
+    pub max_record_bytes: usize,
 }
 
 impl ReadOptions {
@@ -75,6 +77,12 @@ impl ReadOptions {
             missing: MissingPolicy::Error,
             positive: None,
             model_columns: None,
+            max_record_bytes: crate::records::DEFAULT_MAX_RECORD_BYTES,
         }
+    }
+
+    /// How the file's records are delimited.
+    pub fn dialect(&self) -> crate::records::Dialect {
+        crate::records::Dialect { delimiter: self.delimiter, max_record_bytes: self.max_record_bytes }
     }
 }
