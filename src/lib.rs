@@ -11,6 +11,7 @@
 // true for NaN as well.
 #![allow(clippy::needless_range_loop, clippy::neg_cmp_op_on_partial_ord)]
 
+pub mod apply;
 pub mod batch;
 pub mod cli;
 pub mod data;
@@ -19,12 +20,14 @@ pub mod demo;
 pub mod error;
 pub mod evaluate;
 pub mod export;
+pub mod format;
 pub mod io;
 pub mod model;
 pub mod prior;
 pub mod records;
 pub mod report;
 pub mod rng;
+pub mod train;
 
 /// The caution printed with every report: what baserate's output is and is
 /// not, for credit and fraud decisions.

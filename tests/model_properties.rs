@@ -5,8 +5,8 @@ mod common;
 
 use baserate::data::csv_read::read_bytes;
 use baserate::data::{Dataset, MissingPolicy, ReadOptions};
-use baserate::model::file::ModelFile;
 use baserate::model::{fit, Family, FamilyParams, FittedModel};
+use baserate::train::file::ModelFile;
 use ndarray::Array2;
 
 const FAMILIES: [Family; 4] = [Family::Logistic, Family::NaiveBayes, Family::Lda, Family::Qda];

@@ -3,76 +3,21 @@
 //! decided and formatted — everything that depends only on the chunk's own
 //! rows, so chunks run in parallel and their outputs join in file order.
 
-use std::io::Write;
-
 use ndarray::Array2;
 
+use crate::apply::plan::{Fill, Plan};
+use crate::apply::{RejectReason, UnseenPolicy};
 use crate::batch::capacity::{choose, Settled};
-use crate::batch::drift::{value_bin, DriftReference};
-use crate::batch::plan::{Fill, Plan};
 use crate::batch::reasons::ReasonCodes;
 use crate::batch::source::RawChunk;
-use crate::batch::UnseenPolicy;
 use crate::data::csv_chunk::NaMatcher;
 use crate::data::number::{parse_f64, scan_f64};
 use crate::data::options::MissingPolicy;
 use crate::data::Inputs;
 use crate::decide::CostSpec;
 use crate::error::{Error, Position};
-use crate::model::file::ModelFile;
-
-/// Why a row was set aside.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum RejectReason {
-    /// The row has more or fewer fields than the header.
-    FieldCount,
-    /// A quoted field is not closed, or text follows its closing quote.
-    Quoting,
-    /// A field the output carries is not valid UTF-8.
-    Encoding,
-    /// A numeric feature's value is not a number.
-    NotANumber,
-    /// A numeric feature's value is `inf` or `nan`.
-    NotFinite,
-    /// A categorical feature has a level the training data never had.
-    UnseenCategory,
-    /// A missing value the model cannot fill.
-    MissingValue,
-    /// A cost column's value is missing or not a finite number.
-    CostValue,
-    /// The record runs past the record-size cap without ending.
-    RecordSize,
-}
-
-impl RejectReason {
-    /// Every reason, in the order the summary lists them.
-    pub const ALL: [RejectReason; 9] = [
-        RejectReason::FieldCount,
-        RejectReason::Quoting,
-        RejectReason::Encoding,
-        RejectReason::NotANumber,
-        RejectReason::NotFinite,
-        RejectReason::UnseenCategory,
-        RejectReason::MissingValue,
-        RejectReason::CostValue,
-        RejectReason::RecordSize,
-    ];
-
-    /// The reason's name in the reject file and the summary.
-    pub fn name(self) -> &'static str {
-        match self {
-            RejectReason::FieldCount => "field-count",
-            RejectReason::Quoting => "quoting",
-            RejectReason::Encoding => "encoding",
-            RejectReason::NotANumber => "not-a-number",
-            RejectReason::NotFinite => "not-finite",
-            RejectReason::UnseenCategory => "unseen-category",
-            RejectReason::MissingValue => "missing-value",
-            RejectReason::CostValue => "cost-value",
-            RejectReason::RecordSize => "record-size",
-        }
-    }
-}
+use crate::model::drift::{value_bin, DriftReference};
+use crate::train::file::ModelFile;
 
 /// What a pass over the file does with each chunk.
 #[derive(Debug, Clone, Copy)]
@@ -258,41 +203,6 @@ fn trim(mut bytes: &[u8]) -> &[u8] {
     bytes
 }
 
-/// Appends a field to a CSV line, quoted when it must be.
-pub(crate) fn push_field(out: &mut Vec<u8>, field: &[u8]) {
-    if field.iter().any(|&b| matches!(b, b',' | b'"' | b'\n' | b'\r')) {
-        out.push(b'"');
-        for &b in field {
-            if b == b'"' {
-                out.push(b'"');
-            }
-            out.push(b);
-        }
-        out.push(b'"');
-    } else {
-        out.extend_from_slice(field);
-    }
-}
-
-/// Appends a number as the report module writes it: shortest round-trip
-/// digits, scientific below 1e-4.
-#[inline]
-pub(crate) fn push_number(out: &mut Vec<u8>, x: f64) {
-    // Ryu finds shortest round-trip digits several times faster than the
-    // standard library and lays them out the same way for non-integers in
-    // [1e-4, 1e16); everything else goes through the standard library. (In
-    // about 0.2% of 17-digit cases the two pick a different last digit; both
-    // are equally short and read back to the same value.)
-    let magnitude = x.abs();
-    if (1e-4..1e16).contains(&magnitude) && x.fract() != 0.0 {
-        out.extend_from_slice(ryu::Buffer::new().format_finite(x).as_bytes());
-    } else if x != 0.0 && magnitude < 1e-4 {
-        let _ = write!(out, "{x:e}");
-    } else {
-        let _ = write!(out, "{x}");
-    }
-}
-
 /// Parsed rows of a chunk, ready to score.
 struct Rows {
     numeric: Vec<f64>,
@@ -369,13 +279,13 @@ pub fn process(context: &Context<'_>, chunk: &RawChunk, pass: Pass<'_>) -> Chunk
                 result.stats.rejected[reason] += 1;
                 if matches!(pass, Pass::Write { .. }) {
                     let mut out = Vec::new();
-                    push_field(&mut out, problem.column.as_bytes());
+                    crate::records::push_field(&mut out, problem.column.as_bytes());
                     out.push(b',');
                     out.extend_from_slice(problem.reason.name().as_bytes());
                     out.push(b',');
-                    push_field(&mut out, problem.message.as_bytes());
+                    crate::records::push_field(&mut out, problem.message.as_bytes());
                     out.push(b',');
-                    push_field(&mut out, String::from_utf8_lossy(record).as_bytes());
+                    crate::records::push_field(&mut out, String::from_utf8_lossy(record).as_bytes());
                     out.push(b'\n');
                     result.rejects.push((record_line, out));
                 }
@@ -488,32 +398,32 @@ pub fn process(context: &Context<'_>, chunk: &RawChunk, pass: Pass<'_>) -> Chunk
         };
         for &(a, b) in &spans[..plan.id_count] {
             separate(out);
-            push_field(out, &rows.text[a..b]);
+            crate::records::push_field(out, &rows.text[a..b]);
         }
         for c in 0..k {
             separate(out);
-            push_number(out, posteriors[(r, c)]);
+            crate::format::push_number(out, posteriors[(r, c)]);
         }
         if let (Some(spec), Some(costs)) = (context.spec, costs_of(r)) {
             let (action, _) = choose(&costs, place(chunk.index, rows.lines[r]), settled, None);
             stats.actions[action] += 1;
             stats.expected_cost += costs[action];
             separate(out);
-            push_field(out, spec.actions[action].name.as_bytes());
+            crate::records::push_field(out, spec.actions[action].name.as_bytes());
             separate(out);
-            push_number(out, costs[action]);
+            crate::format::push_number(out, costs[action]);
         }
         if let (Some(codes), Some(reasons)) = (context.reasons, &reasons) {
             for i in 0..codes.count {
                 separate(out);
                 if let Some(&f) = reasons[r].get(i) {
-                    push_field(out, codes.features[f].as_bytes());
+                    crate::records::push_field(out, codes.features[f].as_bytes());
                 }
             }
         }
         for &(a, b) in &spans[plan.id_count..] {
             separate(out);
-            push_field(out, &rows.text[a..b]);
+            crate::records::push_field(out, &rows.text[a..b]);
         }
         out.push(b'\n');
     }
@@ -759,40 +669,4 @@ fn take_field(
         }
     }
     Ok(())
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    /// The fast layout reads back exactly, is as short as the report
-    /// module's, and uses an exponent exactly when it does.
-    #[test]
-    fn numbers_are_written_as_the_report_writes_them() {
-        let mut rng = crate::rng::Rng::new(11);
-        let mut values = vec![0.0, -0.0, 1.0, 0.5, 1e-4, 9.999999999999999e-5, 1e16, 123456789.125, 40.0, -3.25, 1e300];
-        for _ in 0..200_000 {
-            let exponent = rng.uniform() * 44.0 - 22.0;
-            let sign = if rng.uniform() < 0.2 { -1.0 } else { 1.0 };
-            values.push(sign * 10f64.powf(exponent) * (1.0 + rng.uniform()));
-            values.push(f64::from_bits(rng.next_u64() >> 2));
-        }
-        for x in values {
-            let mut out = Vec::new();
-            push_number(&mut out, x);
-            let (ours, standard) = (String::from_utf8_lossy(&out).into_owned(), crate::report::exact(x));
-            assert_eq!(ours.parse::<f64>().map(f64::to_bits), Ok(x.to_bits()), "{ours} does not read back as {x:e}");
-            assert_eq!(ours.len(), standard.len(), "{ours} vs {standard}");
-            assert_eq!(ours.contains('e'), standard.contains('e'), "{ours} vs {standard}");
-        }
-    }
-
-    #[test]
-    fn fields_are_quoted_only_when_they_must_be() {
-        let mut out = Vec::new();
-        push_field(&mut out, b"plain");
-        out.push(b'|');
-        push_field(&mut out, b"a,\"b\"");
-        assert_eq!(out, b"plain|\"a,\"\"b\"\"\"");
-    }
 }

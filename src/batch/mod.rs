@@ -19,8 +19,6 @@
 
 pub mod capacity;
 pub mod chunk;
-pub mod drift;
-pub mod plan;
 pub mod reasons;
 pub mod source;
 
@@ -30,9 +28,10 @@ use std::path::PathBuf;
 
 use serde::Serialize;
 
+use crate::apply::plan::{Plan, PlanRequest};
+use crate::apply::{RejectReason, UnseenPolicy};
 use crate::batch::capacity::{limit, limited_actions, Ranking, Settled};
-use crate::batch::chunk::{ChunkResult, ChunkStats, Context, Pass, RejectReason};
-use crate::batch::plan::{Plan, PlanRequest};
+use crate::batch::chunk::{ChunkResult, ChunkStats, Context, Pass};
 use crate::batch::reasons::ReasonCodes;
 use crate::batch::source::{open_chunked, shown_path, ChunkReader, RawChunk};
 use crate::data::csv_chunk::NaMatcher;
@@ -40,19 +39,8 @@ use crate::data::options::MissingPolicy;
 use crate::decide::{Capacity, CostSpec};
 use crate::error::{Error, Result};
 use crate::io::AtomicFile;
-use crate::model::file::ModelFile;
-
-/// What to do with a category the training data never had.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, clap::ValueEnum)]
-pub enum UnseenPolicy {
-    /// Stop the run, naming the line.
-    #[default]
-    Error,
-    /// Set the row aside in the reject file.
-    Reject,
-    /// Take it as a missing value (filled as the model fills those).
-    Missing,
-}
+use crate::model::drift;
+use crate::train::file::ModelFile;
 
 /// Default chunk size: large enough that per-chunk overhead vanishes,
 /// small enough that a few chunks per thread stay in flight.
@@ -394,7 +382,7 @@ fn output_header(file: &ModelFile, plan: &Plan, context: &Context<'_>) -> Vec<u8
         if i > 0 {
             line.push(b',');
         }
-        chunk::push_field(&mut line, name.as_bytes());
+        crate::records::push_field(&mut line, name.as_bytes());
     }
     line.push(b'\n');
     line

@@ -21,8 +21,8 @@ use ndarray::Array2;
 
 use crate::data::Inputs;
 use crate::error::{Error, Result};
-use crate::model::file::ModelFile;
 use crate::model::Family;
+use crate::train::file::ModelFile;
 
 /// Terms this small are rounding, not evidence: a feature with no weight
 /// is never a reason.
@@ -117,7 +117,7 @@ impl ReasonCodes {
             .zip(&self.references)
             .map(|(f, r)| {
                 let text = match r {
-                    Reference::Numeric { value, .. } => crate::report::exact(*value),
+                    Reference::Numeric { value, .. } => crate::format::exact(*value),
                     Reference::Categorical { level, .. } => level.clone(),
                 };
                 (f.clone(), text)

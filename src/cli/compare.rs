@@ -206,7 +206,7 @@ pub fn with_reweighted(
     classes: &[String],
 ) -> String {
     let (Some(to), Some(r)) = (to, reweighted) else { return text };
-    let mix: Vec<String> = classes.iter().zip(to).map(|(c, p)| format!("{c} {}", crate::report::percent(*p))).collect();
+    let mix: Vec<String> = classes.iter().zip(to).map(|(c, p)| format!("{c} {}", crate::format::percent(*p))).collect();
     let table = evaluation_text(r);
     let body = table.split("\n\n").nth(1).unwrap_or("");
     let caution_at = text.find("Caution:").unwrap_or(text.len());
@@ -447,7 +447,7 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
             record.push((assignment.folds[0][i] + 1).to_string());
             record.push(target.classes[dataset.target[i] as usize].clone());
             for p in &predictions {
-                record.extend((0..k).map(|c| crate::report::exact(p.log_posteriors[0][(i, c)].exp())));
+                record.extend((0..k).map(|c| crate::format::exact(p.log_posteriors[0][(i, c)].exp())));
             }
             w.write_record(&record).map_err(io)?;
         }

@@ -13,8 +13,9 @@ use crate::cli::output::{create_dir, write_atomic};
 use crate::cli::Failure;
 use crate::data::{Dataset, MissingPolicy, ReadOptions};
 use crate::demo::{lending, payments, DemoSize, DEFAULT_SEED};
+use crate::format::{count, percent};
 use crate::report::table::{Align, Table};
-use crate::report::{count, percent, wrap, CAUTION};
+use crate::report::{wrap, CAUTION};
 
 /// Monte-Carlo draws for the Bayes-error figures printed by the demo.
 const BAYES_ERROR_DRAWS: usize = 400_000;

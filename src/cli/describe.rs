@@ -15,8 +15,8 @@ use crate::cli::output::write_atomic;
 use crate::cli::Failure;
 use crate::data::schema::{ColumnKind, ColumnRole, PositiveRule, Schema};
 use crate::data::Dataset;
+use crate::format::{count, number, percent};
 use crate::report::table::{Align, Table};
-use crate::report::{count, number, percent};
 
 /// Arguments of `describe`.
 #[derive(Debug, clap::Args)]

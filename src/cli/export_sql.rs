@@ -5,13 +5,13 @@
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-use crate::batch::UnseenPolicy;
+use crate::apply::UnseenPolicy;
 use crate::cli::output::write_atomic;
 use crate::cli::score::{parse_missing, read_costs, PriorArgs};
 use crate::cli::Failure;
 use crate::export::scoring::{scoring_sql, ScoringRequest};
 use crate::export::Dialect;
-use crate::model::file::ModelFile;
+use crate::train::file::ModelFile;
 
 /// Arguments of `export-sql`.
 #[derive(Debug, clap::Args)]

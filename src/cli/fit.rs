@@ -10,14 +10,16 @@ use crate::cli::data_args::DataArgs;
 use crate::cli::Failure;
 use crate::data::Dataset;
 use crate::error::Error;
+use crate::format::{count, number, percent};
 use crate::model::calibration::{fit_isotonic, fit_platt};
 use crate::model::discriminant::{Divisor, LdaParams, QdaParams, Shrinkage};
-use crate::model::file::{ModelFile, TrainingInfo, FORMAT, FORMAT_VERSION};
 use crate::model::logistic::{ClassWeight, LogisticParams};
 use crate::model::naive_bayes::NaiveBayesParams;
 use crate::model::penalised::{LambdaChoice, LambdaRule, Penalty};
-use crate::model::{Family, FamilyParams, PriorSpec};
-use crate::report::{count, number, percent, wrap, CAUTION};
+use crate::model::{Family, FamilyParams};
+use crate::prior::PriorSpec;
+use crate::report::{wrap, CAUTION};
+use crate::train::file::{ModelFile, TrainingInfo, FORMAT, FORMAT_VERSION};
 
 /// `--family` values.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
@@ -338,7 +340,7 @@ fn held_out_summary(
     params: &FamilyParams,
     prior: &[f64],
     seed: u64,
-) -> crate::Result<Option<(crate::model::file::HeldOut, Vec<f64>)>> {
+) -> crate::Result<Option<(crate::train::file::HeldOut, Vec<f64>)>> {
     use crate::data::split::{assign, SplitPlan};
     use crate::evaluate::compare::{cross_predict, Candidate};
     const FOLDS: usize = 5;
@@ -364,7 +366,7 @@ fn held_out_summary(
             mean_posterior[c] += w * row[c].exp();
         }
     }
-    Ok(Some((crate::model::file::HeldOut { folds: FOLDS, confusion, mean_posterior }, log_odds)))
+    Ok(Some((crate::train::file::HeldOut { folds: FOLDS, confusion, mean_posterior }, log_odds)))
 }
 
 /// `fit STATS.csv --from-stats`: the family fitted from an engine's aggregates.
@@ -546,7 +548,7 @@ fn execute(args: Args, talk: bool) -> Result<ExitCode, Failure> {
     let positive = target.positive_index();
     let scores: Vec<f64> =
         file.log_posteriors(&dataset.inputs(), &file.prior).column(positive).iter().map(|v| v.exp()).collect();
-    file.drift_reference = Some(crate::batch::drift::reference(&dataset, &target.positive, &scores));
+    file.drift_reference = Some(crate::model::drift::reference(&dataset, &target.positive, &scores));
     file.validate().map_err(|m| Error::FitFailed { family: family.name().into(), message: m })?;
     file.save(&args.out)?;
 

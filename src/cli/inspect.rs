@@ -10,8 +10,8 @@ use std::process::ExitCode;
 
 use crate::cli::output::write_atomic;
 use crate::cli::Failure;
-use crate::model::file::ModelFile;
 use crate::report::model::{inspect_json, inspect_text};
+use crate::train::file::ModelFile;
 
 /// Arguments of `inspect`.
 #[derive(Debug, clap::Args)]

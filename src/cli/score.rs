@@ -8,12 +8,13 @@ use std::path::PathBuf;
 
 use std::process::ExitCode;
 
-use crate::batch::{Outputs, ScoreJob, Summary, UnseenPolicy};
+use crate::apply::UnseenPolicy;
+use crate::batch::{Outputs, ScoreJob, Summary};
 use crate::cli::data_args::parse_delimiter;
 use crate::cli::fit::prior_spec;
 use crate::cli::Failure;
 use crate::data::options::MissingPolicy;
-use crate::model::file::ModelFile;
+use crate::train::file::ModelFile;
 
 /// Arguments of `score`.
 #[derive(Debug, clap::Args)]

@@ -15,14 +15,15 @@ use std::process::ExitCode;
 
 use serde::Serialize;
 
+use crate::apply::in_memory::read_for_scoring;
 use crate::cli::output::write_atomic;
 use crate::cli::Failure;
-use crate::data::scoring::read_for_scoring;
 use crate::error::Error;
 use crate::evaluate::stats::chi_square_upper;
-use crate::model::file::ModelFile;
+use crate::format::percent;
 use crate::prior::{bbse, bootstrap_interval, em_probabilities, EM_TOLERANCE};
-use crate::report::{percent, wrap, CAUTION};
+use crate::report::{wrap, CAUTION};
+use crate::train::file::ModelFile;
 
 /// Arguments of `shift`.
 #[derive(Debug, clap::Args)]
@@ -127,7 +128,7 @@ pub fn prior_from_file(spec: &str, classes: &[String]) -> crate::Result<Vec<f64>
         path: path.into(),
         message: format!("its estimate does not name every class ({})", classes.join(", ")),
     })?;
-    crate::model::PriorSpec::Explicit(classes.iter().cloned().zip(prior).collect()).resolve(classes, &[], 0)
+    crate::prior::PriorSpec::Explicit(classes.iter().cloned().zip(prior).collect()).resolve(classes, &[], 0)
 }
 
 fn by_class(classes: &[String], values: &[f64]) -> BTreeMap<String, f64> {

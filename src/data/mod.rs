@@ -15,7 +15,6 @@ pub mod dataset;
 pub mod number;
 pub mod options;
 pub mod schema;
-pub mod scoring;
 pub mod split;
 pub mod suggest;
 pub mod summary;

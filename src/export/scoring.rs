@@ -32,17 +32,17 @@
 //! posteriors and a `reject_reason` (SQL has no portable way to stop a
 //! query with a message), so no row is dropped silently.
 
-use crate::batch::chunk::RejectReason;
-use crate::batch::plan::{Fill, Plan, PlanRequest};
-use crate::batch::UnseenPolicy;
+use crate::apply::plan::{Fill, Plan, PlanRequest};
+use crate::apply::RejectReason;
+use crate::apply::UnseenPolicy;
 use crate::data::options::MissingPolicy;
 use crate::decide::{Capacity, CostSpec};
 use crate::error::{Error, Result};
 use crate::export::sql::{self, clamp, greatest, ident, number, output_ident, pick_first, string, Dialect};
 use crate::model::calibration::CalibrationMap;
 use crate::model::design::Encoding;
-use crate::model::file::ModelFile;
 use crate::model::FittedModel;
+use crate::train::file::ModelFile;
 
 /// The floor on exponents: exp(−700) ≈ 1e−304 is still a normal double,
 /// so engines that refuse to underflow (PostgreSQL) never see one.

@@ -42,10 +42,11 @@ use crate::error::{Error, Position, Result};
 use crate::export::sql::{self, ident, number, string, Dialect};
 use crate::model::design::Encoding;
 use crate::model::discriminant::{lda_from_moments, qda_from_moments};
-use crate::model::file::{ModelFile, TrainingInfo, FORMAT, FORMAT_VERSION};
 use crate::model::moments::Moments;
 use crate::model::naive_bayes::{fit_summaries, NaiveBayesSummaries};
-use crate::model::{Diagnostics, Family, FamilyParams, FittedModel, PriorSpec};
+use crate::model::{Diagnostics, Family, FamilyParams, FittedModel};
+use crate::prior::PriorSpec;
+use crate::train::file::{ModelFile, TrainingInfo, FORMAT, FORMAT_VERSION};
 
 /// The value of the `format` column of a statistics result.
 pub const STATS_FORMAT: &str = "baserate-stats-1";
@@ -534,8 +535,8 @@ fn drift_reference(
     levels: &[Vec<String>],
     level_rows: &dyn Fn(usize, &str) -> f64,
     total: f64,
-) -> Option<crate::batch::drift::DriftReference> {
-    use crate::batch::drift::{DriftReference, FeatureBins};
+) -> Option<crate::model::drift::DriftReference> {
+    use crate::model::drift::{DriftReference, FeatureBins};
     let (deciles, bins) = (aggregates.deciles.as_ref()?, aggregates.bins.as_ref()?);
     let mut features = Vec::new();
     for (j, name) in aggregates.numeric.iter().enumerate() {

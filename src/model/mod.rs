@@ -19,13 +19,12 @@
 pub mod calibration;
 pub mod design;
 pub mod discriminant;
-pub mod file;
+pub mod drift;
 pub mod linalg;
 pub mod logistic;
 pub mod moments;
 pub mod naive_bayes;
 pub mod penalised;
-pub mod prior;
 
 use ndarray::Array2;
 use rayon::prelude::*;
@@ -33,8 +32,6 @@ use serde::{Deserialize, Serialize};
 
 use crate::data::{Dataset, Inputs};
 use crate::error::{Error, Result};
-
-pub use prior::PriorSpec;
 
 /// The families, by their command-line names.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]

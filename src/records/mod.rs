@@ -352,6 +352,24 @@ impl Fields {
     }
 }
 
+/// Appends a field to a comma-delimited line, quoted (with its quotes
+/// doubled) when it holds a comma, a quote or a line end: the writing side
+/// of the rules above.
+pub fn push_field(out: &mut Vec<u8>, field: &[u8]) {
+    if field.iter().any(|&b| matches!(b, b',' | b'"' | b'\n' | b'\r')) {
+        out.push(b'"');
+        for &b in field {
+            if b == b'"' {
+                out.push(b'"');
+            }
+            out.push(b);
+        }
+        out.push(b'"');
+    } else {
+        out.extend_from_slice(field);
+    }
+}
+
 /// One record of a whole input held in memory.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct Record<'a> {
@@ -482,5 +500,14 @@ mod tests {
         assert_eq!(split("\"a\"b,1"), Err(FieldError::TextAfterQuote));
         fields.split(b"\"a\"\t\"b\"", b'\t').expect("tab-delimited");
         assert_eq!(fields.len(), 2);
+    }
+
+    #[test]
+    fn fields_are_quoted_only_when_they_must_be() {
+        let mut out = Vec::new();
+        push_field(&mut out, b"plain");
+        out.push(b'|');
+        push_field(&mut out, b"a,\"b\"");
+        assert_eq!(out, b"plain|\"a,\"\"b\"\"\"");
     }
 }

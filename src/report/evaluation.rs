@@ -5,8 +5,9 @@
 use plotters::prelude::*;
 
 use crate::evaluate::compare::{Evaluation, LearningPoint};
+use crate::format::{count, number};
 use crate::report::table::{Align, Table};
-use crate::report::{count, number, wrap, CAUTION};
+use crate::report::{wrap, CAUTION};
 
 /// Escapes text for HTML (names and values come from the data).
 pub fn escape(text: &str) -> String {

@@ -5,12 +5,13 @@ use std::collections::BTreeMap;
 
 use serde::Serialize;
 
+use crate::format::{count, number, percent};
 use crate::model::discriminant::DiscriminantModel;
-use crate::model::file::ModelFile;
 use crate::model::logistic::{reference_class, LogisticModel};
 use crate::model::FittedModel;
 use crate::report::table::{Align, Table};
-use crate::report::{count, number, percent, wrap, CAUTION};
+use crate::report::{wrap, CAUTION};
+use crate::train::file::ModelFile;
 
 pub use crate::evaluate::stats::{two_sided_p, NORMAL_975};
 

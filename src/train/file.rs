@@ -12,8 +12,8 @@ use serde::{Deserialize, Serialize};
 
 use crate::data::Schema;
 use crate::error::{Error, Result};
-use crate::model::prior::PRIOR_SUM_TOLERANCE;
 use crate::model::{Diagnostics, Family, FamilyParams, FittedModel};
+use crate::prior::spec::PRIOR_SUM_TOLERANCE;
 
 /// The format name every model file carries.
 pub const FORMAT: &str = "baserate-model";
@@ -86,7 +86,7 @@ pub struct ModelFile {
     /// The training rows' distribution, binned, for drift checks when
     /// scoring (absent in files written before it was kept).
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub drift_reference: Option<crate::batch::drift::DriftReference>,
+    pub drift_reference: Option<crate::model::drift::DriftReference>,
 }
 
 /// What out-of-fold predictions of the training rows showed.

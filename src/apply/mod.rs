@@ -1,0 +1,76 @@
+//! A model's schema applied to rows: the header checked against the
+//! schema, what each field feeds, the fills for missing and unseen values,
+//! and the reasons a row is set aside. The streaming job ([`crate::batch`]),
+//! the SQL export ([`crate::export`]) and whole-file reading for `shift`
+//! ([`in_memory`]) all take these rules from here.
+//!
+//! - [`plan`]: the header checked against the schema before any row is read;
+//! - [`in_memory`]: a whole file read against a training schema.
+
+pub mod in_memory;
+pub mod plan;
+
+/// What to do with a category the training data never had.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, clap::ValueEnum)]
+pub enum UnseenPolicy {
+    /// Stop the run, naming the line.
+    #[default]
+    Error,
+    /// Set the row aside in the reject file.
+    Reject,
+    /// Take it as a missing value (filled as the model fills those).
+    Missing,
+}
+
+/// Why a row was set aside.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum RejectReason {
+    /// The row has more or fewer fields than the header.
+    FieldCount,
+    /// A quoted field is not closed, or text follows its closing quote.
+    Quoting,
+    /// A field the output carries is not valid UTF-8.
+    Encoding,
+    /// A numeric feature's value is not a number.
+    NotANumber,
+    /// A numeric feature's value is `inf` or `nan`.
+    NotFinite,
+    /// A categorical feature has a level the training data never had.
+    UnseenCategory,
+    /// A missing value the model cannot fill.
+    MissingValue,
+    /// A cost column's value is missing or not a finite number.
+    CostValue,
+    /// The record runs past the record-size cap without ending.
+    RecordSize,
+}
+
+impl RejectReason {
+    /// Every reason, in the order the summary lists them.
+    pub const ALL: [RejectReason; 9] = [
+        RejectReason::FieldCount,
+        RejectReason::Quoting,
+        RejectReason::Encoding,
+        RejectReason::NotANumber,
+        RejectReason::NotFinite,
+        RejectReason::UnseenCategory,
+        RejectReason::MissingValue,
+        RejectReason::CostValue,
+        RejectReason::RecordSize,
+    ];
+
+    /// The reason's name in the reject file and the summary.
+    pub fn name(self) -> &'static str {
+        match self {
+            RejectReason::FieldCount => "field-count",
+            RejectReason::Quoting => "quoting",
+            RejectReason::Encoding => "encoding",
+            RejectReason::NotANumber => "not-a-number",
+            RejectReason::NotFinite => "not-finite",
+            RejectReason::UnseenCategory => "unseen-category",
+            RejectReason::MissingValue => "missing-value",
+            RejectReason::CostValue => "cost-value",
+            RejectReason::RecordSize => "record-size",
+        }
+    }
+}
