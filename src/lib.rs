@@ -1,8 +1,10 @@
 //! baserate: Bayes-rule classifiers for credit-risk and fraud work, where the
 //! class mix of the training data is not the mix the model will meet.
 //!
-//! The library owns every computation; the `baserate` binary only parses
-//! arguments and calls [`cli::run`]. Data flows one way:
+//! The library owns every computation; the `baserate` binary (its command
+//! line lives beside `src/main.rs`, in `src/cli/`) only parses arguments,
+//! calls the library and prints. The library compiles without the command
+//! line's dependencies (`default-features = false`). Data flows one way:
 //! [`data`] → models → priors → decisions → evaluation → reports, with the
 //! invented demo scenarios in [`demo`].
 
@@ -13,7 +15,6 @@
 
 pub mod apply;
 pub mod batch;
-pub mod cli;
 pub mod data;
 pub mod decide;
 pub mod demo;
@@ -27,6 +28,7 @@ pub mod prior;
 pub mod records;
 pub mod report;
 pub mod rng;
+pub mod tails;
 pub mod train;
 
 /// The caution printed with every report: what baserate's output is and is

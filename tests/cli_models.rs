@@ -324,6 +324,59 @@ fn shift_estimates_the_new_base_rate() {
     assert_eq!(code, 0, "{err}");
 }
 
+/// `shift` reads the new rows as `score` does: a missing value and an
+/// unseen level are filled or set aside by the same policies.
+#[test]
+fn shift_applies_the_scoring_policies() {
+    let dir = temp_dir();
+    lending(dir.path());
+    let mut args = vec!["fit"];
+    args.extend(LENDING);
+    args.extend(["--family", "lda", "-o", "m.json"]);
+    let (code, _, err) = run(dir.path(), &args);
+    assert_eq!(code, 0, "{err}");
+    let text = std::fs::read_to_string(dir.path().join("new.csv")).expect("new");
+    let mut lines: Vec<String> = text.lines().map(String::from).collect();
+    // Line 3: income missing; line 6: a housing level training never had.
+    let mut fields: Vec<String> = lines[2].split(',').map(String::from).collect();
+    fields[5] = String::new();
+    lines[2] = fields.join(",");
+    let mut fields: Vec<String> = lines[5].split(',').map(String::from).collect();
+    fields[3] = "houseboat".into();
+    lines[5] = fields.join(",");
+    write(dir.path(), "odd.csv", (lines.join("\n") + "\n").as_bytes());
+
+    let (code, _, err) = run(dir.path(), &["shift", "m.json", "odd.csv"]);
+    assert_eq!(code, 1);
+    assert!(err.contains("odd.csv, line 6") && err.contains("housing") && err.contains("houseboat"), "{err}");
+
+    let (code, out, err) =
+        run(dir.path(), &["shift", "m.json", "odd.csv", "--missing", "impute", "--unseen", "missing", "--json", "-"]);
+    assert_eq!(code, 0, "{err}");
+    let v: Value = serde_json::from_str(&out).expect("shift json");
+    assert_eq!(v["rows"], 5000);
+
+    let (code, _, err) = run(dir.path(), &["shift", "m.json", "odd.csv", "--unseen", "reject"]);
+    assert_eq!(code, 2, "{err}");
+    let args = ["shift", "m.json", "odd.csv", "--unseen", "reject", "--rejects", "r.csv", "--json", "s.json"];
+    let (code, _, err) = run(dir.path(), &args);
+    assert_eq!(code, 0, "{err}");
+    let v: Value = serde_json::from_str(&std::fs::read_to_string(dir.path().join("s.json")).expect("s")).expect("json");
+    assert_eq!(v["rows"], 4999);
+    let rejects = std::fs::read_to_string(dir.path().join("r.csv")).expect("rejects");
+    let rows: Vec<&str> = rejects.lines().collect();
+    assert_eq!(rows.len(), 2, "{rejects}");
+    assert!(rows[1].starts_with("6,housing,unseen-category,houseboat,"), "{rejects}");
+
+    // A semicolon-delimited copy reads the same.
+    let semicolons = text.replace(',', ";");
+    write(dir.path(), "semi.csv", semicolons.as_bytes());
+    let (code, out, err) = run(dir.path(), &["shift", "m.json", "semi.csv", "--delimiter", ";", "--json", "-"]);
+    assert_eq!(code, 0, "{err}");
+    let (_, plain, _) = run(dir.path(), &["shift", "m.json", "new.csv", "--json", "-"]);
+    assert_eq!(out, plain);
+}
+
 #[test]
 fn sampled_training_data_scores_at_the_population_mix() {
     let dir = temp_dir();

@@ -19,6 +19,7 @@ const FLOORS: &[(&str, u32)] = &[
     ("rng", 0),      // small utility: seeded random numbers
     ("format", 1),   // number formatting
     ("io", 1),       // small utility: atomic files, hashes and timestamps
+    ("tails", 1),    // tail probabilities of the normal and chi-square distributions
     ("records", 2),  // the one CSV record splitter and field parser
     ("demo", 2),     // invented scenarios: only generate data
     ("data", 3),     // datasets, schemas and reading them

@@ -1,31 +1,72 @@
-//! Reading a file to score against a training schema: the same inputs, in
-//! the same order, with the same levels and the same missing-value policy.
+//! A whole file read against a training schema, held in memory: the same
+//! header check, fills, unseen-level handling and reject reasons as the
+//! streaming job (both go through [`crate::apply::row::read_rows`]), for
+//! work that needs every row at once (`shift`).
 //!
 //! Every column the model needs must be present (an error names the first
-//! one missing, before anything is scored); other columns are ignored.
-//! Columns may come in any order. A category the training data never had is
-//! an error naming its first line; so is a missing value the training
-//! policy cannot fill. This first scoring path holds the file in memory.
+//! one missing, before any row is read); other columns are ignored, and
+//! columns may come in any order.
 
-use ndarray::{Array2, ShapeBuilder};
+use ndarray::Array2;
 
-use crate::data::csv_read::{read_path, ColumnValues, ReadTable, MISSING_CODE};
-use crate::data::dataset::{Inputs, MISSING_LEVEL};
-use crate::data::options::{MissingPolicy, ReadOptions};
-use crate::data::schema::{ColumnKind, ColumnRole, Imputation, Schema};
-use crate::error::{Error, Position, Result};
+use crate::apply::plan::{Plan, PlanRequest};
+use crate::apply::row::{read_rows, reject_fields, Policies, RowCounts, RowRules, Rows};
+use crate::apply::UnseenPolicy;
+use crate::data::dataset::Inputs;
+use crate::data::options::MissingPolicy;
+use crate::data::schema::Schema;
+use crate::error::{Error, Result};
+use crate::records::Dialect;
 
-/// Rows ready for a model trained on `schema`.
+/// How a file to score is read.
+#[derive(Debug, Clone)]
+pub struct ScoringRequest {
+    /// Identifier columns kept with each row.
+    pub ids: Vec<String>,
+    /// How records are delimited.
+    pub dialect: Dialect,
+    /// Missing-value tokens; `None`: the training file's.
+    pub na_tokens: Option<Vec<String>>,
+    /// Missing values; `None`: the training policy.
+    pub missing: Option<MissingPolicy>,
+    /// Unseen categories.
+    pub unseen: UnseenPolicy,
+    /// Rows with a problem are set aside (kept in [`ScoringData::rejects`])
+    /// instead of stopping the reading.
+    pub keep_rejects: bool,
+}
+
+impl Default for ScoringRequest {
+    fn default() -> Self {
+        ScoringRequest {
+            ids: Vec::new(),
+            dialect: Dialect::default(),
+            na_tokens: None,
+            missing: None,
+            unseen: UnseenPolicy::Error,
+            keep_rejects: false,
+        }
+    }
+}
+
+/// Rows ready for a model trained on the schema.
 #[derive(Debug, Clone)]
 pub struct ScoringData {
-    /// Numeric inputs, columns as [`Schema::numeric_inputs`].
+    /// Model inputs, one row per kept record (indicator columns included).
     pub numeric: Array2<f64>,
     /// Categorical codes in the schema's levels.
     pub categorical: Vec<Vec<u32>>,
     /// Identifier columns: (name, values).
     pub ids: Vec<(String, Vec<String>)>,
-    /// Missing values filled under the training policy, per column.
-    pub imputed: Vec<(String, usize)>,
+    /// Missing values filled, per column (columns with none left out).
+    pub imputed: Vec<(String, u64)>,
+    /// Rows read, kept and set aside.
+    pub counts: RowCounts,
+    /// Rows set aside, in file order: their line and the reject file's
+    /// other fields (`column,reason,message,row` and a line end).
+    pub rejects: Vec<(u64, Vec<u8>)>,
+    /// Each kept row's line in the file.
+    pub lines: Vec<u64>,
 }
 
 impl ScoringData {
@@ -34,154 +75,106 @@ impl ScoringData {
         Inputs { numeric: self.numeric.view(), categorical: &self.categorical }
     }
 
-    /// Number of rows.
+    /// Number of rows kept.
     pub fn rows(&self) -> usize {
         self.numeric.nrows()
     }
 }
 
-/// Reads `path` for scoring with a model trained on `schema`.
-/// `delimiter` and `na_tokens` default to the training file's conventions
-/// (the schema's tokens) when `None`.
-pub fn read_for_scoring(
-    path: &std::path::Path,
-    schema: &Schema,
-    ids: &[String],
-    delimiter: u8,
-    na_tokens: Option<Vec<String>>,
-) -> Result<ScoringData> {
-    let mut options = ReadOptions::new(String::new());
-    options.delimiter = delimiter;
-    options.na_tokens = na_tokens.unwrap_or_else(|| schema.na_tokens.clone());
-    options.ids = ids.to_vec();
-    let features: Vec<_> = schema.features().collect();
-    options.model_columns = Some(features.iter().map(|c| c.name.clone()).collect());
-    options.numeric = features.iter().filter(|c| c.kind == Some(ColumnKind::Numeric)).map(|c| c.name.clone()).collect();
-    options.categorical =
-        features.iter().filter(|c| c.kind == Some(ColumnKind::Categorical)).map(|c| c.name.clone()).collect();
-    let table = read_path(path, &options)?;
-    from_table(table, schema)
+/// Reads `path` (`-` for stdin) for scoring with a model trained on `schema`.
+pub fn read_for_scoring(path: &std::path::Path, schema: &Schema, request: &ScoringRequest) -> Result<ScoringData> {
+    let shown = if path.as_os_str() == "-" { "<stdin>".to_string() } else { path.display().to_string() };
+    let bytes = if path.as_os_str() == "-" {
+        let mut bytes = Vec::new();
+        std::io::Read::read_to_end(&mut std::io::stdin(), &mut bytes).map_err(|e| Error::io(&shown, e))?;
+        bytes
+    } else {
+        std::fs::read(path).map_err(|e| Error::io(&shown, e))?
+    };
+    read_bytes_for_scoring(&shown, &bytes, schema, request)
 }
 
-fn from_table(table: ReadTable, schema: &Schema) -> Result<ScoringData> {
-    let rows = table.rows;
-    let path = table.path.clone();
-    let column = |name: &str| table.columns.iter().find(|c| c.name == name);
-    let policy = schema.missing_policy;
-    let missing_error = |name: &str, line: u64, why: &str| Error::UnfillableMissing {
-        at: Position { path: path.clone(), line },
-        column: name.to_string(),
-        reason: why.to_string(),
-    };
-    let mut imputed = Vec::new();
-
-    let numeric_features: Vec<_> = schema.features().filter(|c| c.kind == Some(ColumnKind::Numeric)).collect();
-    let indicators =
-        numeric_features.iter().filter(|c| matches!(c.imputation, Some(Imputation::Median { .. }))).count();
-    let width = numeric_features.len() + indicators;
-    let mut numeric = Array2::zeros((rows, width).f());
-    let mut indicator_column = numeric_features.len();
-    for (j, feature) in numeric_features.iter().enumerate() {
-        let Some(read) = column(&feature.name) else {
-            return Err(Error::SchemaMismatch { path, message: format!("the model needs column '{}'", feature.name) });
-        };
-        let ColumnValues::NumericFeature { index } = read.values else {
-            return Err(Error::SchemaMismatch {
-                path,
-                message: format!("column '{}' is numeric in the model but was not read as numbers", feature.name),
-            });
-        };
-        let source = table.numeric.column(index);
-        if let Some(line) = read.facts.first_missing_line {
-            let fill =
-                match (&feature.imputation, policy) {
-                    (Some(Imputation::Median { value, .. }), _) => *value,
-                    (_, MissingPolicy::Impute) => match feature.numeric.as_ref().and_then(|s| s.known_median()) {
-                        Some(median) => median,
-                        None => return Err(missing_error(
-                            &feature.name,
-                            line,
-                            "the model was fitted from aggregates without deciles, so it has no median to fill with",
-                        )),
-                    },
-                    (_, MissingPolicy::Error) => {
-                        return Err(missing_error(&feature.name, line, "the model was fitted with --missing error"))
-                    }
-                    (_, MissingPolicy::DropRows) => {
-                        return Err(missing_error(
-                            &feature.name,
-                            line,
-                            "the model was fitted with --missing drop-rows, and scoring never drops rows",
-                        ))
-                    }
-                };
-            imputed.push((feature.name.clone(), read.facts.missing));
-            numeric.column_mut(j).iter_mut().zip(source).for_each(|(t, v)| *t = if v.is_nan() { fill } else { *v });
-        } else {
-            numeric.column_mut(j).assign(&source);
-        }
-        if let Some(Imputation::Median { .. }) = feature.imputation {
-            numeric
-                .column_mut(indicator_column)
-                .iter_mut()
-                .zip(source)
-                .for_each(|(t, v)| *t = f64::from(u8::from(v.is_nan())));
-            indicator_column += 1;
-        }
+/// [`read_for_scoring`] on bytes held in memory; `path` is only used in
+/// messages.
+pub fn read_bytes_for_scoring(
+    path: &str,
+    bytes: &[u8],
+    schema: &Schema,
+    request: &ScoringRequest,
+) -> Result<ScoringData> {
+    let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
+    let (names, data_start, first_line) = crate::data::csv_read::read_header(path, bytes, &request.dialect)?;
+    let missing = request.missing.unwrap_or(schema.missing_policy);
+    let plan_request = PlanRequest { ids: request.ids.clone(), keep: Vec::new(), cost_columns: Vec::new(), missing };
+    let plan = Plan::new(path, &names, schema, &plan_request)?;
+    let na_tokens = request.na_tokens.as_ref().unwrap_or(&schema.na_tokens);
+    let policies = Policies { unseen: request.unseen, missing, keep_rejects: request.keep_rejects };
+    let rules = RowRules::new(path, &plan, request.dialect, na_tokens, policies);
+    let mut rows = Rows::new(&plan);
+    let mut counts = RowCounts::new(&plan);
+    let mut rejects = Vec::new();
+    let mut on_reject =
+        |line: u64, problem: &_, record: &[u8]| rejects.push((first_line + line, reject_fields(problem, record)));
+    let data = &bytes[data_start..];
+    if let Err((line, problem)) = read_rows(&rules, data, true, &mut rows, &mut counts, &mut on_reject) {
+        return Err(rules.error(first_line + line, problem));
     }
-
-    let mut categorical = Vec::new();
-    for feature in schema.features().filter(|c| c.kind == Some(ColumnKind::Categorical)) {
-        let Some(read) = column(&feature.name) else {
-            return Err(Error::SchemaMismatch { path, message: format!("the model needs column '{}'", feature.name) });
-        };
-        let ColumnValues::Categorical { codes, levels, first_lines } = &read.values else {
-            return Err(Error::SchemaMismatch {
-                path,
-                message: format!("column '{}' is categorical in the model but was not read so", feature.name),
-            });
-        };
-        let known = feature.categorical.as_ref().map(|c| c.levels.clone()).unwrap_or_default();
-        let missing_code = known.iter().position(|l| l == MISSING_LEVEL && feature.imputation.is_some());
-        let mut map = Vec::with_capacity(levels.len());
-        for (level, &line) in levels.iter().zip(first_lines) {
-            match known.iter().position(|k| k == level) {
-                Some(code) => map.push(code as u32),
-                None => {
-                    return Err(Error::UnseenCategory {
-                        at: Position { path, line },
-                        column: feature.name.clone(),
-                        level: level.clone(),
-                        known: known.iter().filter(|k| k.as_str() != MISSING_LEVEL).cloned().collect(),
-                    })
-                }
-            }
-        }
-        if let Some(line) = read.facts.first_missing_line {
-            if missing_code.is_none() {
-                return Err(missing_error(
-                    &feature.name,
-                    line,
-                    "the training data had no missing values in this column, so the model has no level for them",
-                ));
-            }
-            imputed.push((feature.name.clone(), read.facts.missing));
-        }
-        categorical.push(
-            codes
-                .iter()
-                .map(|&c| if c == MISSING_CODE { missing_code.unwrap_or(0) as u32 } else { map[c as usize] })
-                .collect(),
-        );
-    }
-    let ids = table
-        .columns
+    let n = rows.len();
+    let numeric = Array2::from_shape_vec((n, plan.input_width), std::mem::take(&mut rows.numeric))
+        .map_err(|_| Error::Usage("internal error: the inputs read did not line up".into()))?;
+    let texts = plan.text_names.len();
+    let ids = plan.text_names[..plan.id_count]
         .iter()
-        .filter(|c| c.role == ColumnRole::Id)
-        .filter_map(|c| match &c.values {
-            ColumnValues::Text(values) => Some((c.name.clone(), values.clone())),
-            _ => None,
+        .enumerate()
+        .map(|(t, name)| {
+            let values = (0..n)
+                .map(|r| {
+                    let (a, b) = rows.text_spans[r * texts + t];
+                    String::from_utf8_lossy(&rows.text[a..b]).into_owned()
+                })
+                .collect();
+            (name.clone(), values)
         })
         .collect();
-    Ok(ScoringData { numeric, categorical, ids, imputed })
+    let feature_names = plan.numeric.iter().map(|f| &f.name).chain(plan.categorical.iter().map(|f| &f.name));
+    let imputed = feature_names
+        .zip(&counts.filled)
+        .filter(|(_, &filled)| filled > 0)
+        .map(|(name, &filled)| (name.clone(), filled))
+        .collect();
+    let lines = rows.lines.iter().map(|l| first_line + l).collect();
+    Ok(ScoringData {
+        numeric,
+        categorical: std::mem::take(&mut rows.categorical),
+        ids,
+        imputed,
+        counts,
+        rejects,
+        lines,
+    })
+}
+
+/// The class mix of the new portfolio in `path`, estimated from the
+/// posteriors `file` gives its rows at the class mix they are calibrated
+/// to (see [`crate::prior::shift`]); the rows as read come back too (for
+/// their counts and rejects).
+pub fn estimate_portfolio_shift(
+    file: &crate::train::file::ModelFile,
+    path: &std::path::Path,
+    request: &ScoringRequest,
+    options: &crate::prior::shift::ShiftOptions,
+) -> Result<(crate::prior::shift::ShiftEstimate, ScoringData)> {
+    let data = read_for_scoring(path, &file.schema, request)?;
+    let base = file.calibrated_to().to_vec();
+    let posteriors: Vec<f64> = file.log_posteriors(&data.inputs(), &base).iter().map(|v| v.exp()).collect();
+    let confusion = file.held_out.as_ref().map(|h| h.confusion.clone());
+    let input = crate::prior::shift::ShiftInput {
+        classes: &file.classes,
+        positive: file.positive_index(),
+        training_prior: &base,
+        posteriors: &posteriors,
+        confusion: confusion.as_deref(),
+    };
+    let estimate = crate::prior::shift::estimate_shift(&input, options)?;
+    Ok((estimate, data))
 }

@@ -5,13 +5,15 @@
 //! ([`in_memory`]) all take these rules from here.
 //!
 //! - [`plan`]: the header checked against the schema before any row is read;
+//! - [`row`]: records turned into model inputs, or set aside with a reason;
 //! - [`in_memory`]: a whole file read against a training schema.
 
 pub mod in_memory;
 pub mod plan;
+pub mod row;
 
 /// What to do with a category the training data never had.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, clap::ValueEnum)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
 pub enum UnseenPolicy {
     /// Stop the run, naming the line.
     #[default]
@@ -20,6 +22,31 @@ pub enum UnseenPolicy {
     Reject,
     /// Take it as a missing value (filled as the model fills those).
     Missing,
+}
+
+impl UnseenPolicy {
+    /// Every policy, in the order they are listed.
+    pub const ALL: [UnseenPolicy; 3] = [UnseenPolicy::Error, UnseenPolicy::Reject, UnseenPolicy::Missing];
+
+    /// The policy's name: `error`, `reject` or `missing`.
+    pub fn name(self) -> &'static str {
+        match self {
+            UnseenPolicy::Error => "error",
+            UnseenPolicy::Reject => "reject",
+            UnseenPolicy::Missing => "missing",
+        }
+    }
+}
+
+impl std::str::FromStr for UnseenPolicy {
+    type Err = String;
+
+    fn from_str(text: &str) -> std::result::Result<Self, String> {
+        UnseenPolicy::ALL
+            .into_iter()
+            .find(|p| p.name() == text)
+            .ok_or_else(|| format!("'{text}' is not a policy for unseen categories (error, reject or missing)"))
+    }
 }
 
 /// Why a row was set aside.

@@ -5,17 +5,13 @@
 
 use ndarray::Array2;
 
-use crate::apply::plan::{Fill, Plan};
-use crate::apply::{RejectReason, UnseenPolicy};
+use crate::apply::row::{read_rows, Problem, RowCounts, RowRules, Rows};
 use crate::batch::capacity::{choose, Settled};
 use crate::batch::reasons::ReasonCodes;
 use crate::batch::source::RawChunk;
-use crate::data::csv_chunk::NaMatcher;
-use crate::data::number::{parse_f64, scan_f64};
-use crate::data::options::MissingPolicy;
 use crate::data::Inputs;
 use crate::decide::CostSpec;
-use crate::error::{Error, Position};
+use crate::error::Error;
 use crate::model::drift::{value_bin, DriftReference};
 use crate::train::file::ModelFile;
 
@@ -40,15 +36,10 @@ pub enum Pass<'a> {
 
 /// What every chunk of one run shares.
 pub struct Context<'a> {
-    pub(crate) path: &'a str,
+    /// The schema's rules for turning records into model inputs.
+    pub(crate) rules: RowRules<'a>,
     pub(crate) file: &'a ModelFile,
-    pub(crate) plan: &'a Plan,
     pub(crate) prior: &'a [f64],
-    pub(crate) dialect: crate::records::Dialect,
-    pub(crate) na: NaMatcher,
-    pub(crate) unseen: UnseenPolicy,
-    pub(crate) missing: MissingPolicy,
-    pub(crate) keep_rejects: bool,
     pub(crate) spec: Option<&'a CostSpec>,
     pub(crate) reasons: Option<&'a ReasonCodes>,
     /// The drift reference and, per plan feature (numeric then
@@ -65,7 +56,7 @@ pub struct ChunkStats {
     /// Rows scored.
     pub rows_scored: u64,
     /// Rows set aside, per [`RejectReason::ALL`].
-    pub rejected: [u64; RejectReason::ALL.len()],
+    pub rejected: [u64; crate::apply::RejectReason::ALL.len()],
     /// Per numeric feature: values below the training minimum.
     pub below_range: Vec<u64>,
     /// Per numeric feature: values above the training maximum.
@@ -88,7 +79,7 @@ pub struct ChunkStats {
 
 impl ChunkStats {
     fn new(context: &Context<'_>) -> Self {
-        let plan = context.plan;
+        let plan = context.rules.plan;
         let (feature_bins, score_bins) = match &context.drift {
             Some((reference, _)) => (
                 reference.features.iter().map(|f| vec![0; f.shares.len()]).collect(),
@@ -107,6 +98,15 @@ impl ChunkStats {
             score_bins,
             ..ChunkStats::default()
         }
+    }
+
+    /// Adds the counts of a chunk's reading.
+    fn add_counts(&mut self, counts: &RowCounts) {
+        self.rows_read += counts.rows_read;
+        self.rows_scored += counts.rows_kept;
+        self.rejected.iter_mut().zip(&counts.rejected).for_each(|(x, y)| *x += y);
+        self.filled.iter_mut().zip(&counts.filled).for_each(|(x, y)| *x += y);
+        self.unseen_as_missing.iter_mut().zip(&counts.unseen_as_missing).for_each(|(x, y)| *x += y);
     }
 
     /// Adds another chunk's figures.
@@ -169,7 +169,7 @@ impl Fatal {
     /// The error, with the row's line made absolute.
     pub fn into_error(self, context: &Context<'_>, first_line: u64) -> Error {
         match self {
-            Fatal::Row(line, problem) => fatal_error(context, first_line + line, problem),
+            Fatal::Row(line, problem) => context.rules.error(first_line + line, problem),
             Fatal::Error(e) => e,
         }
     }
@@ -183,115 +183,30 @@ fn place(chunk: usize, line: u64) -> u128 {
     ((chunk as u128) << 64) | u128::from(line)
 }
 
-/// A row-level problem: the reason, the column (if one) and the detail.
-#[derive(Debug)]
-pub struct Problem {
-    reason: RejectReason,
-    column: String,
-    message: String,
-}
-
-/// Trims spaces, tabs and carriage returns from both ends.
-#[inline]
-fn trim(mut bytes: &[u8]) -> &[u8] {
-    while let [b' ' | b'\t' | b'\r', rest @ ..] = bytes {
-        bytes = rest;
-    }
-    while let [rest @ .., b' ' | b'\t' | b'\r'] = bytes {
-        bytes = rest;
-    }
-    bytes
-}
-
-/// Parsed rows of a chunk, ready to score.
-struct Rows {
-    numeric: Vec<f64>,
-    numeric_missing: Vec<bool>,
-    categorical: Vec<Vec<u32>>,
-    text: Vec<u8>,
-    text_spans: Vec<(usize, usize)>,
-    costs: Vec<f64>,
-    lines: Vec<u64>,
-}
-
 /// Processes one chunk.
 pub fn process(context: &Context<'_>, chunk: &RawChunk, pass: Pass<'_>) -> ChunkResult {
-    let plan = context.plan;
+    let plan = context.rules.plan;
     let mut result = ChunkResult { stats: ChunkStats::new(context), ..ChunkResult::default() };
-    let mut rows = Rows {
-        numeric: Vec::new(),
-        numeric_missing: Vec::new(),
-        categorical: vec![Vec::new(); plan.categorical.len()],
-        text: Vec::new(),
-        text_spans: Vec::new(),
-        costs: Vec::new(),
-        lines: Vec::new(),
-    };
+    let mut counts = RowCounts::new(plan);
+    let mut rows = Rows::new(plan);
     let width = plan.input_width;
     let bytes = chunk.bytes.as_slice();
-    let mut fields = crate::records::Fields::new();
-    let mut position = 0;
-    let mut line = 0u64;
-    while let Some(end) = crate::records::record_end(bytes, position, &context.dialect, true) {
-        let record = &bytes[position..end.end];
-        let record_line = line;
-        line += crate::records::count_line_ends(&bytes[position..end.next]);
-        position = end.next;
-        if record.is_empty() {
-            continue;
+    let rules = &context.rules;
+    let write = matches!(pass, Pass::Write { .. });
+    let mut on_reject = |line: u64, problem: &Problem, record: &[u8]| {
+        if write {
+            result.rejects.push((line, crate::apply::row::reject_fields(problem, record)));
         }
-        // A record cut at the chunk's end inside quotes, in a chunk that
-        // does not end the input, was cut by the size cap.
-        let oversized = end.oversized || (end.unclosed && !chunk.last);
-        result.stats.rows_read += 1;
-        let marks = (rows.numeric.len(), rows.numeric_missing.len(), rows.text.len(), rows.text_spans.len());
-        let cost_mark = rows.costs.len();
-        let parsed = if oversized {
-            Err(Problem {
-                reason: RejectReason::RecordSize,
-                column: String::new(),
-                message: crate::data::csv_read::oversized_message(&context.dialect),
-            })
-        } else {
-            parse_row(context, record, &mut fields, &mut rows, &mut result.stats)
-        };
-        match parsed {
-            Ok(()) => {
-                rows.lines.push(record_line);
-                result.stats.rows_scored += 1;
-            }
-            Err(problem) => {
-                rows.numeric.truncate(marks.0);
-                rows.numeric_missing.truncate(marks.1);
-                rows.text.truncate(marks.2);
-                rows.text_spans.truncate(marks.3);
-                rows.costs.truncate(cost_mark);
-                let scored = rows.lines.len();
-                rows.categorical.iter_mut().for_each(|c| c.truncate(scored));
-                let fatal = !context.keep_rejects
-                    || (problem.reason == RejectReason::MissingValue && context.missing == MissingPolicy::Error)
-                    || (problem.reason == RejectReason::UnseenCategory && context.unseen == UnseenPolicy::Error);
-                if fatal {
-                    result.fatal = Some(Fatal::Row(record_line, problem));
-                    return result;
-                }
-                let reason = RejectReason::ALL.iter().position(|r| *r == problem.reason).unwrap_or(0);
-                result.stats.rejected[reason] += 1;
-                if matches!(pass, Pass::Write { .. }) {
-                    let mut out = Vec::new();
-                    crate::records::push_field(&mut out, problem.column.as_bytes());
-                    out.push(b',');
-                    out.extend_from_slice(problem.reason.name().as_bytes());
-                    out.push(b',');
-                    crate::records::push_field(&mut out, problem.message.as_bytes());
-                    out.push(b',');
-                    crate::records::push_field(&mut out, String::from_utf8_lossy(record).as_bytes());
-                    out.push(b'\n');
-                    result.rejects.push((record_line, out));
-                }
-            }
+    };
+    let read = read_rows(rules, bytes, chunk.last, &mut rows, &mut counts, &mut on_reject);
+    result.stats.add_counts(&counts);
+    let line = match read {
+        Ok(lines) => lines,
+        Err((line, problem)) => {
+            result.fatal = Some(Fatal::Row(line, problem));
+            return result;
         }
-    }
+    };
     result.newlines = line;
     if matches!(pass, Pass::Count) {
         return result;
@@ -428,245 +343,4 @@ pub fn process(context: &Context<'_>, chunk: &RawChunk, pass: Pass<'_>) -> Chunk
         out.push(b'\n');
     }
     result
-}
-
-/// The error that stops a run at a row it cannot set aside.
-fn fatal_error(context: &Context<'_>, line: u64, problem: Problem) -> Error {
-    let at = Position { path: context.path.to_string(), line };
-    match problem.reason {
-        RejectReason::UnseenCategory if context.unseen == UnseenPolicy::Error => {
-            let known = context
-                .plan
-                .categorical
-                .iter()
-                .find(|c| c.name == problem.column)
-                .map(|c| {
-                    c.levels.iter().filter(|l| l.as_str() != crate::data::dataset::MISSING_LEVEL).cloned().collect()
-                })
-                .unwrap_or_default();
-            let level = problem.message.clone();
-            Error::UnseenCategory { at, column: problem.column, level, known }
-        }
-        RejectReason::MissingValue if context.missing == MissingPolicy::Error => Error::UnfillableMissing {
-            at,
-            column: problem.column,
-            reason: "the missing-value policy is 'error' (--missing impute fills it with the training median, --missing drop-rows sets the row aside)".into(),
-        },
-        _ => Error::BadRow { at, column: problem.column, message: problem.message },
-    }
-}
-
-/// Where one row's values go in [`Rows`].
-struct Slots {
-    numeric: usize,
-    missing: usize,
-    text: usize,
-    cost: usize,
-}
-
-/// Parses one record into `rows`; on a problem the caller rolls back.
-fn parse_row(
-    context: &Context<'_>,
-    record: &[u8],
-    fields: &mut crate::records::Fields,
-    rows: &mut Rows,
-    stats: &mut ChunkStats,
-) -> Result<(), Problem> {
-    let plan = context.plan;
-    let width = plan.fields.len();
-    let delimiter = context.dialect.delimiter;
-    let field_count = |found: usize| Problem {
-        reason: RejectReason::FieldCount,
-        column: String::new(),
-        message: format!("the row has {found} fields but the header has {width}"),
-    };
-    let slots = Slots {
-        numeric: rows.numeric.len(),
-        missing: rows.numeric_missing.len(),
-        text: rows.text_spans.len(),
-        cost: rows.costs.len(),
-    };
-    rows.numeric.resize(slots.numeric + plan.input_width, 0.0);
-    rows.numeric_missing.resize(slots.missing + plan.numeric.len(), false);
-    rows.text_spans.resize(slots.text + plan.text_names.len(), (0, 0));
-    rows.costs.resize(slots.cost + plan.cost_columns.len(), 0.0);
-    // Filled counts wait until the row is known to be good.
-    let mut filled: Vec<usize> = Vec::new();
-    let mut unseen: Vec<usize> = Vec::new();
-    if memchr::memchr(b'"', record).is_none() {
-        // The common case, one pass: a plain number is scanned and converted
-        // where it stands; anything else is cut at the next delimiter.
-        let n = record.len();
-        let found = || 1 + memchr::memchr_iter(delimiter, record).count();
-        let mut position = 0;
-        for i in 0..width {
-            if position > n {
-                return Err(field_count(found()));
-            }
-            let usage = &plan.fields[i];
-            if let (Some(j), None, None, None) = (usage.numeric, usage.categorical, usage.text, usage.cost) {
-                if let Some(&first) = record.get(position) {
-                    if !context.na.may_be_missing(first) {
-                        if let Some((value, used)) = scan_f64(&record[position..]) {
-                            let end = position + used;
-                            if end == n || record[end] == delimiter {
-                                rows.numeric[slots.numeric + j] = value;
-                                position = end + 1;
-                                continue;
-                            }
-                        }
-                    }
-                }
-            }
-            let end = memchr::memchr(delimiter, &record[position..]).map_or(n, |o| position + o);
-            take_field(context, i, &record[position..end], rows, &slots, &mut filled, &mut unseen)?;
-            position = end + 1;
-        }
-        if position <= n {
-            return Err(field_count(found()));
-        }
-    } else {
-        fields.split(record, delimiter).map_err(|e| Problem {
-            reason: RejectReason::Quoting,
-            column: String::new(),
-            message: e.message().into(),
-        })?;
-        if fields.len() != width {
-            return Err(field_count(fields.len()));
-        }
-        for (i, field) in fields.iter(record).enumerate() {
-            take_field(context, i, field, rows, &slots, &mut filled, &mut unseen)?;
-        }
-    }
-    for f in filled {
-        stats.filled[f] += 1;
-    }
-    for c in unseen {
-        stats.unseen_as_missing[c] += 1;
-    }
-    Ok(())
-}
-
-/// One field of a row, by what the plan says it feeds.
-fn take_field(
-    context: &Context<'_>,
-    i: usize,
-    field: &[u8],
-    rows: &mut Rows,
-    slots: &Slots,
-    filled: &mut Vec<usize>,
-    unseen: &mut Vec<usize>,
-) -> Result<(), Problem> {
-    let plan = context.plan;
-    let (row_start, missing_start, text_start, cost_start) = (slots.numeric, slots.missing, slots.text, slots.cost);
-    let usage = &plan.fields[i];
-    let field = trim(field);
-    let column = || plan.names[i].clone();
-    if let Some(j) = usage.numeric {
-        let feature = &plan.numeric[j];
-        if context.na.is_missing(field) {
-            match feature.fill {
-                Fill::Value(v) => {
-                    rows.numeric[row_start + j] = v;
-                    rows.numeric_missing[missing_start + j] = true;
-                    if let Some(indicator) = feature.indicator {
-                        rows.numeric[row_start + indicator] = 1.0;
-                    }
-                    filled.push(j);
-                }
-                Fill::Unfillable => {
-                    return Err(Problem {
-                        reason: RejectReason::MissingValue,
-                        column: column(),
-                        message: "the value is missing and the model has no fill for it".into(),
-                    })
-                }
-            }
-        } else {
-            match parse_f64(field) {
-                Some(x) if x.is_finite() => rows.numeric[row_start + j] = x,
-                Some(_) => {
-                    return Err(Problem {
-                        reason: RejectReason::NotFinite,
-                        column: column(),
-                        message: format!("'{}' is not a finite number", String::from_utf8_lossy(field)),
-                    })
-                }
-                None => {
-                    return Err(Problem {
-                        reason: RejectReason::NotANumber,
-                        column: column(),
-                        message: format!("'{}' is not a number", String::from_utf8_lossy(field)),
-                    })
-                }
-            }
-        }
-    }
-    if let Some(c) = usage.categorical {
-        let feature = &plan.categorical[c];
-        let code = if context.na.is_missing(field) {
-            feature.missing_code.map(|m| (m, false))
-        } else {
-            match feature.codes.get(field) {
-                Some(&code) => Some((code, true)),
-                None => match context.unseen {
-                    UnseenPolicy::Missing => {
-                        unseen.push(c);
-                        // Counted as unseen, not as a missing value filled.
-                        feature.missing_code.map(|m| (m, true))
-                    }
-                    _ => {
-                        return Err(Problem {
-                            reason: RejectReason::UnseenCategory,
-                            column: column(),
-                            message: String::from_utf8_lossy(field).into_owned(),
-                        })
-                    }
-                },
-            }
-        };
-        match code {
-            Some((code, known)) => {
-                if !known {
-                    filled.push(plan.numeric.len() + c);
-                }
-                rows.categorical[c].push(code);
-            }
-            None => {
-                return Err(Problem {
-                    reason: RejectReason::MissingValue,
-                    column: column(),
-                    message: "the value is missing and the model has no level for missing values".into(),
-                })
-            }
-        }
-    }
-    if let Some(t) = usage.text {
-        if std::str::from_utf8(field).is_err() {
-            return Err(Problem {
-                reason: RejectReason::Encoding,
-                column: column(),
-                message: "the value is not valid UTF-8".into(),
-            });
-        }
-        let start = rows.text.len();
-        rows.text.extend_from_slice(field);
-        rows.text_spans[text_start + t] = (start, rows.text.len());
-    }
-    if let Some(slot) = usage.cost {
-        match parse_f64(field).filter(|x| x.is_finite()) {
-            Some(x) => rows.costs[cost_start + slot] = x,
-            None => {
-                return Err(Problem {
-                    reason: RejectReason::CostValue,
-                    column: column(),
-                    message: format!(
-                        "the costs read this column, and '{}' is not a finite number",
-                        String::from_utf8_lossy(field)
-                    ),
-                })
-            }
-        }
-    }
-    Ok(())
 }

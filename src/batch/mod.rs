@@ -29,12 +29,12 @@ use std::path::PathBuf;
 use serde::Serialize;
 
 use crate::apply::plan::{Plan, PlanRequest};
+use crate::apply::row::{Policies, RowRules, REJECT_HEADER};
 use crate::apply::{RejectReason, UnseenPolicy};
 use crate::batch::capacity::{limit, limited_actions, Ranking, Settled};
 use crate::batch::chunk::{ChunkResult, ChunkStats, Context, Pass};
 use crate::batch::reasons::ReasonCodes;
 use crate::batch::source::{open_chunked, shown_path, ChunkReader, RawChunk};
-use crate::data::csv_chunk::NaMatcher;
 use crate::data::options::MissingPolicy;
 use crate::decide::{Capacity, CostSpec};
 use crate::error::{Error, Result};
@@ -209,12 +209,7 @@ pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progre
     outputs.check(&job.data)?;
     let missing = job.missing.unwrap_or(file.schema.missing_policy);
     if outputs.rejects.is_none() {
-        let needs = match (job.unseen, missing) {
-            (UnseenPolicy::Reject, _) => Some("--unseen reject"),
-            (_, MissingPolicy::DropRows) if job.missing.is_some() => Some("--missing drop-rows"),
-            _ => None,
-        };
-        if let Some(flag) = needs {
+        if let Some(flag) = crate::apply::row::policy_setting_rows_aside(job.unseen, job.missing) {
             return Err(Error::Usage(format!("{flag} sets rows aside, so it needs --rejects FILE to put them in")));
         }
     }
@@ -251,7 +246,7 @@ pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progre
         }
     };
     let plan = Plan::new(&shown, &names, &file.schema, &request)?;
-    let positive = file.classes.iter().position(|c| *c == file.positive).unwrap_or(0);
+    let positive = file.positive_index();
     let drift = file.drift_reference.as_ref().map(|reference| {
         let slots = plan
             .numeric
@@ -262,16 +257,12 @@ pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progre
             .collect();
         (reference, slots)
     });
+    let policies = Policies { unseen: job.unseen, missing, keep_rejects: outputs.rejects.is_some() };
+    let na_tokens = job.na_tokens.as_ref().unwrap_or(&file.schema.na_tokens);
     let context = Context {
-        path: &shown,
+        rules: RowRules::new(&shown, &plan, job.dialect(), na_tokens, policies),
         file,
-        plan: &plan,
         prior: &job.prior,
-        dialect: job.dialect(),
-        na: NaMatcher::new(job.na_tokens.as_ref().unwrap_or(&file.schema.na_tokens)),
-        unseen: job.unseen,
-        missing,
-        keep_rejects: outputs.rejects.is_some(),
         spec: job.costs.as_ref(),
         reasons: reason_codes.as_ref(),
         drift,
@@ -322,7 +313,7 @@ pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progre
     };
     scores.write_all(&output_header(file, &plan, &context))?;
     if let Some(r) = rejects.as_mut() {
-        r.write_all(b"line,column,reason,message,row\n")?;
+        r.write_all(REJECT_HEADER.as_bytes())?;
     }
     let (stats, _) = scan(
         reader()?,

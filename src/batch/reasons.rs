@@ -106,7 +106,7 @@ impl ReasonCodes {
             features.push(feature.name.clone());
             references.push(Reference::Categorical { input: c, code, level });
         }
-        let positive = file.classes.iter().position(|c| *c == file.positive).unwrap_or(1);
+        let positive = file.positive_index();
         Ok(ReasonCodes { count, features, references, positive })
     }
 

@@ -11,11 +11,11 @@ use std::process::ExitCode;
 use crate::cli::data_args::DataArgs;
 use crate::cli::output::write_atomic;
 use crate::cli::Failure;
-use crate::data::Dataset;
-use crate::error::Error;
-use crate::evaluate::compare::{evaluate, evaluate_reweighted, EvaluationOptions, TestedScore};
-use crate::evaluate::metrics::ScoreKind;
-use crate::report::evaluation::{evaluation_html, evaluation_text};
+use baserate::data::Dataset;
+use baserate::error::Error;
+use baserate::evaluate::compare::{evaluate, evaluate_reweighted, EvaluationOptions, TestedScore};
+use baserate::evaluate::metrics::ScoreKind;
+use baserate::report::evaluation::{evaluation_html, evaluation_text};
 
 /// `--score-type` values.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]

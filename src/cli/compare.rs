@@ -13,15 +13,15 @@ use crate::cli::data_args::DataArgs;
 use crate::cli::fit::{FamilyArg, FamilyOptions};
 use crate::cli::output::write_atomic;
 use crate::cli::Failure;
-use crate::data::schema::ColumnKind;
-use crate::data::split::{assign, SplitPlan};
-use crate::data::Dataset;
-use crate::error::Error;
-use crate::evaluate::compare::{
+use baserate::data::schema::ColumnKind;
+use baserate::data::split::{assign, SplitPlan};
+use baserate::data::Dataset;
+use baserate::error::Error;
+use baserate::evaluate::compare::{
     cross_predict, evaluate, evaluate_reweighted, learning_curve, multiclass, Candidate, EvaluationOptions, TestedScore,
 };
-use crate::model::Family;
-use crate::report::evaluation::{evaluation_html, evaluation_text};
+use baserate::model::Family;
+use baserate::report::evaluation::{evaluation_html, evaluation_text};
 
 /// Arguments of `compare`.
 #[derive(Debug, clap::Args)]
@@ -100,13 +100,13 @@ pub struct EvaluationArgs {
 
 /// The costs file and the values of the columns it reads (taken before
 /// the inputs matrix is freed).
-pub type CostInputs = (crate::decide::CostSpec, Vec<(String, Vec<f64>)>);
+pub type CostInputs = (baserate::decide::CostSpec, Vec<(String, Vec<f64>)>);
 
 /// Reads a costs file and the columns it uses.
-pub fn read_costs(path: &std::path::Path, dataset: &Dataset) -> crate::Result<CostInputs> {
+pub fn read_costs(path: &std::path::Path, dataset: &Dataset) -> baserate::Result<CostInputs> {
     let shown = path.display().to_string();
     let text = std::fs::read_to_string(path).map_err(|e| Error::io(&shown, e))?;
-    let spec = crate::decide::CostSpec::parse(&shown, &text, &dataset.schema.target.classes)?;
+    let spec = baserate::decide::CostSpec::parse(&shown, &text, &dataset.schema.target.classes)?;
     if dataset.schema.target.classes.len() != 2 {
         return Err(Error::Usage(format!(
             "{shown}: cost figures in compare and assess need a two-class target; this one has {} classes (score applies costs to any number)",
@@ -121,7 +121,7 @@ pub fn read_costs(path: &std::path::Path, dataset: &Dataset) -> crate::Result<Co
         })?;
         let parsed: Option<Vec<f64>> = values
             .iter()
-            .map(|v| crate::data::number::parse_f64(v.trim().as_bytes()).filter(|x| x.is_finite()))
+            .map(|v| baserate::data::number::parse_f64(v.trim().as_bytes()).filter(|x| x.is_finite()))
             .collect();
         let parsed = parsed.ok_or_else(|| Error::SchemaMismatch {
             path: shown.clone(),
@@ -139,10 +139,10 @@ pub fn apply_costs(
     (spec, columns): &CostInputs,
     scores: &[TestedScore],
     options: &EvaluationOptions<'_>,
-    evaluation: &mut crate::evaluate::compare::Evaluation,
+    evaluation: &mut baserate::evaluate::compare::Evaluation,
     fold_of: Option<&[u32]>,
-) -> Vec<crate::evaluate::compare::CostFigures> {
-    let figures = crate::evaluate::compare::cost_figures(
+) -> Vec<baserate::evaluate::compare::CostFigures> {
+    let figures = baserate::evaluate::compare::cost_figures(
         scores,
         options,
         spec,
@@ -167,8 +167,8 @@ pub fn apply_costs(
 }
 
 /// The decisions table for the terminal.
-pub fn costs_text(figures: &[crate::evaluate::compare::CostFigures]) -> String {
-    use crate::report::table::{Align, Table};
+pub fn costs_text(figures: &[baserate::evaluate::compare::CostFigures]) -> String {
+    use baserate::report::table::{Align, Table};
     let mut table = Table::new(&[
         ("name", Align::Left),
         ("cost per row", Align::Right),
@@ -202,11 +202,12 @@ pub fn costs_text(figures: &[crate::evaluate::compare::CostFigures]) -> String {
 pub fn with_reweighted(
     text: String,
     to: Option<&[f64]>,
-    reweighted: Option<&crate::evaluate::compare::Evaluation>,
+    reweighted: Option<&baserate::evaluate::compare::Evaluation>,
     classes: &[String],
 ) -> String {
     let (Some(to), Some(r)) = (to, reweighted) else { return text };
-    let mix: Vec<String> = classes.iter().zip(to).map(|(c, p)| format!("{c} {}", crate::format::percent(*p))).collect();
+    let mix: Vec<String> =
+        classes.iter().zip(to).map(|(c, p)| format!("{c} {}", baserate::format::percent(*p))).collect();
     let table = evaluation_text(r);
     let body = table.split("\n\n").nth(1).unwrap_or("");
     let caution_at = text.find("Caution:").unwrap_or(text.len());
@@ -219,10 +220,10 @@ pub fn with_reweighted(
 }
 
 /// Parses `F[:OPTION=VALUE,...][+platt|+isotonic]` into a named candidate.
-pub fn parse_candidate(spec: &str) -> crate::Result<Candidate> {
+pub fn parse_candidate(spec: &str) -> baserate::Result<Candidate> {
     let (base, calibration) = match spec.rsplit_once('+') {
-        Some((b, "platt")) => (b, Some(crate::evaluate::compare::Calibration::Platt)),
-        Some((b, "isotonic")) => (b, Some(crate::evaluate::compare::Calibration::Isotonic)),
+        Some((b, "platt")) => (b, Some(baserate::evaluate::compare::Calibration::Platt)),
+        Some((b, "isotonic")) => (b, Some(baserate::evaluate::compare::Calibration::Isotonic)),
         Some((_, other)) => {
             return Err(Error::Usage(format!("--family {spec}: '+{other}' is not +platt or +isotonic")))
         }
@@ -310,9 +311,9 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
         }
     }
     let candidates: Vec<Candidate> = if args.families.is_empty() {
-        ["logistic", "naive-bayes", "lda", "qda"].iter().map(|f| parse_candidate(f)).collect::<crate::Result<_>>()?
+        ["logistic", "naive-bayes", "lda", "qda"].iter().map(|f| parse_candidate(f)).collect::<baserate::Result<_>>()?
     } else {
-        args.families.iter().map(|f| parse_candidate(f)).collect::<crate::Result<_>>()?
+        args.families.iter().map(|f| parse_candidate(f)).collect::<baserate::Result<_>>()?
     };
     for (i, c) in candidates.iter().enumerate() {
         if candidates[..i].iter().any(|d| d.name == c.name) {
@@ -357,7 +358,7 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
             }
             joined.extend_from_slice(&test[header_end(&test)..]);
             let shown = format!("{} + {}", args.data.display(), holdout.display());
-            let table = crate::data::csv_read::read_bytes(&shown, &joined, &options)?;
+            let table = baserate::data::csv_read::read_bytes(&shown, &joined, &options)?;
             let (train_only, _) = Dataset::read(&args.data, &options)?;
             let (d, n) = Dataset::from_table(table, &options)?;
             let train_rows = train_only.rows();
@@ -388,7 +389,7 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
         SplitPlan::KFold { folds: args.folds.unwrap_or(5), repeats: args.repeats }
     };
     let assignment = match holdout_rows {
-        Some(train_rows) => crate::data::split::Assignment {
+        Some(train_rows) => baserate::data::split::Assignment {
             folds: vec![(0..dataset.rows()).map(|i| if i < train_rows { 1 } else { 0 }).collect()],
             tested_folds: 1,
             description: format!(
@@ -447,7 +448,7 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
             record.push((assignment.folds[0][i] + 1).to_string());
             record.push(target.classes[dataset.target[i] as usize].clone());
             for p in &predictions {
-                record.extend((0..k).map(|c| crate::format::exact(p.log_posteriors[0][(i, c)].exp())));
+                record.extend((0..k).map(|c| baserate::format::exact(p.log_posteriors[0][(i, c)].exp())));
             }
             w.write_record(&record).map_err(io)?;
         }
@@ -460,10 +461,10 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
     // and cross-validation charts.
     let mut penalised = Vec::new();
     for candidate in candidates.iter().filter(|_| args.evaluation.report.is_some()) {
-        if let crate::model::FamilyParams::Logistic(p) = &candidate.params {
-            if p.penalty != crate::model::penalised::Penalty::None {
-                match crate::model::fit(&dataset, &candidate.params) {
-                    Ok((crate::model::FittedModel::Logistic(m), _)) => {
+        if let baserate::model::FamilyParams::Logistic(p) = &candidate.params {
+            if p.penalty != baserate::model::penalised::Penalty::None {
+                match baserate::model::fit(&dataset, &candidate.params) {
+                    Ok((baserate::model::FittedModel::Logistic(m), _)) => {
                         if let Some(record) = m.penalty {
                             penalised.push((candidate.name.clone(), m.encoding.terms(), record));
                         }
@@ -552,7 +553,7 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
         Some(at) if !cost_table.is_empty() => format!("{}{cost_table}\n{}", &text[..at], &text[at..]),
         _ => text,
     };
-    match text.find(crate::CAUTION.split_whitespace().next().unwrap_or("Caution:")) {
+    match text.find(baserate::CAUTION.split_whitespace().next().unwrap_or("Caution:")) {
         Some(at) if !caution => print!("{}", &text[..at]),
         _ => print!("{text}"),
     }

@@ -2,8 +2,8 @@
 
 use clap::Args as ClapArgs;
 
-use crate::data::options::{MissingPolicy, ReadOptions, DEFAULT_NA_TOKENS};
-use crate::error::{Error, Result};
+use baserate::data::options::{MissingPolicy, ReadOptions, DEFAULT_NA_TOKENS};
+use baserate::error::{Error, Result};
 
 /// `--missing` values.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]

@@ -11,11 +11,11 @@ use clap::Parser;
 
 use crate::cli::output::{create_dir, write_atomic};
 use crate::cli::Failure;
-use crate::data::{Dataset, MissingPolicy, ReadOptions};
-use crate::demo::{lending, payments, DemoSize, DEFAULT_SEED};
-use crate::format::{count, percent};
-use crate::report::table::{Align, Table};
-use crate::report::{wrap, CAUTION};
+use baserate::data::{Dataset, MissingPolicy, ReadOptions};
+use baserate::demo::{lending, payments, DemoSize, DEFAULT_SEED};
+use baserate::format::{count, percent};
+use baserate::report::table::{Align, Table};
+use baserate::report::{wrap, CAUTION};
 
 /// Monte-Carlo draws for the Bayes-error figures printed by the demo.
 const BAYES_ERROR_DRAWS: usize = 400_000;
@@ -38,11 +38,11 @@ pub struct Args {
 /// Runs `demo`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let size = match args.rows {
-        Some(0) => return Err(crate::Error::Usage("--rows must be at least 1".to_string()).into()),
+        Some(0) => return Err(baserate::Error::Usage("--rows must be at least 1".to_string()).into()),
         Some(n) => DemoSize::uniform(n),
         None => DemoSize::standard(),
     };
-    let files = crate::demo::generate(args.seed, size);
+    let files = baserate::demo::generate(args.seed, size);
     let mut table = Table::new(&[("file", Align::Left), ("rows", Align::Right), ("what it is", Align::Left)]);
     for file in &files {
         let path = args.out.join(file.path);
@@ -178,7 +178,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     {
         println!("== {title}");
         let cli = crate::cli::Cli::try_parse_from(std::iter::once("baserate".to_string()).chain(run))
-            .map_err(|e| crate::Error::Usage(e.to_string()))?;
+            .map_err(|e| baserate::Error::Usage(e.to_string()))?;
         if let crate::cli::Command::Compare(compare) = cli.command {
             // A small --rows can leave too few events for every family: say so
             // and go on with the rest of the demo.
@@ -257,7 +257,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let _ = std::fs::remove_file(&shift_path);
     for command in commands {
         let cli = crate::cli::Cli::try_parse_from(std::iter::once("baserate".to_string()).chain(command))
-            .map_err(|e| crate::Error::Usage(e.to_string()))?;
+            .map_err(|e| baserate::Error::Usage(e.to_string()))?;
         let outcome = match cli.command {
             crate::cli::Command::Fit(a) => crate::cli::fit::run_quietly(a),
             crate::cli::Command::Shift(a) => crate::cli::shift::run_quietly(a),

@@ -13,10 +13,10 @@ use serde::Serialize;
 use crate::cli::data_args::DataArgs;
 use crate::cli::output::write_atomic;
 use crate::cli::Failure;
-use crate::data::schema::{ColumnKind, ColumnRole, PositiveRule, Schema};
-use crate::data::Dataset;
-use crate::format::{count, number, percent};
-use crate::report::table::{Align, Table};
+use baserate::data::schema::{ColumnKind, ColumnRole, PositiveRule, Schema};
+use baserate::data::Dataset;
+use baserate::format::{count, number, percent};
+use baserate::report::table::{Align, Table};
 
 /// Arguments of `describe`.
 #[derive(Debug, clap::Args)]
@@ -51,7 +51,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             schema: &dataset.schema,
             notices: notices.iter().map(|n| n.0.clone()).collect(),
         };
-        let text = serde_json::to_string_pretty(&body).map_err(|e| crate::Error::Usage(e.to_string()))?;
+        let text = serde_json::to_string_pretty(&body).map_err(|e| baserate::Error::Usage(e.to_string()))?;
         write_atomic(json_path, format!("{text}\n").as_bytes())?;
         if json_path.as_os_str() == "-" {
             return Ok(ExitCode::SUCCESS);

@@ -1,17 +1,17 @@
 //! `baserate export-sql MODEL --table NAME [--prior SPEC | --base-rate P | --prior-from SHIFT.json] [--costs FILE] [--dialect D] [-o FILE]`
 //!
-//! Writes the scoring job as one SQL statement (see [`crate::export::scoring`]).
+//! Writes the scoring job as one SQL statement (see [`baserate::export::scoring`]).
 
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-use crate::apply::UnseenPolicy;
 use crate::cli::output::write_atomic;
 use crate::cli::score::{parse_missing, read_costs, PriorArgs};
 use crate::cli::Failure;
-use crate::export::scoring::{scoring_sql, ScoringRequest};
-use crate::export::Dialect;
-use crate::train::file::ModelFile;
+use baserate::apply::UnseenPolicy;
+use baserate::export::scoring::{scoring_sql, ScoringRequest};
+use baserate::export::Dialect;
+use baserate::train::file::ModelFile;
 
 /// Arguments of `export-sql`.
 #[derive(Debug, clap::Args)]
@@ -31,10 +31,10 @@ pub struct Args {
     #[arg(long = "id", value_name = "COLS", value_delimiter = ',')]
     pub ids: Vec<String>,
     /// The SQL spelling: ansi (standard SQL) or postgres.
-    #[arg(long, value_enum, value_name = "D", default_value = "ansi")]
+    #[arg(long, value_name = "D", default_value = "ansi")]
     pub dialect: Dialect,
     /// A category the training data never had: marked as a reject (error, reject) or taken as missing.
-    #[arg(long, value_enum, value_name = "POLICY", default_value = "error")]
+    #[arg(long, value_name = "POLICY", default_value = "error")]
     pub unseen: UnseenPolicy,
     /// A missing value the model has no fill for: error or drop-rows (both mark the row), or impute [default: the training policy].
     #[arg(long, value_name = "POLICY")]

@@ -8,18 +8,17 @@ use std::process::ExitCode;
 
 use crate::cli::data_args::DataArgs;
 use crate::cli::Failure;
-use crate::data::Dataset;
-use crate::error::Error;
-use crate::format::{count, number, percent};
-use crate::model::calibration::{fit_isotonic, fit_platt};
-use crate::model::discriminant::{Divisor, LdaParams, QdaParams, Shrinkage};
-use crate::model::logistic::{ClassWeight, LogisticParams};
-use crate::model::naive_bayes::NaiveBayesParams;
-use crate::model::penalised::{LambdaChoice, LambdaRule, Penalty};
-use crate::model::{Family, FamilyParams};
-use crate::prior::PriorSpec;
-use crate::report::{wrap, CAUTION};
-use crate::train::file::{ModelFile, TrainingInfo, FORMAT, FORMAT_VERSION};
+use baserate::data::Dataset;
+use baserate::error::Error;
+use baserate::format::{count, number, percent};
+use baserate::model::discriminant::{Divisor, LdaParams, QdaParams, Shrinkage};
+use baserate::model::logistic::{ClassWeight, LogisticParams};
+use baserate::model::naive_bayes::NaiveBayesParams;
+use baserate::model::penalised::{LambdaChoice, LambdaRule, Penalty};
+use baserate::model::{Family, FamilyParams};
+use baserate::prior::PriorSpec;
+use baserate::report::{wrap, CAUTION};
+use baserate::train::{parse_sampling_rates, train, CalibrationMethod, TrainRequest, TrainingSource};
 
 /// `--family` values.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
@@ -110,7 +109,7 @@ fn only_for(flag: &str, families: &str, family: Family) -> Error {
 
 impl FamilyOptions {
     /// The checked parameters of `family`; an option of another family is a usage error.
-    pub fn params(&self, family: Family) -> crate::Result<FamilyParams> {
+    pub fn params(&self, family: Family) -> baserate::Result<FamilyParams> {
         let logistic_flags = [
             ("--l2", self.l2.is_some()),
             ("--class-weight", self.class_weight.is_some()),
@@ -124,7 +123,7 @@ impl FamilyOptions {
             ("--cv-folds", self.cv_folds.is_some()),
         ];
         let nb_flags = [("--smoothing", self.smoothing.is_some()), ("--variance-floor", self.variance_floor.is_some())];
-        let check = |flags: &[(&str, bool)], families: &str, allowed: bool| -> crate::Result<()> {
+        let check = |flags: &[(&str, bool)], families: &str, allowed: bool| -> baserate::Result<()> {
             match flags.iter().find(|(_, set)| *set) {
                 Some((flag, _)) if !allowed => Err(only_for(flag, families, family)),
                 _ => Ok(()),
@@ -224,7 +223,7 @@ impl FamilyOptions {
 }
 
 /// Parses `--shrinkage`.
-pub fn parse_shrinkage(text: Option<&str>) -> crate::Result<Shrinkage> {
+pub fn parse_shrinkage(text: Option<&str>) -> baserate::Result<Shrinkage> {
     match text {
         None | Some("none") => Ok(Shrinkage::None),
         Some("ledoit-wolf") => Ok(Shrinkage::LedoitWolf),
@@ -235,7 +234,7 @@ pub fn parse_shrinkage(text: Option<&str>) -> crate::Result<Shrinkage> {
 }
 
 /// Parses `--class-weight`.
-pub fn parse_class_weight(text: Option<&str>) -> crate::Result<ClassWeight> {
+pub fn parse_class_weight(text: Option<&str>) -> baserate::Result<ClassWeight> {
     match text {
         None => Ok(ClassWeight::None),
         Some("equal") => Ok(ClassWeight::Equal),
@@ -249,13 +248,13 @@ pub fn parse_class_weight(text: Option<&str>) -> crate::Result<ClassWeight> {
                     w.trim().parse().map_err(|_| Error::Usage(format!("'{w}' in --class-weight is not a number")))?;
                 Ok((class.trim().to_string(), w))
             })
-            .collect::<crate::Result<Vec<_>>>()
+            .collect::<baserate::Result<Vec<_>>>()
             .map(ClassWeight::Explicit),
     }
 }
 
 /// Parses `--prior` / `--base-rate` (at most one).
-pub fn prior_spec(prior: Option<&str>, base_rate: Option<f64>) -> crate::Result<Option<PriorSpec>> {
+pub fn prior_spec(prior: Option<&str>, base_rate: Option<f64>) -> baserate::Result<Option<PriorSpec>> {
     match (prior, base_rate) {
         (Some(_), Some(_)) => Err(Error::Usage("give --prior or --base-rate, not both".into())),
         (Some(p), None) => Ok(Some(p.parse()?)),
@@ -310,68 +309,11 @@ pub enum CalibrateArg {
     Isotonic,
 }
 
-/// The population class mix implied by sampling rates: training mix ÷ rate,
-/// renormalised.
-pub fn population_mix(classes: &[String], training_mix: &[f64], spec: &str) -> crate::Result<(Vec<f64>, Vec<f64>)> {
-    let mut rates = vec![1.0; classes.len()];
-    for part in spec.split(',') {
-        let (class, rate) = part
-            .rsplit_once('=')
-            .ok_or_else(|| Error::Usage(format!("--sampled takes CLASS=RATE,..., not '{part}'")))?;
-        let i = classes.iter().position(|c| c == class.trim()).ok_or_else(|| {
-            Error::Usage(format!("--sampled names class '{class}', which is not one of {}", classes.join(", ")))
-        })?;
-        let r: f64 = rate.trim().parse().map_err(|_| Error::Usage(format!("'{rate}' in --sampled is not a number")))?;
-        if !(r > 0.0 && r <= 1.0) {
-            return Err(Error::Usage(format!("--sampled rate for '{class}' must lie in (0, 1]")));
-        }
-        rates[i] = r;
-    }
-    let raw: Vec<f64> = training_mix.iter().zip(&rates).map(|(m, r)| m / r).collect();
-    let total: f64 = raw.iter().sum();
-    Ok((raw.iter().map(|v| v / total).collect(), rates))
-}
-
-/// Out-of-fold predictions of the training rows (5 stratified folds),
-/// summarised as the held-out confusion and mean posteriors; `None` when a
-/// fold cannot be fitted (too few rows of a class).
-fn held_out_summary(
-    dataset: &Dataset,
-    params: &FamilyParams,
-    prior: &[f64],
-    seed: u64,
-) -> crate::Result<Option<(crate::train::file::HeldOut, Vec<f64>)>> {
-    use crate::data::split::{assign, SplitPlan};
-    use crate::evaluate::compare::{cross_predict, Candidate};
-    const FOLDS: usize = 5;
-    let k = dataset.schema.target.classes.len();
-    let assignment = assign(&SplitPlan::KFold { folds: FOLDS, repeats: 1 }, &dataset.target, k, seed)?;
-    let candidate = Candidate::new("held-out", params.clone());
-    let Ok(predictions) = cross_predict(dataset, &[candidate], &assignment, Some(prior)) else {
-        return Ok(None);
-    };
-    let lp = &predictions[0].log_posteriors[0];
-    let total: f64 = dataset.weights.as_ref().map_or(dataset.rows() as f64, |w| w.iter().sum());
-    let mut confusion = vec![vec![0.0; k]; k];
-    let mut mean_posterior = vec![0.0; k];
-    let positive = dataset.schema.target.positive_index();
-    let mut log_odds = Vec::with_capacity(dataset.rows());
-    for (i, row) in lp.rows().into_iter().enumerate() {
-        let values = row.to_vec();
-        log_odds.push(crate::evaluate::compare::log_odds_of(&values, positive));
-        let w = dataset.weights.as_ref().map_or(1.0, |w| w[i]) / total;
-        let predicted = (0..k).max_by(|&a, &b| row[a].total_cmp(&row[b])).unwrap_or(0);
-        confusion[predicted][dataset.target[i] as usize] += w;
-        for c in 0..k {
-            mean_posterior[c] += w * row[c].exp();
-        }
-    }
-    Ok(Some((crate::train::file::HeldOut { folds: FOLDS, confusion, mean_posterior }, log_odds)))
-}
-
 /// `fit STATS.csv --from-stats`: the family fitted from an engine's aggregates.
 fn fit_from_stats(args: &Args, params: FamilyParams, spec: Option<PriorSpec>, talk: bool) -> Result<ExitCode, Failure> {
-    use crate::export::stats::{model_from_stats, read_stats, FromStats};
+    use baserate::export::stats_reader::read_stats;
+    use baserate::model::aggregates::FromAggregates;
+    use baserate::train::{train_from_aggregates, FromStats};
     if args.calibrate.is_some() || args.sampled.is_some() {
         return Err(Error::Usage(
             "--calibrate needs out-of-fold predictions and --sampled a training file; neither goes with --from-stats"
@@ -390,8 +332,8 @@ fn fit_from_stats(args: &Args, params: FamilyParams, spec: Option<PriorSpec>, ta
         }
     }
     let missing = match args.data_args.missing {
-        crate::cli::data_args::MissingArg::Error => crate::data::MissingPolicy::Error,
-        crate::cli::data_args::MissingArg::DropRows => crate::data::MissingPolicy::DropRows,
+        crate::cli::data_args::MissingArg::Error => baserate::data::MissingPolicy::Error,
+        crate::cli::data_args::MissingArg::DropRows => baserate::data::MissingPolicy::DropRows,
         crate::cli::data_args::MissingArg::Impute => {
             return Err(Error::Usage(
                 "--missing impute needs each column's median before the sums, which one aggregate pass cannot give; use drop-rows or error".into(),
@@ -399,18 +341,19 @@ fn fit_from_stats(args: &Args, params: FamilyParams, spec: Option<PriorSpec>, ta
             .into())
         }
     };
-    let request = FromStats {
-        params,
-        prior: spec,
-        positive: args.data_args.positive.clone(),
-        missing,
-        na_tokens: args
-            .data_args
-            .na
-            .clone()
-            .unwrap_or_else(|| crate::data::options::DEFAULT_NA_TOKENS.iter().map(|s| s.to_string()).collect()),
-    };
-    let file = model_from_stats(&aggregates, &request, crate::io::sha256_file(&args.data)?)?;
+    let request =
+        FromStats {
+            fit: FromAggregates {
+                params,
+                positive: args.data_args.positive.clone(),
+                missing,
+                na_tokens: args.data_args.na.clone().unwrap_or_else(|| {
+                    baserate::data::options::DEFAULT_NA_TOKENS.iter().map(|s| s.to_string()).collect()
+                }),
+            },
+            prior: spec,
+        };
+    let file = train_from_aggregates(&aggregates, &request, baserate::io::sha256_file(&args.data)?)?;
     file.save(&args.out)?;
     if talk {
         let target = &file.schema.target;
@@ -433,7 +376,7 @@ fn fit_from_stats(args: &Args, params: FamilyParams, spec: Option<PriorSpec>, ta
 }
 
 /// "CLASS COUNT (SHARE), ..." for the training classes.
-fn class_mix_text(target: &crate::data::schema::TargetSchema) -> String {
+fn class_mix_text(target: &baserate::data::schema::TargetSchema) -> String {
     let parts: Vec<String> = target
         .classes
         .iter()
@@ -467,89 +410,21 @@ fn execute(args: Args, talk: bool) -> Result<ExitCode, Failure> {
         eprintln!("note: {}", wrap(&n.0, 100, 6));
     }
     let target = &dataset.schema.target;
-    let (model, diagnostics) = crate::model::fit(&dataset, &params)?;
-    let training_class_mix = match &model {
-        crate::model::FittedModel::Logistic(m) => m.class_mix.clone(),
-        _ => target.class_mix(),
-    };
-    // With --sampled, the default prior is the population mix the sampling
-    // rates imply; the posteriors stay calibrated to the training mix.
-    let (default_mix, sampling_rates) = match &args.sampled {
-        Some(spec) => {
-            let (mix, rates) = population_mix(&target.classes, &training_class_mix, spec)?;
-            (mix, Some(rates))
-        }
-        None => (training_class_mix.clone(), None),
-    };
-    let prior = spec.unwrap_or(PriorSpec::Empirical).resolve(&target.classes, &default_mix, target.positive_index())?;
-    let file = ModelFile {
-        format: FORMAT.to_string(),
-        format_version: FORMAT_VERSION,
-        tool_version: env!("CARGO_PKG_VERSION").to_string(),
-        created: crate::io::utc_timestamp(),
-        family,
-        params: params.clone(),
-        schema: dataset.schema.clone(),
-        classes: target.classes.clone(),
-        positive: target.positive.clone(),
-        prior,
-        training_class_mix,
-        training: TrainingInfo {
+    let request = TrainRequest {
+        params,
+        prior: spec,
+        sampling_rates: args.sampled.as_deref().map(parse_sampling_rates).transpose()?.unwrap_or_default(),
+        calibration: args.calibrate.map(|c| match c {
+            CalibrateArg::Platt => CalibrationMethod::Platt,
+            CalibrateArg::Isotonic => CalibrationMethod::Isotonic,
+        }),
+        seed: args.seed,
+        source: TrainingSource {
             input_path: args.data.display().to_string(),
-            input_sha256: crate::io::sha256_file(&args.data)?,
-            rows: dataset.rows(),
-            class_counts: target.counts.clone(),
-            weighted_class_counts: target.weighted_counts.clone(),
+            input_sha256: baserate::io::sha256_file(&args.data)?,
         },
-        diagnostics,
-        model,
-        held_out: None,
-        calibration: None,
-        sampling_rates,
-        drift_reference: None,
     };
-    let mut file = file;
-    let calibrated_to = file.calibrated_to().to_vec();
-    // Out-of-fold predictions of a penalised fit use the λ chosen on all
-    // rows (choosing it again inside every fold would cost a cross-
-    // validation per fold for a summary of the predictions' mix).
-    let fold_params = match (&params, &file.model) {
-        (FamilyParams::Logistic(p), crate::model::FittedModel::Logistic(m)) => match &m.penalty {
-            Some(record) => {
-                FamilyParams::Logistic(LogisticParams { lambda: LambdaChoice::Value(record.lambda), ..p.clone() })
-            }
-            None => params.clone(),
-        },
-        _ => params.clone(),
-    };
-    if let Some((held_out, log_odds)) = held_out_summary(&dataset, &fold_params, &calibrated_to, args.seed)? {
-        if let Some(method) = args.calibrate {
-            if target.classes.len() != 2 {
-                return Err(Error::Usage("--calibrate is for two classes".into()).into());
-            }
-            let labels: Vec<bool> = dataset.target.iter().map(|&y| y as usize == target.positive_index()).collect();
-            file.calibration = Some(match method {
-                CalibrateArg::Platt => fit_platt(&log_odds, &labels, dataset.weights.as_deref()),
-                CalibrateArg::Isotonic => fit_isotonic(&log_odds, &labels, dataset.weights.as_deref()),
-            });
-        }
-        file.held_out = Some(held_out);
-    } else if args.calibrate.is_some() {
-        return Err(Error::FitFailed {
-            family: family.name().into(),
-            message:
-                "--calibrate needs out-of-fold predictions, and a fold could not be fitted (too few rows of a class)"
-                    .into(),
-        }
-        .into());
-    }
-    // The training rows' features and scores (at the model's prior, after
-    // any calibration), binned, for drift checks when scoring.
-    let positive = target.positive_index();
-    let scores: Vec<f64> =
-        file.log_posteriors(&dataset.inputs(), &file.prior).column(positive).iter().map(|v| v.exp()).collect();
-    file.drift_reference = Some(crate::model::drift::reference(&dataset, &target.positive, &scores));
-    file.validate().map_err(|m| Error::FitFailed { family: family.name().into(), message: m })?;
+    let file = train(&dataset, &request)?;
     file.save(&args.out)?;
 
     if !talk {

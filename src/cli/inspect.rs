@@ -10,8 +10,8 @@ use std::process::ExitCode;
 
 use crate::cli::output::write_atomic;
 use crate::cli::Failure;
-use crate::report::model::{inspect_json, inspect_text};
-use crate::train::file::ModelFile;
+use baserate::report::model::{inspect_json, inspect_text};
+use baserate::train::file::ModelFile;
 
 /// Arguments of `inspect`.
 #[derive(Debug, clap::Args)]
@@ -28,7 +28,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let file = ModelFile::load(&args.model)?;
     if let Some(path) = &args.json {
         let text =
-            serde_json::to_string_pretty(&inspect_json(&file)).map_err(|e| crate::Error::Usage(e.to_string()))?;
+            serde_json::to_string_pretty(&inspect_json(&file)).map_err(|e| baserate::Error::Usage(e.to_string()))?;
         write_atomic(path, format!("{text}\n").as_bytes())?;
         if path.as_os_str() == "-" {
             return Ok(ExitCode::SUCCESS);

@@ -64,13 +64,13 @@ pub enum Command {
 #[derive(Debug)]
 pub enum Failure {
     /// A data, model or usage error, with its own exit code.
-    Library(crate::Error),
+    Library(baserate::Error),
     /// Writing to stdout failed because the reader went away: not an error.
     BrokenPipe,
 }
 
-impl From<crate::Error> for Failure {
-    fn from(e: crate::Error) -> Self {
+impl From<baserate::Error> for Failure {
+    fn from(e: baserate::Error) -> Self {
         Failure::Library(e)
     }
 }
@@ -80,7 +80,7 @@ impl From<std::io::Error> for Failure {
         if e.kind() == std::io::ErrorKind::BrokenPipe {
             Failure::BrokenPipe
         } else {
-            Failure::Library(crate::Error::io("<stdout>", e))
+            Failure::Library(baserate::Error::io("<stdout>", e))
         }
     }
 }

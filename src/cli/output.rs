@@ -2,9 +2,9 @@
 
 use std::path::Path;
 
-use crate::error::{Error, Result};
+use baserate::error::{Error, Result};
 
-pub use crate::io::write_atomic;
+pub use baserate::io::write_atomic;
 
 /// Creates a directory and its parents.
 pub fn create_dir(path: &Path) -> Result<()> {

@@ -1,20 +1,20 @@
 //! `baserate score MODEL DATA -o OUT [--prior SPEC | --base-rate P] [--costs FILE] [--rejects FILE] [--summary FILE]`
 //!
 //! The batch job: posteriors (and actions with `--costs`) for every row of
-//! DATA, streamed in bounded memory by [`crate::batch`]. This file parses
+//! DATA, streamed in bounded memory by [`baserate::batch`]. This file parses
 //! the arguments, shows progress on a terminal and prints the summary.
 
 use std::path::PathBuf;
 
 use std::process::ExitCode;
 
-use crate::apply::UnseenPolicy;
-use crate::batch::{Outputs, ScoreJob, Summary};
 use crate::cli::data_args::parse_delimiter;
 use crate::cli::fit::prior_spec;
 use crate::cli::Failure;
-use crate::data::options::MissingPolicy;
-use crate::train::file::ModelFile;
+use baserate::apply::UnseenPolicy;
+use baserate::batch::{Outputs, ScoreJob, Summary};
+use baserate::data::options::MissingPolicy;
+use baserate::train::file::ModelFile;
 
 /// Arguments of `score`.
 #[derive(Debug, clap::Args)]
@@ -54,7 +54,7 @@ pub struct Args {
     #[arg(long, value_name = "COLS", value_delimiter = ',')]
     pub keep: Vec<String>,
     /// A category the training data never had: stop, set the row aside, or take it as missing.
-    #[arg(long, value_enum, value_name = "POLICY", default_value = "error")]
+    #[arg(long, value_name = "POLICY", default_value = "error")]
     pub unseen: UnseenPolicy,
     /// A missing value the model has no fill for: stop (error), fill with the training median or the missing level (impute), or set the row aside (drop-rows) [default: the training policy].
     #[arg(long, value_name = "POLICY")]
@@ -66,10 +66,10 @@ pub struct Args {
     #[arg(long, value_name = "N", default_value_t = 0)]
     pub threads: usize,
     /// Bytes of input per chunk (memory is a few chunks per thread).
-    #[arg(long, value_name = "BYTES", default_value_t = crate::batch::DEFAULT_CHUNK_BYTES)]
+    #[arg(long, value_name = "BYTES", default_value_t = baserate::batch::DEFAULT_CHUNK_BYTES)]
     pub chunk_bytes: usize,
     /// The longest record, in bytes; a longer one is set aside as `record-size` (an unclosed quote, usually).
-    #[arg(long, value_name = "BYTES", default_value_t = crate::records::DEFAULT_MAX_RECORD_BYTES)]
+    #[arg(long, value_name = "BYTES", default_value_t = baserate::records::DEFAULT_MAX_RECORD_BYTES)]
     pub max_record_bytes: usize,
     /// No progress display and no summary on stderr (errors are still shown).
     #[arg(long, short = 'q')]
@@ -93,7 +93,7 @@ pub struct PriorArgs {
 impl PriorArgs {
     /// The prior a run scores with: `--prior`/`--base-rate`, a `shift`
     /// result (`--prior-from`), or the model's own.
-    pub fn resolve(&self, file: &ModelFile) -> crate::Result<Vec<f64>> {
+    pub fn resolve(&self, file: &ModelFile) -> baserate::Result<Vec<f64>> {
         resolve_prior(file, self.prior.as_deref(), self.base_rate, self.prior_from.as_deref())
     }
 }
@@ -103,10 +103,10 @@ fn resolve_prior(
     prior: Option<&str>,
     base_rate: Option<f64>,
     prior_from: Option<&str>,
-) -> crate::Result<Vec<f64>> {
-    let positive = file.classes.iter().position(|c| *c == file.positive).unwrap_or(0);
+) -> baserate::Result<Vec<f64>> {
+    let positive = file.positive_index();
     match (prior_spec(prior, base_rate)?, prior_from) {
-        (Some(_), Some(_)) => Err(crate::Error::Usage("give --prior/--base-rate or --prior-from, not both".into())),
+        (Some(_), Some(_)) => Err(baserate::Error::Usage("give --prior/--base-rate or --prior-from, not both".into())),
         (Some(spec), None) => spec.resolve(&file.classes, &file.training_class_mix, positive),
         (None, Some(from)) => crate::cli::shift::prior_from_file(from, &file.classes),
         (None, None) => Ok(file.prior.clone()),
@@ -114,25 +114,27 @@ fn resolve_prior(
 }
 
 /// Parses a `--missing` value of the commands that apply a model.
-pub fn parse_missing(text: Option<&str>) -> crate::Result<Option<MissingPolicy>> {
+pub fn parse_missing(text: Option<&str>) -> baserate::Result<Option<MissingPolicy>> {
     match text {
         None => Ok(None),
         Some("error") => Ok(Some(MissingPolicy::Error)),
         Some("impute") => Ok(Some(MissingPolicy::Impute)),
         Some("drop-rows") => Ok(Some(MissingPolicy::DropRows)),
-        Some(other) => Err(crate::Error::Usage(format!("--missing takes error, impute or drop-rows; got '{other}'"))),
+        Some(other) => {
+            Err(baserate::Error::Usage(format!("--missing takes error, impute or drop-rows; got '{other}'")))
+        }
     }
 }
 
 /// Reads a costs file for a model: its classes, and no categorical input
 /// read as an amount.
-pub fn read_costs(path: &std::path::Path, file: &ModelFile) -> crate::Result<crate::decide::CostSpec> {
+pub fn read_costs(path: &std::path::Path, file: &ModelFile) -> baserate::Result<baserate::decide::CostSpec> {
     let shown = path.display().to_string();
-    let text = std::fs::read_to_string(path).map_err(|e| crate::Error::io(&shown, e))?;
-    let spec = crate::decide::CostSpec::parse(&shown, &text, &file.classes)?;
+    let text = std::fs::read_to_string(path).map_err(|e| baserate::Error::io(&shown, e))?;
+    let spec = baserate::decide::CostSpec::parse(&shown, &text, &file.classes)?;
     if let Some(c) = spec.columns().into_iter().find(|c| file.schema.categorical_inputs().iter().any(|k| k.name == *c))
     {
-        return Err(crate::Error::SchemaMismatch {
+        return Err(baserate::Error::SchemaMismatch {
             path: shown,
             message: format!("the costs use column '{c}', which the model reads as categorical, not numeric"),
         });
@@ -143,17 +145,17 @@ pub fn read_costs(path: &std::path::Path, file: &ModelFile) -> crate::Result<cra
 /// Runs `score`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let file = ModelFile::load(&args.model)?;
-    let positive = file.classes.iter().position(|c| *c == file.positive).unwrap_or(0);
+    let positive = file.positive_index();
     let prior = args.priors.resolve(&file)?;
     let costs = args.costs.as_deref().map(|path| read_costs(path, &file)).transpose()?;
     if let Some(rate) = args.max_reject_rate {
         if !(0.0..=1.0).contains(&rate) {
-            return Err(crate::Error::Usage(format!("--max-reject-rate must be between 0 and 1; got {rate}")).into());
+            return Err(baserate::Error::Usage(format!("--max-reject-rate must be between 0 and 1; got {rate}")).into());
         }
     }
     let missing = parse_missing(args.missing.as_deref())?;
     if args.reasons == Some(0) {
-        return Err(crate::Error::Usage("--reasons K needs K of at least 1".into()).into());
+        return Err(baserate::Error::Usage("--reasons K needs K of at least 1".into()).into());
     }
     let job = ScoreJob {
         data: args.data.clone(),
@@ -183,12 +185,12 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             bar.set_message(format!("{rows} rows read,"));
         }
     };
-    let summary = crate::batch::run(&file, &job, &outputs, &show);
+    let summary = baserate::batch::run(&file, &job, &outputs, &show);
     if let Some(bar) = &bar {
         bar.finish_and_clear();
     }
     let summary = summary.map_err(|e| match e {
-        crate::Error::Io { source, .. } if source.kind() == std::io::ErrorKind::BrokenPipe => Failure::BrokenPipe,
+        baserate::Error::Io { source, .. } if source.kind() == std::io::ErrorKind::BrokenPipe => Failure::BrokenPipe,
         other => Failure::Library(other),
     })?;
     if !args.quiet {
@@ -269,7 +271,8 @@ fn print_summary(file: &ModelFile, args: &Args, job: &ScoreJob, summary: &Summar
         eprintln!("outside the training range: {}", outside.join("; "));
     }
     if let Some(drift) = &summary.drift {
-        let mut flagged: Vec<&crate::batch::Stability> = drift.features.iter().filter(|s| s.band != "stable").collect();
+        let mut flagged: Vec<&baserate::batch::Stability> =
+            drift.features.iter().filter(|s| s.band != "stable").collect();
         flagged.sort_by(|a, b| b.psi.total_cmp(&a.psi));
         let features = if flagged.is_empty() {
             "every feature stable".to_string()
@@ -299,15 +302,15 @@ fn print_summary(file: &ModelFile, args: &Args, job: &ScoreJob, summary: &Summar
             let on_model_scale = if (job.prior[positive] - base).abs() > 1e-12 {
                 format!(
                     " (on the model's own scale, at its class mix {base:.4}: {:.6})",
-                    crate::decide::cutoff_on_training_scale(cutoff, base, job.prior[positive])
+                    baserate::decide::cutoff_on_training_scale(cutoff, base, job.prior[positive])
                 )
             } else {
                 String::new()
             };
             eprintln!("equivalent rule: {action} when p({}) >= {cutoff:.6}{on_model_scale}", file.positive);
         }
-        eprintln!("{}", crate::report::wrap(crate::CAUTION, 100, 0));
+        eprintln!("{}", baserate::report::wrap(baserate::CAUTION, 100, 0));
     } else if job.reasons > 0 {
-        eprintln!("{}", crate::report::wrap(crate::CAUTION, 100, 0));
+        eprintln!("{}", baserate::report::wrap(baserate::CAUTION, 100, 0));
     }
 }

@@ -1,7 +1,7 @@
 //! `baserate stats-sql --family F --table NAME --target COL [--categorical COLS] [--weight COL] [--dialect D] [-o FILE] COLUMN...`
 //!
 //! Writes the aggregate query whose result `fit --from-stats` fits (see
-//! [`crate::export::stats`]).
+//! [`baserate::export::stats_query`]).
 
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -9,9 +9,9 @@ use std::process::ExitCode;
 use crate::cli::fit::FamilyArg;
 use crate::cli::output::write_atomic;
 use crate::cli::Failure;
-use crate::data::options::DEFAULT_NA_TOKENS;
-use crate::export::stats::{stats_sql, StatsRequest};
-use crate::export::Dialect;
+use baserate::data::options::DEFAULT_NA_TOKENS;
+use baserate::export::stats_query::{stats_sql, StatsRequest};
+use baserate::export::Dialect;
 
 /// Arguments of `stats-sql`.
 #[derive(Debug, clap::Args)]
@@ -37,7 +37,7 @@ pub struct Args {
     #[arg(long, value_name = "TOKENS", value_delimiter = ',', allow_hyphen_values = true)]
     pub na: Option<Vec<String>>,
     /// The SQL spelling: ansi, or postgres (adds deciles by percentile_cont).
-    #[arg(long, value_enum, value_name = "D", default_value = "ansi")]
+    #[arg(long, value_name = "D", default_value = "ansi")]
     pub dialect: Dialect,
     /// Where to write the SQL (`-` for stdout).
     #[arg(long, short = 'o', value_name = "FILE", default_value = "-")]

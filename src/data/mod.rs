@@ -15,6 +15,7 @@ pub mod dataset;
 pub mod number;
 pub mod options;
 pub mod schema;
+pub mod score_column;
 pub mod split;
 pub mod suggest;
 pub mod summary;

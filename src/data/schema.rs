@@ -157,10 +157,18 @@ pub struct TargetSchema {
     pub positive_rule: PositiveRule,
 }
 
+/// Where the positive class stands in `classes`: the one lookup every
+/// part of the crate uses. A model file is refused on load when its
+/// positive class is not one of its classes, so the fallback (the first
+/// class) is never reached from a valid file.
+pub fn positive_index(classes: &[String], positive: &str) -> usize {
+    classes.iter().position(|c| c == positive).unwrap_or(0)
+}
+
 impl TargetSchema {
     /// Index of the positive class in `classes`.
     pub fn positive_index(&self) -> usize {
-        self.classes.iter().position(|c| *c == self.positive).unwrap_or(0)
+        positive_index(&self.classes, &self.positive)
     }
 
     /// The weighted class shares (the training class mix).

@@ -26,11 +26,11 @@ use crate::evaluate::metrics::{
     MulticlassMetrics, ScoreKind,
 };
 use crate::evaluate::roc::{paired_delong, placements, Placements};
-use crate::evaluate::stats::{chi_square_upper, NORMAL_975};
 use crate::model::discriminant::{fit_lda_from_moments, fit_qda_from_moments};
 use crate::model::moments::{grouped_class_moments, Moments};
 use crate::model::{fit_weighted, Family, FamilyParams, FittedModel};
 use crate::rng::Rng;
+use crate::tails::{chi_square_upper, NORMAL_975};
 
 /// One family (with its options) to compare, under a unique name.
 #[derive(Debug, Clone, PartialEq)]
@@ -536,8 +536,8 @@ pub fn evaluate(scores: &[TestedScore], options: &EvaluationOptions<'_>) -> Eval
                 metrics.auc = auc_by_repeat.iter().sum::<f64>() / auc_by_repeat.len() as f64;
                 let se = ses.iter().sum::<f64>() / ses.len() as f64;
                 metrics.auc_se = Some(se);
-                metrics.auc_ci_low = Some(metrics.auc - crate::evaluate::stats::NORMAL_975 * se);
-                metrics.auc_ci_high = Some(metrics.auc + crate::evaluate::stats::NORMAL_975 * se);
+                metrics.auc_ci_low = Some(metrics.auc - crate::tails::NORMAL_975 * se);
+                metrics.auc_ci_high = Some(metrics.auc + crate::tails::NORMAL_975 * se);
                 metrics.gini = 2.0 * metrics.auc - 1.0;
             }
             let curve = metrics.curves.clone();

@@ -24,7 +24,7 @@
 use serde::Serialize;
 
 use crate::evaluate::roc::{placements, placements_sorted, sort_by_score, sweep_sorted, CurvePoint, Placements, Sweep};
-use crate::evaluate::stats::{chi_square_upper, NORMAL_975};
+use crate::tails::{chi_square_upper, NORMAL_975};
 
 /// The shares of rows flagged at which precision, recall and lift are shown.
 pub const ALERT_RATES: [f64; 4] = [0.001, 0.005, 0.01, 0.05];

@@ -5,4 +5,3 @@
 pub mod compare;
 pub mod metrics;
 pub mod roc;
-pub mod stats;

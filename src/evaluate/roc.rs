@@ -146,7 +146,7 @@ pub fn paired_delong(a: &Placements, b: &Placements) -> Option<PairedAuc> {
     let difference = a.auc - b.auc;
     let se = variance.max(0.0).sqrt();
     let z = if se > 0.0 { difference / se } else { 0.0 };
-    Some(PairedAuc { auc_diff: difference, se, z, p_value: crate::evaluate::stats::two_sided_p(z) })
+    Some(PairedAuc { auc_diff: difference, se, z, p_value: crate::tails::two_sided_p(z) })
 }
 
 /// One point of a curve.

@@ -523,7 +523,7 @@ fn posterior_stages(
     let mut scores = Vec::new();
     match (&file.calibration, k) {
         (Some(map), 2) => {
-            let positive = file.classes.iter().position(|c| *c == file.positive).unwrap_or(0);
+            let positive = file.positive_index();
             let negative = 1 - positive;
             let z = format!("({} - {})", evidence[positive], evidence[negative]);
             let probability = match map {

@@ -11,7 +11,7 @@
 use crate::error::{Error, Result};
 
 /// The SQL spelling to write.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, clap::ValueEnum)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
 pub enum Dialect {
     /// Standard SQL only (CASE, EXP, LN, CAST, window functions,
     /// GROUPING SETS): runs on PostgreSQL, DuckDB and most warehouses.
@@ -22,8 +22,19 @@ pub enum Dialect {
     Postgres,
 }
 
+impl std::str::FromStr for Dialect {
+    type Err = String;
+
+    fn from_str(text: &str) -> std::result::Result<Self, String> {
+        [Dialect::Ansi, Dialect::Postgres]
+            .into_iter()
+            .find(|d| d.name() == text)
+            .ok_or_else(|| format!("'{text}' is not a SQL dialect baserate writes (ansi or postgres)"))
+    }
+}
+
 impl Dialect {
-    /// The command-line name.
+    /// The dialect's name.
     pub fn name(self) -> &'static str {
         match self {
             Dialect::Ansi => "ansi",

@@ -16,6 +16,7 @@
 //! Posteriors are computed in log space and normalised by log-sum-exp (the
 //! row maximum subtracted first), so no row can give NaN or infinity.
 
+pub mod aggregates;
 pub mod calibration;
 pub mod design;
 pub mod discriminant;

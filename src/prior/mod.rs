@@ -18,6 +18,7 @@
 //!   2002): 2·Σᵢ log Σₖ p(k | xᵢ)·π̂ₖ/πₖ against χ² with K − 1 degrees of
 //!   freedom, π̂ the EM estimate.
 
+pub mod shift;
 pub mod spec;
 
 pub use spec::PriorSpec;

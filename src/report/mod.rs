@@ -4,6 +4,7 @@
 
 pub mod evaluation;
 pub mod model;
+pub mod shift;
 pub mod table;
 
 pub use crate::CAUTION;

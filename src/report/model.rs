@@ -13,7 +13,7 @@ use crate::report::table::{Align, Table};
 use crate::report::{wrap, CAUTION};
 use crate::train::file::ModelFile;
 
-pub use crate::evaluate::stats::{two_sided_p, NORMAL_975};
+pub use crate::tails::{two_sided_p, NORMAL_975};
 
 /// One coefficient: estimate, and for unpenalised logistic fits its Wald
 /// inference. `class` is set for multinomial fits (that class against the
@@ -201,7 +201,7 @@ fn by_class<T: Clone>(classes: &[String], values: &[T]) -> BTreeMap<String, T> {
 
 /// The JSON view of a model file.
 pub fn inspect_json(file: &ModelFile) -> InspectJson {
-    let positive = file.classes.iter().position(|c| *c == file.positive).unwrap_or(0);
+    let positive = file.positive_index();
     let (coefficients, discriminant) = match &file.model {
         FittedModel::Logistic(m) => (logistic_coefficients(m), Vec::new()),
         FittedModel::Lda(m) => (Vec::new(), discriminant_coefficients(m, &file.prior, positive)),

@@ -102,10 +102,111 @@ pub struct HeldOut {
     pub mean_posterior: Vec<f64>,
 }
 
+/// Assembles a [`ModelFile`]: the one place a model file is made, whether
+/// from a file's rows ([`crate::train::train`]) or from aggregates. The
+/// format fields, the tool version and the creation time are filled in,
+/// the classes and the positive class come from the schema, and the file
+/// is validated when built.
+#[derive(Debug, Clone)]
+pub struct ModelFileBuilder {
+    file: ModelFile,
+}
+
 impl ModelFile {
-    /// The class mix the model's posteriors are calibrated to when no prior
-    /// is applied: the prior in use for class-conditional families, the
-    /// training class mix for logistic regression.
+    /// A builder for a model file of the fitted `model`, its hyperparameters
+    /// and its training schema. The prior and the training class mix
+    /// default to the schema's class mix (for logistic regression, the
+    /// mix its posteriors are calibrated to).
+    pub fn builder(
+        params: FamilyParams,
+        schema: Schema,
+        model: FittedModel,
+        diagnostics: Diagnostics,
+        training: TrainingInfo,
+    ) -> ModelFileBuilder {
+        let class_mix = match &model {
+            FittedModel::Logistic(m) => m.class_mix.clone(),
+            _ => schema.target.class_mix(),
+        };
+        ModelFileBuilder {
+            file: ModelFile {
+                format: FORMAT.to_string(),
+                format_version: FORMAT_VERSION,
+                tool_version: env!("CARGO_PKG_VERSION").to_string(),
+                created: crate::io::utc_timestamp(),
+                family: params.family(),
+                params,
+                classes: schema.target.classes.clone(),
+                positive: schema.target.positive.clone(),
+                schema,
+                prior: class_mix.clone(),
+                training_class_mix: class_mix,
+                training,
+                diagnostics,
+                model,
+                held_out: None,
+                calibration: None,
+                sampling_rates: None,
+                drift_reference: None,
+            },
+        }
+    }
+}
+
+impl ModelFileBuilder {
+    /// The prior applied when scoring without another.
+    pub fn prior(mut self, prior: Vec<f64>) -> Self {
+        self.file.prior = prior;
+        self
+    }
+
+    /// The class mix of the training rows (as weighted for the fit).
+    pub fn training_class_mix(mut self, mix: Vec<f64>) -> Self {
+        self.file.training_class_mix = mix;
+        self
+    }
+
+    /// The classes' sampling rates in the training data.
+    pub fn sampling_rates(mut self, rates: Vec<f64>) -> Self {
+        self.file.sampling_rates = Some(rates);
+        self
+    }
+
+    /// The calibration map.
+    pub fn calibration(mut self, map: crate::model::calibration::CalibrationMap) -> Self {
+        self.file.calibration = Some(map);
+        self
+    }
+
+    /// The summary of out-of-fold predictions.
+    pub fn held_out(mut self, held_out: HeldOut) -> Self {
+        self.file.held_out = Some(held_out);
+        self
+    }
+
+    /// The training distribution for drift checks.
+    pub fn drift_reference(mut self, reference: crate::model::drift::DriftReference) -> Self {
+        self.file.drift_reference = Some(reference);
+        self
+    }
+
+    /// The model file, checked for consistency.
+    pub fn build(self) -> Result<ModelFile> {
+        let family = self.file.family;
+        self.file.validate().map_err(|message| Error::FitFailed { family: family.name().into(), message })?;
+        Ok(self.file)
+    }
+}
+
+impl ModelFile {
+    /// Where the positive class stands in [`ModelFile::classes`].
+    pub fn positive_index(&self) -> usize {
+        crate::data::schema::positive_index(&self.classes, &self.positive)
+    }
+
+    /// The class mix the model's posteriors are calibrated to: the prior
+    /// for the class-conditional families, the training class mix for
+    /// logistic regression.
     pub fn calibrated_to(&self) -> &[f64] {
         if self.family.is_class_conditional() {
             &self.prior
@@ -122,7 +223,7 @@ impl ModelFile {
         let base = self.calibrated_to().to_vec();
         let mut lp = self.model.log_posteriors(inputs, &base);
         let k = self.classes.len();
-        let positive = self.classes.iter().position(|c| *c == self.positive).unwrap_or(0);
+        let positive = self.positive_index();
         if let Some(values) = lp.as_slice_mut() {
             for row in values.chunks_mut(k) {
                 if let (Some(map), 2) = (&self.calibration, k) {

@@ -1,4 +1,5 @@
-//! Tail probabilities for the tests the evaluation reports.
+//! Tail probabilities of the normal and chi-square distributions, for the
+//! tests that the evaluation and the shift estimate report.
 
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 
