@@ -46,3 +46,19 @@ fn readme_excerpts_match_the_program() {
     }
     assert!(checked >= 3, "expected at least three command excerpts, found {checked}");
 }
+
+/// The README's Rust example is the crate documentation's doctest, which
+/// `cargo test` compiles and runs: the two copies must not drift apart.
+#[test]
+fn the_rust_example_is_the_doctest() {
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));
+    let readme = std::fs::read_to_string(root.join("README.md")).expect("README.md");
+    let lib = std::fs::read_to_string(root.join("src/lib.rs")).expect("src/lib.rs");
+    let shown = readme.split("```rust\n").nth(1).and_then(|rest| rest.split("\n```").next()).expect("a rust block");
+    let doc: Vec<&str> =
+        lib.lines().filter_map(|l| l.strip_prefix("//!")).map(|l| l.strip_prefix(' ').unwrap_or(l)).collect();
+    let start = doc.iter().position(|l| *l == "```").expect("the doctest's fence") + 1;
+    let end = start + doc[start..].iter().position(|l| *l == "```").expect("its closing fence");
+    let doctest: Vec<&str> = doc[start..end].iter().copied().filter(|l| !l.starts_with("# ")).collect();
+    assert_eq!(shown, doctest.join("\n"), "README.md's Rust example differs from the doctest in src/lib.rs");
+}

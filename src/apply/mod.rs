@@ -6,8 +6,10 @@
 //!
 //! - [`plan`]: the header checked against the schema before any row is read;
 //! - [`row`]: records turned into model inputs, or set aside with a reason;
-//! - [`in_memory`]: a whole file read against a training schema.
+//! - [`in_memory`]: a whole file read against a training schema;
+//! - [`arrays`]: rows held as arrays, by the same plan and fills.
 
+pub mod arrays;
 pub mod in_memory;
 pub mod plan;
 pub mod row;

@@ -11,7 +11,7 @@ use crate::data::csv_chunk::NaMatcher;
 use crate::data::number::{parse_f64, scan_f64};
 use crate::data::options::MissingPolicy;
 use crate::error::{Error, Position};
-use crate::records::{count_line_ends, push_field, record_end, Dialect, Fields};
+use crate::records::{push_field, records, Dialect, Fields};
 
 /// A row-level problem: the reason, the column (if one) and the detail.
 #[derive(Debug)]
@@ -209,19 +209,12 @@ pub fn read_rows(
     on_reject: &mut dyn FnMut(u64, &Problem, &[u8]),
 ) -> std::result::Result<u64, (u64, Problem)> {
     let mut fields = Fields::new();
-    let mut position = 0;
-    let mut line = 0u64;
-    while let Some(end) = record_end(bytes, position, &rules.dialect, true) {
-        let record = &bytes[position..end.end];
-        let record_line = line;
-        line += count_line_ends(&bytes[position..end.next]);
-        position = end.next;
-        if record.is_empty() {
-            continue;
-        }
+    let mut records = records(bytes, &rules.dialect, 0);
+    for found in records.by_ref() {
+        let (record, record_line) = (found.bytes, found.line);
         // A record cut inside quotes before the end of the input was cut
         // by the size cap.
-        let oversized = end.oversized || (end.unclosed && !last);
+        let oversized = found.oversized || (found.unclosed && !last);
         counts.rows_read += 1;
         let mark = rows.mark();
         let parsed = if oversized {
@@ -249,7 +242,7 @@ pub fn read_rows(
             }
         }
     }
-    Ok(line)
+    Ok(records.line())
 }
 
 /// A reject record without its line: `column,reason,message,row` and a

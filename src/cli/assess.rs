@@ -15,7 +15,7 @@ use baserate::data::Dataset;
 use baserate::error::Error;
 use baserate::evaluate::compare::{evaluate, evaluate_reweighted, EvaluationOptions, TestedScore};
 use baserate::evaluate::metrics::ScoreKind;
-use baserate::report::evaluation::{evaluation_html, evaluation_text};
+use baserate::report::evaluation::{evaluation_html, evaluation_screen};
 
 /// `--score-type` values.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
@@ -194,15 +194,10 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     if args.evaluation.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
         return Ok(ExitCode::SUCCESS);
     }
-    let text = crate::cli::compare::with_reweighted(
-        evaluation_text(&evaluation),
-        target_prior.as_deref(),
-        reweighted.as_ref(),
-        &target.classes,
-    );
-    match text.find("Caution:") {
-        Some(at) if !cost_table.is_empty() => print!("{}{cost_table}\n{}", &text[..at], &text[at..]),
-        _ => print!("{text}"),
-    }
+    let reweighted = match (target_prior.as_deref(), reweighted.as_ref()) {
+        (Some(to), Some(r)) => Some((r, to, target.classes.as_slice())),
+        _ => None,
+    };
+    print!("{}", evaluation_screen(&evaluation, reweighted, &cost_table, true));
     Ok(ExitCode::SUCCESS)
 }

@@ -21,7 +21,7 @@ use baserate::evaluate::compare::{
     cross_predict, evaluate, evaluate_reweighted, learning_curve, multiclass, Candidate, EvaluationOptions, TestedScore,
 };
 use baserate::model::Family;
-use baserate::report::evaluation::{evaluation_html, evaluation_text};
+use baserate::report::evaluation::{evaluation_html, evaluation_screen};
 
 /// Arguments of `compare`.
 #[derive(Debug, clap::Args)]
@@ -194,28 +194,6 @@ pub fn costs_text(figures: &[baserate::evaluate::compare::CostFigures]) -> Strin
     format!(
         "\ndecisions under the costs (realised cost of the Bayes-rule action on the tested rows):\n{}",
         table.render()
-    )
-}
-
-/// The terminal text with the reweighted figures after the measured ones,
-/// and the caution once, at the end.
-pub fn with_reweighted(
-    text: String,
-    to: Option<&[f64]>,
-    reweighted: Option<&baserate::evaluate::compare::Evaluation>,
-    classes: &[String],
-) -> String {
-    let (Some(to), Some(r)) = (to, reweighted) else { return text };
-    let mix: Vec<String> =
-        classes.iter().zip(to).map(|(c, p)| format!("{c} {}", baserate::format::percent(*p))).collect();
-    let table = evaluation_text(r);
-    let body = table.split("\n\n").nth(1).unwrap_or("");
-    let caution_at = text.find("Caution:").unwrap_or(text.len());
-    let (measured, caution) = text.split_at(caution_at);
-    format!(
-        "posteriors stated at the target class mix ({}); figures as measured on the tested rows:\n\n{measured}the same, reweighted to the target class mix (importance weights by class):\n\n{}\n\n{caution}",
-        mix.join(", "),
-        body.trim_end()
     )
 }
 
@@ -547,16 +525,11 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
     if args.evaluation.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
         return Ok(ExitCode::SUCCESS);
     }
-    let text =
-        with_reweighted(evaluation_text(&evaluation), target_prior.as_deref(), reweighted.as_ref(), &target.classes);
-    let text = match text.find("Caution:") {
-        Some(at) if !cost_table.is_empty() => format!("{}{cost_table}\n{}", &text[..at], &text[at..]),
-        _ => text,
+    let reweighted = match (target_prior.as_deref(), reweighted.as_ref()) {
+        (Some(to), Some(r)) => Some((r, to, target.classes.as_slice())),
+        _ => None,
     };
-    match text.find(baserate::CAUTION.split_whitespace().next().unwrap_or("Caution:")) {
-        Some(at) if !caution => print!("{}", &text[..at]),
-        _ => print!("{text}"),
-    }
+    print!("{}", evaluation_screen(&evaluation, reweighted, &cost_table, caution));
     if let Some(path) = &args.evaluation.report {
         if caution {
             println!("report written to {}", path.display());

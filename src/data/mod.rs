@@ -9,6 +9,7 @@
 //!
 //! This layer knows nothing of models.
 
+pub mod arrays;
 pub mod csv_chunk;
 pub mod csv_read;
 pub mod dataset;
@@ -20,6 +21,7 @@ pub mod split;
 pub mod suggest;
 pub mod summary;
 
+pub use arrays::{ColumnDescription, LabelledArrays};
 pub use dataset::{DataNotice, Dataset, Inputs};
 pub use options::{MissingPolicy, ReadOptions};
 pub use schema::Schema;

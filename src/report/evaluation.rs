@@ -5,7 +5,7 @@
 use plotters::prelude::*;
 
 use crate::evaluate::compare::{Evaluation, LearningPoint};
-use crate::format::{count, number};
+use crate::format::{count, number, percent};
 use crate::report::table::{Align, Table};
 use crate::report::{wrap, CAUTION};
 
@@ -142,10 +142,46 @@ pub fn evaluation_text(e: &Evaluation) -> String {
             out.push_str(&format!("warning ({}): {}\n", r.name, wrap(w, 90, 4)));
         }
     }
-    out.push('\n');
-    out.push_str(&wrap(CAUTION, 100, 0));
-    out.push('\n');
     out
+}
+
+/// The whole terminal screen of `compare` or `judge`: the figures as
+/// measured; with a target class mix, the same reweighted to it; the
+/// decisions under the costs (`cost_table`, empty without costs); and the
+/// caution, as its own element, when `caution` is set.
+pub fn evaluation_screen(
+    measured: &Evaluation,
+    reweighted: Option<(&Evaluation, &[f64], &[String])>,
+    cost_table: &str,
+    caution: bool,
+) -> String {
+    let measured_text = format!("{}\n", evaluation_text(measured));
+    let mut text = match reweighted {
+        None => measured_text,
+        Some((r, to, classes)) => {
+            let mix: Vec<String> = classes.iter().zip(to).map(|(c, p)| format!("{c} {}", percent(*p))).collect();
+            let table = evaluation_text(r);
+            let body = table.split("\n\n").nth(1).unwrap_or("");
+            format!(
+                "posteriors stated at the target class mix ({}); figures as measured on the tested rows:\n\n{measured_text}the same, reweighted to the target class mix (importance weights by class):\n\n{}\n\n",
+                mix.join(", "),
+                body.trim_end()
+            )
+        }
+    };
+    if !cost_table.is_empty() {
+        text.push_str(cost_table);
+        text.push('\n');
+    }
+    if caution {
+        text.push_str(&caution_text());
+    }
+    text
+}
+
+/// The caution as the terminal shows it: wrapped, on its own lines.
+pub fn caution_text() -> String {
+    format!("{}\n", wrap(CAUTION, 100, 0))
 }
 
 const PALETTE: [RGBColor; 8] = [
