@@ -3,5 +3,9 @@
 //! side-by-side comparison of families on shared splits.
 
 pub mod compare;
+pub mod cost_figures;
+pub mod cross_validation;
+pub mod learning_curve;
 pub mod metrics;
+pub mod paired;
 pub mod roc;
