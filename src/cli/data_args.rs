@@ -51,6 +51,36 @@ pub struct DataArgs {
     pub positive: Option<String>,
 }
 
+/// How the commands that apply a model (`score`, `shift`) read a file and
+/// what they do with a row they cannot score: declared once for both.
+#[derive(Debug, Clone, ClapArgs)]
+pub struct ApplyArgs {
+    /// Field delimiter: one character, or `tab`.
+    #[arg(long, value_name = "C", default_value = ",")]
+    pub delimiter: String,
+    /// Missing-value tokens [default: the training file's].
+    #[arg(long, value_name = "TOKENS", value_delimiter = ',', allow_hyphen_values = true)]
+    pub na: Option<Vec<String>>,
+    /// Rows that cannot be scored go here (CSV: line, column, reason, message, row); without it such a row stops the run.
+    #[arg(long, value_name = "FILE")]
+    pub rejects: Option<std::path::PathBuf>,
+    /// The policies for unseen and missing values.
+    #[command(flatten)]
+    pub policies: PolicyArgs,
+}
+
+/// The policies for values a model has not seen, shared by `score`, `shift`
+/// and `export-sql`.
+#[derive(Debug, Clone, ClapArgs)]
+pub struct PolicyArgs {
+    /// A category the training data never had: stop (error), set the row aside (reject), or take it as missing.
+    #[arg(long, value_name = "POLICY", default_value = "error")]
+    pub unseen: baserate::apply::UnseenPolicy,
+    /// A missing value the model has no fill for: stop (error), fill with the training median or the missing level (impute), or set the row aside (drop-rows) [default: the training policy].
+    #[arg(long, value_name = "POLICY")]
+    pub missing: Option<String>,
+}
+
 /// Parses `--delimiter`: a single byte character, or `tab` / `\t`.
 pub fn parse_delimiter(text: &str) -> Result<u8> {
     match text {

@@ -5,10 +5,10 @@
 use std::path::PathBuf;
 use std::process::ExitCode;
 
+use crate::cli::data_args::PolicyArgs;
 use crate::cli::output::write_atomic;
 use crate::cli::score::{parse_missing, read_costs, PriorArgs};
 use crate::cli::Failure;
-use baserate::apply::UnseenPolicy;
 use baserate::export::scoring::{scoring_sql, ScoringRequest};
 use baserate::export::Dialect;
 use baserate::train::file::ModelFile;
@@ -33,12 +33,9 @@ pub struct Args {
     /// The SQL spelling: ansi (standard SQL) or postgres.
     #[arg(long, value_name = "D", default_value = "ansi")]
     pub dialect: Dialect,
-    /// A category the training data never had: marked as a reject (error, reject) or taken as missing.
-    #[arg(long, value_name = "POLICY", default_value = "error")]
-    pub unseen: UnseenPolicy,
-    /// A missing value the model has no fill for: error or drop-rows (both mark the row), or impute [default: the training policy].
-    #[arg(long, value_name = "POLICY")]
-    pub missing: Option<String>,
+    /// The policies for unseen and missing values (in SQL a row that would stop `score` is kept and marked with its reject reason).
+    #[command(flatten)]
+    pub policies: PolicyArgs,
     /// Text values that count as missing in categorical columns, besides NULL and '' [default: the training file's].
     #[arg(long, value_name = "TOKENS", value_delimiter = ',', allow_hyphen_values = true)]
     pub na: Option<Vec<String>>,
@@ -58,8 +55,8 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         prior,
         costs,
         ids: args.ids.clone(),
-        missing: parse_missing(args.missing.as_deref())?,
-        unseen: args.unseen,
+        missing: parse_missing(args.policies.missing.as_deref())?,
+        unseen: args.policies.unseen,
         na_tokens: args.na.clone(),
     };
     let text = scoring_sql(&file, &request)?;

@@ -8,10 +8,9 @@ use std::path::PathBuf;
 
 use std::process::ExitCode;
 
-use crate::cli::data_args::parse_delimiter;
+use crate::cli::data_args::{parse_delimiter, ApplyArgs};
 use crate::cli::fit::prior_spec;
 use crate::cli::Failure;
-use baserate::apply::UnseenPolicy;
 use baserate::batch::{Outputs, ScoreJob, Summary};
 use baserate::data::options::MissingPolicy;
 use baserate::train::file::ModelFile;
@@ -35,15 +34,9 @@ pub struct Args {
     /// Columns passed through to the output (comma-separated; repeatable).
     #[arg(long = "id", value_name = "COLS", value_delimiter = ',')]
     pub ids: Vec<String>,
-    /// Field delimiter: one character, or `tab`.
-    #[arg(long, value_name = "C", default_value = ",")]
-    pub delimiter: String,
-    /// Missing-value tokens [default: the training file's].
-    #[arg(long, value_name = "TOKENS", value_delimiter = ',', allow_hyphen_values = true)]
-    pub na: Option<Vec<String>>,
-    /// Rows that cannot be scored go here (CSV: line, column, reason, message, row); without it such a row stops the run.
-    #[arg(long, value_name = "FILE")]
-    pub rejects: Option<PathBuf>,
+    /// Reading and the policies for rows that cannot be scored.
+    #[command(flatten)]
+    pub apply: ApplyArgs,
     /// Writes the run's summary as JSON (`-` for stdout).
     #[arg(long, value_name = "FILE")]
     pub summary: Option<PathBuf>,
@@ -53,12 +46,6 @@ pub struct Args {
     /// Columns passed through at the end of each output row (comma-separated).
     #[arg(long, value_name = "COLS", value_delimiter = ',')]
     pub keep: Vec<String>,
-    /// A category the training data never had: stop, set the row aside, or take it as missing.
-    #[arg(long, value_name = "POLICY", default_value = "error")]
-    pub unseen: UnseenPolicy,
-    /// A missing value the model has no fill for: stop (error), fill with the training median or the missing level (impute), or set the row aside (drop-rows) [default: the training policy].
-    #[arg(long, value_name = "POLICY")]
-    pub missing: Option<String>,
     /// Adds the K features that moved each row most toward the positive class (logistic, lda, naive-bayes).
     #[arg(long, value_name = "K")]
     pub reasons: Option<usize>,
@@ -153,7 +140,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             return Err(baserate::Error::Usage(format!("--max-reject-rate must be between 0 and 1; got {rate}")).into());
         }
     }
-    let missing = parse_missing(args.missing.as_deref())?;
+    let missing = parse_missing(args.apply.policies.missing.as_deref())?;
     if args.reasons == Some(0) {
         return Err(baserate::Error::Usage("--reasons K needs K of at least 1".into()).into());
     }
@@ -163,16 +150,17 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         costs,
         ids: args.ids.clone(),
         keep: args.keep.clone(),
-        delimiter: parse_delimiter(&args.delimiter)?,
-        na_tokens: args.na.clone(),
-        unseen: args.unseen,
+        delimiter: parse_delimiter(&args.apply.delimiter)?,
+        na_tokens: args.apply.na.clone(),
+        unseen: args.apply.policies.unseen,
         missing,
         reasons: args.reasons.unwrap_or(0),
         threads: args.threads,
         chunk_bytes: args.chunk_bytes,
         max_record_bytes: args.max_record_bytes.max(1),
     };
-    let outputs = Outputs { scores: args.out.clone(), rejects: args.rejects.clone(), summary: args.summary.clone() };
+    let outputs =
+        Outputs { scores: args.out.clone(), rejects: args.apply.rejects.clone(), summary: args.summary.clone() };
     let total_bytes = if args.data.as_os_str() == "-" || args.data.extension().is_some_and(|e| e == "gz") {
         None
     } else {

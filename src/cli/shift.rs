@@ -11,13 +11,12 @@ use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
-use crate::cli::data_args::parse_delimiter;
+use crate::cli::data_args::{parse_delimiter, ApplyArgs};
 use crate::cli::output::write_atomic;
 use crate::cli::score::parse_missing;
 use crate::cli::Failure;
 use baserate::apply::in_memory::{estimate_portfolio_shift, ScoringRequest};
 use baserate::apply::row::{policy_setting_rows_aside, REJECT_HEADER};
-use baserate::apply::UnseenPolicy;
 use baserate::data::score_column::read_score_column;
 use baserate::error::Error;
 use baserate::prior::shift::{estimate_shift, ShiftEstimate, ShiftInput, ShiftOptions};
@@ -43,21 +42,9 @@ pub struct Args {
     /// The label column of --reference.
     #[arg(long, value_name = "COL")]
     pub target: Option<String>,
-    /// Field delimiter: one character, or `tab`.
-    #[arg(long, value_name = "C", default_value = ",")]
-    pub delimiter: String,
-    /// Missing-value tokens [default: the training file's].
-    #[arg(long, value_name = "TOKENS", value_delimiter = ',', allow_hyphen_values = true)]
-    pub na: Option<Vec<String>>,
-    /// A category the training data never had: stop, set the row aside, or take it as missing.
-    #[arg(long, value_name = "POLICY", default_value = "error")]
-    pub unseen: UnseenPolicy,
-    /// A missing value the model has no fill for: stop (error), fill with the training median or the missing level (impute), or set the row aside (drop-rows) [default: the training policy].
-    #[arg(long, value_name = "POLICY")]
-    pub missing: Option<String>,
-    /// Rows that cannot be scored go here (CSV: line, column, reason, message, row) and are left out of the estimate; without it such a row stops the run.
-    #[arg(long, value_name = "FILE")]
-    pub rejects: Option<PathBuf>,
+    /// Reading the new rows and the policies for rows that cannot be scored (set aside rows are left out of the estimate).
+    #[command(flatten)]
+    pub apply: ApplyArgs,
     /// Bootstrap draws for the intervals.
     #[arg(long, value_name = "N", default_value_t = 200)]
     pub bootstrap: usize,
@@ -86,7 +73,7 @@ pub fn run_quietly(args: Args) -> Result<ExitCode, Failure> {
 
 fn execute(args: Args, talk: bool) -> Result<ExitCode, Failure> {
     let options = ShiftOptions { bootstrap: args.bootstrap, seed: args.seed };
-    let delimiter = parse_delimiter(&args.delimiter)?;
+    let delimiter = parse_delimiter(&args.apply.delimiter)?;
     let estimate = match (args.files.as_slice(), &args.score) {
         ([model, data], None) => model_form(&args, model, data, delimiter, &options)?,
         ([data], Some(column)) => scores_form(&args, data, column, delimiter, &options)?,
@@ -116,13 +103,13 @@ fn model_form(
     options: &ShiftOptions,
 ) -> baserate::Result<ShiftEstimate> {
     let file = ModelFile::load(model)?;
-    let missing = parse_missing(args.missing.as_deref())?;
-    if args.rejects.is_none() {
-        if let Some(flag) = policy_setting_rows_aside(args.unseen, missing) {
+    let missing = parse_missing(args.apply.policies.missing.as_deref())?;
+    if args.apply.rejects.is_none() {
+        if let Some(flag) = policy_setting_rows_aside(args.apply.policies.unseen, missing) {
             return Err(Error::Usage(format!("{flag} sets rows aside, so it needs --rejects FILE to put them in")));
         }
     }
-    if let Some(rejects) = &args.rejects {
+    if let Some(rejects) = &args.apply.rejects {
         if rejects.as_path() == data || rejects.as_path() == model || args.json.as_ref() == Some(rejects) {
             return Err(Error::Usage("--rejects names another file of the run; write the rejects elsewhere".into()));
         }
@@ -130,13 +117,13 @@ fn model_form(
     let request = ScoringRequest {
         ids: Vec::new(),
         dialect: Dialect::with_delimiter(delimiter),
-        na_tokens: args.na.as_ref().map(|t| t.iter().filter(|t| !t.is_empty()).cloned().collect()),
+        na_tokens: args.apply.na.as_ref().map(|t| t.iter().filter(|t| !t.is_empty()).cloned().collect()),
         missing,
-        unseen: args.unseen,
-        keep_rejects: args.rejects.is_some(),
+        unseen: args.apply.policies.unseen,
+        keep_rejects: args.apply.rejects.is_some(),
     };
     let (estimate, read) = estimate_portfolio_shift(&file, data, &request, options)?;
-    if let Some(path) = &args.rejects {
+    if let Some(path) = &args.apply.rejects {
         let mut text = REJECT_HEADER.as_bytes().to_vec();
         for (line, rest) in &read.rejects {
             text.extend_from_slice(format!("{line},").as_bytes());
