@@ -121,12 +121,7 @@ pub fn inputs_from_arrays(
     }
     counts.rows_read = rows as u64;
     counts.rows_kept = rows as u64;
-    let feature_names = plan.numeric.iter().map(|f| &f.name).chain(plan.categorical.iter().map(|f| &f.name));
-    let imputed = feature_names
-        .zip(&counts.filled)
-        .filter(|(_, &filled)| filled > 0)
-        .map(|(name, &filled)| (name.clone(), filled))
-        .collect();
+    let imputed = counts.imputed(&plan);
     let lines = (1..=rows as u64).collect();
     Ok(ScoringData { numeric, categorical, ids: Vec::new(), imputed, counts, rejects: Vec::new(), lines })
 }

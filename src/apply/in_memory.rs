@@ -136,12 +136,7 @@ pub fn read_bytes_for_scoring(
             (name.clone(), values)
         })
         .collect();
-    let feature_names = plan.numeric.iter().map(|f| &f.name).chain(plan.categorical.iter().map(|f| &f.name));
-    let imputed = feature_names
-        .zip(&counts.filled)
-        .filter(|(_, &filled)| filled > 0)
-        .map(|(name, &filled)| (name.clone(), filled))
-        .collect();
+    let imputed = counts.imputed(&plan);
     let lines = rows.lines.iter().map(|l| first_line + l).collect();
     Ok(ScoringData {
         numeric,

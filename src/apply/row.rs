@@ -121,6 +121,17 @@ impl RowCounts {
             ..RowCounts::default()
         }
     }
+
+    /// The features with missing values filled, and how many, in the
+    /// plan's order (numeric, then categorical).
+    pub fn imputed(&self, plan: &Plan) -> Vec<(String, u64)> {
+        let names = plan.numeric.iter().map(|f| &f.name).chain(plan.categorical.iter().map(|f| &f.name));
+        names
+            .zip(&self.filled)
+            .filter(|(_, &filled)| filled > 0)
+            .map(|(name, &filled)| (name.clone(), filled))
+            .collect()
+    }
 }
 
 /// The rules for turning one file's records into model inputs: the plan
