@@ -96,6 +96,8 @@ pub mod error;
 pub mod evaluate;
 pub mod export;
 pub mod format;
+#[cfg(feature = "linfa")]
+pub mod interop;
 pub mod io;
 pub mod model;
 pub mod prior;

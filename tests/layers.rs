@@ -31,6 +31,7 @@ const FLOORS: &[(&str, u32)] = &[
     ("apply", 9),    // a model's schema applied to rows: header check, fills, reject reasons
     ("batch", 10),   // deployment wing: batch scoring
     ("export", 10),  // deployment wing: SQL export
+    ("interop", 10), // the families behind linfa's traits (feature linfa)
     ("report", 11),  // tables and reports
     ("cli", 12),     // the binary (src/main.rs and src/cli/): may import anything
 ];
