@@ -1,8 +1,8 @@
 //! A model's schema applied to rows: the header checked against the
 //! schema, what each field feeds, the fills for missing and unseen values,
-//! and the reasons a row is set aside. The streaming job ([`crate::batch`]),
-//! the SQL export ([`crate::export`]) and whole-file reading for `shift`
-//! ([`in_memory`]) all take these rules from here.
+//! and the reasons a row is set aside. The streaming scoring job, the SQL
+//! export and whole-file reading for `shift` ([`in_memory`]) all take these
+//! rules from here (the first two stand on the floor above).
 //!
 //! - [`plan`]: the header checked against the schema before any row is read;
 //! - [`row`]: records turned into model inputs, or set aside with a reason;

@@ -1,6 +1,7 @@
 //! Fitting the class-conditional families from aggregates an SQL engine
 //! computes: the aggregates as read, and the fit from them. (The query
-//! that computes them and its reader are in `crate::export`.)
+//! that computes them and its reader are the warehouse path's, a floor
+//! above.)
 //!
 //! LDA, QDA and Gaussian naive Bayes depend on the rows only through each
 //! class's weight, mean and centred cross-products (and, for naive Bayes,
