@@ -11,7 +11,7 @@ use std::process::ExitCode;
 use crate::cli::data_args::{parse_delimiter, ApplyArgs};
 use crate::cli::fit::prior_spec;
 use crate::cli::Failure;
-use baserate::batch::{Outputs, ScoreJob, Summary};
+use baserate::batch::{Outputs, ScoreJob};
 use baserate::data::options::MissingPolicy;
 use baserate::train::file::ModelFile;
 
@@ -91,10 +91,9 @@ fn resolve_prior(
     base_rate: Option<f64>,
     prior_from: Option<&str>,
 ) -> baserate::Result<Vec<f64>> {
-    let positive = file.positive_index();
     match (prior_spec(prior, base_rate)?, prior_from) {
         (Some(_), Some(_)) => Err(baserate::Error::Usage("give --prior/--base-rate or --prior-from, not both".into())),
-        (Some(spec), None) => spec.resolve(&file.classes, &file.training_class_mix, positive),
+        (Some(spec), None) => spec.resolve(&file.classes, &file.training_class_mix, file.positive_index()),
         (None, Some(from)) => crate::cli::shift::prior_from_file(from, &file.classes),
         (None, None) => Ok(file.prior.clone()),
     }
@@ -132,7 +131,6 @@ pub fn read_costs(path: &std::path::Path, file: &ModelFile) -> baserate::Result<
 /// Runs `score`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let file = ModelFile::load(&args.model)?;
-    let positive = file.positive_index();
     let prior = args.priors.resolve(&file)?;
     let costs = args.costs.as_deref().map(|path| read_costs(path, &file)).transpose()?;
     if let Some(rate) = args.max_reject_rate {
@@ -182,7 +180,8 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         other => Failure::Library(other),
     })?;
     if !args.quiet {
-        print_summary(&file, &args, &job, &summary, positive);
+        let target = if args.out.as_os_str() == "-" { "stdout".to_string() } else { args.out.display().to_string() };
+        eprint!("{}", baserate::report::score::render_score_summary(&file, &job, &summary, &target));
     }
     if let Some(rate) = args.max_reject_rate {
         if summary.reject_rate > rate {
@@ -218,87 +217,4 @@ fn progress_bar(quiet: bool, total_bytes: Option<u64>) -> Option<indicatif::Prog
         ),
     };
     Some(bar)
-}
-
-/// The summary in a few lines on stderr.
-fn print_summary(file: &ModelFile, args: &Args, job: &ScoreJob, summary: &Summary, positive: usize) {
-    let set_aside = if summary.rows_rejected == 0 {
-        String::new()
-    } else {
-        let reasons: Vec<String> = summary.rejected_by_reason.iter().map(|(r, n)| format!("{r} {n}")).collect();
-        format!(" ({} set aside: {})", summary.rows_rejected, reasons.join(", "))
-    };
-    let target = if args.out.as_os_str() == "-" { "stdout".to_string() } else { args.out.display().to_string() };
-    if summary.rows_scored == summary.rows_read {
-        eprintln!(
-            "scored {} rows with the {} model; posteriors written to {target}",
-            summary.rows_scored,
-            file.family.name()
-        );
-    } else {
-        eprintln!(
-            "scored {} of {} rows with the {} model{set_aside}; posteriors written to {target}",
-            summary.rows_scored,
-            summary.rows_read,
-            file.family.name()
-        );
-    }
-    for (column, n) in &summary.filled_missing {
-        eprintln!("note: column '{column}': {n} missing values filled as in training");
-    }
-    for (column, n) in &summary.unseen_as_missing {
-        eprintln!("note: column '{column}': {n} unseen categories taken as missing");
-    }
-    let outside: Vec<String> = summary
-        .out_of_range
-        .iter()
-        .filter(|o| o.below + o.above > 0)
-        .map(|o| format!("{} {} below, {} above", o.feature, o.below, o.above))
-        .collect();
-    if !outside.is_empty() {
-        eprintln!("outside the training range: {}", outside.join("; "));
-    }
-    if let Some(drift) = &summary.drift {
-        let mut flagged: Vec<&baserate::batch::Stability> =
-            drift.features.iter().filter(|s| s.band != "stable").collect();
-        flagged.sort_by(|a, b| b.psi.total_cmp(&a.psi));
-        let features = if flagged.is_empty() {
-            "every feature stable".to_string()
-        } else {
-            flagged
-                .iter()
-                .map(|s| format!("{} {:.3} {}", s.feature.as_deref().unwrap_or(""), s.psi, s.band))
-                .collect::<Vec<_>>()
-                .join(", ")
-        };
-        let score = match &drift.score {
-            Some(s) => format!("score {:.3} {}", s.psi, s.band),
-            None => "score not available (no training score distribution in the model)".into(),
-        };
-        eprintln!("drift (PSI vs training): {score}; {features}");
-    }
-    if let (Some(spec), Some(actions), Some(total)) = (&job.costs, &summary.actions, summary.total_expected_cost) {
-        let counts: Vec<String> =
-            spec.actions.iter().map(|a| format!("{} {}", a.name, actions.get(&a.name).copied().unwrap_or(0))).collect();
-        eprintln!(
-            "decisions: {}; total expected cost {total:.2} ({:.4} per row)",
-            counts.join(", "),
-            total / summary.rows_scored.max(1) as f64
-        );
-        if let Some((action, cutoff)) = spec.cutoff(positive) {
-            let base = file.calibrated_to()[positive];
-            let on_model_scale = if (job.prior[positive] - base).abs() > 1e-12 {
-                format!(
-                    " (on the model's own scale, at its class mix {base:.4}: {:.6})",
-                    baserate::decide::cutoff_on_training_scale(cutoff, base, job.prior[positive])
-                )
-            } else {
-                String::new()
-            };
-            eprintln!("equivalent rule: {action} when p({}) >= {cutoff:.6}{on_model_scale}", file.positive);
-        }
-        eprintln!("{}", baserate::report::wrap(baserate::CAUTION, 100, 0));
-    } else if job.reasons > 0 {
-        eprintln!("{}", baserate::report::wrap(baserate::CAUTION, 100, 0));
-    }
 }

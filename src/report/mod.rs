@@ -5,6 +5,7 @@
 pub mod describe;
 pub mod evaluation;
 pub mod model;
+pub mod score;
 pub mod shift;
 pub mod table;
 

@@ -1,0 +1,93 @@
+//! The summary `score` prints when the run ends: rows scored and set
+//! aside, values filled, inputs outside the training range, drift, the
+//! decisions and their cost, the equivalent cutoff, and the caution.
+
+use crate::batch::{ScoreJob, Summary};
+use crate::train::file::ModelFile;
+
+/// The end-of-run summary of `score` (`target` names where the posteriors
+/// went).
+pub fn render_score_summary(file: &ModelFile, job: &ScoreJob, summary: &Summary, target: &str) -> String {
+    let positive = file.positive_index();
+    let mut lines: Vec<String> = Vec::new();
+    let set_aside = if summary.rows_rejected == 0 {
+        String::new()
+    } else {
+        let reasons: Vec<String> = summary.rejected_by_reason.iter().map(|(r, n)| format!("{r} {n}")).collect();
+        format!(" ({} set aside: {})", summary.rows_rejected, reasons.join(", "))
+    };
+    if summary.rows_scored == summary.rows_read {
+        lines.push(format!(
+            "scored {} rows with the {} model; posteriors written to {target}",
+            summary.rows_scored,
+            file.family.name()
+        ));
+    } else {
+        lines.push(format!(
+            "scored {} of {} rows with the {} model{set_aside}; posteriors written to {target}",
+            summary.rows_scored,
+            summary.rows_read,
+            file.family.name()
+        ));
+    }
+    for (column, n) in &summary.filled_missing {
+        lines.push(format!("note: column '{column}': {n} missing values filled as in training"));
+    }
+    for (column, n) in &summary.unseen_as_missing {
+        lines.push(format!("note: column '{column}': {n} unseen categories taken as missing"));
+    }
+    let outside: Vec<String> = summary
+        .out_of_range
+        .iter()
+        .filter(|o| o.below + o.above > 0)
+        .map(|o| format!("{} {} below, {} above", o.feature, o.below, o.above))
+        .collect();
+    if !outside.is_empty() {
+        lines.push(format!("outside the training range: {}", outside.join("; ")));
+    }
+    if let Some(drift) = &summary.drift {
+        let mut flagged: Vec<&crate::batch::Stability> = drift.features.iter().filter(|s| s.band != "stable").collect();
+        flagged.sort_by(|a, b| b.psi.total_cmp(&a.psi));
+        let features = if flagged.is_empty() {
+            "every feature stable".to_string()
+        } else {
+            flagged
+                .iter()
+                .map(|s| format!("{} {:.3} {}", s.feature.as_deref().unwrap_or(""), s.psi, s.band))
+                .collect::<Vec<_>>()
+                .join(", ")
+        };
+        let score = match &drift.score {
+            Some(s) => format!("score {:.3} {}", s.psi, s.band),
+            None => "score not available (no training score distribution in the model)".into(),
+        };
+        lines.push(format!("drift (PSI vs training): {score}; {features}"));
+    }
+    if let (Some(spec), Some(actions), Some(total)) = (&job.costs, &summary.actions, summary.total_expected_cost) {
+        let counts: Vec<String> =
+            spec.actions.iter().map(|a| format!("{} {}", a.name, actions.get(&a.name).copied().unwrap_or(0))).collect();
+        lines.push(format!(
+            "decisions: {}; total expected cost {total:.2} ({:.4} per row)",
+            counts.join(", "),
+            total / summary.rows_scored.max(1) as f64
+        ));
+        if let Some((action, cutoff)) = spec.cutoff(positive) {
+            let base = file.calibrated_to()[positive];
+            let on_model_scale = if (job.prior[positive] - base).abs() > 1e-12 {
+                format!(
+                    " (on the model's own scale, at its class mix {base:.4}: {:.6})",
+                    crate::decide::cutoff_on_training_scale(cutoff, base, job.prior[positive])
+                )
+            } else {
+                String::new()
+            };
+            lines.push(format!("equivalent rule: {action} when p({}) >= {cutoff:.6}{on_model_scale}", file.positive));
+        }
+        lines.push(crate::report::wrap(crate::CAUTION, 100, 0));
+    } else if job.reasons > 0 {
+        lines.push(crate::report::wrap(crate::CAUTION, 100, 0));
+    }
+    let mut text = lines.join("\n");
+    text.push('\n');
+    text
+}
