@@ -4,8 +4,257 @@
 //! file, the 1-based line and the column name where those exist. The binary
 //! turns an [`Error`] into one paragraph on stderr and an exit code
 //! ([`Error::exit_code`]) as fixed by the command-line contract.
+//!
+//! Messages that name one of the library's settings hold it as a
+//! [`Setting`], not as text: [`Display`](fmt::Display) names it by its
+//! parameter (`missing`), and a front end names it its own way with
+//! [`Error::describe`] (the command line shows its flag, `--missing`).
 
 use std::fmt;
+
+/// A setting of the library that a message may name.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+#[non_exhaustive]
+pub enum Setting {
+    /// The target column (`DataOptions::target`).
+    Target,
+    /// Identifier columns (`DataOptions::ids`, `BatchRequest::ids`).
+    Ids,
+    /// The row-weight column (`DataOptions::weight`).
+    Weight,
+    /// Columns left out (`DataOptions::exclude`).
+    Exclude,
+    /// Columns forced categorical (`DataOptions::categorical`).
+    Categorical,
+    /// Columns forced numeric (`DataOptions::numeric`).
+    Numeric,
+    /// Missing-value tokens (`DataOptions::na_tokens`).
+    NaTokens,
+    /// The missing-value policy (`DataOptions::missing`, `ApplyRules::missing`).
+    Missing,
+    /// The positive class (`DataOptions::positive`).
+    Positive,
+    /// Input columns passed through to the output (`BatchRequest::keep`).
+    Keep,
+    /// The policy for levels the model never saw (`ApplyRules::unseen`).
+    Unseen,
+    /// Where rows set aside go (`BatchRequest::rejects`).
+    Rejects,
+    /// Where the scores go (`Outputs::scores`).
+    Scores,
+    /// Where the run's summary goes (`BatchRequest::summary`).
+    Summary,
+    /// Per-row reason codes (`BatchRequest::reasons`).
+    Reasons,
+    /// Logistic ridge penalty (`LogisticParams::l2`).
+    L2,
+    /// Logistic class weights (`LogisticParams::class_weight`).
+    ClassWeight,
+    /// Newton iterations at most (`LogisticParams::max_iterations`).
+    MaxIterations,
+    /// Newton convergence tolerance (`LogisticParams::tolerance`).
+    Tolerance,
+    /// The coordinate-descent penalty (`LogisticParams::penalty`).
+    Penalty,
+    /// Elastic-net mixing (`LogisticParams::mixing`).
+    Mixing,
+    /// λ of the penalty (`LogisticParams::lambda`).
+    Lambda,
+    /// Points on the λ path (`LogisticParams::path_length`).
+    PathLength,
+    /// Folds of the λ cross-validation (`LogisticParams::cv_folds`).
+    CvFolds,
+    /// Naive Bayes additive smoothing (`NaiveBayesParams::smoothing`).
+    Smoothing,
+    /// Naive Bayes variance floor (`NaiveBayesParams::variance_floor`).
+    VarianceFloor,
+    /// LDA shrinkage (`LdaParams::shrinkage`).
+    Shrinkage,
+    /// QDA regularisation (`QdaParams::reg`).
+    Reg,
+    /// Fitting from an engine's aggregates (`train_from_aggregates`).
+    FromAggregates,
+    /// The family the aggregates are written for (`stats_query`'s family).
+    Family,
+    /// Cross-validation folds (`SplitPlan::KFold::folds`).
+    Folds,
+    /// Repeats of K-fold (`SplitPlan::KFold::repeats`).
+    Repeats,
+    /// The holdout share (`SplitPlan::Holdout::test_fraction`).
+    TestFraction,
+    /// Where an out-of-time test set starts (`SplitPlan::OutOfTime::test_from`).
+    TestFrom,
+    /// Where an out-of-time training set ends (`SplitPlan::OutOfTime::gap_from`).
+    Gap,
+    /// A binary base rate (`PriorSpec::BaseRate`).
+    BaseRate,
+    /// A class mix (`PriorSpec`).
+    Prior,
+    /// The table a query reads (`table` of the SQL writers).
+    Table,
+    /// Score columns made elsewhere (`AssessRequest::scores`).
+    ScoreColumns,
+    /// What outside scores are: probabilities or ranks (`AssessRequest::kind`).
+    ScoreKind,
+    /// The class mix outside scores are calibrated to (`AssessRequest::train_prior`).
+    TrainPrior,
+    /// A column of amounts (`StudyOptions::amount`).
+    Amount,
+    /// A column whose values are segments (`StudyOptions::by`).
+    By,
+    /// The column of an out-of-time split (`SplitChoice::OutOfTime::column`).
+    SplitBy,
+    /// A holdout file (`Dataset::read_with_holdout`).
+    Holdout,
+}
+
+impl Setting {
+    /// The setting's name in the library: the parameter that holds it.
+    pub fn parameter(self) -> &'static str {
+        match self {
+            Setting::Target => "target",
+            Setting::Ids => "ids",
+            Setting::Weight => "weight",
+            Setting::Exclude => "exclude",
+            Setting::Categorical => "categorical",
+            Setting::Numeric => "numeric",
+            Setting::NaTokens => "na_tokens",
+            Setting::Missing => "missing",
+            Setting::Positive => "positive",
+            Setting::Keep => "keep",
+            Setting::Unseen => "unseen",
+            Setting::Rejects => "rejects",
+            Setting::Scores => "scores",
+            Setting::Summary => "summary",
+            Setting::Reasons => "reasons",
+            Setting::L2 => "l2",
+            Setting::ClassWeight => "class_weight",
+            Setting::MaxIterations => "max_iterations",
+            Setting::Tolerance => "tolerance",
+            Setting::Penalty => "penalty",
+            Setting::Mixing => "mixing",
+            Setting::Lambda => "lambda",
+            Setting::PathLength => "path_length",
+            Setting::CvFolds => "cv_folds",
+            Setting::Smoothing => "smoothing",
+            Setting::VarianceFloor => "variance_floor",
+            Setting::Shrinkage => "shrinkage",
+            Setting::Reg => "reg",
+            Setting::FromAggregates => "from_aggregates",
+            Setting::Family => "family",
+            Setting::Folds => "folds",
+            Setting::Repeats => "repeats",
+            Setting::TestFraction => "test_fraction",
+            Setting::TestFrom => "test_from",
+            Setting::Gap => "gap_from",
+            Setting::BaseRate => "base_rate",
+            Setting::Prior => "prior",
+            Setting::Table => "table",
+            Setting::ScoreColumns => "scores",
+            Setting::ScoreKind => "kind",
+            Setting::TrainPrior => "train_prior",
+            Setting::Amount => "amount",
+            Setting::By => "by",
+            Setting::SplitBy => "split_by",
+            Setting::Holdout => "holdout",
+        }
+    }
+
+    /// The setting with a value, as a message names it (`missing = impute`).
+    pub fn set_to(self, value: &'static str) -> Part {
+        Part::Choice(self, value)
+    }
+}
+
+/// How a front end names settings: `(setting, value)` to text.
+pub type SettingNames<'a> = &'a dyn Fn(Setting, Option<&str>) -> String;
+
+/// The library's own naming: the parameter, then ` = value`.
+pub fn parameter_names(setting: Setting, value: Option<&str>) -> String {
+    match value {
+        Some(v) => format!("{} = {v}", setting.parameter()),
+        None => setting.parameter().to_string(),
+    }
+}
+
+/// One piece of a [`Message`].
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Part {
+    /// Plain text.
+    Text(String),
+    /// A setting, named by the front end.
+    Setting(Setting),
+    /// A setting with a value (`missing = impute`, `--missing impute`).
+    Choice(Setting, &'static str),
+}
+
+impl From<Setting> for Part {
+    fn from(s: Setting) -> Part {
+        Part::Setting(s)
+    }
+}
+
+impl From<&str> for Part {
+    fn from(s: &str) -> Part {
+        Part::Text(s.to_string())
+    }
+}
+
+impl From<String> for Part {
+    fn from(s: String) -> Part {
+        Part::Text(s)
+    }
+}
+
+impl Part {
+    /// The text, a setting named by `names`.
+    pub fn render(&self, names: SettingNames<'_>) -> String {
+        match self {
+            Part::Text(t) => t.clone(),
+            Part::Setting(s) => names(*s, None),
+            Part::Choice(s, v) => names(*s, Some(v)),
+        }
+    }
+}
+
+/// Text that may name settings; see [`Setting`].
+#[derive(Debug, Clone, PartialEq, Eq, Default)]
+pub struct Message(pub Vec<Part>);
+
+impl Message {
+    /// The text, settings named by `names`.
+    pub fn render(&self, names: SettingNames<'_>) -> String {
+        self.0.iter().map(|part| part.render(names)).collect()
+    }
+}
+
+impl fmt::Display for Message {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(&self.render(&parameter_names))
+    }
+}
+
+impl From<&str> for Message {
+    fn from(s: &str) -> Message {
+        Message(vec![Part::from(s)])
+    }
+}
+
+impl From<String> for Message {
+    fn from(s: String) -> Message {
+        Message(vec![Part::from(s)])
+    }
+}
+
+/// A [`Message`] from pieces: text, [`Setting`]s and
+/// [`Setting::set_to`] choices.
+macro_rules! message {
+    ($($part:expr),* $(,)?) => {
+        $crate::error::Message(vec![$($crate::error::Part::from($part)),*])
+    };
+}
+
+pub(crate) use message;
 
 /// A location in an input file: the file as the user named it and a 1-based
 /// line number (the line where the offending record starts).
@@ -74,12 +323,13 @@ pub enum Error {
     },
 
     /// An option names a column that the header does not have.
-    #[error("{path}: {flag} names column '{column}', which the header does not have{}", suggestion_text(.suggestion))]
+    #[error("{}", self.describe(&parameter_names))]
     UnknownColumn {
         /// The file involved.
         path: String,
-        /// The option that named it, e.g. `--target`.
-        flag: String,
+        /// What named it: a setting such as [`Setting::Target`], or text
+        /// ("the model").
+        named_by: Part,
         /// The name as given.
         column: String,
         /// The closest existing column name, if one is close.
@@ -87,14 +337,14 @@ pub enum Error {
     },
 
     /// One column was given two roles or two kinds.
-    #[error("column '{column}' is named by both {first} and {second}; give each column one role and one kind")]
+    #[error("{}", self.describe(&parameter_names))]
     ConflictingRoles {
         /// The column.
         column: String,
-        /// The first option naming it.
-        first: String,
-        /// The second option naming it.
-        second: String,
+        /// The first setting naming it.
+        first: Setting,
+        /// The second setting naming it.
+        second: Setting,
     },
 
     /// A row has a different number of fields from the header.
@@ -129,11 +379,11 @@ pub enum Error {
         /// The value as written.
         value: String,
         /// What to do about it.
-        hint: String,
+        hint: Message,
     },
 
     /// A numeric column holds an `inf` or `nan` literal.
-    #[error("{at}, column '{column}': '{value}' is not a finite number; numeric data must be finite (declare it a missing-value token with --na if that is what it means)")]
+    #[error("{}", self.describe(&parameter_names))]
     NonFiniteValue {
         /// Where the value is.
         at: Position,
@@ -143,8 +393,8 @@ pub enum Error {
         value: String,
     },
 
-    /// A feature value is missing and the policy is `--missing error`.
-    #[error("{at}, column '{column}': the value is missing; choose --missing impute or --missing drop-rows, or fix the data")]
+    /// A feature value is missing and the missing-value policy is `error`.
+    #[error("{}", self.describe(&parameter_names))]
     MissingValue {
         /// Where the value is.
         at: Position,
@@ -185,8 +435,8 @@ pub enum Error {
         classes: Vec<String>,
     },
 
-    /// `--positive` names a class the target does not have.
-    #[error("{path}, column '{column}': --positive names class '{class}', but the target's classes are {}", .classes.join(", "))]
+    /// The positive class named is not one the target has.
+    #[error("{}", self.describe(&parameter_names))]
     UnknownClass {
         /// The file involved.
         path: String,
@@ -204,7 +454,7 @@ pub enum Error {
 
     /// A covariance matrix is singular: constant or collinear columns, or a
     /// class with too few rows.
-    #[error("the {family} fit failed: the covariance {whose} is singular (columns involved: {}); {hint}", first_of(.columns))]
+    #[error("{}", self.describe(&parameter_names))]
     SingularCovariance {
         /// The family being fitted.
         family: String,
@@ -213,11 +463,11 @@ pub enum Error {
         /// The columns involved.
         columns: Vec<String>,
         /// What to do about it.
-        hint: String,
+        hint: Message,
     },
 
     /// A class has too few rows for the family.
-    #[error("the {family} fit failed: class '{class}' has {rows} rows with positive weight, and needs at least {needed}; {hint}")]
+    #[error("{}", self.describe(&parameter_names))]
     TooFewRows {
         /// The family being fitted.
         family: String,
@@ -228,16 +478,16 @@ pub enum Error {
         /// The minimum.
         needed: usize,
         /// What to do about it.
-        hint: String,
+        hint: Message,
     },
 
     /// A fit failed for a reason stated in the message.
-    #[error("the {family} fit failed: {message}")]
+    #[error("{}", self.describe(&parameter_names))]
     FitFailed {
         /// The family being fitted.
         family: String,
         /// What went wrong.
-        message: String,
+        message: Message,
     },
 
     /// A model file is unreadable, corrupt, or from a newer version.
@@ -250,12 +500,12 @@ pub enum Error {
     },
 
     /// A data file does not match the model's schema.
-    #[error("{path}: {message}")]
+    #[error("{}", self.describe(&parameter_names))]
     SchemaMismatch {
         /// The data file.
         path: String,
         /// What does not match.
-        message: String,
+        message: Message,
     },
 
     /// A file to score has a category the training data never had.
@@ -272,19 +522,19 @@ pub enum Error {
     },
 
     /// A file to score has a missing value the model cannot fill.
-    #[error("{at}, column '{column}': the value is missing, and {reason}")]
+    #[error("{}", self.describe(&parameter_names))]
     UnfillableMissing {
         /// Where it first appears.
         at: Position,
         /// The column.
         column: String,
         /// Why it cannot be filled.
-        reason: String,
+        reason: Message,
     },
 
     /// A row of a file being scored cannot be scored, and no reject file
     /// was given to set it aside.
-    #[error("{at}, column '{column}': {message}; give --rejects FILE to set such rows aside and score the rest")]
+    #[error("{}", self.describe(&parameter_names))]
     BadRow {
         /// Where the row is.
         at: Position,
@@ -297,6 +547,11 @@ pub enum Error {
     /// An argument value is invalid (a usage error).
     #[error("{0}")]
     Usage(String),
+
+    /// A setting's value is invalid, or settings do not go together (a
+    /// usage error); the message names the settings.
+    #[error("{0}")]
+    Invalid(Message),
 }
 
 fn suggestion_text(suggestion: &Option<String>) -> String {
@@ -319,9 +574,69 @@ impl Error {
     /// 2 for usage errors, 1 for data and model errors.
     pub fn exit_code(&self) -> u8 {
         match self {
-            Error::Usage(_) | Error::ConflictingRoles { .. } | Error::InvalidPrior(_) => 2,
+            Error::Usage(_) | Error::Invalid(_) | Error::ConflictingRoles { .. } | Error::InvalidPrior(_) => 2,
             _ => 1,
         }
+    }
+
+    /// The message, settings named by `names` (the library's own
+    /// [`Display`](fmt::Display) uses [`parameter_names`]).
+    pub fn describe(&self, names: SettingNames<'_>) -> String {
+        let name = |s: Setting| names(s, None);
+        match self {
+            Error::UnknownColumn { path, named_by, column, suggestion } => format!(
+                "{path}: {} names column '{column}', which the header does not have{}",
+                named_by.render(names),
+                suggestion_text(suggestion)
+            ),
+            Error::ConflictingRoles { column, first, second } => format!(
+                "column '{column}' is named by both {} and {}; give each column one role and one kind",
+                name(*first),
+                name(*second)
+            ),
+            Error::NotANumber { at, column, value, hint } => {
+                format!("{at}, column '{column}': '{value}' is not a number, but the column is numeric{}", hint.render(names))
+            }
+            Error::NonFiniteValue { at, column, value } => format!(
+                "{at}, column '{column}': '{value}' is not a finite number; numeric data must be finite (declare it a missing-value token with {} if that is what it means)",
+                name(Setting::NaTokens)
+            ),
+            Error::MissingValue { at, column } => format!(
+                "{at}, column '{column}': the value is missing; choose {} or {}, or fix the data",
+                names(Setting::Missing, Some("impute")),
+                names(Setting::Missing, Some("drop-rows"))
+            ),
+            Error::UnknownClass { path, column, class, classes } => format!(
+                "{path}, column '{column}': {} names class '{class}', but the target's classes are {}",
+                name(Setting::Positive),
+                classes.join(", ")
+            ),
+            Error::SingularCovariance { family, whose, columns, hint } => format!(
+                "the {family} fit failed: the covariance {whose} is singular (columns involved: {}); {}",
+                first_of(columns),
+                hint.render(names)
+            ),
+            Error::TooFewRows { family, class, rows, needed, hint } => format!(
+                "the {family} fit failed: class '{class}' has {rows} rows with positive weight, and needs at least {needed}; {}",
+                hint.render(names)
+            ),
+            Error::FitFailed { family, message } => format!("the {family} fit failed: {}", message.render(names)),
+            Error::UnfillableMissing { at, column, reason } => {
+                format!("{at}, column '{column}': the value is missing, and {}", reason.render(names))
+            }
+            Error::BadRow { at, column, message } => format!(
+                "{at}, column '{column}': {message}; give {} FILE to set such rows aside and score the rest",
+                name(Setting::Rejects)
+            ),
+            Error::SchemaMismatch { path, message } => format!("{path}: {}", message.render(names)),
+            Error::Invalid(message) => message.render(names),
+            other => other.to_string(),
+        }
+    }
+
+    /// A usage error from a message naming settings.
+    pub fn invalid(message: Message) -> Self {
+        Error::Invalid(message)
     }
 
     /// Wraps an I/O error with the path it concerns.

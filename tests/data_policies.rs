@@ -7,7 +7,7 @@ use baserate::data::{Dataset, MissingPolicy, ReadOptions};
 fn dataset(text: &str, options: &ReadOptions) -> (Dataset, Vec<String>) {
     let table = read_bytes("d.csv", text.as_bytes(), options).expect("read");
     let (d, notices) = Dataset::from_table(table, options).expect("dataset");
-    (d, notices.into_iter().map(|n| n.0).collect())
+    (d, notices.into_iter().map(|n| n.to_string()).collect())
 }
 
 const TEXT: &str = "id,x,c,w,y\nr1,1,a,1,good\nr2,,b,2,bad\nr3,3,,1,good\nr4,5,a,0.5,good\n";
@@ -89,5 +89,5 @@ fn a_mostly_numeric_text_column_is_pointed_out() {
     let text = text.replace("12,5", "\"12,5\"");
     let (d, notices) = dataset(&text, &ReadOptions::new("y"));
     assert_eq!(d.schema.columns[0].kind, Some(ColumnKind::Categorical));
-    assert!(notices.iter().any(|n| n.contains("'12,5' (line 62)") && n.contains("--numeric x")), "{notices:?}");
+    assert!(notices.iter().any(|n| n.contains("'12,5' (line 62)") && n.contains("use numeric x")), "{notices:?}");
 }

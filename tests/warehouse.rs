@@ -1029,7 +1029,7 @@ fn aggregates_written_by_hand_fit_as_the_rows_do_and_bad_ones_are_named() {
     // Naive Bayes aggregates lack what QDA needs; Ledoit–Wolf needs the rows.
     let diagonal = write(d, "nb.csv", HAND_STATS.replace(",lda,", ",naive-bayes,").as_bytes());
     let for_qda = ["fit", diagonal.to_str().unwrap(), "--from-stats", "--family", "qda", "-o", out];
-    refused(d, &for_qda, 1, "stats-sql --family qda");
+    refused(d, &for_qda, 1, "write the query with --family qda");
     let shrunk =
         ["fit", stats.to_str().unwrap(), "--from-stats", "--family", "lda", "--shrinkage", "ledoit-wolf", "-o", out];
     refused(d, &shrunk, 1, "Ledoit–Wolf shrinkage needs fourth moments");

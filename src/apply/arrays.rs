@@ -32,7 +32,7 @@ pub fn inputs_from_arrays(
     if width != columns.len() {
         return Err(Error::SchemaMismatch {
             path: ARRAYS_PATH.to_string(),
-            message: format!("the matrix has {width} columns but {} are described", columns.len()),
+            message: format!("the matrix has {width} columns but {} are described", columns.len()).into(),
         });
     }
     let names: Vec<String> = columns.iter().map(|c| c.name.clone()).collect();
@@ -53,7 +53,7 @@ pub fn inputs_from_arrays(
                 if description.kind != ColumnKind::Numeric {
                     return Err(Error::SchemaMismatch {
                         path: ARRAYS_PATH.to_string(),
-                        message: format!("column '{}' is numeric in the model", description.name),
+                        message: format!("column '{}' is numeric in the model", description.name).into(),
                     });
                 }
                 let feature = &plan.numeric[j];
@@ -85,7 +85,7 @@ pub fn inputs_from_arrays(
                 if description.kind != ColumnKind::Categorical {
                     return Err(Error::SchemaMismatch {
                         path: ARRAYS_PATH.to_string(),
-                        message: format!("column '{}' is categorical in the model", description.name),
+                        message: format!("column '{}' is categorical in the model", description.name).into(),
                     });
                 }
                 let code = if x.is_nan() {

@@ -11,7 +11,7 @@ use std::collections::HashMap;
 use crate::data::dataset::MISSING_LEVEL;
 use crate::data::options::MissingPolicy;
 use crate::data::schema::{ColumnKind, Imputation, Schema};
-use crate::error::{Error, Result};
+use crate::error::{Error, Part, Result, Setting};
 
 /// What one field of a record feeds.
 #[derive(Debug, Clone, Default)]
@@ -116,13 +116,14 @@ impl Plan {
                     "the model needs column{} {}, which the header does not have{hint}; nothing was scored",
                     if absent.len() == 1 { "" } else { "s" },
                     absent.iter().map(|n| format!("'{n}'")).collect::<Vec<_>>().join(", ")
-                ),
+                )
+                .into(),
             });
         }
-        let find = |flag: &str, column: &str| {
+        let find = |named_by: Part, column: &str| {
             position.get(column).copied().ok_or_else(|| Error::UnknownColumn {
                 path: path.to_string(),
-                flag: flag.to_string(),
+                named_by,
                 column: column.to_string(),
                 suggestion: crate::data::suggest::closest(column, names),
             })
@@ -181,21 +182,21 @@ impl Plan {
         }
         let mut text_names = Vec::new();
         let mut id_count = 0;
-        for (flag, list) in [("--id", &request.ids), ("--keep", &request.keep)] {
+        for (setting, list) in [(Setting::Ids, &request.ids), (Setting::Keep, &request.keep)] {
             for column in list.iter() {
-                let at = find(flag, column)?;
+                let at = find(setting.into(), column)?;
                 // A column named twice is shown once, in its first place.
                 if fields[at].text.is_none() {
                     fields[at].text = Some(text_names.len());
                     text_names.push(column.clone());
                 }
             }
-            if flag == "--id" {
+            if setting == Setting::Ids {
                 id_count = text_names.len();
             }
         }
         for (slot, column) in request.cost_columns.iter().enumerate() {
-            let at = find("the costs file", column)?;
+            let at = find("the costs file".into(), column)?;
             fields[at].cost = Some(slot);
         }
         Ok(Plan {

@@ -10,7 +10,7 @@ use crate::apply::{RejectReason, UnseenPolicy};
 use crate::data::csv_chunk::NaMatcher;
 use crate::data::number::{parse_f64, scan_f64};
 use crate::data::options::MissingPolicy;
-use crate::error::{Error, Position};
+use crate::error::{Error, Position, Result, Setting};
 use crate::records::{push_field, records, Dialect, Fields};
 
 /// A row-level problem: the reason, the column (if one) and the detail.
@@ -183,15 +183,28 @@ impl<'a> RowRules<'a> {
     }
 }
 
-/// The policy that sets rows aside, when one does: such a reading needs a
-/// place for them. `missing` is the missing-value policy asked for (not the
-/// training default, which never sets rows aside unasked).
-pub fn policy_setting_rows_aside(unseen: UnseenPolicy, missing: Option<MissingPolicy>) -> Option<&'static str> {
-    match (unseen, missing) {
-        (UnseenPolicy::Reject, _) => Some("--unseen reject"),
-        (_, Some(MissingPolicy::DropRows)) => Some("--missing drop-rows"),
-        _ => None,
+/// Refuses a policy that sets rows aside when there is no place to put
+/// them. `missing` is the missing-value policy asked for (not the training
+/// default, which never sets rows aside unasked).
+pub fn check_place_for_rejects(
+    unseen: UnseenPolicy,
+    missing: Option<MissingPolicy>,
+    has_reject_place: bool,
+) -> Result<()> {
+    let policy = match (unseen, missing) {
+        (UnseenPolicy::Reject, _) => Setting::Unseen.set_to("reject"),
+        (_, Some(MissingPolicy::DropRows)) => Setting::Missing.set_to("drop-rows"),
+        _ => return Ok(()),
+    };
+    if has_reject_place {
+        return Ok(());
     }
+    Err(Error::invalid(crate::error::message![
+        policy,
+        " sets rows aside, so it needs ",
+        Setting::Rejects,
+        " FILE to put them in"
+    ]))
 }
 
 /// The policies a reading applies.
@@ -294,7 +307,13 @@ fn fatal_error(rules: &RowRules<'_>, line: u64, problem: Problem) -> Error {
         RejectReason::MissingValue if rules.missing == MissingPolicy::Error => Error::UnfillableMissing {
             at,
             column: problem.column,
-            reason: "the missing-value policy is 'error' (--missing impute fills it with the training median, --missing drop-rows sets the row aside)".into(),
+            reason: crate::error::message![
+                "the missing-value policy is 'error' (",
+                Setting::Missing.set_to("impute"),
+                " fills it with the training median, ",
+                Setting::Missing.set_to("drop-rows"),
+                " sets the row aside)"
+            ],
         },
         _ => Error::BadRow { at, column: problem.column, message: problem.message },
     }

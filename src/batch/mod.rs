@@ -37,7 +37,7 @@ use crate::batch::reasons::ReasonCodes;
 use crate::batch::source::{open_chunked, shown_path, ChunkReader, RawChunk};
 use crate::data::options::MissingPolicy;
 use crate::decide::{Capacity, CostSpec};
-use crate::error::{Error, Result};
+use crate::error::{Error, Result, Setting};
 use crate::io::AtomicFile;
 use crate::model::drift;
 use crate::train::file::ModelFile;
@@ -102,15 +102,23 @@ impl Outputs {
     /// Refuses two outputs on one path, an output on the input, and two
     /// outputs on stdout.
     fn check(&self, data: &std::path::Path) -> Result<()> {
-        let mut named: Vec<(&str, &PathBuf)> = vec![("-o", &self.scores)];
-        named.extend(self.rejects.iter().map(|p| ("--rejects", p)));
-        named.extend(self.summary.iter().map(|p| ("--summary", p)));
-        for (i, (flag, path)) in named.iter().enumerate() {
+        let mut named: Vec<(Setting, &PathBuf)> = vec![(Setting::Scores, &self.scores)];
+        named.extend(self.rejects.iter().map(|p| (Setting::Rejects, p)));
+        named.extend(self.summary.iter().map(|p| (Setting::Summary, p)));
+        for (i, (setting, path)) in named.iter().enumerate() {
             if path.as_os_str() != "-" && path.as_path() == data {
-                return Err(Error::Usage(format!("{flag} names the input file; write the output elsewhere")));
+                return Err(Error::invalid(crate::error::message![
+                    *setting,
+                    " names the input file; write the output elsewhere"
+                ]));
             }
             if let Some((other, _)) = named[..i].iter().find(|(_, p)| p == path) {
-                return Err(Error::Usage(format!("{other} and {flag} name the same file, {}", path.display())));
+                return Err(Error::invalid(crate::error::message![
+                    *other,
+                    " and ",
+                    *setting,
+                    format!(" name the same file, {}", path.display())
+                ]));
             }
         }
         Ok(())
@@ -208,11 +216,7 @@ pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progre
     let shown = shown_path(&job.data);
     outputs.check(&job.data)?;
     let missing = job.missing.unwrap_or(file.schema.missing_policy);
-    if outputs.rejects.is_none() {
-        if let Some(flag) = crate::apply::row::policy_setting_rows_aside(job.unseen, job.missing) {
-            return Err(Error::Usage(format!("{flag} sets rows aside, so it needs --rejects FILE to put them in")));
-        }
-    }
+    crate::apply::row::check_place_for_rejects(job.unseen, job.missing, outputs.rejects.is_some())?;
     let limited = job.costs.as_ref().map(limited_actions).unwrap_or_default();
     let regular_file = std::fs::metadata(&job.data).is_ok_and(|m| m.is_file());
     if !limited.is_empty() && (job.data.as_os_str() == "-" || !regular_file) {
@@ -226,13 +230,8 @@ pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progre
         k => Some(ReasonCodes::new(file, k)?),
     };
     let cost_columns = job.costs.as_ref().map(|s| s.columns()).unwrap_or_default();
-    for c in &cost_columns {
-        if file.schema.categorical_inputs().iter().any(|k| k.name == *c) {
-            return Err(Error::SchemaMismatch {
-                path: shown.clone(),
-                message: format!("the costs use column '{c}', which the model reads as categorical, not numeric"),
-            });
-        }
+    if let Some(spec) = &job.costs {
+        file.check_cost_columns(spec, &shown)?;
     }
     let request = PlanRequest { ids: job.ids.clone(), keep: job.keep.clone(), cost_columns, missing };
     let (names, first_reader) = open_input(job, &shown)?;

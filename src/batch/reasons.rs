@@ -20,7 +20,7 @@
 use ndarray::Array2;
 
 use crate::data::Inputs;
-use crate::error::{Error, Result};
+use crate::error::{Error, Result, Setting};
 use crate::model::Family;
 use crate::train::file::ModelFile;
 
@@ -67,12 +67,13 @@ impl ReasonCodes {
     /// Reason codes for `file`; refused for QDA and for more than two classes.
     pub fn new(file: &ModelFile, count: usize) -> Result<ReasonCodes> {
         if file.family == Family::Qda {
-            return Err(Error::Usage(
-                "--reasons is for logistic, lda and naive-bayes models: QDA's log odds hold products of features, so they do not split into one term per feature".into(),
-            ));
+            return Err(Error::invalid(crate::error::message![
+                Setting::Reasons,
+                " is for logistic, lda and naive-bayes models: QDA's log odds hold products of features, so they do not split into one term per feature"
+            ]));
         }
         if file.classes.len() != 2 {
-            return Err(Error::Usage("--reasons needs a two-class model".into()));
+            return Err(Error::invalid(crate::error::message![Setting::Reasons, " needs a two-class model"]));
         }
         let schema = &file.schema;
         let numeric_names = schema.numeric_inputs();

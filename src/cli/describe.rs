@@ -48,7 +48,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             path: path.clone(),
             rows: dataset.rows(),
             schema: &dataset.schema,
-            notices: notices.iter().map(|n| n.0.clone()).collect(),
+            notices: notices.iter().map(|n| n.describe(&crate::cli::flag)).collect(),
         };
         let text = serde_json::to_string_pretty(&body).map_err(|e| baserate::Error::Usage(e.to_string()))?;
         write_atomic(json_path, format!("{text}\n").as_bytes())?;
@@ -56,7 +56,11 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             return Ok(ExitCode::SUCCESS);
         }
     }
-    let text = render_schema(&path, &dataset.schema, &notices.iter().map(|n| n.0.clone()).collect::<Vec<_>>());
+    let text = render_schema(
+        &path,
+        &dataset.schema,
+        &notices.iter().map(|n| n.describe(&crate::cli::flag)).collect::<Vec<_>>(),
+    );
     print!("{text}");
     Ok(ExitCode::SUCCESS)
 }

@@ -7,7 +7,7 @@ use std::process::ExitCode;
 
 use crate::cli::data_args::PolicyArgs;
 use crate::cli::output::write_atomic;
-use crate::cli::score::{parse_missing, read_costs, PriorArgs};
+use crate::cli::score::{parse_missing, PriorArgs};
 use crate::cli::Failure;
 use baserate::export::scoring::{scoring_sql, ScoringRequest};
 use baserate::export::Dialect;
@@ -48,7 +48,7 @@ pub struct Args {
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let file = ModelFile::load(&args.model)?;
     let prior = args.priors.resolve(&file)?;
-    let costs = args.costs.as_deref().map(|path| read_costs(path, &file)).transpose()?;
+    let costs = args.costs.as_deref().map(|path| file.read_costs(path)).transpose()?;
     let request = ScoringRequest {
         table: args.table.clone(),
         dialect: args.dialect,

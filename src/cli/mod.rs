@@ -8,6 +8,7 @@
 use std::io::Write;
 use std::process::ExitCode;
 
+use baserate::error::Setting;
 use clap::{Parser, Subcommand};
 
 pub mod assess;
@@ -16,6 +17,7 @@ pub mod data_args;
 pub mod demo;
 pub mod describe;
 pub mod export_sql;
+pub mod family_args;
 pub mod fit;
 pub mod inspect;
 pub mod output;
@@ -85,6 +87,70 @@ impl From<std::io::Error> for Failure {
     }
 }
 
+/// The command line's name for a library setting: its flag, with the
+/// value after a space (`--missing impute`). Library messages hold settings,
+/// not flags; this is where they become flags.
+pub fn flag(setting: Setting, value: Option<&str>) -> String {
+    let flag = match setting {
+        Setting::Target => "--target",
+        Setting::Ids => "--id",
+        Setting::Weight => "--weight",
+        Setting::Exclude => "--exclude",
+        Setting::Categorical => "--categorical",
+        Setting::Numeric => "--numeric",
+        Setting::NaTokens => "--na",
+        Setting::Missing => "--missing",
+        Setting::Positive => "--positive",
+        Setting::Keep => "--keep",
+        Setting::Unseen => "--unseen",
+        Setting::Rejects => "--rejects",
+        Setting::Scores => "-o",
+        Setting::Summary => "--summary",
+        Setting::Reasons => "--reasons",
+        Setting::L2 => "--l2",
+        Setting::ClassWeight => "--class-weight",
+        Setting::MaxIterations => "--max-iterations",
+        Setting::Tolerance => "--tolerance",
+        Setting::Penalty => "--penalty",
+        Setting::Mixing => "--mixing",
+        Setting::Lambda => "--lambda",
+        Setting::PathLength => "--path-length",
+        Setting::CvFolds => "--cv-folds",
+        Setting::Smoothing => "--smoothing",
+        Setting::VarianceFloor => "--variance-floor",
+        Setting::Shrinkage => "--shrinkage",
+        Setting::Reg => "--reg",
+        Setting::FromAggregates => "--from-stats",
+        Setting::Family => "--family",
+        Setting::Folds => "--folds",
+        Setting::Repeats => "--repeats",
+        Setting::TestFraction => "--test-fraction",
+        Setting::TestFrom => "--test-from",
+        Setting::Gap => "--gap",
+        Setting::BaseRate => "--base-rate",
+        Setting::Prior => "--prior",
+        Setting::Table => "--table",
+        Setting::ScoreColumns => "--score",
+        Setting::ScoreKind => "--score-type",
+        Setting::TrainPrior => "--train-prior",
+        Setting::Amount => "--amount",
+        Setting::By => "--by",
+        Setting::SplitBy => "--split-by",
+        Setting::Holdout => "--holdout",
+        // The enum is non-exhaustive: a setting added later shows its parameter name.
+        other => return baserate::error::parameter_names(other, value),
+    };
+    match value {
+        Some(v) => format!("{flag} {v}"),
+        None => flag.to_string(),
+    }
+}
+
+/// An error as the command line states it: settings named by their flags.
+pub fn error_text(error: &baserate::Error) -> String {
+    error.describe(&flag)
+}
+
 /// Runs a parsed command line.
 pub fn run(cli: Cli) -> Result<ExitCode, Failure> {
     match cli.command {
@@ -125,7 +191,7 @@ pub fn main() -> ExitCode {
         Ok(code) => code,
         Err(Failure::BrokenPipe) => ExitCode::SUCCESS,
         Err(Failure::Library(error)) => {
-            let _ = writeln!(std::io::stderr(), "error: {error}");
+            let _ = writeln!(std::io::stderr(), "error: {}", error_text(&error));
             ExitCode::from(error.exit_code())
         }
     }

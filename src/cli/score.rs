@@ -9,7 +9,7 @@ use std::path::PathBuf;
 use std::process::ExitCode;
 
 use crate::cli::data_args::{parse_delimiter, ApplyArgs};
-use crate::cli::fit::prior_spec;
+use crate::cli::family_args::prior_spec;
 use crate::cli::Failure;
 use baserate::batch::{Outputs, ScoreJob};
 use baserate::data::options::MissingPolicy;
@@ -112,27 +112,11 @@ pub fn parse_missing(text: Option<&str>) -> baserate::Result<Option<MissingPolic
     }
 }
 
-/// Reads a costs file for a model: its classes, and no categorical input
-/// read as an amount.
-pub fn read_costs(path: &std::path::Path, file: &ModelFile) -> baserate::Result<baserate::decide::CostSpec> {
-    let shown = path.display().to_string();
-    let text = std::fs::read_to_string(path).map_err(|e| baserate::Error::io(&shown, e))?;
-    let spec = baserate::decide::CostSpec::parse(&shown, &text, &file.classes)?;
-    if let Some(c) = spec.columns().into_iter().find(|c| file.schema.categorical_inputs().iter().any(|k| k.name == *c))
-    {
-        return Err(baserate::Error::SchemaMismatch {
-            path: shown,
-            message: format!("the costs use column '{c}', which the model reads as categorical, not numeric"),
-        });
-    }
-    Ok(spec)
-}
-
 /// Runs `score`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let file = ModelFile::load(&args.model)?;
     let prior = args.priors.resolve(&file)?;
-    let costs = args.costs.as_deref().map(|path| read_costs(path, &file)).transpose()?;
+    let costs = args.costs.as_deref().map(|path| file.read_costs(path)).transpose()?;
     if let Some(rate) = args.max_reject_rate {
         if !(0.0..=1.0).contains(&rate) {
             return Err(baserate::Error::Usage(format!("--max-reject-rate must be between 0 and 1; got {rate}")).into());

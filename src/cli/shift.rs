@@ -16,7 +16,7 @@ use crate::cli::output::write_atomic;
 use crate::cli::score::parse_missing;
 use crate::cli::Failure;
 use baserate::apply::in_memory::{estimate_portfolio_shift, ScoringRequest};
-use baserate::apply::row::{policy_setting_rows_aside, REJECT_HEADER};
+use baserate::apply::row::{check_place_for_rejects, REJECT_HEADER};
 use baserate::data::score_column::read_score_column;
 use baserate::error::Error;
 use baserate::prior::shift::{estimate_shift, ShiftEstimate, ShiftInput, ShiftOptions};
@@ -104,11 +104,7 @@ fn model_form(
 ) -> baserate::Result<ShiftEstimate> {
     let file = ModelFile::load(model)?;
     let missing = parse_missing(args.apply.policies.missing.as_deref())?;
-    if args.apply.rejects.is_none() {
-        if let Some(flag) = policy_setting_rows_aside(args.apply.policies.unseen, missing) {
-            return Err(Error::Usage(format!("{flag} sets rows aside, so it needs --rejects FILE to put them in")));
-        }
-    }
+    check_place_for_rejects(args.apply.policies.unseen, missing, args.apply.rejects.is_some())?;
     if let Some(rejects) = &args.apply.rejects {
         if rejects.as_path() == data || rejects.as_path() == model || args.json.as_ref() == Some(rejects) {
             return Err(Error::Usage("--rejects names another file of the run; write the rejects elsewhere".into()));

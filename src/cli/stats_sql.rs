@@ -6,7 +6,7 @@
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-use crate::cli::fit::FamilyArg;
+use crate::cli::family_args::FamilyArg;
 use crate::cli::output::write_atomic;
 use crate::cli::Failure;
 use baserate::data::options::DEFAULT_NA_TOKENS;

@@ -74,7 +74,7 @@ impl Dataset {
     /// the positive class (their file-reading fields are not used).
     pub fn from_arrays(data: &LabelledArrays<'_>, options: &ReadOptions) -> Result<(Dataset, Vec<DataNotice>)> {
         let (rows, width) = data.features.dim();
-        let shape = |message: String| Error::SchemaMismatch { path: ARRAYS_PATH.to_string(), message };
+        let shape = |message: String| Error::SchemaMismatch { path: ARRAYS_PATH.to_string(), message: message.into() };
         if width != data.columns.len() {
             return Err(shape(format!("the matrix has {width} columns but {} are described", data.columns.len())));
         }
@@ -216,7 +216,7 @@ fn sorted_levels(column: &str, given: &[String]) -> Result<(Vec<String>, Vec<u32
     if let Some(pair) = sorted.windows(2).find(|w| w[0] == w[1]) {
         return Err(Error::SchemaMismatch {
             path: ARRAYS_PATH.to_string(),
-            message: format!("column '{column}' names the level '{}' twice", pair[0]),
+            message: format!("column '{column}' names the level '{}' twice", pair[0]).into(),
         });
     }
     let order = given.iter().map(|l| sorted.binary_search(l).map_or(0, |i| i as u32)).collect();

@@ -16,7 +16,7 @@
 use std::collections::HashMap;
 
 use crate::data::number::{parse_f64, scan_f64};
-use crate::error::{Error, Position};
+use crate::error::{Error, Position, Setting};
 
 /// Code for a missing categorical value.
 pub const MISSING_CODE: u32 = u32::MAX;
@@ -422,7 +422,13 @@ impl RecordSink<'_, '_> {
                     at: context.at(line),
                     column: context.names[column].clone(),
                     value: lossy(field),
-                    hint: " (declared with --numeric; use --na to declare a missing-value token)".to_string(),
+                    hint: crate::error::message![
+                        " (declared with ",
+                        Setting::Numeric,
+                        "; use ",
+                        Setting::NaTokens,
+                        " to declare a missing-value token)"
+                    ],
                 }),
                 NumberField::Text => {
                     // Settled as categorical; the chunk is parsed again.

@@ -29,7 +29,7 @@ use crate::data::csv_chunk::{parse_chunk, slots, ChunkOut, NaMatcher, Parse, Par
 pub use crate::data::csv_chunk::{ColumnFacts, MISSING_CODE};
 use crate::data::options::ReadOptions;
 use crate::data::schema::ColumnRole;
-use crate::error::{Error, Position, Result};
+use crate::error::{Error, Part, Position, Result, Setting};
 
 /// Target bytes per chunk: large enough that per-chunk overhead vanishes,
 /// small enough that two cores stay balanced on a 200 MB file.
@@ -379,24 +379,22 @@ enum ForcedKind {
 /// Turns the role and kind options into one (role, forced kind) per column,
 /// checking every named column exists and has one role and one kind.
 fn settle_roles(path: &str, names: &[String], options: &ReadOptions) -> Result<Vec<(ColumnRole, Option<ForcedKind>)>> {
-    let mut roles: Vec<Option<(ColumnRole, &'static str)>> = vec![None; names.len()];
-    let mut kinds: Vec<Option<(ForcedKind, &'static str)>> = vec![None; names.len()];
-    let find = |flag: &str, column: &str| -> Result<usize> {
+    let mut roles: Vec<Option<(ColumnRole, Setting)>> = vec![None; names.len()];
+    let mut kinds: Vec<Option<(ForcedKind, Setting)>> = vec![None; names.len()];
+    let find = |named_by: Part, column: &str| -> Result<usize> {
         names.iter().position(|n| n == column).ok_or_else(|| Error::UnknownColumn {
             path: path.to_string(),
-            flag: flag.to_string(),
+            named_by,
             column: column.to_string(),
             suggestion: crate::data::suggest::closest(column, names),
         })
     };
-    let mut assign_role = |flag: &'static str, column: &str, role: ColumnRole| -> Result<()> {
-        let i = find(flag, column)?;
+    let mut assign_role = |flag: Setting, column: &str, role: ColumnRole| -> Result<()> {
+        let i = find(flag.into(), column)?;
         match roles[i] {
-            Some((_, first)) if first != flag || role != ColumnRole::Excluded => Err(Error::ConflictingRoles {
-                column: column.to_string(),
-                first: first.to_string(),
-                second: flag.to_string(),
-            }),
+            Some((_, first)) if first != flag || role != ColumnRole::Excluded => {
+                Err(Error::ConflictingRoles { column: column.to_string(), first, second: flag })
+            }
             _ => {
                 roles[i] = Some((role, flag));
                 Ok(())
@@ -404,50 +402,42 @@ fn settle_roles(path: &str, names: &[String], options: &ReadOptions) -> Result<V
         }
     };
     if !options.target.is_empty() {
-        assign_role("--target", &options.target, ColumnRole::Target)?;
+        assign_role(Setting::Target, &options.target, ColumnRole::Target)?;
     }
     if let Some(model_columns) = &options.model_columns {
         for column in model_columns {
-            find("the model", column)?;
+            find("the model".into(), column)?;
         }
     }
     for id in &options.ids {
-        assign_role("--id", id, ColumnRole::Id)?;
+        assign_role(Setting::Ids, id, ColumnRole::Id)?;
     }
     if let Some(weight) = &options.weight {
-        assign_role("--weight", weight, ColumnRole::Weight)?;
+        assign_role(Setting::Weight, weight, ColumnRole::Weight)?;
     }
     for excluded in &options.exclude {
-        assign_role("--exclude", excluded, ColumnRole::Excluded)?;
+        assign_role(Setting::Exclude, excluded, ColumnRole::Excluded)?;
     }
-    let mut assign_kind = |flag: &'static str, column: &str, kind: ForcedKind| -> Result<()> {
-        let i = find(flag, column)?;
+    let mut assign_kind = |flag: Setting, column: &str, kind: ForcedKind| -> Result<()> {
+        let i = find(flag.into(), column)?;
         if let Some((_, first)) = kinds[i] {
             if first != flag {
-                return Err(Error::ConflictingRoles {
-                    column: column.to_string(),
-                    first: first.to_string(),
-                    second: flag.to_string(),
-                });
+                return Err(Error::ConflictingRoles { column: column.to_string(), first, second: flag });
             }
         }
         if let Some((role, first)) = roles[i] {
             if role != ColumnRole::Feature && role != ColumnRole::Excluded {
-                return Err(Error::ConflictingRoles {
-                    column: column.to_string(),
-                    first: first.to_string(),
-                    second: flag.to_string(),
-                });
+                return Err(Error::ConflictingRoles { column: column.to_string(), first, second: flag });
             }
         }
         kinds[i] = Some((kind, flag));
         Ok(())
     };
     for column in &options.categorical {
-        assign_kind("--categorical", column, ForcedKind::Categorical)?;
+        assign_kind(Setting::Categorical, column, ForcedKind::Categorical)?;
     }
     for column in &options.numeric {
-        assign_kind("--numeric", column, ForcedKind::Numeric)?;
+        assign_kind(Setting::Numeric, column, ForcedKind::Numeric)?;
     }
     // Scoring against a model: columns the model does not use are ignored.
     let unused = |i: usize| options.model_columns.as_ref().is_some_and(|m| !m.contains(&names[i]));

@@ -11,7 +11,7 @@ use crate::data::schema::{
     Schema, TargetSchema,
 };
 use crate::data::summary::summarize;
-use crate::error::{Error, Position, Result};
+use crate::error::{Error, Message, Position, Result, Setting, SettingNames};
 
 /// The level name given to missing categorical values under `--missing impute`.
 pub const MISSING_LEVEL: &str = "(missing)";
@@ -42,11 +42,18 @@ pub struct Dataset {
 
 /// Something worth telling the user about the data that is not an error.
 #[derive(Debug, Clone, PartialEq, Eq)]
-pub struct DataNotice(pub String);
+pub struct DataNotice(pub Message);
+
+impl DataNotice {
+    /// The notice, settings named by `names`.
+    pub fn describe(&self, names: SettingNames<'_>) -> String {
+        self.0.render(names)
+    }
+}
 
 impl std::fmt::Display for DataNotice {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(&self.0)
+        self.0.fmt(f)
     }
 }
 
@@ -118,9 +125,11 @@ impl Dataset {
         };
         let rows_dropped = keep.as_ref().map_or(0, |k| k.iter().filter(|&&x| !x).count());
         if rows_dropped > 0 {
-            notices.push(DataNotice(format!(
-                "{rows_dropped} of {rows_read} rows dropped for missing feature values (--missing drop-rows)"
-            )));
+            notices.push(DataNotice(crate::error::message![
+                format!("{rows_dropped} of {rows_read} rows dropped for missing feature values ("),
+                Setting::Missing.set_to("drop-rows"),
+                ")"
+            ]));
         }
         let rows = rows_read - rows_dropped;
         if rows == 0 {
@@ -185,31 +194,39 @@ impl Dataset {
                         return Err(Error::Malformed {
                             at: Position { path, line: column.facts.first_missing_line.unwrap_or(2) },
                             column: column.name.clone(),
-                            message: "every value of this column is missing; exclude it with --exclude".to_string(),
+                            message: "every value of this column is missing; leave the column out".to_string(),
                         });
                     };
                     if summary.std_dev == 0.0 {
-                        notices.push(DataNotice(format!(
-                            "column '{}' is constant ({}); it carries no information (consider --exclude {})",
-                            column.name, summary.min, column.name
-                        )));
+                        notices.push(DataNotice(crate::error::message![
+                            format!(
+                                "column '{}' is constant ({}); it carries no information (consider ",
+                                column.name, summary.min
+                            ),
+                            Setting::Exclude,
+                            format!(" {})", column.name)
+                        ]));
                     }
                     if options.missing == MissingPolicy::Impute && column.facts.missing > 0 {
                         let indicator = format!("{}{}", column.name, MISSING_INDICATOR_SUFFIX);
                         if header_names.contains(&indicator) {
-                            return Err(Error::Usage(format!(
-                                "--missing impute would add the indicator column '{indicator}', but the file already has a column of that name; rename it"
-                            )));
+                            return Err(Error::invalid(crate::error::message![
+                                Setting::Missing.set_to("impute"),
+                                format!(" would add the indicator column '{indicator}', but the file already has a column of that name; rename it")
+                            ]));
                         }
                         let median = summary.median;
                         let mut values = numeric.column_mut(*index);
                         indicator_columns.push(values.iter().map(|v| f64::from(u8::from(v.is_nan()))).collect());
                         values.iter_mut().filter(|v| v.is_nan()).for_each(|v| *v = median);
                         entry.imputation = Some(Imputation::Median { value: median, indicator });
-                        notices.push(DataNotice(format!(
-                            "column '{}': {} missing values set to the median {} with an indicator input",
-                            column.name, column.facts.missing, median
-                        )));
+                        notices.push(DataNotice(
+                            format!(
+                                "column '{}': {} missing values set to the median {} with an indicator input",
+                                column.name, column.facts.missing, median
+                            )
+                            .into(),
+                        ));
                     }
                     entry.numeric = Some(summary);
                 }
@@ -220,10 +237,11 @@ impl Dataset {
                     let mut levels = levels.clone();
                     if options.missing == MissingPolicy::Impute && column.facts.missing > 0 {
                         if levels.iter().any(|l| l == MISSING_LEVEL) {
-                            return Err(Error::Usage(format!(
-                                "column '{}' already has a level named '{MISSING_LEVEL}', which --missing impute uses for missing values",
-                                column.name
-                            )));
+                            return Err(Error::invalid(crate::error::message![
+                                format!("column '{}' already has a level named '{MISSING_LEVEL}', which ", column.name),
+                                Setting::Missing.set_to("impute"),
+                                " uses for missing values"
+                            ]));
                         }
                         let code = levels.len() as u32;
                         levels.push(MISSING_LEVEL.to_string());
@@ -287,21 +305,33 @@ fn categorical_notices(column: &ReadColumn, levels: usize, rows: usize) -> Vec<D
     let present = rows.saturating_sub(column.facts.missing).max(1);
     if !column.kind_forced && column.facts.number_like * 10 >= present * 9 {
         if let Some((line, value)) = &column.facts.first_text {
-            notices.push(DataNotice(format!(
-                "column '{}' was read as categorical because of values such as '{}' (line {}), though {} of its values are numbers; \
-                 use --numeric {} to make such values an error, or --na to declare them missing",
-                column.name, value, line, column.facts.number_like, column.name
-            )));
+            notices.push(DataNotice(crate::error::message![
+                format!(
+                    "column '{}' was read as categorical because of values such as '{}' (line {}), though {} of its values are numbers; use ",
+                    column.name, value, line, column.facts.number_like
+                ),
+                Setting::Numeric,
+                format!(" {} to make such values an error, or ", column.name),
+                Setting::NaTokens,
+                " to declare them missing"
+            ]));
         }
     }
     if levels > 100 && levels * 2 > present {
-        notices.push(DataNotice(format!(
-            "column '{}' has {levels} levels for {rows} rows: it looks like an identifier (consider --id or --exclude)",
-            column.name
-        )));
+        notices.push(DataNotice(crate::error::message![
+            format!(
+                "column '{}' has {levels} levels for {rows} rows: it looks like an identifier (consider ",
+                column.name
+            ),
+            Setting::Ids,
+            " or ",
+            Setting::Exclude,
+            ")"
+        ]));
     }
     if levels == 1 {
-        notices.push(DataNotice(format!("column '{}' has a single level; it carries no information", column.name)));
+        notices
+            .push(DataNotice(format!("column '{}' has a single level; it carries no information", column.name).into()));
     }
     notices
 }

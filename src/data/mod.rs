@@ -3,6 +3,7 @@
 //! - [`options`]: what the user says about a file (roles, kinds, missing values);
 //! - [`csv_read`]: parallel, position-aware parsing into typed columns;
 //! - [`dataset`]: the missing-value policy, the target, and the model inputs;
+//! - [`join`]: a training file and its holdout read as one dataset;
 //! - [`schema`]: the serializable description a model file embeds;
 //! - [`summary`]: column summaries (mean, standard deviation, exact deciles);
 //! - [`suggest`]: the closest column name for a misspelt one.
@@ -13,6 +14,7 @@ pub mod arrays;
 pub mod csv_chunk;
 pub mod csv_read;
 pub mod dataset;
+pub mod join;
 pub mod number;
 pub mod options;
 pub mod schema;

@@ -27,7 +27,7 @@ pub fn read_score_column(
     options.model_columns = Some(vec![column.to_string()]);
     let table = read_path(path, &options)?;
     let not_numeric =
-        || Error::SchemaMismatch { path: shown.clone(), message: format!("column '{column}' is not numeric") };
+        || Error::SchemaMismatch { path: shown.clone(), message: format!("column '{column}' is not numeric").into() };
     let index = table.index_of(column).ok_or_else(not_numeric)?;
     let ColumnValues::NumericFeature { index: j } = table.columns[index].values else {
         return Err(not_numeric());
@@ -36,7 +36,7 @@ pub fn read_score_column(
     if let Some(bad) = p.iter().find(|v| !(0.0..=1.0).contains(*v)) {
         return Err(Error::SchemaMismatch {
             path: shown,
-            message: format!("column '{column}' holds {bad}, not a probability"),
+            message: format!("column '{column}' holds {bad}, not a probability").into(),
         });
     }
     let labels = target.and_then(|t| table.index_of(t)).and_then(|i| match &table.columns[i].values {

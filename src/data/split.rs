@@ -3,7 +3,7 @@
 //! gap. Every split is a fold assignment per row, seeded, so every family
 //! sees exactly the same rows in every fold and comparisons are paired.
 
-use crate::error::{Error, Result};
+use crate::error::{Error, Result, Setting};
 use crate::rng::Rng;
 
 /// Marks a row that is in no split (the gap of an out-of-time split).
@@ -99,7 +99,12 @@ pub fn assign(plan: &SplitPlan, target: &[u32], classes: usize, seed: u64) -> Re
     match plan {
         SplitPlan::KFold { folds, repeats } => {
             if *folds < 2 || *repeats < 1 {
-                return Err(Error::Usage("--folds must be at least 2 and --repeats at least 1".into()));
+                return Err(Error::invalid(crate::error::message![
+                    Setting::Folds,
+                    " must be at least 2 and ",
+                    Setting::Repeats,
+                    " at least 1"
+                ]));
             }
             let mut all = Vec::with_capacity(*repeats);
             for repeat in 0..*repeats {
@@ -127,7 +132,10 @@ pub fn assign(plan: &SplitPlan, target: &[u32], classes: usize, seed: u64) -> Re
         }
         SplitPlan::Holdout { test_fraction } => {
             if !(*test_fraction > 0.0 && *test_fraction < 1.0) {
-                return Err(Error::Usage("--test-fraction must lie strictly between 0 and 1".into()));
+                return Err(Error::invalid(crate::error::message![
+                    Setting::TestFraction,
+                    " must lie strictly between 0 and 1"
+                ]));
             }
             let mut rng = Rng::new(Rng::stream_seed(seed, 999));
             let mut fold_of = vec![1u32; n];
@@ -139,9 +147,10 @@ pub fn assign(plan: &SplitPlan, target: &[u32], classes: usize, seed: u64) -> Re
             }
             let test = fold_of.iter().filter(|&&f| f == 0).count();
             if test == 0 || test == n {
-                return Err(Error::Usage(format!(
-                    "--test-fraction {test_fraction} leaves {test} test rows of {n}; choose a fraction that leaves rows on both sides"
-                )));
+                return Err(Error::invalid(crate::error::message![
+                    Setting::TestFraction,
+                    format!(" {test_fraction} leaves {test} test rows of {n}; choose a fraction that leaves rows on both sides")
+                ]));
             }
             Ok(Assignment {
                 folds: vec![fold_of],
@@ -152,7 +161,12 @@ pub fn assign(plan: &SplitPlan, target: &[u32], classes: usize, seed: u64) -> Re
         SplitPlan::OutOfTime { values, column, test_from, gap_from } => {
             if let Some(gap) = gap_from {
                 if compare_values(gap, test_from) == std::cmp::Ordering::Greater {
-                    return Err(Error::Usage(format!("--gap {gap} must not come after --test-from {test_from}")));
+                    return Err(Error::invalid(crate::error::message![
+                        Setting::Gap,
+                        format!(" {gap} must not come after "),
+                        Setting::TestFrom,
+                        format!(" {test_from}")
+                    ]));
                 }
             }
             let training_end = gap_from.as_deref().unwrap_or(test_from);
@@ -171,9 +185,10 @@ pub fn assign(plan: &SplitPlan, target: &[u32], classes: usize, seed: u64) -> Re
             let test = fold_of.iter().filter(|&&f| f == 0).count();
             let train = fold_of.iter().filter(|&&f| f == 1).count();
             if test == 0 || train == 0 {
-                return Err(Error::Usage(format!(
-                    "the out-of-time split on '{column}' leaves {train} training and {test} test rows; choose another --test-from"
-                )));
+                return Err(Error::invalid(crate::error::message![
+                    format!("the out-of-time split on '{column}' leaves {train} training and {test} test rows; choose another "),
+                    Setting::TestFrom
+                ]));
             }
             let gap_text = match gap_from {
                 Some(g) => format!(", rows from {g} up to {test_from} left out as a label-maturity gap"),

@@ -65,7 +65,7 @@ pub struct CostSpec {
 }
 
 fn bad(path: &str, message: String) -> Error {
-    Error::SchemaMismatch { path: path.to_string(), message }
+    Error::SchemaMismatch { path: path.to_string(), message: message.into() }
 }
 
 impl CostSpec {

@@ -8,7 +8,7 @@
 //! same double back, so the engine computes with exactly the model's
 //! parameters.
 
-use crate::error::{Error, Result};
+use crate::error::{Error, Result, Setting};
 
 /// The SQL spelling to write.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
@@ -86,9 +86,10 @@ pub fn output_ident(dialect: Dialect, name: &str) -> Result<String> {
 pub fn table(name: &str) -> Result<String> {
     let parts: Vec<&str> = name.split('.').collect();
     if parts.iter().any(|p| p.is_empty()) {
-        return Err(Error::Usage(format!(
-            "--table takes NAME or SCHEMA.NAME (parts joined by single dots), not '{name}'"
-        )));
+        return Err(Error::invalid(crate::error::message![
+            Setting::Table,
+            format!(" takes NAME or SCHEMA.NAME (parts joined by single dots), not '{name}'")
+        ]));
     }
     Ok(parts.iter().map(|p| ident(p)).collect::<Result<Vec<_>>>()?.join("."))
 }

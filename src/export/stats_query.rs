@@ -46,7 +46,7 @@ pub fn stats_sql(request: &StatsRequest) -> Result<String> {
         seen.push(name);
     }
     if request.numeric.is_empty() && request.categorical.is_empty() {
-        return Err(Error::Usage("name the input columns: stats-sql --table T --target Y COLUMN...".into()));
+        return Err(Error::Usage("name at least one input column".into()));
     }
     if request.family != Family::NaiveBayes && request.numeric.is_empty() {
         return Err(Error::Usage(format!("{} needs at least one numeric input", request.family.name())));

@@ -12,7 +12,7 @@ use crate::model::Family;
 /// Reads a statistics result (CSV with a header, as the engine wrote it).
 pub fn read_stats(path: &Path) -> Result<Aggregates> {
     let shown = path.display().to_string();
-    let bad = |message: String| Error::SchemaMismatch { path: shown.clone(), message };
+    let bad = |message: String| Error::SchemaMismatch { path: shown.clone(), message: message.into() };
     let mut reader = csv::ReaderBuilder::new().has_headers(true).from_path(path).map_err(|e| match e.into_kind() {
         csv::ErrorKind::Io(io) => Error::io(&shown, io),
         other => bad(format!("not a CSV file: {other:?}")),

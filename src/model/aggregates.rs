@@ -39,7 +39,7 @@ use crate::data::options::MissingPolicy;
 use crate::data::schema::{
     CategoricalSummary, ColumnKind, ColumnRole, ColumnSchema, KindSource, NumericSummary, Schema,
 };
-use crate::error::{Error, Result};
+use crate::error::{Error, Message, Result, Setting};
 use crate::model::design::Encoding;
 use crate::model::discriminant::{lda_from_moments, qda_from_moments};
 use crate::model::drift::{DriftReference, FeatureBins};
@@ -163,35 +163,40 @@ pub struct AggregateFit {
     pub rows: usize,
 }
 
+/// Only the class-conditional families are fitted from aggregates.
+fn from_aggregates_families() -> Error {
+    Error::invalid(crate::error::message![Setting::FromAggregates, " fits lda, qda or naive-bayes"])
+}
+
 /// Fits the family of `request.params` from `aggregates` as `fit` would on
 /// the rows they summarise.
 pub fn fit_from_aggregates(aggregates: &Aggregates, request: &FromAggregates) -> Result<AggregateFit> {
     let path = &aggregates.path;
-    let bad = |message: String| Error::SchemaMismatch { path: path.clone(), message };
+    let bad = |message: Message| Error::SchemaMismatch { path: path.clone(), message };
     let family = request.params.family();
     if !family.is_class_conditional() {
-        return Err(Error::Usage("--from-stats fits lda, qda or naive-bayes".into()));
+        return Err(from_aggregates_families());
     }
     if family != Family::NaiveBayes && aggregates.family == Family::NaiveBayes {
-        return Err(bad(format!(
-            "these aggregates were written for naive-bayes and lack the cross-products {} needs; run stats-sql --family {}",
-            family.name(),
-            family.name()
-        )));
+        return Err(bad(crate::error::message![
+            format!("these aggregates were written for naive-bayes and lack the cross-products {} needs; write the query with ", family.name()),
+            Setting::Family.set_to(family.name()),
+        ]));
     }
     if family != Family::NaiveBayes && aggregates.numeric.is_empty() {
-        return Err(bad(format!("{} needs at least one numeric input", family.name())));
+        return Err(bad(format!("{} needs at least one numeric input", family.name()).into()));
     }
     let unlabelled: f64 = aggregates.classes.values().map(|r| r.unlabelled).sum();
     if unlabelled > 0.0 {
         return Err(bad(format!(
             "{unlabelled} rows of the table have no value in the target '{}'; every training row needs a label (filter them in a view)",
             aggregates.target
-        )));
+        )
+        .into()));
     }
     let negative: f64 = aggregates.classes.values().map(|r| r.negative).sum();
     if negative > 0.0 {
-        return Err(bad(format!("{negative} rows have a negative weight; weights must be ≥ 0")));
+        return Err(bad(format!("{negative} rows have a negative weight; weights must be ≥ 0").into()));
     }
     let incomplete: f64 = aggregates.classes.values().map(|r| r.incomplete).sum();
     if incomplete > 0.0 && request.missing != MissingPolicy::DropRows {
@@ -210,10 +215,11 @@ pub fn fit_from_aggregates(aggregates: &Aggregates, request: &FromAggregates) ->
             .filter(|(_, m)| *m > 0.0)
             .map(|(n, m)| format!("'{n}' {m}"))
             .collect();
-        return Err(bad(format!(
-            "{incomplete} rows have a missing value ({}); refit with --missing drop-rows to leave them out, as fit would",
-            columns.join(", ")
-        )));
+        return Err(bad(crate::error::message![
+            format!("{incomplete} rows have a missing value ({}); refit with ", columns.join(", ")),
+            Setting::Missing.set_to("drop-rows"),
+            " to leave them out, as fit would",
+        ]));
     }
     let classes: Vec<String> =
         aggregates.classes.iter().filter(|(_, r)| r.sums.rows > 0.0).map(|(c, _)| c.clone()).collect();
@@ -329,7 +335,7 @@ pub fn fit_from_aggregates(aggregates: &Aggregates, request: &FromAggregates) ->
             )
         })
         .collect::<std::result::Result<_, String>>()
-        .map_err(bad)?;
+        .map_err(|m: String| bad(m.into()))?;
     let (model, mut diagnostics) = match &request.params {
         FamilyParams::Lda(params) => {
             let (m, d) = lda_from_moments(&classes, params, encoding, moments, None)?;
@@ -361,7 +367,7 @@ pub fn fit_from_aggregates(aggregates: &Aggregates, request: &FromAggregates) ->
             let (m, d) = fit_summaries(&classes, params, &summaries)?;
             (FittedModel::NaiveBayes(m), d)
         }
-        FamilyParams::Logistic(_) => return Err(Error::Usage("--from-stats fits lda, qda or naive-bayes".into())),
+        FamilyParams::Logistic(_) => return Err(from_aggregates_families()),
     };
     let level_rows = |g: usize, level: &str| classes.iter().map(|c| level_sums(c, g, level).rows).sum::<f64>();
     let drift = drift_reference(aggregates, &levels, &level_rows, total_rows);

@@ -26,7 +26,7 @@ use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use crate::data::{Dataset, Inputs};
-use crate::error::{Error, Result};
+use crate::error::{Error, Message, Result, Setting};
 use crate::model::design::Encoding;
 use crate::model::linalg::{cholesky, Factor, Singularity};
 use crate::model::moments::{class_moments, Moments};
@@ -137,7 +137,7 @@ impl DiscriminantModel {
         for (k, c) in self.covariances.iter().enumerate() {
             let factor = cholesky(&to_matrix(c)).map_err(|s| Error::FitFailed {
                 family: "discriminant".into(),
-                message: format!("covariance {k} is not positive definite (columns {:?})", s.columns),
+                message: format!("covariance {k} is not positive definite (columns {:?})", s.columns).into(),
             })?;
             factors.push(factor);
         }
@@ -236,7 +236,7 @@ impl DiscriminantModel {
     }
 }
 
-fn check_classes(family: &str, classes: &[String], moments: &[Moments], needed: usize, hint: &str) -> Result<()> {
+fn check_classes(family: &str, classes: &[String], moments: &[Moments], needed: usize, hint: Message) -> Result<()> {
     for (k, m) in moments.iter().enumerate() {
         if m.rows < needed {
             return Err(Error::TooFewRows {
@@ -244,20 +244,20 @@ fn check_classes(family: &str, classes: &[String], moments: &[Moments], needed: 
                 class: classes.get(k).cloned().unwrap_or_default(),
                 rows: m.rows,
                 needed,
-                hint: hint.into(),
+                hint: hint.clone(),
             });
         }
     }
     Ok(())
 }
 
-fn singular(family: &str, whose: String, encoding: &Encoding, s: Singularity, hint: &str) -> Error {
+fn singular(family: &str, whose: String, encoding: &Encoding, s: Singularity, hint: Message) -> Error {
     let terms = encoding.terms();
     Error::SingularCovariance {
         family: family.into(),
         whose,
         columns: s.columns.iter().map(|&c| terms.get(c).cloned().unwrap_or_else(|| format!("#{c}"))).collect(),
-        hint: hint.into(),
+        hint,
     }
 }
 
@@ -324,10 +324,24 @@ pub fn ledoit_wolf_intensity(r: &DMatrix<f64>, fourth: f64, n: f64) -> f64 {
     beta.min(delta) / delta
 }
 
-const LDA_HINT: &str =
-    "remove constant or duplicated columns (--exclude), or shrink the covariance with --shrinkage ledoit-wolf";
-const QDA_HINT: &str =
-    "remove constant or duplicated columns (--exclude), regularise with --reg (e.g. 0.1), or use lda";
+fn lda_hint() -> Message {
+    crate::error::message![
+        "remove constant or duplicated columns (",
+        Setting::Exclude,
+        "), or shrink the covariance with ",
+        Setting::Shrinkage.set_to("ledoit-wolf")
+    ]
+}
+
+fn qda_hint() -> Message {
+    crate::error::message![
+        "remove constant or duplicated columns (",
+        Setting::Exclude,
+        "), regularise with ",
+        Setting::Reg,
+        " (e.g. 0.1), or use lda"
+    ]
+}
 
 /// Fits LDA; `weights` are the row weights to use (the dataset's own, or
 /// those of a training fold).
@@ -372,7 +386,7 @@ pub fn lda_from_moments(
 ) -> Result<(DiscriminantModel, Diagnostics)> {
     let d = encoding.width();
     let k = classes.len();
-    check_classes("lda", classes, &moments, 1, "collect more rows of that class")?;
+    check_classes("lda", classes, &moments, 1, "collect more rows of that class".into())?;
     let n: f64 = moments.iter().map(|m| m.weight).sum();
     let divisor = match params.divisor {
         Divisor::Unbiased => n - k as f64,
@@ -381,7 +395,7 @@ pub fn lda_from_moments(
     if divisor <= 0.0 || d == 0 {
         return Err(Error::FitFailed {
             family: "lda".into(),
-            message: format!("{n} rows and {k} classes leave nothing to estimate a covariance from"),
+            message: format!("{n} rows and {k} classes leave nothing to estimate a covariance from").into(),
         });
     }
     let mut covariance = pooled_scatter(&moments, d) / divisor;
@@ -401,14 +415,18 @@ pub fn lda_from_moments(
                     "pooled over the classes".into(),
                     &encoding,
                     Singularity { columns: vec![j], smallest_eigenvalue: 0.0 },
-                    "a constant column cannot be shrunk; remove it with --exclude",
+                    crate::error::message!["a constant column cannot be shrunk; remove it with ", Setting::Exclude],
                 ));
             }
             let r = DMatrix::from_fn(d, d, |i, j| scatter[(i, j)] / n / (scale[i] * scale[j]));
             let Some(fourth_moment) = fourth_moment else {
                 return Err(Error::FitFailed {
                     family: "lda".into(),
-                    message: "Ledoit–Wolf shrinkage needs fourth moments of the rows, which aggregates of sums and cross-products do not hold; give --shrinkage none or a value in [0, 1]".into(),
+                    message: crate::error::message![
+                        "Ledoit–Wolf shrinkage needs fourth moments of the rows, which aggregates of sums and cross-products do not hold; give ",
+                        Setting::Shrinkage.set_to("none"),
+                        " or a value in [0, 1]"
+                    ],
                 });
             };
             let fourth = fourth_moment(&means, &scale);
@@ -419,8 +437,8 @@ pub fn lda_from_moments(
         let diagonal = DMatrix::from_diagonal(&covariance.diagonal());
         covariance = covariance * (1.0 - alpha) + diagonal * alpha;
     }
-    let factor =
-        cholesky(&covariance).map_err(|s| singular("lda", "pooled over the classes".into(), &encoding, s, LDA_HINT))?;
+    let factor = cholesky(&covariance)
+        .map_err(|s| singular("lda", "pooled over the classes".into(), &encoding, s, lda_hint()))?;
     let log_likelihood =
         joint_log_likelihood(&moments, std::slice::from_ref(&factor), std::slice::from_ref(&covariance));
     let model = DiscriminantModel {
@@ -474,7 +492,7 @@ pub fn qda_from_moments(
         Divisor::Unbiased => 2,
         Divisor::Rows => 1,
     };
-    check_classes("qda", classes, &moments, needed.max(if params.reg < 1.0 { d + 1 } else { needed }), QDA_HINT)?;
+    check_classes("qda", classes, &moments, needed.max(if params.reg < 1.0 { d + 1 } else { needed }), qda_hint())?;
     let n: f64 = moments.iter().map(|m| m.weight).sum();
     let pooled = if params.reg > 0.0 {
         let divisor = match params.divisor {
@@ -504,7 +522,7 @@ pub fn qda_from_moments(
         let own = DMatrix::from_fn(d, d, |i, j| m.scatter_at(i, j) / divisor);
         let covariance = own * (1.0 - params.reg) + &pooled * params.reg;
         let whose = format!("of class '{}'", classes[class]);
-        let factor = cholesky(&covariance).map_err(|s| singular("qda", whose, &encoding, s, QDA_HINT))?;
+        let factor = cholesky(&covariance).map_err(|s| singular("qda", whose, &encoding, s, qda_hint()))?;
         covariances.push(covariance);
         factors.push(factor);
     }

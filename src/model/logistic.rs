@@ -26,7 +26,7 @@ use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use crate::data::{Dataset, Inputs};
-use crate::error::{Error, Result};
+use crate::error::{Error, Result, Setting};
 use crate::model::design::{tiles, Encoding, TILE_ROWS};
 use crate::model::linalg::{cholesky, dot};
 use crate::model::penalised::{LambdaChoice, LambdaRule, PathSettings, Penalty, PenaltyFit};
@@ -234,13 +234,16 @@ fn combined_weights(dataset: &Dataset, weights: Option<&[f64]>, class_weight: &C
             let mut m = vec![1.0; k];
             for (class, w) in entries {
                 let Some(i) = target.classes.iter().position(|c| c == class) else {
-                    return Err(Error::Usage(format!(
-                        "--class-weight names class '{class}', which is not one of {}",
-                        target.classes.join(", ")
-                    )));
+                    return Err(Error::invalid(crate::error::message![
+                        Setting::ClassWeight,
+                        format!(" names class '{class}', which is not one of {}", target.classes.join(", "))
+                    ]));
                 };
                 if !(*w > 0.0 && w.is_finite()) {
-                    return Err(Error::Usage(format!("--class-weight for '{class}' must be a positive number")));
+                    return Err(Error::invalid(crate::error::message![
+                        Setting::ClassWeight,
+                        format!(" for '{class}' must be a positive number")
+                    ]));
                 }
                 m[i] = *w;
             }
@@ -469,7 +472,7 @@ pub fn fit(
             family: "logistic".into(),
             whose: "of the inputs".into(),
             columns: vec![terms[j].clone()],
-            hint: "the column is constant; remove it with --exclude".into(),
+            hint: crate::error::message!["the column is constant; remove it with ", Setting::Exclude],
         });
     }
     if params.penalty != Penalty::None {
@@ -611,7 +614,12 @@ pub fn fit(
                     family: "logistic".into(),
                     whose: "of the inputs (the information matrix)".into(),
                     columns: s.columns.iter().map(|&c| parameter_name(c)).collect(),
-                    hint: "these columns are collinear: remove one of them (--exclude) or add --l2".into(),
+                    hint: crate::error::message![
+                        "these columns are collinear: remove one of them (",
+                        Setting::Exclude,
+                        ") or add ",
+                        Setting::L2
+                    ],
                 });
             }
             Err(_) => {

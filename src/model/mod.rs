@@ -32,7 +32,7 @@ use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use crate::data::{Dataset, Inputs};
-use crate::error::{Error, Result};
+use crate::error::{Error, Result, Setting};
 
 /// The families, by their command-line names.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -103,48 +103,48 @@ impl FamilyParams {
 
     /// Validates every value (ranges, finiteness).
     pub fn check(&self) -> Result<()> {
-        let bad = |what: &str| Err(Error::Usage(what.to_string()));
+        let bad = |setting: Setting, what: &str| Err(Error::invalid(crate::error::message![setting, what]));
         match self {
             FamilyParams::Logistic(p) => {
                 if !(p.l2 >= 0.0 && p.l2.is_finite()) {
-                    return bad("--l2 must be a finite number ≥ 0");
+                    return bad(Setting::L2, " must be a finite number ≥ 0");
                 }
                 if p.max_iterations == 0 {
-                    return bad("--max-iterations must be at least 1");
+                    return bad(Setting::MaxIterations, " must be at least 1");
                 }
                 if !(p.tolerance > 0.0) {
-                    return bad("--tolerance must be positive");
+                    return bad(Setting::Tolerance, " must be positive");
                 }
                 if let Some(a) = p.mixing {
                     if !(a > 0.0 && a < 1.0) {
-                        return bad("--mixing must lie strictly between 0 and 1 (ridge is 0, lasso is 1)");
+                        return bad(Setting::Mixing, " must lie strictly between 0 and 1 (ridge is 0, lasso is 1)");
                     }
                 }
                 if p.path_length == 0 || p.path_length > 10_000 {
-                    return bad("--path-length must be between 1 and 10000");
+                    return bad(Setting::PathLength, " must be between 1 and 10000");
                 }
                 if p.cv_folds < 2 {
-                    return bad("--cv-folds must be at least 2");
+                    return bad(Setting::CvFolds, " must be at least 2");
                 }
             }
             FamilyParams::NaiveBayes(p) => {
                 if !(p.smoothing >= 0.0 && p.smoothing.is_finite()) {
-                    return bad("--smoothing must be a finite number ≥ 0");
+                    return bad(Setting::Smoothing, " must be a finite number ≥ 0");
                 }
                 if !(p.variance_floor >= 0.0 && p.variance_floor < 1.0) {
-                    return bad("--variance-floor must lie in [0, 1)");
+                    return bad(Setting::VarianceFloor, " must lie in [0, 1)");
                 }
             }
             FamilyParams::Lda(p) => {
                 if let discriminant::Shrinkage::Value(v) = p.shrinkage {
                     if !(0.0..=1.0).contains(&v) {
-                        return bad("--shrinkage takes none, ledoit-wolf or a number in [0, 1]");
+                        return bad(Setting::Shrinkage, " takes none, ledoit-wolf or a number in [0, 1]");
                     }
                 }
             }
             FamilyParams::Qda(p) => {
                 if !(0.0..=1.0).contains(&p.reg) {
-                    return bad("--reg must lie in [0, 1]");
+                    return bad(Setting::Reg, " must lie in [0, 1]");
                 }
             }
         }

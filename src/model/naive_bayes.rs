@@ -23,7 +23,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::data::schema::ColumnKind;
 use crate::data::{Dataset, Inputs};
-use crate::error::{Error, Result};
+use crate::error::{Error, Result, Setting};
 use crate::model::design::Encoding;
 use crate::model::moments::{class_moments, Moments};
 use crate::model::Diagnostics;
@@ -304,7 +304,7 @@ pub fn fit_summaries(
                     family: "naive-bayes".into(),
                     whose: "of every class".into(),
                     columns: vec![summaries.numeric[j].clone()],
-                    hint: "the column is constant; remove it with --exclude".into(),
+                    hint: crate::error::message!["the column is constant; remove it with ", Setting::Exclude],
                 });
             }
             let variance = m.scatter[j] / m.weight;

@@ -655,7 +655,7 @@ pub fn fit(
     penalty: Penalty,
     settings: &PathSettings,
 ) -> Result<PenalisedFit> {
-    let failed = |message: String| Error::FitFailed { family: "logistic".into(), message };
+    let failed = |message: String| Error::FitFailed { family: "logistic".into(), message: message.into() };
     let design = Design::new(dataset, encoding, reference);
     let scaled = Scaled::new(&design, v).map_err(failed)?;
     let alpha = settings.mixing;

@@ -4,7 +4,7 @@
 
 use serde::{Deserialize, Serialize};
 
-use crate::error::{Error, Result};
+use crate::error::{Error, Result, Setting};
 
 /// How far from 1 a stated prior may sum (rounding in what users type).
 pub const PRIOR_SUM_TOLERANCE: f64 = 1e-9;
@@ -60,10 +60,13 @@ impl PriorSpec {
             PriorSpec::Uniform => vec![1.0 / k as f64; k],
             PriorSpec::BaseRate(p) => {
                 if k != 2 {
-                    return Err(Error::InvalidPrior(format!(
-                        "--base-rate is for two classes; the target has {k} ({}): use --prior CLASS=P,...",
-                        classes.join(", ")
-                    )));
+                    return Err(Error::invalid(crate::error::message![
+                        "invalid prior: ",
+                        Setting::BaseRate,
+                        format!(" is for two classes; the target has {k} ({}): use ", classes.join(", ")),
+                        Setting::Prior,
+                        " CLASS=P,..."
+                    ]));
                 }
                 let mut prior = vec![1.0 - p; 2];
                 prior[positive] = *p;

@@ -7,6 +7,7 @@ pub mod evaluation;
 pub mod model;
 pub mod score;
 pub mod shift;
+pub mod study;
 pub mod table;
 
 pub use crate::CAUTION;

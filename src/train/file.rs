@@ -193,7 +193,9 @@ impl ModelFileBuilder {
     /// The model file, checked for consistency.
     pub fn build(self) -> Result<ModelFile> {
         let family = self.file.family;
-        self.file.validate().map_err(|message| Error::FitFailed { family: family.name().into(), message })?;
+        self.file
+            .validate()
+            .map_err(|message| Error::FitFailed { family: family.name().into(), message: message.into() })?;
         Ok(self.file)
     }
 }
@@ -242,7 +244,7 @@ impl ModelFile {
     pub fn to_json(&self) -> Result<String> {
         serde_json::to_string_pretty(self).map_err(|e| Error::FitFailed {
             family: self.family.name().into(),
-            message: format!("the model could not be written as JSON: {e}"),
+            message: format!("the model could not be written as JSON: {e}").into(),
         })
     }
 
@@ -255,6 +257,34 @@ impl ModelFile {
 
     /// Reads and validates a model file.
     pub fn load(path: &Path) -> Result<ModelFile> {
+        Self::load_file(path)
+    }
+
+    /// Reads a costs file for this model: its classes, and no categorical
+    /// input used as an amount.
+    pub fn read_costs(&self, path: &Path) -> Result<crate::decide::CostSpec> {
+        let shown = path.display().to_string();
+        let text = std::fs::read_to_string(path).map_err(|e| Error::io(&shown, e))?;
+        let spec = crate::decide::CostSpec::parse(&shown, &text, &self.classes)?;
+        self.check_cost_columns(&spec, &shown)?;
+        Ok(spec)
+    }
+
+    /// Refuses costs that read a column this model holds as categorical
+    /// (an amount must be numeric); `shown` names the file in the error.
+    pub fn check_cost_columns(&self, spec: &crate::decide::CostSpec, shown: &str) -> Result<()> {
+        let categorical = self.schema.categorical_inputs();
+        match spec.columns().into_iter().find(|c| categorical.iter().any(|k| k.name == *c)) {
+            Some(c) => Err(Error::SchemaMismatch {
+                path: shown.to_string(),
+                message: format!("the costs use column '{c}', which the model reads as categorical, not numeric")
+                    .into(),
+            }),
+            None => Ok(()),
+        }
+    }
+
+    fn load_file(path: &Path) -> Result<ModelFile> {
         let shown = path.display().to_string();
         let text = std::fs::read_to_string(path).map_err(|e| Error::io(&shown, e))?;
         ModelFile::from_json(&shown, &text)

@@ -1,0 +1,313 @@
+//! The family flags `fit` and `compare` share: `--family` and each
+//! family's options (as flags for `fit`, after a colon for `compare`), and
+//! the prior flags. Turns them into the library's checked parameters.
+
+use baserate::error::Error;
+use baserate::evaluate::compare::Candidate;
+use baserate::model::discriminant::{Divisor, LdaParams, QdaParams, Shrinkage};
+use baserate::model::logistic::{ClassWeight, LogisticParams};
+use baserate::model::naive_bayes::NaiveBayesParams;
+use baserate::model::penalised::{LambdaChoice, LambdaRule, Penalty};
+use baserate::model::{Family, FamilyParams};
+use baserate::prior::PriorSpec;
+
+/// `--family` values.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum FamilyArg {
+    /// Logistic regression (posterior-direct).
+    Logistic,
+    /// Naive Bayes (Gaussian numeric, smoothed categorical).
+    NaiveBayes,
+    /// Linear discriminant analysis.
+    Lda,
+    /// Quadratic discriminant analysis.
+    Qda,
+}
+
+impl From<FamilyArg> for Family {
+    fn from(f: FamilyArg) -> Family {
+        match f {
+            FamilyArg::Logistic => Family::Logistic,
+            FamilyArg::NaiveBayes => Family::NaiveBayes,
+            FamilyArg::Lda => Family::Lda,
+            FamilyArg::Qda => Family::Qda,
+        }
+    }
+}
+
+/// `--covariance-divisor` values.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum DivisorArg {
+    /// n − K for LDA, nₖ − 1 for QDA.
+    Unbiased,
+    /// n for LDA, nₖ for QDA (maximum likelihood).
+    Rows,
+}
+
+/// Per-family options, shared by `fit` and (later) `compare`.
+#[derive(Debug, Clone, Default, clap::Args)]
+pub struct FamilyOptions {
+    /// logistic: ridge penalty λ on standardised slopes (intercept unpenalised).
+    #[arg(long, value_name = "LAMBDA")]
+    pub l2: Option<f64>,
+    /// logistic: class weights, `equal` or CLASS=W,... (multiplying row weights).
+    #[arg(long, value_name = "SPEC")]
+    pub class_weight: Option<String>,
+    /// logistic: Newton iterations at most [default: 50].
+    #[arg(long, value_name = "N")]
+    pub max_iterations: Option<usize>,
+    /// logistic: convergence tolerance on the largest standardised step [default: 1e-8].
+    #[arg(long, value_name = "T")]
+    pub tolerance: Option<f64>,
+    /// logistic: a penalty fitted along a λ path by coordinate descent: none, ridge, lasso or elastic-net [default: none].
+    #[arg(long, value_name = "P")]
+    pub penalty: Option<String>,
+    /// logistic: elastic-net mixing α in (0, 1): α·‖β‖₁ + (1−α)/2·‖β‖² [default: 0.5].
+    #[arg(long, value_name = "A")]
+    pub mixing: Option<f64>,
+    /// logistic: λ of the penalty, or `auto` (K-fold cross-validated deviance) [default: auto].
+    #[arg(long, value_name = "VALUE|auto")]
+    pub lambda: Option<String>,
+    /// logistic: points on the λ path [default: 100].
+    #[arg(long, value_name = "N")]
+    pub path_length: Option<usize>,
+    /// logistic: which cross-validated λ: one-se (largest within one standard error of the minimum) or min [default: one-se].
+    #[arg(long, value_name = "RULE")]
+    pub lambda_rule: Option<String>,
+    /// logistic: folds for --lambda auto [default: 5].
+    #[arg(long, value_name = "K")]
+    pub cv_folds: Option<usize>,
+    /// naive-bayes: additive smoothing of categorical likelihoods [default: 1].
+    #[arg(long, value_name = "ALPHA")]
+    pub smoothing: Option<f64>,
+    /// naive-bayes: floor on class variances as a share of the overall variance [default: 1e-9].
+    #[arg(long, value_name = "F")]
+    pub variance_floor: Option<f64>,
+    /// lda: none, ledoit-wolf, or α in [0, 1] (toward the diagonal of the pooled covariance).
+    #[arg(long, value_name = "S")]
+    pub shrinkage: Option<String>,
+    /// qda: weight γ of the pooled covariance in each class's, in [0, 1].
+    #[arg(long, value_name = "GAMMA")]
+    pub reg: Option<f64>,
+    /// lda, qda: covariance divisor.
+    #[arg(long, value_enum, value_name = "D")]
+    pub covariance_divisor: Option<DivisorArg>,
+}
+
+fn only_for(flag: &str, families: &str, family: Family) -> Error {
+    Error::Usage(format!("{flag} applies to {families}, not to {}", family.name()))
+}
+
+impl FamilyOptions {
+    /// The checked parameters of `family`; an option of another family is a usage error.
+    pub fn params(&self, family: Family) -> baserate::Result<FamilyParams> {
+        let logistic_flags = [
+            ("--l2", self.l2.is_some()),
+            ("--class-weight", self.class_weight.is_some()),
+            ("--max-iterations", self.max_iterations.is_some()),
+            ("--tolerance", self.tolerance.is_some()),
+            ("--penalty", self.penalty.is_some()),
+            ("--mixing", self.mixing.is_some()),
+            ("--lambda", self.lambda.is_some()),
+            ("--path-length", self.path_length.is_some()),
+            ("--lambda-rule", self.lambda_rule.is_some()),
+            ("--cv-folds", self.cv_folds.is_some()),
+        ];
+        let nb_flags = [("--smoothing", self.smoothing.is_some()), ("--variance-floor", self.variance_floor.is_some())];
+        let check = |flags: &[(&str, bool)], families: &str, allowed: bool| -> baserate::Result<()> {
+            match flags.iter().find(|(_, set)| *set) {
+                Some((flag, _)) if !allowed => Err(only_for(flag, families, family)),
+                _ => Ok(()),
+            }
+        };
+        check(&logistic_flags, "logistic", family == Family::Logistic)?;
+        check(&nb_flags, "naive-bayes", family == Family::NaiveBayes)?;
+        check(&[("--shrinkage", self.shrinkage.is_some())], "lda", family == Family::Lda)?;
+        check(&[("--reg", self.reg.is_some())], "qda", family == Family::Qda)?;
+        check(
+            &[("--covariance-divisor", self.covariance_divisor.is_some())],
+            "lda and qda",
+            matches!(family, Family::Lda | Family::Qda),
+        )?;
+        let divisor = match self.covariance_divisor {
+            Some(DivisorArg::Rows) => Divisor::Rows,
+            _ => Divisor::Unbiased,
+        };
+        let params = match family {
+            Family::Logistic => {
+                let defaults = LogisticParams::default();
+                let penalty = match self.penalty.as_deref() {
+                    None | Some("none") => Penalty::None,
+                    Some("ridge") => Penalty::Ridge,
+                    Some("lasso") => Penalty::Lasso,
+                    Some("elastic-net") => Penalty::ElasticNet,
+                    Some(other) => {
+                        return Err(Error::Usage(format!(
+                            "--penalty takes none, ridge, lasso or elastic-net, not '{other}'"
+                        )))
+                    }
+                };
+                let path_flags = [
+                    ("--mixing", self.mixing.is_some()),
+                    ("--lambda", self.lambda.is_some()),
+                    ("--path-length", self.path_length.is_some()),
+                    ("--lambda-rule", self.lambda_rule.is_some()),
+                    ("--cv-folds", self.cv_folds.is_some()),
+                ];
+                if penalty == Penalty::None {
+                    if let Some((flag, _)) = path_flags.iter().find(|(_, set)| *set) {
+                        return Err(Error::Usage(format!("{flag} needs --penalty ridge, lasso or elastic-net")));
+                    }
+                } else if self.l2.is_some() {
+                    return Err(Error::Usage(
+                        "--l2 is the Newton fit's ridge; with --penalty give --lambda instead".into(),
+                    ));
+                }
+                if self.mixing.is_some() && penalty != Penalty::ElasticNet {
+                    return Err(Error::Usage("--mixing is for --penalty elastic-net (ridge is 0, lasso is 1)".into()));
+                }
+                let lambda = match self.lambda.as_deref() {
+                    None | Some("auto") => LambdaChoice::Auto,
+                    Some(v) => LambdaChoice::Value(
+                        v.parse::<f64>()
+                            .ok()
+                            .filter(|x| *x >= 0.0 && x.is_finite())
+                            .ok_or_else(|| Error::Usage(format!("--lambda takes a number ≥ 0 or auto, not '{v}'")))?,
+                    ),
+                };
+                let lambda_rule = match self.lambda_rule.as_deref() {
+                    None | Some("one-se") => LambdaRule::OneSe,
+                    Some("min") => LambdaRule::Min,
+                    Some(other) => {
+                        return Err(Error::Usage(format!("--lambda-rule takes one-se or min, not '{other}'")))
+                    }
+                };
+                FamilyParams::Logistic(LogisticParams {
+                    l2: self.l2.unwrap_or(defaults.l2),
+                    class_weight: parse_class_weight(self.class_weight.as_deref())?,
+                    max_iterations: self.max_iterations.unwrap_or(defaults.max_iterations),
+                    tolerance: self.tolerance.unwrap_or(defaults.tolerance),
+                    penalty,
+                    mixing: self.mixing,
+                    lambda,
+                    path_length: self.path_length.unwrap_or(defaults.path_length),
+                    lambda_rule,
+                    cv_folds: self.cv_folds.unwrap_or(defaults.cv_folds),
+                    cv_seed: defaults.cv_seed,
+                })
+            }
+            Family::NaiveBayes => {
+                let defaults = NaiveBayesParams::default();
+                FamilyParams::NaiveBayes(NaiveBayesParams {
+                    smoothing: self.smoothing.unwrap_or(defaults.smoothing),
+                    variance_floor: self.variance_floor.unwrap_or(defaults.variance_floor),
+                })
+            }
+            Family::Lda => {
+                FamilyParams::Lda(LdaParams { shrinkage: parse_shrinkage(self.shrinkage.as_deref())?, divisor })
+            }
+            Family::Qda => FamilyParams::Qda(QdaParams { reg: self.reg.unwrap_or(0.0), divisor }),
+        };
+        params.check()?;
+        Ok(params)
+    }
+}
+
+/// Parses `--shrinkage`.
+pub fn parse_shrinkage(text: Option<&str>) -> baserate::Result<Shrinkage> {
+    match text {
+        None | Some("none") => Ok(Shrinkage::None),
+        Some("ledoit-wolf") => Ok(Shrinkage::LedoitWolf),
+        Some(v) => v.parse::<f64>().ok().filter(|a| (0.0..=1.0).contains(a)).map(Shrinkage::Value).ok_or_else(|| {
+            Error::Usage(format!("--shrinkage takes none, ledoit-wolf or a number in [0, 1], not '{v}'"))
+        }),
+    }
+}
+
+/// Parses `--class-weight`.
+pub fn parse_class_weight(text: Option<&str>) -> baserate::Result<ClassWeight> {
+    match text {
+        None => Ok(ClassWeight::None),
+        Some("equal") => Ok(ClassWeight::Equal),
+        Some(spec) => spec
+            .split(',')
+            .map(|part| {
+                let (class, w) = part
+                    .rsplit_once('=')
+                    .ok_or_else(|| Error::Usage(format!("--class-weight takes equal or CLASS=W,..., not '{part}'")))?;
+                let w: f64 =
+                    w.trim().parse().map_err(|_| Error::Usage(format!("'{w}' in --class-weight is not a number")))?;
+                Ok((class.trim().to_string(), w))
+            })
+            .collect::<baserate::Result<Vec<_>>>()
+            .map(ClassWeight::Explicit),
+    }
+}
+
+/// Parses `--prior` / `--base-rate` (at most one).
+pub fn prior_spec(prior: Option<&str>, base_rate: Option<f64>) -> baserate::Result<Option<PriorSpec>> {
+    match (prior, base_rate) {
+        (Some(_), Some(_)) => Err(Error::Usage("give --prior or --base-rate, not both".into())),
+        (Some(p), None) => Ok(Some(p.parse()?)),
+        (None, Some(b)) => Ok(Some(PriorSpec::BaseRate(b))),
+        (None, None) => Ok(None),
+    }
+}
+
+/// Parses `F[:OPTION=VALUE,...][+platt|+isotonic]` into a named candidate.
+pub fn parse_candidate(spec: &str) -> baserate::Result<Candidate> {
+    let (base, calibration) = match spec.rsplit_once('+') {
+        Some((b, "platt")) => (b, Some(baserate::evaluate::compare::Calibration::Platt)),
+        Some((b, "isotonic")) => (b, Some(baserate::evaluate::compare::Calibration::Isotonic)),
+        Some((_, other)) => {
+            return Err(Error::Usage(format!("--family {spec}: '+{other}' is not +platt or +isotonic")))
+        }
+        None => (spec, None),
+    };
+    let (family_text, options_text) = base.split_once(':').unwrap_or((base, ""));
+    let family: Family = match family_text {
+        "logistic" => FamilyArg::Logistic,
+        "naive-bayes" => FamilyArg::NaiveBayes,
+        "lda" => FamilyArg::Lda,
+        "qda" => FamilyArg::Qda,
+        other => return Err(Error::Usage(format!("--family '{other}' is not one of logistic, naive-bayes, lda, qda"))),
+    }
+    .into();
+    let mut options = FamilyOptions::default();
+    for part in options_text.split(',').filter(|p| !p.is_empty()) {
+        let (key, value) = part
+            .split_once('=')
+            .ok_or_else(|| Error::Usage(format!("--family {spec}: '{part}' is not OPTION=VALUE")))?;
+        let number =
+            |v: &str| v.parse::<f64>().map_err(|_| Error::Usage(format!("--family {spec}: '{v}' is not a number")));
+        match key {
+            "l2" => options.l2 = Some(number(value)?),
+            "class-weight" => options.class_weight = Some(value.to_string()),
+            "max-iterations" => options.max_iterations = Some(number(value)? as usize),
+            "tolerance" => options.tolerance = Some(number(value)?),
+            "penalty" => options.penalty = Some(value.to_string()),
+            "mixing" => options.mixing = Some(number(value)?),
+            "lambda" => options.lambda = Some(value.to_string()),
+            "path-length" => options.path_length = Some(number(value)? as usize),
+            "lambda-rule" => options.lambda_rule = Some(value.to_string()),
+            "cv-folds" => options.cv_folds = Some(number(value)? as usize),
+            "smoothing" => options.smoothing = Some(number(value)?),
+            "variance-floor" => options.variance_floor = Some(number(value)?),
+            "shrinkage" => options.shrinkage = Some(value.to_string()),
+            "reg" => options.reg = Some(number(value)?),
+            "covariance-divisor" => {
+                options.covariance_divisor = Some(match value {
+                    "rows" => DivisorArg::Rows,
+                    "unbiased" => DivisorArg::Unbiased,
+                    v => {
+                        return Err(Error::Usage(format!(
+                            "--family {spec}: covariance-divisor '{v}' is not unbiased or rows"
+                        )))
+                    }
+                })
+            }
+            other => return Err(Error::Usage(format!("--family {spec}: unknown option '{other}'"))),
+        }
+    }
+    Ok(Candidate { name: spec.to_string(), params: options.params(family)?, calibration })
+}

@@ -1,0 +1,572 @@
+//! A whole evaluation as one call: families compared on the same splits
+//! ([`compare_families`]), or scores made elsewhere judged the same way
+//! ([`assess_scores`]). Each returns a [`Study`]: the evaluation with its
+//! cost figures, the figures reweighted to a target class mix, the learning
+//! curve, the penalised fits' paths, and the out-of-fold predictions as CSV
+//! when asked for. Rendering is the caller's (see `report::evaluation`).
+
+use std::path::Path;
+
+use crate::data::split::{assign, Assignment, SplitPlan};
+use crate::data::Dataset;
+use crate::decide::CostSpec;
+use crate::error::{Error, Result, Setting};
+use crate::evaluate::cost_figures::{cost_figures, CostFigures};
+use crate::evaluate::cross_validation::{cross_predict, Candidate, Predictions};
+use crate::evaluate::learning_curve::{learning_curve, LearningPoint};
+use crate::evaluate::metrics::ScoreKind;
+use crate::evaluate::paired::{evaluate, evaluate_reweighted, multiclass, Evaluation, EvaluationOptions, TestedScore};
+use crate::model::penalised::{Penalty, PenaltyFit};
+use crate::model::{FamilyParams, FittedModel};
+use crate::prior::PriorSpec;
+
+/// Probabilities are clipped to [1e-15, 1 − 1e-15] before the log odds are
+/// taken, so that a score of exactly 0 or 1 gives a finite (large) log loss.
+pub const PROBABILITY_CLIP: f64 = 1e-15;
+
+/// Learning-curve points drawn when a curve is asked for.
+const LEARNING_CURVE_POINTS: usize = 8;
+
+/// What a comparison and an assessment share.
+#[derive(Debug, Clone, Default)]
+pub struct StudyOptions {
+    /// Seed of the splits and the bootstrap.
+    pub seed: u64,
+    /// Paired-bootstrap draws (see [`EvaluationOptions::bootstrap`]).
+    pub bootstrap: Option<usize>,
+    /// A numeric column of amounts, for amount-weighted capture.
+    pub amount: Option<String>,
+    /// A column whose values are segments: every figure per segment.
+    pub by: Option<String>,
+    /// The class mix to restate the figures at.
+    pub target_prior: Option<PriorSpec>,
+    /// A loss specification (TOML): the Bayes-rule decisions and their cost.
+    pub costs: Option<std::path::PathBuf>,
+}
+
+/// How rows are split into training and test.
+#[derive(Debug, Clone)]
+pub enum SplitChoice {
+    /// Stratified K-fold cross-validation, repeated.
+    KFold {
+        /// Folds.
+        folds: usize,
+        /// Repeats with fresh shuffles.
+        repeats: usize,
+    },
+    /// A stratified holdout of this share of rows.
+    Holdout {
+        /// The test share.
+        test_fraction: f64,
+    },
+    /// Out of time: rows with `column` at or after `test_from` are tested.
+    OutOfTime {
+        /// The column (read as an identifier).
+        column: String,
+        /// First value of the test set.
+        test_from: String,
+        /// Training ends before this value (a label-maturity gap).
+        gap_from: Option<String>,
+    },
+    /// The first `training_rows` rows train, the rest test (a holdout file,
+    /// see `Dataset::read_with_holdout`).
+    TrainThenTest {
+        /// Rows that train.
+        training_rows: usize,
+        /// For people: "trained on A, tested on B".
+        description: String,
+    },
+}
+
+/// A comparison of families.
+#[derive(Debug, Clone)]
+pub struct ComparisonRequest {
+    /// The candidates, each with a unique name.
+    pub candidates: Vec<Candidate>,
+    /// The split.
+    pub split: SplitChoice,
+    /// What every study takes.
+    pub options: StudyOptions,
+    /// Also fit on growing training sizes.
+    pub learning_curve: bool,
+    /// Also refit penalised logistic candidates on all rows, for their
+    /// coefficient path and cross-validation curve.
+    pub penalised_paths: bool,
+    /// Also return the out-of-fold predictions (first repeat) as CSV.
+    pub predictions: bool,
+}
+
+/// Scores made elsewhere, to be judged like a comparison's candidates.
+#[derive(Debug, Clone)]
+pub struct AssessRequest {
+    /// Numeric score columns of the dataset.
+    pub scores: Vec<String>,
+    /// Probabilities (every metric) or ranks (rank metrics only).
+    pub kind: ScoreKind,
+    /// Lower scores mean more likely positive (credit points, say).
+    pub lower_positive: bool,
+    /// The positive class's share in the data the probability scores are
+    /// calibrated to (needed to restate them at a target prior).
+    pub train_prior: Option<f64>,
+    /// What every study takes.
+    pub options: StudyOptions,
+}
+
+/// A penalised logistic fit on all rows: name, term names, path.
+pub type PenalisedPath = (String, Vec<String>, PenaltyFit);
+
+/// Everything an evaluation found.
+#[derive(Debug, Clone)]
+pub struct Study {
+    /// The measured figures (cost figures included when costs were given).
+    pub evaluation: Evaluation,
+    /// The target class mix, when one was asked for.
+    pub target_prior: Option<Vec<f64>>,
+    /// The figures with the test rows reweighted to the target mix.
+    pub reweighted: Option<Evaluation>,
+    /// The class names.
+    pub classes: Vec<String>,
+    /// The learning curve (empty unless asked for).
+    pub learning: Vec<LearningPoint>,
+    /// Penalised fits' paths (empty unless asked for).
+    pub penalised: Vec<PenalisedPath>,
+    /// Notes for the user (a path that could not be drawn).
+    pub notes: Vec<String>,
+    /// Out-of-fold predictions as CSV (when asked for).
+    pub predictions_csv: Option<Vec<u8>>,
+}
+
+impl Study {
+    /// Every figure as one JSON value (the `--json` output).
+    pub fn json(&self) -> Result<serde_json::Value> {
+        let to_value = |v: serde_json::Result<serde_json::Value>| v.map_err(|e| Error::Usage(e.to_string()));
+        let mut value = to_value(serde_json::to_value(&self.evaluation))?;
+        if !self.learning.is_empty() {
+            value["learning_curve"] = to_value(serde_json::to_value(&self.learning))?;
+        }
+        if let (Some(to), Some(r)) = (&self.target_prior, &self.reweighted) {
+            value["target_prior"] = to_value(serde_json::to_value(to))?;
+            value["reweighted"] = to_value(serde_json::to_value(r))?;
+        }
+        Ok(value)
+    }
+
+    /// The reweighted figures with the mix and the class names, as the
+    /// screen shows them.
+    pub fn reweighted_view(&self) -> Option<(&Evaluation, &[f64], &[String])> {
+        match (&self.reweighted, &self.target_prior) {
+            (Some(r), Some(to)) => Some((r, to.as_slice(), self.classes.as_slice())),
+            _ => None,
+        }
+    }
+}
+
+/// The costs and the values of the columns they read (taken before the
+/// inputs matrix is freed).
+#[derive(Debug, Clone)]
+pub struct CostInputs {
+    /// The loss specification.
+    pub spec: CostSpec,
+    /// (column, value of each row).
+    pub columns: Vec<(String, Vec<f64>)>,
+}
+
+/// Reads a costs file for an evaluation of `dataset` and the columns it
+/// uses (two classes only).
+pub fn read_costs(path: &Path, dataset: &Dataset) -> Result<CostInputs> {
+    let shown = path.display().to_string();
+    let text = std::fs::read_to_string(path).map_err(|e| Error::io(&shown, e))?;
+    let spec = CostSpec::parse(&shown, &text, &dataset.schema.target.classes)?;
+    if dataset.schema.target.classes.len() != 2 {
+        return Err(Error::Usage(format!(
+            "{shown}: cost figures of an evaluation need a two-class target; this one has {} classes (scoring applies costs to any number)",
+            dataset.schema.target.classes.len()
+        )));
+    }
+    let mut columns: Vec<(String, Vec<f64>)> = Vec::new();
+    for column in spec.columns() {
+        let values = column_text(dataset, &column).ok_or_else(|| Error::SchemaMismatch {
+            path: shown.clone(),
+            message: format!("the costs use column '{column}', which the data does not have (or which was excluded)")
+                .into(),
+        })?;
+        let parsed: Option<Vec<f64>> = values
+            .iter()
+            .map(|v| crate::data::number::parse_f64(v.trim().as_bytes()).filter(|x| x.is_finite()))
+            .collect();
+        let parsed = parsed.ok_or_else(|| Error::SchemaMismatch {
+            path: shown.clone(),
+            message: format!("the costs use column '{column}', which is not numeric").into(),
+        })?;
+        columns.push((column, parsed));
+    }
+    Ok(CostInputs { spec, columns })
+}
+
+/// Values of a column for every row, as text: an id column, a categorical
+/// feature's levels, or a numeric feature's numbers.
+pub fn column_text(dataset: &Dataset, column: &str) -> Option<Vec<String>> {
+    if let Some((_, values)) = dataset.ids.iter().find(|(name, _)| name == column) {
+        return Some(values.clone());
+    }
+    if let Some(c) = dataset.schema.categorical_inputs().iter().position(|c| c.name == column) {
+        let levels = dataset.schema.categorical_inputs()[c].categorical.as_ref()?.levels.clone();
+        return Some(dataset.categorical[c].iter().map(|&code| levels[code as usize].clone()).collect());
+    }
+    let j = dataset.schema.numeric_inputs().iter().position(|n| n == column)?;
+    (j < dataset.numeric.ncols()).then(|| dataset.numeric.column(j).iter().map(|v| format!("{v}")).collect())
+}
+
+/// The amounts column: a numeric feature's values.
+fn amounts(dataset: &Dataset, column: &str) -> Result<Vec<f64>> {
+    let j = dataset.schema.numeric_inputs().iter().position(|n| n == column).ok_or_else(|| {
+        Error::invalid(crate::error::message![
+            Setting::Amount,
+            format!(" must name a numeric feature column; '{column}' is not one")
+        ])
+    })?;
+    Ok(dataset.numeric.column(j).to_vec())
+}
+
+/// The segments column's values.
+fn segments(dataset: &Dataset, column: &str) -> Result<Vec<String>> {
+    column_text(dataset, column).ok_or_else(|| {
+        Error::invalid(crate::error::message![
+            Setting::By,
+            format!(" names column '{column}', which was not read (name it with "),
+            Setting::Ids,
+            ", or as a feature)"
+        ])
+    })
+}
+
+/// The study's target class mix, resolved on the dataset's classes.
+fn resolve_target_prior(dataset: &Dataset, options: &StudyOptions) -> Result<Option<Vec<f64>>> {
+    let target = &dataset.schema.target;
+    options
+        .target_prior
+        .as_ref()
+        .map(|spec| spec.resolve(&target.classes, &target.class_mix(), target.positive_index()))
+        .transpose()
+}
+
+/// Adds each result's cost figures to its metrics (`expected_cost`, the
+/// mean cost per row, and the rest) and to the evaluation's cost table.
+/// `fold_of`: each row's test fold, so capacity applies per fold.
+fn apply_costs(
+    inputs: &CostInputs,
+    scores: &[TestedScore],
+    options: &EvaluationOptions<'_>,
+    evaluation: &mut Evaluation,
+    fold_of: Option<&[u32]>,
+) {
+    let value = |c: &str, r: usize| inputs.columns.iter().find(|(n, _)| n == c).map_or(0.0, |(_, v)| v[r]);
+    let figures: Vec<CostFigures> = cost_figures(scores, options, &inputs.spec, &value, fold_of);
+    for f in &figures {
+        if let Some(r) = evaluation.results.iter_mut().find(|r| r.name == f.name) {
+            if let (Some(object), Ok(serde_json::Value::Object(extra))) =
+                (r.metrics.as_object_mut(), serde_json::to_value(f))
+            {
+                for (key, value) in extra {
+                    if key != "name" {
+                        object.insert(key, value);
+                    }
+                }
+            }
+        }
+    }
+    evaluation.costs = figures;
+}
+
+/// The split of a comparison, over `dataset`'s rows.
+fn assignment(dataset: &Dataset, split: &SplitChoice, seed: u64) -> Result<Assignment> {
+    let k = dataset.schema.target.classes.len();
+    let plan = match split {
+        SplitChoice::TrainThenTest { training_rows, description } => {
+            return Ok(Assignment {
+                folds: vec![(0..dataset.rows()).map(|i| u32::from(i < *training_rows)).collect()],
+                tested_folds: 1,
+                description: description.clone(),
+            })
+        }
+        SplitChoice::KFold { folds, repeats } => SplitPlan::KFold { folds: *folds, repeats: *repeats },
+        SplitChoice::Holdout { test_fraction } => SplitPlan::Holdout { test_fraction: *test_fraction },
+        SplitChoice::OutOfTime { column, test_from, gap_from } => SplitPlan::OutOfTime {
+            values: column_text(dataset, column).unwrap_or_default(),
+            column: column.clone(),
+            test_from: test_from.clone(),
+            gap_from: gap_from.clone(),
+        },
+    };
+    assign(&plan, &dataset.target, k, seed)
+}
+
+/// The out-of-fold predictions of the first repeat as CSV: the id columns,
+/// the fold, the label, then each candidate's posteriors.
+fn predictions_csv(dataset: &Dataset, predictions: &[Predictions], assignment: &Assignment) -> Vec<u8> {
+    let target = &dataset.schema.target;
+    let k = target.classes.len();
+    let mut out = Vec::new();
+    let mut write = |fields: &[String]| {
+        for (i, field) in fields.iter().enumerate() {
+            if i > 0 {
+                out.push(b',');
+            }
+            crate::records::push_field(&mut out, field.as_bytes());
+        }
+        out.push(b'\n');
+    };
+    let mut header: Vec<String> = dataset.ids.iter().map(|(n, _)| n.clone()).collect();
+    header.push("fold".into());
+    header.push(target.column.clone());
+    for p in predictions {
+        header.extend(target.classes.iter().map(|c| format!("{}:p_{c}", p.name)));
+    }
+    write(&header);
+    for i in 0..dataset.rows() {
+        if predictions[0].log_posteriors[0][(i, 0)].is_nan() {
+            continue;
+        }
+        let mut record: Vec<String> = dataset.ids.iter().map(|(_, v)| v[i].clone()).collect();
+        record.push((assignment.folds[0][i] + 1).to_string());
+        record.push(target.classes[dataset.target[i] as usize].clone());
+        for p in predictions {
+            record.extend((0..k).map(|c| crate::format::exact(p.log_posteriors[0][(i, c)].exp())));
+        }
+        write(&record);
+    }
+    out
+}
+
+/// Penalised logistic candidates fitted on all rows, for their path charts.
+fn penalised_paths(dataset: &Dataset, candidates: &[Candidate], notes: &mut Vec<String>) -> Vec<PenalisedPath> {
+    let mut paths = Vec::new();
+    for candidate in candidates {
+        let FamilyParams::Logistic(p) = &candidate.params else { continue };
+        if p.penalty == Penalty::None {
+            continue;
+        }
+        match crate::model::fit(dataset, &candidate.params) {
+            Ok((FittedModel::Logistic(m), _)) => {
+                if let Some(record) = m.penalty {
+                    paths.push((candidate.name.clone(), m.encoding.terms(), record));
+                }
+            }
+            Ok(_) => {}
+            Err(e) => notes.push(format!("{}: the path chart could not be drawn: {e}", candidate.name)),
+        }
+    }
+    paths
+}
+
+/// Fits `request.candidates` on the same splits of `dataset` and evaluates
+/// them out of sample. The dataset is taken by value: its inputs matrix is
+/// freed before the evaluation, which needs only the log odds.
+pub fn compare_families(mut dataset: Dataset, request: &ComparisonRequest) -> Result<Study> {
+    for (i, c) in request.candidates.iter().enumerate() {
+        if request.candidates[..i].iter().any(|d| d.name == c.name) {
+            return Err(Error::invalid(crate::error::message![Setting::Family, format!(" {} is given twice", c.name)]));
+        }
+    }
+    let options = &request.options;
+    let assignment = assignment(&dataset, &request.split, options.seed)?;
+    let target_prior = resolve_target_prior(&dataset, options)?;
+    let candidates = &request.candidates;
+    let predictions = cross_predict(&dataset, candidates, &assignment, target_prior.as_deref())?;
+    let amounts = options.amount.as_deref().map(|c| amounts(&dataset, c)).transpose()?;
+    let segments = options.by.as_deref().map(|c| segments(&dataset, c)).transpose()?;
+    let learning = if request.learning_curve {
+        learning_curve(&dataset, candidates, &assignment, options.seed, LEARNING_CURVE_POINTS)
+    } else {
+        Vec::new()
+    };
+    let predictions_csv = request.predictions.then(|| predictions_csv(&dataset, &predictions, &assignment));
+    let k = dataset.schema.target.classes.len();
+    let positive = dataset.schema.target.positive_index();
+    let multiclass_figures = if k > 2 { multiclass(&predictions, &dataset) } else { Vec::new() };
+    let scores: Vec<TestedScore> = predictions.iter().map(|p| TestedScore::from_predictions(p, positive)).collect();
+    let mut notes = Vec::new();
+    let penalised =
+        if request.penalised_paths { penalised_paths(&dataset, candidates, &mut notes) } else { Vec::new() };
+    // What the evaluation does not need is freed first: the inputs matrix
+    // and the full posterior tables (the scores keep the log odds).
+    drop(predictions);
+    let cost_inputs = options.costs.as_deref().map(|path| read_costs(path, &dataset)).transpose()?;
+    dataset.numeric = ndarray::Array2::zeros((0, 0));
+    let study = judge(
+        &dataset,
+        &scores,
+        options,
+        assignment.description.clone(),
+        target_prior,
+        cost_inputs.as_ref(),
+        assignment.folds.first().map(Vec::as_slice),
+        amounts.as_deref(),
+        segments.as_deref(),
+    );
+    let mut study = study;
+    if k > 2 {
+        study.evaluation.set_multiclass(multiclass_figures);
+    }
+    study.learning = learning;
+    study.penalised = penalised;
+    study.notes = notes;
+    study.predictions_csv = predictions_csv;
+    Ok(study)
+}
+
+/// The evaluation of tested scores: measured, reweighted to the target
+/// mix, and under the costs.
+#[allow(clippy::too_many_arguments)]
+fn judge(
+    dataset: &Dataset,
+    scores: &[TestedScore],
+    options: &StudyOptions,
+    split: String,
+    target_prior: Option<Vec<f64>>,
+    costs: Option<&CostInputs>,
+    fold_of: Option<&[u32]>,
+    amounts: Option<&[f64]>,
+    segments: Option<&[String]>,
+) -> Study {
+    let target = &dataset.schema.target;
+    let evaluation_options = EvaluationOptions {
+        target: &dataset.target,
+        positive: target.positive_index(),
+        classes: &target.classes,
+        weights: dataset.weights.as_deref(),
+        amounts,
+        bootstrap: options.bootstrap,
+        seed: options.seed,
+        segments: segments.map(|v| (options.by.as_deref().unwrap_or(""), v)),
+        split,
+    };
+    let mut evaluation = evaluate(scores, &evaluation_options);
+    // With a target prior: the same figures with the test rows reweighted by
+    // class (importance weights π′ₖ/πₖ, π the tested rows' class mix), so
+    // they describe a portfolio at the target mix.
+    let reweighted = target_prior.as_ref().map(|to| evaluate_reweighted(scores, &evaluation_options, to));
+    if let Some(inputs) = costs {
+        apply_costs(inputs, scores, &evaluation_options, &mut evaluation, fold_of);
+    }
+    Study {
+        evaluation,
+        target_prior,
+        reweighted,
+        classes: target.classes.clone(),
+        learning: Vec::new(),
+        penalised: Vec::new(),
+        notes: Vec::new(),
+        predictions_csv: None,
+    }
+}
+
+/// Judges score columns made elsewhere (a bureau score, another team's
+/// model) on every row of `dataset`, with the paired tests between them.
+/// Rank scores get the rank metrics only.
+pub fn assess_scores(dataset: &Dataset, request: &AssessRequest) -> Result<Study> {
+    let options = &request.options;
+    let target = &dataset.schema.target;
+    let positive = target.positive_index();
+    let target_prior = resolve_target_prior(dataset, options)?;
+    // The odds correction of probability scores from the prior they are
+    // calibrated to (the train prior) to the target prior.
+    let shift = match (&target_prior, request.train_prior) {
+        (Some(_), _) if target.classes.len() != 2 => {
+            return Err(Error::invalid(crate::error::message![
+                Setting::Prior,
+                " with external scores is for two classes"
+            ]))
+        }
+        (Some(to), Some(from)) if from > 0.0 && from < 1.0 => {
+            (to[positive] / (1.0 - to[positive])).ln() - (from / (1.0 - from)).ln()
+        }
+        (Some(_), Some(_)) => {
+            return Err(Error::invalid(crate::error::message![
+                Setting::TrainPrior,
+                " must lie strictly between 0 and 1"
+            ]))
+        }
+        (Some(_), None) if request.kind == ScoreKind::Probability => {
+            return Err(Error::invalid(crate::error::message![
+                Setting::Prior,
+                " and ",
+                Setting::BaseRate,
+                " need ",
+                Setting::TrainPrior,
+                ": the class mix the scores are calibrated to"
+            ]))
+        }
+        _ => 0.0,
+    };
+    let inputs = dataset.schema.numeric_inputs();
+    let rows: Vec<usize> = (0..dataset.rows()).collect();
+    let sign = if request.lower_positive { -1.0 } else { 1.0 };
+    let mut scores = Vec::new();
+    for name in &request.scores {
+        let j = inputs.iter().position(|n| n == name).ok_or_else(|| {
+            Error::invalid(crate::error::message![Setting::ScoreColumns, format!(" {name} is not a numeric column")])
+        })?;
+        let column = dataset.numeric.column(j);
+        let log_odds: Vec<f64> = match request.kind {
+            ScoreKind::Rank => column.iter().map(|v| sign * v).collect(),
+            ScoreKind::Probability => {
+                if let Some((i, v)) = column.iter().enumerate().find(|(_, v)| !(0.0..=1.0).contains(*v)) {
+                    return Err(Error::invalid(crate::error::message![
+                        Setting::ScoreColumns,
+                        format!(" {name}: row {} holds {v}, not a probability; use ", i + 1),
+                        Setting::ScoreKind.set_to("rank"),
+                        " for points or grades"
+                    ]));
+                }
+                column
+                    .iter()
+                    .map(|&p| {
+                        let p = if sign < 0.0 { 1.0 - p } else { p };
+                        let p = p.clamp(PROBABILITY_CLIP, 1.0 - PROBABILITY_CLIP);
+                        (p / (1.0 - p)).ln() + shift
+                    })
+                    .collect()
+            }
+        };
+        scores.push(TestedScore {
+            name: name.clone(),
+            family: None,
+            log_odds: vec![log_odds],
+            rows: vec![rows.clone()],
+            kind: request.kind,
+            warnings: Vec::new(),
+        });
+    }
+    let amounts = match &options.amount {
+        Some(column) => Some(
+            column_text(dataset, column)
+                .and_then(|v| v.iter().map(|x| x.parse::<f64>().ok()).collect::<Option<Vec<f64>>>())
+                .ok_or_else(|| {
+                    Error::invalid(crate::error::message![
+                        Setting::Amount,
+                        format!(" must name a numeric column; '{column}' is not one")
+                    ])
+                })?,
+        ),
+        None => None,
+    };
+    let segments = match &options.by {
+        Some(column) => Some(column_text(dataset, column).ok_or_else(|| {
+            Error::invalid(crate::error::message![Setting::By, format!(" names column '{column}', which was not read")])
+        })?),
+        None => None,
+    };
+    let costs = options.costs.as_deref().map(|path| read_costs(path, dataset)).transpose()?;
+    Ok(judge(
+        dataset,
+        &scores,
+        options,
+        "scores made elsewhere, every row".into(),
+        target_prior,
+        costs.as_ref(),
+        None,
+        amounts.as_deref(),
+        segments.as_deref(),
+    ))
+}

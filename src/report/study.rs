@@ -1,0 +1,73 @@
+//! A study (comparison or assessment) for the terminal and the HTML
+//! report: the evaluation screen with the decisions table under costs, and
+//! the one-line description of the data the report opens with.
+
+use crate::data::schema::ColumnKind;
+use crate::data::Dataset;
+use crate::evaluate::cost_figures::CostFigures;
+use crate::evaluate::study::Study;
+use crate::report::evaluation::{evaluation_html, evaluation_screen};
+use crate::report::table::{Align, Table};
+
+/// The decisions table for the terminal.
+pub fn costs_text(figures: &[CostFigures]) -> String {
+    let mut table = Table::new(&[
+        ("name", Align::Left),
+        ("cost per row", Align::Right),
+        ("± SE", Align::Right),
+        ("95% interval", Align::Right),
+        ("total", Align::Right),
+        ("cutoff (theory)", Align::Right),
+        ("cutoff (best here)", Align::Right),
+        ("actions", Align::Left),
+    ]);
+    for f in figures {
+        table.row(vec![
+            f.name.clone(),
+            format!("{:.4}", f.expected_cost),
+            format!("{:.4}", f.expected_cost_se),
+            format!("{:.4} – {:.4}", f.expected_cost_ci[0], f.expected_cost_ci[1]),
+            format!("{:.2}", f.total_cost),
+            f.theoretical_cutoff.map_or("–".into(), |c| format!("{c:.4}")),
+            f.best_cutoff_on_holdout.map_or("–".into(), |c| format!("{c:.4}")),
+            f.actions.iter().map(|(a, n)| format!("{a} {n:.0}")).collect::<Vec<_>>().join(", "),
+        ]);
+    }
+    format!(
+        "\ndecisions under the costs (realised cost of the Bayes-rule action on the tested rows):\n{}",
+        table.render()
+    )
+}
+
+/// The study on the terminal; `caution` adds the caution at the end.
+pub fn study_screen(study: &Study, caution: bool) -> String {
+    let costs = &study.evaluation.costs;
+    let cost_table = if costs.is_empty() { String::new() } else { costs_text(costs) };
+    evaluation_screen(&study.evaluation, study.reweighted_view(), &cost_table, caution)
+}
+
+/// The study as a self-contained HTML page; `data_description` opens it.
+pub fn study_html(study: &Study, data_description: &str) -> String {
+    evaluation_html(&study.evaluation, &study.learning, &study.penalised, data_description)
+}
+
+/// "FILE: N rows; target 'T' with classes A, B; features X (numeric), ..."
+pub fn compared_data_description(shown: &str, dataset: &Dataset) -> String {
+    let target = &dataset.schema.target;
+    format!(
+        "{shown}: {} rows; target '{}' with classes {}; features {}.",
+        dataset.rows(),
+        target.column,
+        target.classes.join(", "),
+        dataset
+            .schema
+            .features()
+            .map(|c| format!(
+                "{} ({})",
+                c.name,
+                if c.kind == Some(ColumnKind::Numeric) { "numeric" } else { "categorical" }
+            ))
+            .collect::<Vec<_>>()
+            .join(", ")
+    )
+}
