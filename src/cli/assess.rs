@@ -78,6 +78,6 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     };
     let study = assess_scores(&dataset, &request)?;
     let description = format!("{}: {} rows; scores {}", args.data.display(), dataset.rows(), args.scores.join(", "));
-    args.evaluation.write_outputs(&study, &description, true)?;
+    args.evaluation.write_outputs(&study, &description)?;
     Ok(ExitCode::SUCCESS)
 }

@@ -108,8 +108,8 @@ impl EvaluationArgs {
     }
 
     /// Writes the JSON and HTML outputs asked for, then prints the screen
-    /// unless the JSON went to stdout. `caution`: the caution ends the screen.
-    pub fn write_outputs(&self, study: &Study, description: &str, caution: bool) -> Result<(), Failure> {
+    /// unless the JSON went to stdout.
+    pub fn write_outputs(&self, study: &Study, description: &str) -> Result<(), Failure> {
         if let Some(path) = &self.json {
             let text = serde_json::to_string_pretty(&study.json()?).map_err(|e| Error::Usage(e.to_string()))?;
             write_atomic(path, format!("{text}\n").as_bytes())?;
@@ -120,20 +120,9 @@ impl EvaluationArgs {
         if self.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
             return Ok(());
         }
-        print!("{}", study_screen(study, caution));
+        print!("{}", study_screen(study, true));
         Ok(())
     }
-}
-
-/// Runs `compare`.
-pub fn run(args: Args) -> Result<ExitCode, Failure> {
-    execute(args, true)
-}
-
-/// Runs `compare` for the demo: the table without the caution (the demo
-/// prints it once at the end).
-pub fn run_quietly(args: Args) -> Result<ExitCode, Failure> {
-    execute(args, false)
 }
 
 /// The split the flags choose.
@@ -160,7 +149,8 @@ fn split_choice(args: &Args) -> baserate::Result<SplitChoice> {
     })
 }
 
-fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
+/// Runs `compare`.
+pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let mut options = args.data_args.to_options()?;
     // The split column is not a feature: read it as an identifier.
     if let Some(c) = &args.split_by {
@@ -205,14 +195,12 @@ fn execute(args: Args, caution: bool) -> Result<ExitCode, Failure> {
     if let (Some(path), Some(bytes)) = (&args.predictions, &study.predictions_csv) {
         write_atomic(path, bytes)?;
     }
-    args.evaluation.write_outputs(&study, &description, caution)?;
+    args.evaluation.write_outputs(&study, &description)?;
     if args.evaluation.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
         return Ok(ExitCode::SUCCESS);
     }
     if let Some(path) = &args.evaluation.report {
-        if caution {
-            println!("report written to {}", path.display());
-        }
+        println!("report written to {}", path.display());
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -7,15 +7,24 @@
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-use clap::Parser;
-
 use crate::cli::output::{create_dir, write_atomic};
 use crate::cli::Failure;
-use baserate::data::{Dataset, MissingPolicy, ReadOptions};
+use baserate::apply::in_memory::{estimate_portfolio_shift, ScoringRequest};
+use baserate::apply::UnseenPolicy;
+use baserate::batch::{Outputs, ScoreJob};
+use baserate::data::{DataNotice, Dataset, MissingPolicy, ReadOptions};
 use baserate::demo::{lending, payments, DemoSize, DEFAULT_SEED};
+use baserate::evaluate::compare::{compare_families, Candidate, ComparisonRequest, SplitChoice, StudyOptions};
+use baserate::export::scoring::{scoring_sql, ScoringRequest as SqlRequest};
+use baserate::export::sql::Dialect as SqlDialect;
 use baserate::format::{count, percent};
+use baserate::model::discriminant::QdaParams;
+use baserate::model::{Family, FamilyParams};
+use baserate::prior::shift::ShiftOptions;
+use baserate::report::study::{compared_data_description, study_html, study_screen};
 use baserate::report::table::{Align, Table};
 use baserate::report::{wrap, CAUTION};
+use baserate::train::{train, CalibrationMethod, TrainRequest, TrainingSource};
 
 /// Monte-Carlo draws for the Bayes-error figures printed by the demo.
 const BAYES_ERROR_DRAWS: usize = 400_000;
@@ -60,10 +69,11 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let mut options = ReadOptions::new("outcome");
     options.ids = vec!["application_id".into(), "application_month".into()];
     options.missing = MissingPolicy::Impute;
-    let (lending, _) = Dataset::read(&lending_training, &options)?;
+    let (lending, lending_notices) = Dataset::read(&lending_training, &options)?;
     let mut options = ReadOptions::new("label");
     options.ids = vec!["transaction_id".into(), "transaction_day".into()];
-    let (payments_data, _) = Dataset::read(&args.out.join("payments/transactions.csv"), &options)?;
+    let payments_path = args.out.join("payments/transactions.csv");
+    let (payments_data, payments_notices) = Dataset::read(&payments_path, &options)?;
 
     let (lending_error, lending_se) =
         lending::bayes_error(lending::TRAINING_DEFAULT_RATE, BAYES_ERROR_DRAWS, args.seed);
@@ -117,158 +127,87 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     // The families side by side on both scenarios, with a report each.
     let lending_report = args.out.join("lending/report.html");
     let payments_report = args.out.join("payments/report.html");
-    let seed = args.seed.to_string();
-    let runs: [Vec<String>; 2] = [
-        [
-            "compare",
-            &lending_training.display().to_string(),
-            "--target",
-            "outcome",
-            "--id",
-            "application_id,application_month",
-            "--missing",
-            "impute",
-            "--learning-curve",
-            "--costs",
-            &args.out.join("lending/costs.toml").display().to_string(),
-            "--seed",
-            &seed,
-            "--report",
-            &lending_report.display().to_string(),
-        ]
-        .iter()
-        .map(|s| s.to_string())
-        .collect(),
-        [
-            "compare",
-            &args.out.join("payments/transactions.csv").display().to_string(),
-            "--target",
-            "label",
-            "--id",
-            "transaction_id,transaction_day",
-            "--amount",
-            "amount",
-            "--costs",
-            &args.out.join("payments/costs.toml").display().to_string(),
-            "--family",
-            "logistic",
-            "--family",
-            "naive-bayes",
-            "--family",
-            "lda",
-            "--family",
-            "qda",
-            "--family",
-            "qda:reg=0.2",
-            "--seed",
-            &seed,
-            "--report",
-            &payments_report.display().to_string(),
-        ]
-        .iter()
-        .map(|s| s.to_string())
-        .collect(),
+    let families = |names: &[&str]| -> Vec<Candidate> {
+        names
+            .iter()
+            .map(|name| {
+                let family = match *name {
+                    "logistic" => Family::Logistic,
+                    "naive-bayes" => Family::NaiveBayes,
+                    "lda" => Family::Lda,
+                    _ => Family::Qda,
+                };
+                Candidate::new(*name, FamilyParams::defaults(family))
+            })
+            .collect()
+    };
+    let mut payments_candidates = families(&["logistic", "naive-bayes", "lda", "qda"]);
+    payments_candidates
+        .push(Candidate::new("qda:reg=0.2", FamilyParams::Qda(QdaParams { reg: 0.2, ..QdaParams::default() })));
+    let studies = [
+        (
+            "lending: the four families, 5-fold cross-validation",
+            &lending_training,
+            &lending,
+            &lending_notices,
+            ComparisonRequest {
+                candidates: families(&["logistic", "naive-bayes", "lda", "qda"]),
+                split: SplitChoice::KFold { folds: 5, repeats: 1 },
+                options: StudyOptions {
+                    seed: args.seed,
+                    costs: Some(args.out.join("lending/costs.toml")),
+                    ..StudyOptions::default()
+                },
+                learning_curve: true,
+                penalised_paths: true,
+                predictions: false,
+            },
+            &lending_report,
+        ),
+        (
+            "payments: the families (and a regularised QDA), 5-fold cross-validation",
+            &payments_path,
+            &payments_data,
+            &payments_notices,
+            ComparisonRequest {
+                candidates: payments_candidates,
+                split: SplitChoice::KFold { folds: 5, repeats: 1 },
+                options: StudyOptions {
+                    seed: args.seed,
+                    amount: Some("amount".into()),
+                    costs: Some(args.out.join("payments/costs.toml")),
+                    ..StudyOptions::default()
+                },
+                learning_curve: false,
+                penalised_paths: true,
+                predictions: false,
+            },
+            &payments_report,
+        ),
     ];
-    for (title, run) in [
-        "lending: the four families, 5-fold cross-validation",
-        "payments: the families (and a regularised QDA), 5-fold cross-validation",
-    ]
-    .iter()
-    .zip(runs)
-    {
+    for (title, path, dataset, notices, request, report) in studies {
         println!("== {title}");
-        let cli = crate::cli::Cli::try_parse_from(std::iter::once("baserate".to_string()).chain(run))
-            .map_err(|e| baserate::Error::Usage(e.to_string()))?;
-        if let crate::cli::Command::Compare(compare) = cli.command {
-            // A small --rows can leave too few events for every family: say so
-            // and go on with the rest of the demo.
-            if let Err(Failure::Library(e)) = crate::cli::compare::run_quietly(compare) {
-                println!("comparison skipped: {}\n", wrap(&e.to_string(), 100, 2));
+        print_notices(notices);
+        let description = compared_data_description(&path.display().to_string(), dataset);
+        // A small --rows can leave too few events for every family: say so
+        // and go on with the rest of the demo.
+        match compare_families(dataset.clone(), &request) {
+            Ok(study) => {
+                write_atomic(report, study_html(&study, &description).as_bytes())?;
+                print!("{}", study_screen(&study, false));
             }
+            Err(e) => println!("comparison skipped: {}\n", wrap(&crate::cli::error_text(&e), 100, 2)),
         }
     }
     // The new portfolio's base rate, estimated from its unlabelled rows,
     // beside the withheld truth; then the portfolio rescored with it.
     let model_path = args.out.join("lending/lda.json");
     let shift_path = args.out.join("lending/shift.json");
-    let new_portfolio = args.out.join("lending/new_portfolio.csv");
-    let commands: [Vec<String>; 4] = [
-        vec![
-            "fit".into(),
-            lending_training.display().to_string(),
-            "--target".into(),
-            "outcome".into(),
-            "--id".into(),
-            "application_id,application_month".into(),
-            "--missing".into(),
-            "impute".into(),
-            "--family".into(),
-            "lda".into(),
-            "--calibrate".into(),
-            "platt".into(),
-            "--seed".into(),
-            seed.clone(),
-            "-o".into(),
-            model_path.display().to_string(),
-        ],
-        vec![
-            "shift".into(),
-            model_path.display().to_string(),
-            new_portfolio.display().to_string(),
-            "--seed".into(),
-            seed.clone(),
-            "--json".into(),
-            shift_path.display().to_string(),
-        ],
-        vec![
-            "score".into(),
-            model_path.display().to_string(),
-            new_portfolio.display().to_string(),
-            "--id".into(),
-            "application_id".into(),
-            "--prior-from".into(),
-            shift_path.display().to_string(),
-            "--reasons".into(),
-            "3".into(),
-            "--rejects".into(),
-            args.out.join("lending/new_portfolio_rejects.csv").display().to_string(),
-            "--summary".into(),
-            args.out.join("lending/new_portfolio_summary.json").display().to_string(),
-            "-o".into(),
-            args.out.join("lending/new_portfolio_scores.csv").display().to_string(),
-        ],
-        // The same job, with the decisions, as SQL for the database.
-        vec![
-            "export-sql".into(),
-            model_path.display().to_string(),
-            "--table".into(),
-            "new_portfolio".into(),
-            "--id".into(),
-            "application_id".into(),
-            "--prior-from".into(),
-            shift_path.display().to_string(),
-            "--costs".into(),
-            args.out.join("lending/costs.toml").display().to_string(),
-            "-o".into(),
-            args.out.join("lending/new_portfolio_scoring.sql").display().to_string(),
-        ],
-    ];
     // A stale estimate from an earlier run must not be shown.
     let _ = std::fs::remove_file(&shift_path);
-    for command in commands {
-        let cli = crate::cli::Cli::try_parse_from(std::iter::once("baserate".to_string()).chain(command))
-            .map_err(|e| baserate::Error::Usage(e.to_string()))?;
-        let outcome = match cli.command {
-            crate::cli::Command::Fit(a) => crate::cli::fit::run_quietly(a),
-            crate::cli::Command::Shift(a) => crate::cli::shift::run_quietly(a),
-            crate::cli::Command::Score(a) => crate::cli::score::run(a),
-            crate::cli::Command::ExportSql(a) => crate::cli::export_sql::run(a),
-            _ => Ok(ExitCode::SUCCESS),
-        };
-        if let Err(Failure::Library(e)) = outcome {
-            println!("base-rate step skipped: {}\n", wrap(&e.to_string(), 100, 2));
-            break;
-        }
+    print_notices(&lending_notices);
+    if let Err(e) = base_rate_steps(&args, &lending, &lending_training, &model_path, &shift_path) {
+        println!("base-rate step skipped: {}\n", wrap(&crate::cli::error_text(&e), 100, 2));
     }
     if let Ok(text) = std::fs::read_to_string(&shift_path) {
         let answers = std::fs::read_to_string(args.out.join("lending/new_portfolio_answers.csv")).unwrap_or_default();
@@ -294,4 +233,83 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     );
     println!("{}", wrap(CAUTION, 100, 0));
     Ok(ExitCode::SUCCESS)
+}
+
+/// The data layer's notices on stderr, as the commands print them.
+fn print_notices(notices: &[DataNotice]) {
+    for n in notices {
+        eprintln!("note: {}", wrap(&n.describe(&crate::cli::flag), 100, 6));
+    }
+}
+
+/// The lending scenario's deployment: fit LDA with Platt calibration,
+/// estimate the new portfolio's base rate, rescore it at that rate (with
+/// reasons, rejects and a summary), and write the same job as SQL.
+fn base_rate_steps(
+    args: &Args,
+    lending: &Dataset,
+    training_path: &std::path::Path,
+    model_path: &std::path::Path,
+    shift_path: &std::path::Path,
+) -> baserate::Result<()> {
+    let new_portfolio = args.out.join("lending/new_portfolio.csv");
+    let mut request = TrainRequest::new(FamilyParams::defaults(Family::Lda));
+    request.calibration = Some(CalibrationMethod::Platt);
+    request.seed = args.seed;
+    request.source = TrainingSource {
+        input_path: training_path.display().to_string(),
+        input_sha256: baserate::io::sha256_file(training_path)?,
+    };
+    let file = train(lending, &request)?;
+    file.save(model_path)?;
+
+    let shift_options = ShiftOptions { bootstrap: 200, seed: args.seed };
+    let (estimate, _) = estimate_portfolio_shift(&file, &new_portfolio, &ScoringRequest::default(), &shift_options)?;
+    let text = serde_json::to_string_pretty(&estimate).map_err(|e| baserate::Error::Usage(e.to_string()))?;
+    write_atomic(shift_path, format!("{text}\n").as_bytes())?;
+    let shift_spec = shift_path.display().to_string();
+    let prior = baserate::prior::shift::prior_from_shift_file(&shift_spec, &file.classes)?;
+
+    let scores_path = args.out.join("lending/new_portfolio_scores.csv");
+    let job = ScoreJob {
+        data: new_portfolio,
+        prior: prior.clone(),
+        costs: None,
+        ids: vec!["application_id".into()],
+        keep: Vec::new(),
+        delimiter: b',',
+        na_tokens: None,
+        unseen: UnseenPolicy::Error,
+        missing: None,
+        reasons: 3,
+        threads: 0,
+        chunk_bytes: baserate::batch::DEFAULT_CHUNK_BYTES,
+        max_record_bytes: baserate::records::DEFAULT_MAX_RECORD_BYTES,
+    };
+    let outputs = Outputs {
+        scores: scores_path.clone(),
+        rejects: Some(args.out.join("lending/new_portfolio_rejects.csv")),
+        summary: Some(args.out.join("lending/new_portfolio_summary.json")),
+    };
+    let summary = baserate::batch::run(&file, &job, &outputs, &|_, _| {})?;
+    eprint!(
+        "{}",
+        baserate::report::score::render_score_summary(&file, &job, &summary, &scores_path.display().to_string())
+    );
+
+    // The same job, with the decisions, as SQL for the database.
+    let sql_path = args.out.join("lending/new_portfolio_scoring.sql");
+    let sql_request = SqlRequest {
+        table: "new_portfolio".into(),
+        dialect: SqlDialect::Ansi,
+        prior,
+        costs: Some(file.read_costs(&args.out.join("lending/costs.toml"))?),
+        ids: vec!["application_id".into()],
+        missing: None,
+        unseen: UnseenPolicy::Error,
+        na_tokens: None,
+    };
+    write_atomic(&sql_path, scoring_sql(&file, &sql_request)?.as_bytes())?;
+    eprintln!("{}", baserate::report::score::sql_written(&file, &sql_request, &sql_path.display().to_string()));
+    Ok(())
 }

@@ -62,19 +62,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let text = scoring_sql(&file, &request)?;
     write_atomic(&args.out, text.as_bytes())?;
     if args.out.as_os_str() != "-" {
-        let mut columns: Vec<String> = args.ids.clone();
-        columns.extend(file.classes.iter().map(|c| format!("p_{c}")));
-        if request.costs.is_some() {
-            columns.extend(["action".to_string(), "expected_cost".to_string()]);
-        }
-        columns.push("reject_reason".into());
-        eprintln!(
-            "wrote {}: one SELECT over {} ({} dialect) returning {}",
-            args.out.display(),
-            args.table,
-            args.dialect.name(),
-            columns.join(", ")
-        );
+        eprintln!("{}", baserate::report::score::sql_written(&file, &request, &args.out.display().to_string()));
     }
     Ok(ExitCode::SUCCESS)
 }

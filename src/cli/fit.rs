@@ -64,7 +64,7 @@ pub enum CalibrateArg {
 }
 
 /// `fit STATS.csv --from-stats`: the family fitted from an engine's aggregates.
-fn fit_from_stats(args: &Args, params: FamilyParams, spec: Option<PriorSpec>, talk: bool) -> Result<ExitCode, Failure> {
+fn fit_from_stats(args: &Args, params: FamilyParams, spec: Option<PriorSpec>) -> Result<ExitCode, Failure> {
     use baserate::export::stats_reader::read_stats;
     use baserate::model::aggregates::FromAggregates;
     use baserate::train::{train_from_aggregates, FromStats};
@@ -109,23 +109,21 @@ fn fit_from_stats(args: &Args, params: FamilyParams, spec: Option<PriorSpec>, ta
         };
     let file = train_from_aggregates(&aggregates, &request, baserate::io::sha256_file(&args.data)?)?;
     file.save(&args.out)?;
-    if talk {
-        let target = &file.schema.target;
-        let mix = class_mix_text(target);
-        println!(
-            "fitted {} from the aggregates in {} ({} rows): {}",
-            file.family.name(),
-            args.data.display(),
-            count(file.training.rows),
-            mix
-        );
-        println!("positive class: {}", file.schema.target.positive);
-        for w in &file.diagnostics.warnings {
-            eprintln!("note: {}", wrap(w, 100, 6));
-        }
-        println!("model written to {} (see it with: baserate inspect {})", args.out.display(), args.out.display());
-        println!("\n{}", wrap(CAUTION, 100, 0));
+    let target = &file.schema.target;
+    let mix = class_mix_text(target);
+    println!(
+        "fitted {} from the aggregates in {} ({} rows): {}",
+        file.family.name(),
+        args.data.display(),
+        count(file.training.rows),
+        mix
+    );
+    println!("positive class: {}", file.schema.target.positive);
+    for w in &file.diagnostics.warnings {
+        eprintln!("note: {}", wrap(w, 100, 6));
     }
+    println!("model written to {} (see it with: baserate inspect {})", args.out.display(), args.out.display());
+    println!("\n{}", wrap(CAUTION, 100, 0));
     Ok(ExitCode::SUCCESS)
 }
 
@@ -143,20 +141,11 @@ fn class_mix_text(target: &baserate::data::schema::TargetSchema) -> String {
 
 /// Runs `fit`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
-    execute(args, true)
-}
-
-/// Runs `fit` printing nothing (for the demo).
-pub fn run_quietly(args: Args) -> Result<ExitCode, Failure> {
-    execute(args, false)
-}
-
-fn execute(args: Args, talk: bool) -> Result<ExitCode, Failure> {
     let family: Family = args.family.into();
     let params = args.family_options.params(family)?;
     let spec = prior_spec(args.prior.as_deref(), args.base_rate)?;
     if args.from_stats {
-        return fit_from_stats(&args, params, spec, talk);
+        return fit_from_stats(&args, params, spec);
     }
     let options = args.data_args.to_options()?;
     let (dataset, notices) = Dataset::read(&args.data, &options)?;
@@ -180,10 +169,6 @@ fn execute(args: Args, talk: bool) -> Result<ExitCode, Failure> {
     };
     let file = train(&dataset, &request)?;
     file.save(&args.out)?;
-
-    if !talk {
-        return Ok(ExitCode::SUCCESS);
-    }
     let mix = class_mix_text(target);
     println!("fitted {} on {} rows of {}: {}", family.name(), count(dataset.rows()), args.data.display(), mix);
     println!(

@@ -63,15 +63,6 @@ pub fn prior_from_file(spec: &str, classes: &[String]) -> baserate::Result<Vec<f
 
 /// Runs `shift`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
-    execute(args, true)
-}
-
-/// Runs `shift` writing only its JSON (for the demo).
-pub fn run_quietly(args: Args) -> Result<ExitCode, Failure> {
-    execute(args, false)
-}
-
-fn execute(args: Args, talk: bool) -> Result<ExitCode, Failure> {
     let options = ShiftOptions { bootstrap: args.bootstrap, seed: args.seed };
     let delimiter = parse_delimiter(&args.apply.delimiter)?;
     let estimate = match (args.files.as_slice(), &args.score) {
@@ -86,10 +77,8 @@ fn execute(args: Args, talk: bool) -> Result<ExitCode, Failure> {
             return Ok(ExitCode::SUCCESS);
         }
     }
-    if talk {
-        print!("{}", render_shift(&estimate, args.bootstrap, args.seed));
-        std::io::stdout().flush()?;
-    }
+    print!("{}", render_shift(&estimate, args.bootstrap, args.seed));
+    std::io::stdout().flush()?;
     Ok(ExitCode::SUCCESS)
 }
 

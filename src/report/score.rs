@@ -91,3 +91,24 @@ pub fn render_score_summary(file: &ModelFile, job: &ScoreJob, summary: &Summary,
     text.push('\n');
     text
 }
+
+/// The line `export-sql` ends with: where the SQL went and the columns its
+/// SELECT returns.
+pub fn sql_written(
+    file: &crate::train::file::ModelFile,
+    request: &crate::export::scoring::ScoringRequest,
+    shown: &str,
+) -> String {
+    let mut columns: Vec<String> = request.ids.clone();
+    columns.extend(file.classes.iter().map(|c| format!("p_{c}")));
+    if request.costs.is_some() {
+        columns.extend(["action".to_string(), "expected_cost".to_string()]);
+    }
+    columns.push("reject_reason".into());
+    format!(
+        "wrote {shown}: one SELECT over {} ({} dialect) returning {}",
+        request.table,
+        request.dialect.name(),
+        columns.join(", ")
+    )
+}
