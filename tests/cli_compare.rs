@@ -148,6 +148,37 @@ fn out_of_time_with_a_gap_and_an_explicit_holdout() {
 }
 
 #[test]
+fn a_holdout_column_with_text_makes_the_column_categorical_in_both_files() {
+    // Each file is read on its own; a column that holds only numbers in the
+    // training file but text in the holdout is read as one file holding both
+    // would be: categorical.
+    let dir = temp_dir();
+    let mut train = String::from("grade,score,y\n");
+    let mut test = String::from("grade,score,y\n");
+    for i in 0..200 {
+        let line = |g: &str| format!("{g},{},{}\n", (i % 17) as f64 / 3.0, if i % 3 == 0 { "bad" } else { "good" });
+        train.push_str(&line(&(i % 3).to_string()));
+        test.push_str(&line(if i == 7 { "x" } else { ["0", "1", "2"][i % 3] }));
+    }
+    write(dir.path(), "a.csv", train.as_bytes());
+    write(dir.path(), "b.csv", test.as_bytes());
+    let args = ["compare", "a.csv", "--target", "y", "--family", "naive-bayes", "--holdout", "b.csv", "--json", "-"];
+    let (code, out, err) = run(dir.path(), &args);
+    assert_eq!(code, 0, "{err}");
+    let v: Value = serde_json::from_str(&out).expect("json");
+    assert_eq!(v["tested_rows"], 200);
+    assert_eq!(v["rows"], 400);
+    let (code, _, err) = run(dir.path(), &["describe", "b.csv", "--target", "y"]);
+    assert_eq!(code, 0, "{err}");
+    let different = "grade,other,y\n1,2,bad\n";
+    write(dir.path(), "c.csv", different.as_bytes());
+    let args = ["compare", "a.csv", "--target", "y", "--family", "naive-bayes", "--holdout", "c.csv"];
+    let (code, _, err) = run(dir.path(), &args);
+    assert_eq!(code, 2, "{err}");
+    assert!(err.contains("must have the same header as"), "{err}");
+}
+
+#[test]
 fn predictions_feed_assess() {
     let dir = temp_dir();
     lending(dir.path());

@@ -269,6 +269,24 @@ pub fn read_rows(
     Ok(records.line())
 }
 
+/// Appends one reject record: its line, then the fields
+/// [`reject_fields`] made. The one place the reject file's `line` column
+/// is written.
+pub fn push_reject(out: &mut Vec<u8>, line: u64, fields: &[u8]) {
+    out.extend_from_slice(line.to_string().as_bytes());
+    out.push(b',');
+    out.extend_from_slice(fields);
+}
+
+/// A whole reject file: the header, then each (line, fields) record.
+pub fn reject_file(rejects: &[(u64, Vec<u8>)]) -> Vec<u8> {
+    let mut out = REJECT_HEADER.as_bytes().to_vec();
+    for (line, fields) in rejects {
+        push_reject(&mut out, *line, fields);
+    }
+    out
+}
+
 /// A reject record without its line: `column,reason,message,row` and a
 /// line end (the reject file's columns after `line`).
 pub fn reject_fields(problem: &Problem, record: &[u8]) -> Vec<u8> {

@@ -23,7 +23,6 @@ pub mod reasons;
 pub mod source;
 
 use std::collections::BTreeMap;
-use std::io::Write;
 use std::path::PathBuf;
 
 use serde::Serialize;
@@ -524,8 +523,7 @@ impl Joiner<'_, '_> {
         }
         self.rejects.clear();
         for (line, rest) in &result.rejects {
-            let _ = write!(self.rejects, "{},", self.first_line + line);
-            self.rejects.extend_from_slice(rest);
+            crate::apply::row::push_reject(&mut self.rejects, self.first_line + line, rest);
         }
         if let Some(consume) = self.consume.as_mut() {
             consume(&result, &self.rejects)?;

@@ -16,10 +16,10 @@ use crate::cli::output::write_atomic;
 use crate::cli::score::parse_missing;
 use crate::cli::Failure;
 use baserate::apply::in_memory::{estimate_portfolio_shift, ScoringRequest};
-use baserate::apply::row::{check_place_for_rejects, REJECT_HEADER};
+use baserate::apply::row::{check_place_for_rejects, reject_file};
 use baserate::data::score_column::read_score_column;
 use baserate::error::Error;
-use baserate::prior::shift::{estimate_shift, ShiftEstimate, ShiftInput, ShiftOptions};
+use baserate::prior::shift::{estimate_shift_from_scores, ShiftEstimate, ShiftOptions};
 use baserate::records::Dialect;
 use baserate::report::shift::render_shift;
 use baserate::train::file::ModelFile;
@@ -109,12 +109,7 @@ fn model_form(
     };
     let (estimate, read) = estimate_portfolio_shift(&file, data, &request, options)?;
     if let Some(path) = &args.apply.rejects {
-        let mut text = REJECT_HEADER.as_bytes().to_vec();
-        for (line, rest) in &read.rejects {
-            text.extend_from_slice(format!("{line},").as_bytes());
-            text.extend_from_slice(rest);
-        }
-        write_atomic(path, &text)?;
+        write_atomic(path, &reject_file(&read.rejects))?;
         let rejected = read.rejects.len();
         if rejected > 0 && args.json.as_ref().is_none_or(|j| j.as_os_str() != "-") {
             eprintln!("note: {rejected} rows set aside in {} and left out of the estimate", path.display());
@@ -133,34 +128,18 @@ fn scores_form(
     options: &ShiftOptions,
 ) -> baserate::Result<ShiftEstimate> {
     let train_prior = args.train_prior.ok_or_else(|| Error::Usage("--score needs --train-prior".into()))?;
-    if !(train_prior > 0.0 && train_prior < 1.0) {
-        return Err(Error::Usage("--train-prior must lie strictly between 0 and 1".into()));
-    }
-    let (p, _) = read_score_column(data, column, None, delimiter)?;
-    let confusion = match (&args.reference, &args.target) {
+    let (scores, _) = read_score_column(data, column, None, delimiter)?;
+    let reference = match (&args.reference, &args.target) {
         (Some(reference), Some(target)) => {
-            let (rp, labels) = read_score_column(reference, column, Some(target), delimiter)?;
+            let (scores, labels) = read_score_column(reference, column, Some(target), delimiter)?;
             let labels = labels.ok_or_else(|| {
                 Error::Usage(format!("--target {target} must be a label column of the reference file"))
             })?;
-            let mut c = vec![vec![0.0; 2]; 2];
-            for (p, y) in rp.iter().zip(&labels) {
-                c[usize::from(*p < 0.5)][usize::from(!*y)] += 1.0 / rp.len() as f64;
-            }
-            Some(c)
+            Some((scores, labels))
         }
         (Some(_), None) => return Err(Error::Usage("--reference needs --target".into())),
         _ => None,
     };
-    let posteriors: Vec<f64> =
-        p.iter().flat_map(|&p| [p.clamp(1e-15, 1.0 - 1e-15), 1.0 - p.clamp(1e-15, 1.0 - 1e-15)]).collect();
-    let classes = vec!["1".to_string(), "0".to_string()];
-    let input = ShiftInput {
-        classes: &classes,
-        positive: 0,
-        training_prior: &[train_prior, 1.0 - train_prior],
-        posteriors: &posteriors,
-        confusion: confusion.as_deref(),
-    };
-    estimate_shift(&input, options)
+    let reference = reference.as_ref().map(|(s, l)| (s.as_slice(), l.as_slice()));
+    estimate_shift_from_scores(&scores, train_prior, reference, options)
 }

@@ -35,9 +35,6 @@ impl Dataset {
         let mut options = options.clone();
         loop {
             let test = read_path(holdout, &options)?;
-            // The holdout is checked as a dataset of its own first, so that
-            // its errors name its own lines.
-            Dataset::from_table(test.clone(), &options)?;
             let train = read_path(training, &options)?;
             let train_names: Vec<&str> = train.columns.iter().map(|c| c.name.as_str()).collect();
             let test_names: Vec<&str> = test.columns.iter().map(|c| c.name.as_str()).collect();
@@ -48,6 +45,9 @@ impl Dataset {
                     training.display()
                 )));
             }
+            // The holdout is checked as a dataset of its own first, so that
+            // its errors name its own lines.
+            Dataset::from_table(test.clone(), &options)?;
             // A column numeric in one file and text in the other is read
             // again, categorical in both.
             let mixed: Vec<String> = train

@@ -125,6 +125,52 @@ const ILL_CONDITIONED: f64 = 50.0;
 
 /// Estimates the new portfolio's class mix from its posteriors.
 pub fn estimate_shift(input: &ShiftInput<'_>, options: &ShiftOptions) -> Result<ShiftEstimate> {
+    estimate(input, options)
+}
+
+/// Probabilities are clipped to [1e-15, 1 − 1e-15]: a score of exactly 0
+/// or 1 would make EM's likelihood infinite.
+const SCORE_CLIP: f64 = 1e-15;
+
+/// The shift of a portfolio scored elsewhere: `scores` are its
+/// probabilities of the positive class, calibrated to `train_prior`.
+/// `reference`, a labelled sample with the same score (score, is
+/// positive), gives BBSE its confusion matrix at the 0.5 cutoff.
+pub fn estimate_shift_from_scores(
+    scores: &[f64],
+    train_prior: f64,
+    reference: Option<(&[f64], &[bool])>,
+    options: &ShiftOptions,
+) -> Result<ShiftEstimate> {
+    if !(train_prior > 0.0 && train_prior < 1.0) {
+        return Err(Error::invalid(crate::error::message![
+            crate::error::Setting::TrainPrior,
+            " must lie strictly between 0 and 1"
+        ]));
+    }
+    let confusion = reference.map(|(scores, positive)| {
+        let mut c = vec![vec![0.0; 2]; 2];
+        for (p, y) in scores.iter().zip(positive) {
+            c[usize::from(*p < 0.5)][usize::from(!*y)] += 1.0 / scores.len() as f64;
+        }
+        c
+    });
+    let posteriors: Vec<f64> = scores
+        .iter()
+        .flat_map(|&p| [p.clamp(SCORE_CLIP, 1.0 - SCORE_CLIP), 1.0 - p.clamp(SCORE_CLIP, 1.0 - SCORE_CLIP)])
+        .collect();
+    let classes = vec!["1".to_string(), "0".to_string()];
+    let input = ShiftInput {
+        classes: &classes,
+        positive: 0,
+        training_prior: &[train_prior, 1.0 - train_prior],
+        posteriors: &posteriors,
+        confusion: confusion.as_deref(),
+    };
+    estimate(&input, options)
+}
+
+fn estimate(input: &ShiftInput<'_>, options: &ShiftOptions) -> Result<ShiftEstimate> {
     let classes = input.classes;
     let k = classes.len();
     let positive = input.positive;

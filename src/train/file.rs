@@ -192,11 +192,22 @@ impl ModelFileBuilder {
 
     /// The model file, checked for consistency.
     pub fn build(self) -> Result<ModelFile> {
+        self.check()?;
+        Ok(self.file)
+    }
+
+    /// Checks the file built so far for consistency.
+    pub fn check(&self) -> Result<()> {
         let family = self.file.family;
         self.file
             .validate()
-            .map_err(|message| Error::FitFailed { family: family.name().into(), message: message.into() })?;
-        Ok(self.file)
+            .map_err(|message| Error::FitFailed { family: family.name().into(), message: message.into() })
+    }
+
+    /// The file built so far, as it stands (checked only by
+    /// [`ModelFileBuilder::check`] and [`ModelFileBuilder::build`]).
+    pub fn draft(&self) -> &ModelFile {
+        &self.file
     }
 }
 

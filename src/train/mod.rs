@@ -152,7 +152,10 @@ pub fn train(dataset: &Dataset, request: &TrainRequest) -> Result<ModelFile> {
     if let Some(rates) = sampling_rates {
         builder = builder.sampling_rates(rates);
     }
-    let draft = builder.clone().build()?;
+    // The fitted model is checked once here, before it is used; what is
+    // added below is the library's own arithmetic, checked again at the end.
+    builder.check()?;
+    let draft = builder.draft();
     // Out-of-fold predictions of a penalised fit use the λ chosen on all
     // rows (choosing it again inside every fold would cost a cross-
     // validation per fold for a summary of the predictions' mix).
@@ -186,7 +189,7 @@ pub fn train(dataset: &Dataset, request: &TrainRequest) -> Result<ModelFile> {
     }
     // The training rows' features and scores (at the model's prior, after
     // any calibration), binned, for drift checks when scoring.
-    let file = builder.clone().build()?;
+    let file = builder.draft();
     let positive = target.positive_index();
     let scores: Vec<f64> =
         file.log_posteriors(&dataset.inputs(), &file.prior).column(positive).iter().map(|v| v.exp()).collect();
