@@ -217,15 +217,23 @@ pub fn column_text(dataset: &Dataset, column: &str) -> Option<Vec<String>> {
     (j < dataset.numeric.ncols()).then(|| dataset.numeric.column(j).iter().map(|v| format!("{v}")).collect())
 }
 
-/// The amounts column: a numeric feature's values.
+/// The amounts column: a numeric feature's values, or an identifier
+/// column's when every one of them is a number.
 fn amounts(dataset: &Dataset, column: &str) -> Result<Vec<f64>> {
-    let j = dataset.schema.numeric_inputs().iter().position(|n| n == column).ok_or_else(|| {
+    if let Some(j) = dataset.schema.numeric_inputs().iter().position(|n| n == column) {
+        return Ok(dataset.numeric.column(j).to_vec());
+    }
+    let from_text = dataset
+        .ids
+        .iter()
+        .find(|(name, _)| name == column)
+        .and_then(|(_, values)| values.iter().map(|x| x.trim().parse::<f64>().ok()).collect::<Option<Vec<f64>>>());
+    from_text.ok_or_else(|| {
         Error::invalid(crate::error::message![
             Setting::Amount,
-            format!(" must name a numeric feature column; '{column}' is not one")
+            format!(" must name a numeric column; '{column}' is not one")
         ])
-    })?;
-    Ok(dataset.numeric.column(j).to_vec())
+    })
 }
 
 /// The segments column's values.
@@ -538,25 +546,8 @@ pub fn assess_scores(dataset: &Dataset, request: &AssessRequest) -> Result<Study
             warnings: Vec::new(),
         });
     }
-    let amounts = match &options.amount {
-        Some(column) => Some(
-            column_text(dataset, column)
-                .and_then(|v| v.iter().map(|x| x.parse::<f64>().ok()).collect::<Option<Vec<f64>>>())
-                .ok_or_else(|| {
-                    Error::invalid(crate::error::message![
-                        Setting::Amount,
-                        format!(" must name a numeric column; '{column}' is not one")
-                    ])
-                })?,
-        ),
-        None => None,
-    };
-    let segments = match &options.by {
-        Some(column) => Some(column_text(dataset, column).ok_or_else(|| {
-            Error::invalid(crate::error::message![Setting::By, format!(" names column '{column}', which was not read")])
-        })?),
-        None => None,
-    };
+    let amounts = options.amount.as_deref().map(|c| amounts(dataset, c)).transpose()?;
+    let segments = options.by.as_deref().map(|c| segments(dataset, c)).transpose()?;
     let costs = options.costs.as_deref().map(|path| read_costs(path, dataset)).transpose()?;
     Ok(judge(
         dataset,
