@@ -42,6 +42,14 @@ pub enum Setting {
     Rejects,
     /// Where the scores go (`Outputs::scores`).
     Scores,
+    /// Where a command's one output goes (a model file, SQL, JSON).
+    Output,
+    /// Where every figure goes as JSON.
+    Json,
+    /// Where the HTML report goes.
+    Report,
+    /// Where out-of-fold predictions go (`ComparisonRequest::predictions`).
+    Predictions,
     /// Where the run's summary goes (`BatchRequest::summary`).
     Summary,
     /// Per-row reason codes (`BatchRequest::reasons`).
@@ -125,6 +133,10 @@ impl Setting {
             Setting::Unseen => "unseen",
             Setting::Rejects => "rejects",
             Setting::Scores => "scores",
+            Setting::Output => "output",
+            Setting::Json => "json",
+            Setting::Report => "report",
+            Setting::Predictions => "predictions",
             Setting::Summary => "summary",
             Setting::Reasons => "reasons",
             Setting::L2 => "l2",

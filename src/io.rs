@@ -33,6 +33,12 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
     Ok(())
 }
 
+/// The SHA-256 of bytes, as lowercase hex.
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    use sha2::Digest;
+    sha2::Sha256::digest(bytes).iter().map(|b| format!("{b:02x}")).collect()
+}
+
 /// The SHA-256 of a file, as lowercase hex.
 pub fn sha256_file(path: &Path) -> Result<String> {
     use sha2::Digest;
@@ -173,6 +179,63 @@ impl Drop for AtomicFile {
 /// named pipe): it is written in place, never replaced by a rename.
 fn is_special(path: &Path) -> bool {
     std::fs::metadata(path).is_ok_and(|m| !m.is_file() && !m.is_dir())
+}
+
+/// True when `a` and `b` name one file: the same device and inode (so a
+/// hard link or a symlink counts), or, for a path that does not exist yet,
+/// the same place once its folder's symlinks are resolved.
+pub fn same_file(a: &Path, b: &Path) -> bool {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::MetadataExt;
+        if let (Ok(x), Ok(y)) = (std::fs::metadata(a), std::fs::metadata(b)) {
+            return x.dev() == y.dev() && x.ino() == y.ino();
+        }
+    }
+    let resolved = |p: &Path| -> Option<std::path::PathBuf> {
+        if let Ok(full) = std::fs::canonicalize(p) {
+            return Some(full);
+        }
+        let parent = match p.parent() {
+            Some(d) if !d.as_os_str().is_empty() => d,
+            _ => Path::new("."),
+        };
+        Some(std::fs::canonicalize(parent).ok()?.join(p.file_name()?))
+    };
+    match (resolved(a), resolved(b)) {
+        (Some(x), Some(y)) => x == y,
+        _ => false,
+    }
+}
+
+/// Refuses a run whose outputs land on one of its inputs, or two of whose
+/// outputs are one file, before any work: `(what, path)` pairs, `-` (the
+/// standard streams) never counts. A usage error naming both.
+pub fn check_outputs(inputs: &[(crate::error::Part, &Path)], outputs: &[(crate::error::Part, &Path)]) -> Result<()> {
+    let real = |p: &Path| p.as_os_str() != "-";
+    for (i, (output, out_path)) in outputs.iter().enumerate().filter(|(_, (_, p))| real(p)) {
+        for (input, in_path) in inputs.iter().filter(|(_, p)| real(p)) {
+            if same_file(out_path, in_path) {
+                return Err(Error::invalid(crate::error::message![
+                    output.clone(),
+                    format!(" {} is ", out_path.display()),
+                    input.clone(),
+                    format!(" {}; write the output elsewhere", in_path.display())
+                ]));
+            }
+        }
+        for (other, other_path) in outputs[..i].iter().filter(|(_, p)| real(p)) {
+            if same_file(out_path, other_path) {
+                return Err(Error::invalid(crate::error::message![
+                    other.clone(),
+                    " and ",
+                    output.clone(),
+                    format!(" name the same file, {}", out_path.display())
+                ]));
+            }
+        }
+    }
+    Ok(())
 }
 
 #[cfg(test)]

@@ -1030,6 +1030,17 @@ fn aggregates_written_by_hand_fit_as_the_rows_do_and_bad_ones_are_named() {
     let diagonal = write(d, "nb.csv", HAND_STATS.replace(",lda,", ",naive-bayes,").as_bytes());
     let for_qda = ["fit", diagonal.to_str().unwrap(), "--from-stats", "--family", "qda", "-o", out];
     refused(d, &for_qda, 1, "write the query with --family qda");
+    // A result missing its last row, or with a row of an empty class, is
+    // refused naming the file, never a panic.
+    let lines: Vec<&str> = HAND_STATS.lines().collect();
+    let truncated = write(d, "short.csv", (lines[..lines.len() - 1].join("\n") + "\n").as_bytes());
+    for family in ["lda", "qda", "naive-bayes"] {
+        let args = ["fit", truncated.to_str().unwrap(), "--from-stats", "--family", family, "-o", out];
+        refused(d, &args, 1, "the target has only one class");
+    }
+    let empty_class = write(d, "empty.csv", HAND_STATS.replace(",y,b,", ",y,,").as_bytes());
+    let args = ["fit", empty_class.to_str().unwrap(), "--from-stats", "--family", "lda", "-o", out];
+    refused(d, &args, 1, "line 3, column 'class': the class is empty");
     let shrunk =
         ["fit", stats.to_str().unwrap(), "--from-stats", "--family", "lda", "--shrinkage", "ledoit-wolf", "-o", out];
     refused(d, &shrunk, 1, "Ledoit–Wolf shrinkage needs fourth moments");

@@ -36,7 +36,7 @@ use crate::batch::reasons::ReasonCodes;
 use crate::batch::source::{open_chunked, shown_path, ChunkReader, RawChunk};
 use crate::data::options::MissingPolicy;
 use crate::decide::{Capacity, CostSpec};
-use crate::error::{Error, Result, Setting};
+use crate::error::{Error, Part, Result, Setting};
 use crate::io::AtomicFile;
 use crate::model::drift;
 use crate::train::file::ModelFile;
@@ -101,24 +101,18 @@ impl Outputs {
     /// Refuses two outputs on one path, an output on the input, and two
     /// outputs on stdout.
     fn check(&self, data: &std::path::Path) -> Result<()> {
-        let mut named: Vec<(Setting, &PathBuf)> = vec![(Setting::Scores, &self.scores)];
-        named.extend(self.rejects.iter().map(|p| (Setting::Rejects, p)));
-        named.extend(self.summary.iter().map(|p| (Setting::Summary, p)));
-        for (i, (setting, path)) in named.iter().enumerate() {
-            if path.as_os_str() != "-" && path.as_path() == data {
-                return Err(Error::invalid(crate::error::message![
-                    *setting,
-                    " names the input file; write the output elsewhere"
-                ]));
-            }
-            if let Some((other, _)) = named[..i].iter().find(|(_, p)| p == path) {
-                return Err(Error::invalid(crate::error::message![
-                    *other,
-                    " and ",
-                    *setting,
-                    format!(" name the same file, {}", path.display())
-                ]));
-            }
+        let mut named: Vec<(Part, &std::path::Path)> = vec![(Setting::Scores.into(), self.scores.as_path())];
+        named.extend(self.rejects.iter().map(|p| (Setting::Rejects.into(), p.as_path())));
+        named.extend(self.summary.iter().map(|p| (Setting::Summary.into(), p.as_path())));
+        crate::io::check_outputs(&[("the data file".into(), data)], &named)?;
+        let on_stdout: Vec<&Part> = named.iter().filter(|(_, p)| p.as_os_str() == "-").map(|(s, _)| s).collect();
+        if let [first, second, ..] = on_stdout.as_slice() {
+            return Err(Error::invalid(crate::error::message![
+                (*first).clone(),
+                " and ",
+                (*second).clone(),
+                " name the same file, -"
+            ]));
         }
         Ok(())
     }

@@ -59,6 +59,13 @@ pub struct Args {
 
 /// Runs `assess`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
+    crate::cli::output::refuse_overwrites(
+        &[("the data file", Some(&args.data)), ("the costs file", args.evaluation.costs.as_deref())],
+        &[
+            (baserate::error::Setting::Json, args.evaluation.json.as_deref()),
+            (baserate::error::Setting::Report, args.evaluation.report.as_deref()),
+        ],
+    )?;
     let mut options = args.data_args.to_options()?;
     for s in &args.scores {
         if !options.numeric.contains(s) {

@@ -151,6 +151,18 @@ fn split_choice(args: &Args) -> baserate::Result<SplitChoice> {
 
 /// Runs `compare`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
+    crate::cli::output::refuse_overwrites(
+        &[
+            ("the data file", Some(&args.data)),
+            ("the holdout file", args.holdout.as_deref()),
+            ("the costs file", args.evaluation.costs.as_deref()),
+        ],
+        &[
+            (baserate::error::Setting::Json, args.evaluation.json.as_deref()),
+            (baserate::error::Setting::Report, args.evaluation.report.as_deref()),
+            (baserate::error::Setting::Predictions, args.predictions.as_deref()),
+        ],
+    )?;
     let mut options = args.data_args.to_options()?;
     // The split column is not a feature: read it as an identifier.
     if let Some(c) = &args.split_by {

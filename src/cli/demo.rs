@@ -69,7 +69,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let mut options = ReadOptions::new("outcome");
     options.ids = vec!["application_id".into(), "application_month".into()];
     options.missing = MissingPolicy::Impute;
-    let (lending, lending_notices) = Dataset::read(&lending_training, &options)?;
+    let (lending, lending_notices, lending_sha256) = Dataset::read_with_hash(&lending_training, &options)?;
     let mut options = ReadOptions::new("label");
     options.ids = vec!["transaction_id".into(), "transaction_day".into()];
     let payments_path = args.out.join("payments/transactions.csv");
@@ -206,7 +206,8 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     // A stale estimate from an earlier run must not be shown.
     let _ = std::fs::remove_file(&shift_path);
     print_notices(&lending_notices);
-    if let Err(e) = base_rate_steps(&args, &lending, &lending_training, &model_path, &shift_path) {
+    let source = TrainingSource { input_path: lending_training.display().to_string(), input_sha256: lending_sha256 };
+    if let Err(e) = base_rate_steps(&args, &lending, source, &model_path, &shift_path) {
         println!("base-rate step skipped: {}\n", wrap(&crate::cli::error_text(&e), 100, 2));
     }
     if let Ok(text) = std::fs::read_to_string(&shift_path) {
@@ -248,7 +249,7 @@ fn print_notices(notices: &[DataNotice]) {
 fn base_rate_steps(
     args: &Args,
     lending: &Dataset,
-    training_path: &std::path::Path,
+    source: TrainingSource,
     model_path: &std::path::Path,
     shift_path: &std::path::Path,
 ) -> baserate::Result<()> {
@@ -256,10 +257,7 @@ fn base_rate_steps(
     let mut request = TrainRequest::new(FamilyParams::defaults(Family::Lda));
     request.calibration = Some(CalibrationMethod::Platt);
     request.seed = args.seed;
-    request.source = TrainingSource {
-        input_path: training_path.display().to_string(),
-        input_sha256: baserate::io::sha256_file(training_path)?,
-    };
+    request.source = source;
     let file = train(lending, &request)?;
     file.save(model_path)?;
 

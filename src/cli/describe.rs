@@ -40,6 +40,10 @@ struct DescribeJson<'a> {
 
 /// Runs `describe`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
+    crate::cli::output::refuse_overwrites(
+        &[("the data file", Some(&args.data))],
+        &[(baserate::error::Setting::Json, args.json.as_deref())],
+    )?;
     let options = args.data_args.to_options()?;
     let (dataset, notices) = Dataset::read(&args.data, &options)?;
     let path = args.data.display().to_string();

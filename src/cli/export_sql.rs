@@ -46,6 +46,14 @@ pub struct Args {
 
 /// Runs `export-sql`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
+    crate::cli::output::refuse_overwrites(
+        &[
+            ("the model file", Some(&args.model)),
+            ("the costs file", args.costs.as_deref()),
+            ("the shift file", args.priors.prior_from_path()),
+        ],
+        &[(baserate::error::Setting::Output, Some(&args.out))],
+    )?;
     let file = ModelFile::load(&args.model)?;
     let prior = args.priors.resolve(&file)?;
     let costs = args.costs.as_deref().map(|path| file.read_costs(path)).transpose()?;

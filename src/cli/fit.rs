@@ -65,7 +65,7 @@ pub enum CalibrateArg {
 
 /// `fit STATS.csv --from-stats`: the family fitted from an engine's aggregates.
 fn fit_from_stats(args: &Args, params: FamilyParams, spec: Option<PriorSpec>) -> Result<ExitCode, Failure> {
-    use baserate::export::stats_reader::read_stats;
+    use baserate::export::stats_reader::read_stats_with_hash;
     use baserate::model::aggregates::FromAggregates;
     use baserate::train::{train_from_aggregates, FromStats};
     if args.calibrate.is_some() || args.sampled.is_some() {
@@ -75,7 +75,7 @@ fn fit_from_stats(args: &Args, params: FamilyParams, spec: Option<PriorSpec>) ->
         )
         .into());
     }
-    let aggregates = read_stats(&args.data)?;
+    let (aggregates, input_sha256) = read_stats_with_hash(&args.data)?;
     if let Some(target) = &args.data_args.target {
         if *target != aggregates.target {
             return Err(Error::Usage(format!(
@@ -107,7 +107,7 @@ fn fit_from_stats(args: &Args, params: FamilyParams, spec: Option<PriorSpec>) ->
             },
             prior: spec,
         };
-    let file = train_from_aggregates(&aggregates, &request, baserate::io::sha256_file(&args.data)?)?;
+    let file = train_from_aggregates(&aggregates, &request, input_sha256)?;
     file.save(&args.out)?;
     let target = &file.schema.target;
     let mix = class_mix_text(target);
@@ -141,6 +141,10 @@ fn class_mix_text(target: &baserate::data::schema::TargetSchema) -> String {
 
 /// Runs `fit`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
+    crate::cli::output::refuse_overwrites(
+        &[("the data file", Some(&args.data))],
+        &[(baserate::error::Setting::Output, Some(&args.out))],
+    )?;
     let family: Family = args.family.into();
     let params = args.family_options.params(family)?;
     let spec = prior_spec(args.prior.as_deref(), args.base_rate)?;
@@ -148,7 +152,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         return fit_from_stats(&args, params, spec);
     }
     let options = args.data_args.to_options()?;
-    let (dataset, notices) = Dataset::read(&args.data, &options)?;
+    let (dataset, notices, input_sha256) = Dataset::read_with_hash(&args.data, &options)?;
     for n in &notices {
         eprintln!("note: {}", wrap(&n.describe(&crate::cli::flag), 100, 6));
     }
@@ -162,10 +166,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             CalibrateArg::Isotonic => CalibrationMethod::Isotonic,
         }),
         seed: args.seed,
-        source: TrainingSource {
-            input_path: args.data.display().to_string(),
-            input_sha256: baserate::io::sha256_file(&args.data)?,
-        },
+        source: TrainingSource { input_path: args.data.display().to_string(), input_sha256 },
     };
     let file = train(&dataset, &request)?;
     file.save(&args.out)?;

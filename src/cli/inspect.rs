@@ -25,6 +25,10 @@ pub struct Args {
 
 /// Runs `inspect`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
+    crate::cli::output::refuse_overwrites(
+        &[("the model file", Some(&args.model))],
+        &[(baserate::error::Setting::Json, args.json.as_deref())],
+    )?;
     let file = ModelFile::load(&args.model)?;
     if let Some(path) = &args.json {
         let text =

@@ -2,9 +2,19 @@
 
 use std::path::Path;
 
-use baserate::error::{Error, Result};
+use baserate::error::{Error, Part, Result, Setting};
 
 pub use baserate::io::write_atomic;
+
+/// Refuses, before any work, a run with an output on one of its inputs or
+/// two outputs on one file (see [`baserate::io::check_outputs`]). Inputs are
+/// named in words ("the data file"), outputs by their flag's setting; an
+/// absent optional path is left out.
+pub fn refuse_overwrites(inputs: &[(&str, Option<&Path>)], outputs: &[(Setting, Option<&Path>)]) -> Result<()> {
+    let inputs: Vec<(Part, &Path)> = inputs.iter().filter_map(|(what, p)| p.map(|p| (Part::from(*what), p))).collect();
+    let outputs: Vec<(Part, &Path)> = outputs.iter().filter_map(|(s, p)| p.map(|p| (Part::from(*s), p))).collect();
+    baserate::io::check_outputs(&inputs, &outputs)
+}
 
 /// Creates a directory and its parents.
 pub fn create_dir(path: &Path) -> Result<()> {

@@ -78,6 +78,11 @@ pub struct PriorArgs {
 }
 
 impl PriorArgs {
+    /// The shift file `--prior-from` reads, without its `:METHOD`.
+    pub fn prior_from_path(&self) -> Option<&std::path::Path> {
+        self.prior_from.as_deref().map(|spec| std::path::Path::new(baserate::prior::shift::split_shift_spec(spec).0))
+    }
+
     /// The prior a run scores with: `--prior`/`--base-rate`, a `shift`
     /// result (`--prior-from`), or the model's own.
     pub fn resolve(&self, file: &ModelFile) -> baserate::Result<Vec<f64>> {
@@ -114,6 +119,19 @@ pub fn parse_missing(text: Option<&str>) -> baserate::Result<Option<MissingPolic
 
 /// Runs `score`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
+    crate::cli::output::refuse_overwrites(
+        &[
+            ("the model file", Some(&args.model)),
+            ("the data file", Some(&args.data)),
+            ("the costs file", args.costs.as_deref()),
+            ("the shift file", args.priors.prior_from_path()),
+        ],
+        &[
+            (baserate::error::Setting::Scores, Some(&args.out)),
+            (baserate::error::Setting::Rejects, args.apply.rejects.as_deref()),
+            (baserate::error::Setting::Summary, args.summary.as_deref()),
+        ],
+    )?;
     let file = ModelFile::load(&args.model)?;
     let prior = args.priors.resolve(&file)?;
     let costs = args.costs.as_deref().map(|path| file.read_costs(path)).transpose()?;

@@ -63,6 +63,16 @@ pub fn prior_from_file(spec: &str, classes: &[String]) -> baserate::Result<Vec<f
 
 /// Runs `shift`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
+    let mut inputs: Vec<(&str, Option<&Path>)> =
+        args.files.iter().map(|f| ("an input file", Some(f.as_path()))).collect();
+    inputs.push(("the reference file", args.reference.as_deref()));
+    crate::cli::output::refuse_overwrites(
+        &inputs,
+        &[
+            (baserate::error::Setting::Json, args.json.as_deref()),
+            (baserate::error::Setting::Rejects, args.apply.rejects.as_deref()),
+        ],
+    )?;
     let options = ShiftOptions { bootstrap: args.bootstrap, seed: args.seed };
     let delimiter = parse_delimiter(&args.apply.delimiter)?;
     let estimate = match (args.files.as_slice(), &args.score) {
@@ -94,11 +104,6 @@ fn model_form(
     let file = ModelFile::load(model)?;
     let missing = parse_missing(args.apply.policies.missing.as_deref())?;
     check_place_for_rejects(args.apply.policies.unseen, missing, args.apply.rejects.is_some())?;
-    if let Some(rejects) = &args.apply.rejects {
-        if rejects.as_path() == data || rejects.as_path() == model || args.json.as_ref() == Some(rejects) {
-            return Err(Error::Usage("--rejects names another file of the run; write the rejects elsewhere".into()));
-        }
-    }
     let request = ScoringRequest {
         ids: Vec::new(),
         dialect: Dialect::with_delimiter(delimiter),

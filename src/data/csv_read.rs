@@ -103,6 +103,17 @@ impl ReadTable {
 /// quarter of the reading time at a million rows). The file must not be
 /// truncated while it is read; anything else falls back to a plain read.
 pub fn read_path(path: &std::path::Path, options: &ReadOptions) -> Result<ReadTable> {
+    read_path_hashing(path, options, false).map(|(table, _)| table)
+}
+
+/// [`read_path`], with the SHA-256 of exactly the bytes parsed, from the
+/// one open: a pipe or `<(…)` is read once and hashed as read.
+pub fn read_path_with_hash(path: &std::path::Path, options: &ReadOptions) -> Result<(ReadTable, String)> {
+    let (table, hash) = read_path_hashing(path, options, true)?;
+    Ok((table, hash.unwrap_or_default()))
+}
+
+fn read_path_hashing(path: &std::path::Path, options: &ReadOptions, hash: bool) -> Result<(ReadTable, Option<String>)> {
     let shown = path.display().to_string();
     let file = std::fs::File::open(path).map_err(|e| Error::io(&shown, e))?;
     let is_regular = file.metadata().map(|m| m.is_file() && m.len() > 0).unwrap_or(false);
@@ -122,12 +133,14 @@ pub fn read_path(path: &std::path::Path, options: &ReadOptions) -> Result<ReadTa
                 // the file.
                 let _ = unsafe { map.unchecked_advise_range(memmap2::UncheckedAdvice::DontNeed, offset, chunk.len()) };
             };
-            return read_bytes_chunked(&shown, &map, options, CHUNK_BYTES, Some(&release));
+            let digest = hash.then(|| crate::io::sha256_hex(&map));
+            return Ok((read_bytes_chunked(&shown, &map, options, CHUNK_BYTES, Some(&release))?, digest));
         }
     }
     let mut bytes = Vec::new();
     std::io::Read::read_to_end(&mut &file, &mut bytes).map_err(|e| Error::io(&shown, e))?;
-    read_bytes(&shown, &bytes, options)
+    let digest = hash.then(|| crate::io::sha256_hex(&bytes));
+    Ok((read_bytes(&shown, &bytes, options)?, digest))
 }
 
 /// Parses a whole delimited file held in memory. `path` is only used in

@@ -86,6 +86,14 @@ impl Dataset {
         Dataset::from_table(table, options)
     }
 
+    /// [`Dataset::read`], with the SHA-256 of exactly the bytes parsed (one
+    /// open, so a pipe works and is hashed as read).
+    pub fn read_with_hash(path: &std::path::Path, options: &ReadOptions) -> Result<(Dataset, Vec<DataNotice>, String)> {
+        let (table, hash) = crate::data::csv_read::read_path_with_hash(path, options)?;
+        let (dataset, notices) = Dataset::from_table(table, options)?;
+        Ok((dataset, notices, hash))
+    }
+
     /// Number of rows.
     pub fn rows(&self) -> usize {
         self.target.len()

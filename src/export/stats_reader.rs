@@ -11,12 +11,22 @@ use crate::model::Family;
 
 /// Reads a statistics result (CSV with a header, as the engine wrote it).
 pub fn read_stats(path: &Path) -> Result<Aggregates> {
+    read_stats_with_hash(path).map(|(aggregates, _)| aggregates)
+}
+
+/// [`read_stats`], with the SHA-256 of exactly the bytes parsed: the file
+/// is opened and read once (so a pipe works, and is hashed as read).
+pub fn read_stats_with_hash(path: &Path) -> Result<(Aggregates, String)> {
+    let shown = path.display().to_string();
+    let bytes = std::fs::read(path).map_err(|e| Error::io(&shown, e))?;
+    let hash = crate::io::sha256_hex(&bytes);
+    parse_stats(path, &bytes).map(|aggregates| (aggregates, hash))
+}
+
+fn parse_stats(path: &Path, bytes: &[u8]) -> Result<Aggregates> {
     let shown = path.display().to_string();
     let bad = |message: String| Error::SchemaMismatch { path: shown.clone(), message: message.into() };
-    let mut reader = csv::ReaderBuilder::new().has_headers(true).from_path(path).map_err(|e| match e.into_kind() {
-        csv::ErrorKind::Io(io) => Error::io(&shown, io),
-        other => bad(format!("not a CSV file: {other:?}")),
-    })?;
+    let mut reader = csv::ReaderBuilder::new().has_headers(true).from_reader(bytes);
     let header: Vec<String> = reader
         .headers()
         .map_err(|e| bad(format!("the header cannot be read: {e}")))?
@@ -136,6 +146,13 @@ pub fn read_stats(path: &Path) -> Result<Aggregates> {
             .map(|(g, _)| g)
             .collect();
         let class = text("class");
+        if class.is_empty() {
+            return Err(Error::Malformed {
+                at: at(&record),
+                column: "class".into(),
+                message: "the class is empty; every training row needs a label (the query counts rows without one in 'unlabelled')".into(),
+            });
+        }
         let sums = Sums {
             rows: value("rows")?,
             weight: value("weight")?,

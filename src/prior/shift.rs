@@ -279,14 +279,19 @@ pub fn p_value_text(p_value: f64) -> String {
     }
 }
 
+/// `PATH` or `PATH:METHOD` as (path, method); the method is EM unless named.
+pub fn split_shift_spec(spec: &str) -> (&str, &str) {
+    match spec.rsplit_once(':') {
+        Some((p, m)) if ["em", "bbse", "mean_posterior", "classify_and_count"].contains(&m) => (p, m),
+        _ => (spec, "em"),
+    }
+}
+
 /// Reads the prior a `shift` result estimated: `PATH` (the EM estimate) or
 /// `PATH:METHOD` (`em`, `bbse`, `mean_posterior`, `classify_and_count`),
 /// in the order of `classes`.
 pub fn prior_from_shift_file(spec: &str, classes: &[String]) -> Result<Vec<f64>> {
-    let (path, method) = match spec.rsplit_once(':') {
-        Some((p, m)) if ["em", "bbse", "mean_posterior", "classify_and_count"].contains(&m) => (p, m),
-        _ => (spec, "em"),
-    };
+    let (path, method) = split_shift_spec(spec);
     let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
     let value: serde_json::Value = serde_json::from_str(&text)
         .map_err(|e| Error::ModelFile { path: path.into(), message: format!("not a shift file: {e}") })?;
