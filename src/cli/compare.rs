@@ -108,8 +108,8 @@ impl EvaluationArgs {
     }
 
     /// Writes the JSON and HTML outputs asked for, then prints the screen
-    /// unless the JSON went to stdout.
-    pub fn write_outputs(&self, study: &Study, description: &str) -> Result<(), Failure> {
+    /// unless the JSON went to stdout; true when the screen was printed.
+    pub fn write_outputs(&self, study: &Study, description: &str) -> Result<bool, Failure> {
         if let Some(path) = &self.json {
             let text = serde_json::to_string_pretty(&study.json()?).map_err(|e| Error::Usage(e.to_string()))?;
             write_atomic(path, format!("{text}\n").as_bytes())?;
@@ -118,10 +118,10 @@ impl EvaluationArgs {
             write_atomic(path, study_html(study, description).as_bytes())?;
         }
         if self.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
-            return Ok(());
+            return Ok(false);
         }
         print!("{}", study_screen(study, true));
-        Ok(())
+        Ok(true)
     }
 }
 
@@ -207,11 +207,8 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     if let (Some(path), Some(bytes)) = (&args.predictions, &study.predictions_csv) {
         write_atomic(path, bytes)?;
     }
-    args.evaluation.write_outputs(&study, &description)?;
-    if args.evaluation.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
-        return Ok(ExitCode::SUCCESS);
-    }
-    if let Some(path) = &args.evaluation.report {
+    let printed = args.evaluation.write_outputs(&study, &description)?;
+    if let (true, Some(path)) = (printed, &args.evaluation.report) {
         println!("report written to {}", path.display());
     }
     Ok(ExitCode::SUCCESS)

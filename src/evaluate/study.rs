@@ -401,7 +401,7 @@ pub fn compare_families(mut dataset: Dataset, request: &ComparisonRequest) -> Re
     drop(predictions);
     let cost_inputs = options.costs.as_deref().map(|path| read_costs(path, &dataset)).transpose()?;
     dataset.numeric = ndarray::Array2::zeros((0, 0));
-    let study = judge(
+    let mut study = judge(
         &dataset,
         &scores,
         options,
@@ -412,7 +412,6 @@ pub fn compare_families(mut dataset: Dataset, request: &ComparisonRequest) -> Re
         amounts.as_deref(),
         segments.as_deref(),
     );
-    let mut study = study;
     if k > 2 {
         study.evaluation.set_multiclass(multiclass_figures);
     }

@@ -268,7 +268,9 @@ impl ModelFile {
 
     /// Reads and validates a model file.
     pub fn load(path: &Path) -> Result<ModelFile> {
-        Self::load_file(path)
+        let shown = path.display().to_string();
+        let text = std::fs::read_to_string(path).map_err(|e| Error::io(&shown, e))?;
+        ModelFile::from_json(&shown, &text)
     }
 
     /// Reads a costs file for this model: its classes, and no categorical
@@ -293,12 +295,6 @@ impl ModelFile {
             }),
             None => Ok(()),
         }
-    }
-
-    fn load_file(path: &Path) -> Result<ModelFile> {
-        let shown = path.display().to_string();
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io(&shown, e))?;
-        ModelFile::from_json(&shown, &text)
     }
 
     /// Parses and validates model JSON; `path` is only used in messages.
