@@ -114,6 +114,9 @@ pub enum Setting {
     SplitBy,
     /// A holdout file (`Dataset::read_with_holdout`).
     Holdout,
+    /// Loading a model whose content no longer matches its checksum
+    /// (`ModelFile::open`'s `accept_edited`).
+    AcceptEdited,
 }
 
 impl Setting {
@@ -169,6 +172,7 @@ impl Setting {
             Setting::By => "by",
             Setting::SplitBy => "split_by",
             Setting::Holdout => "holdout",
+            Setting::AcceptEdited => "accept_edited",
         }
     }
 
@@ -296,6 +300,17 @@ pub enum Error {
         /// The operating system's error.
         #[source]
         source: std::io::Error,
+    },
+
+    /// Another run holds an output this run would write.
+    #[error("{path}: another run{} is writing this output; wait for it to finish or write elsewhere (its lock is {lock}; a run that has ended holds no lock)", holder.map(|p| format!(" (process {p})")).unwrap_or_default())]
+    OutputBusy {
+        /// The output.
+        path: String,
+        /// The holder's process id, when its lock file says.
+        holder: Option<u32>,
+        /// The lock file.
+        lock: String,
     },
 
     /// The file holds no bytes at all (or only a byte-order mark).
@@ -502,6 +517,15 @@ pub enum Error {
         message: Message,
     },
 
+    /// A model file's content no longer matches the checksum written with it.
+    #[error("{}", self.describe(&parameter_names))]
+    EditedModel {
+        /// The file.
+        path: String,
+        /// What was found.
+        detail: String,
+    },
+
     /// A model file is unreadable, corrupt, or from a newer version.
     #[error("{path}: {message}")]
     ModelFile {
@@ -586,7 +610,11 @@ impl Error {
     /// 2 for usage errors, 1 for data and model errors.
     pub fn exit_code(&self) -> u8 {
         match self {
-            Error::Usage(_) | Error::Invalid(_) | Error::ConflictingRoles { .. } | Error::InvalidPrior(_) => 2,
+            Error::Usage(_)
+            | Error::Invalid(_)
+            | Error::ConflictingRoles { .. }
+            | Error::InvalidPrior(_)
+            | Error::OutputBusy { .. } => 2,
             _ => 1,
         }
     }
@@ -642,6 +670,10 @@ impl Error {
             ),
             Error::SchemaMismatch { path, message } => format!("{path}: {}", message.render(names)),
             Error::Invalid(message) => message.render(names),
+            Error::EditedModel { path, detail } => format!(
+                "{path}: {detail}, so the model is not the one that was fitted; fit it again, or, if the edit was deliberate, load it with {} (the acceptance is recorded in what the run writes)",
+                name(Setting::AcceptEdited)
+            ),
             other => other.to_string(),
         }
     }

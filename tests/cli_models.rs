@@ -146,13 +146,13 @@ fn corrupt_truncated_and_newer_model_files_are_refused() {
     let good = std::fs::read_to_string(dir.path().join("m.json")).expect("model");
     let cases = [
         ("truncated.json", good[..good.len() / 2].to_string(), "truncated"),
-        ("newer.json", good.replacen("\"format_version\": 1", "\"format_version\": 99", 1), "newer baserate"),
+        ("newer.json", good.replacen("\"format_version\": 2", "\"format_version\": 99", 1), "newer baserate"),
         ("garbage.json", "this is not json".to_string(), "not a valid model file"),
         ("other.json", "{\"format\": \"something\"}".to_string(), "not a baserate model file"),
         (
             "edited.json",
             good.replacen("\"positive\": \"defaulted\"", "\"positive\": \"late\"", 1),
-            "positive class does not match",
+            "does not match its checksum",
         ),
     ];
     for (name, text, message) in cases {

@@ -77,6 +77,9 @@ pub struct ScoreJob {
     pub chunk_bytes: usize,
     /// The longest record, in bytes (see [`crate::records::Dialect`]).
     pub max_record_bytes: usize,
+    /// How the model file stood against its checksum when loaded
+    /// (recorded in the summary).
+    pub model_integrity: crate::train::file::Integrity,
 }
 
 impl ScoreJob {
@@ -115,6 +118,14 @@ impl Outputs {
             ]));
         }
         Ok(())
+    }
+
+    /// Locks the outputs for the run (see [`crate::io::claim`]).
+    fn claim(&self) -> Result<crate::io::OutputClaim> {
+        let mut paths = vec![self.scores.as_path()];
+        paths.extend(self.rejects.as_deref());
+        paths.extend(self.summary.as_deref());
+        crate::io::claim_outputs(&paths)
     }
 }
 
@@ -200,6 +211,11 @@ pub struct Summary {
     /// The reason codes' reference point, per feature, when asked for.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub reason_reference: Option<BTreeMap<String, String>>,
+    /// How the model file stood against its checksum when loaded:
+    /// `verified`, `no-checksum` (format version 1) or `edit-accepted`.
+    pub model_integrity: crate::train::file::Integrity,
+    /// Temporary files of earlier, stopped runs removed beside the outputs.
+    pub stale_temporaries_removed: Vec<PathBuf>,
     /// The usual caution.
     pub caution: String,
 }
@@ -208,6 +224,8 @@ pub struct Summary {
 pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progress<'_>) -> Result<Summary> {
     let shown = shown_path(&job.data);
     outputs.check(&job.data)?;
+    // Held until the outputs are in place: a second run refuses meanwhile.
+    let claim = outputs.claim()?;
     let missing = job.missing.unwrap_or(file.schema.missing_policy);
     crate::apply::row::check_place_for_rejects(job.unseen, job.missing, outputs.rejects.is_some())?;
     let limited = job.costs.as_ref().map(limited_actions).unwrap_or_default();
@@ -322,7 +340,8 @@ pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progre
         progress,
     )?;
     passes += 1;
-    let summary = summarise(file, job, &plan, &context, &stats, passes, reason_codes.as_ref());
+    let mut summary = summarise(file, job, &plan, &context, &stats, passes, reason_codes.as_ref());
+    summary.stale_temporaries_removed = claim.stale_removed.clone();
     let mut files = vec![scores];
     files.extend(rejects);
     if let Some(path) = &outputs.summary {
@@ -616,6 +635,8 @@ fn summarise(
             .collect(),
         drift,
         reason_reference: reason_codes.map(|codes| codes.reference_text().into_iter().collect()),
+        model_integrity: job.model_integrity,
+        stale_temporaries_removed: Vec::new(),
         caution: crate::CAUTION.to_string(),
     }
 }

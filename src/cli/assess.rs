@@ -59,7 +59,7 @@ pub struct Args {
 
 /// Runs `assess`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
-    crate::cli::output::refuse_overwrites(
+    let _claim = crate::cli::output::claim_outputs(
         &[("the data file", Some(&args.data)), ("the costs file", args.evaluation.costs.as_deref())],
         &[
             (baserate::error::Setting::Json, args.evaluation.json.as_deref()),

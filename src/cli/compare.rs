@@ -151,7 +151,7 @@ fn split_choice(args: &Args) -> baserate::Result<SplitChoice> {
 
 /// Runs `compare`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
-    crate::cli::output::refuse_overwrites(
+    let _claim = crate::cli::output::claim_outputs(
         &[
             ("the data file", Some(&args.data)),
             ("the holdout file", args.holdout.as_deref()),

@@ -258,8 +258,9 @@ fn base_rate_steps(
     request.calibration = Some(CalibrationMethod::Platt);
     request.seed = args.seed;
     request.source = source;
-    let file = train(lending, &request)?;
-    file.save(model_path)?;
+    train(lending, &request)?.save(model_path)?;
+    // Scored as written, checksum and all.
+    let (file, integrity) = baserate::train::file::ModelFile::open(model_path, false)?;
 
     let shift_options = ShiftOptions { bootstrap: 200, seed: args.seed };
     let (estimate, _) = estimate_portfolio_shift(&file, &new_portfolio, &ScoringRequest::default(), &shift_options)?;
@@ -283,6 +284,7 @@ fn base_rate_steps(
         threads: 0,
         chunk_bytes: baserate::batch::DEFAULT_CHUNK_BYTES,
         max_record_bytes: baserate::records::DEFAULT_MAX_RECORD_BYTES,
+        model_integrity: integrity,
     };
     let outputs = Outputs {
         scores: scores_path.clone(),
@@ -306,6 +308,7 @@ fn base_rate_steps(
         missing: None,
         unseen: UnseenPolicy::Error,
         na_tokens: None,
+        integrity,
     };
     write_atomic(&sql_path, scoring_sql(&file, &sql_request)?.as_bytes())?;
     eprintln!("{}", baserate::report::score::sql_written(&file, &sql_request, &sql_path.display().to_string()));

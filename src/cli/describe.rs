@@ -40,7 +40,7 @@ struct DescribeJson<'a> {
 
 /// Runs `describe`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
-    crate::cli::output::refuse_overwrites(
+    let _claim = crate::cli::output::claim_outputs(
         &[("the data file", Some(&args.data))],
         &[(baserate::error::Setting::Json, args.json.as_deref())],
     )?;

@@ -11,7 +11,6 @@ use crate::cli::score::{parse_missing, PriorArgs};
 use crate::cli::Failure;
 use baserate::export::scoring::{scoring_sql, ScoringRequest};
 use baserate::export::Dialect;
-use baserate::train::file::ModelFile;
 
 /// Arguments of `export-sql`.
 #[derive(Debug, clap::Args)]
@@ -42,11 +41,14 @@ pub struct Args {
     /// Where to write the SQL (`-` for stdout).
     #[arg(long, short = 'o', value_name = "FILE", default_value = "-")]
     pub out: PathBuf,
+    /// Loading the model.
+    #[command(flatten)]
+    pub loading: crate::cli::model_arg::ModelArgs,
 }
 
 /// Runs `export-sql`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
-    crate::cli::output::refuse_overwrites(
+    let _claim = crate::cli::output::claim_outputs(
         &[
             ("the model file", Some(&args.model)),
             ("the costs file", args.costs.as_deref()),
@@ -54,7 +56,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         ],
         &[(baserate::error::Setting::Output, Some(&args.out))],
     )?;
-    let file = ModelFile::load(&args.model)?;
+    let (file, integrity) = args.loading.load(&args.model)?;
     let prior = args.priors.resolve(&file)?;
     let costs = args.costs.as_deref().map(|path| file.read_costs(path)).transpose()?;
     let request = ScoringRequest {
@@ -66,6 +68,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         missing: parse_missing(args.policies.missing.as_deref())?,
         unseen: args.policies.unseen,
         na_tokens: args.na.clone(),
+        integrity,
     };
     let text = scoring_sql(&file, &request)?;
     write_atomic(&args.out, text.as_bytes())?;

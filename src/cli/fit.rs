@@ -141,7 +141,7 @@ fn class_mix_text(target: &baserate::data::schema::TargetSchema) -> String {
 
 /// Runs `fit`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
-    crate::cli::output::refuse_overwrites(
+    let _claim = crate::cli::output::claim_outputs(
         &[("the data file", Some(&args.data))],
         &[(baserate::error::Setting::Output, Some(&args.out))],
     )?;

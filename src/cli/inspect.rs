@@ -11,7 +11,6 @@ use std::process::ExitCode;
 use crate::cli::output::write_atomic;
 use crate::cli::Failure;
 use baserate::report::model::{inspect_json, inspect_text};
-use baserate::train::file::ModelFile;
 
 /// Arguments of `inspect`.
 #[derive(Debug, clap::Args)]
@@ -21,23 +20,26 @@ pub struct Args {
     /// Write every figure as JSON to FILE (`-` for stdout).
     #[arg(long, value_name = "FILE")]
     pub json: Option<PathBuf>,
+    /// Loading the model.
+    #[command(flatten)]
+    pub loading: crate::cli::model_arg::ModelArgs,
 }
 
 /// Runs `inspect`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
-    crate::cli::output::refuse_overwrites(
+    let _claim = crate::cli::output::claim_outputs(
         &[("the model file", Some(&args.model))],
         &[(baserate::error::Setting::Json, args.json.as_deref())],
     )?;
-    let file = ModelFile::load(&args.model)?;
+    let (file, integrity) = args.loading.load(&args.model)?;
     if let Some(path) = &args.json {
         let text =
-            serde_json::to_string_pretty(&inspect_json(&file)).map_err(|e| baserate::Error::Usage(e.to_string()))?;
+            serde_json::to_string_pretty(&inspect_json(&file, integrity)).map_err(|e| baserate::Error::Usage(e.to_string()))?;
         write_atomic(path, format!("{text}\n").as_bytes())?;
         if path.as_os_str() == "-" {
             return Ok(ExitCode::SUCCESS);
         }
     }
-    print!("{}", inspect_text(&args.model.display().to_string(), &file));
+    print!("{}", inspect_text(&args.model.display().to_string(), &file, integrity));
     Ok(ExitCode::SUCCESS)
 }

@@ -20,6 +20,7 @@ pub mod export_sql;
 pub mod family_args;
 pub mod fit;
 pub mod inspect;
+pub mod model_arg;
 pub mod output;
 pub mod score;
 pub mod shift;
@@ -93,6 +94,7 @@ impl From<std::io::Error> for Failure {
 pub fn flag(setting: Setting, value: Option<&str>) -> String {
     let flag = match setting {
         Setting::Target => "--target",
+        Setting::AcceptEdited => "--accept-edited-model",
         Setting::Ids => "--id",
         Setting::Weight => "--weight",
         Setting::Exclude => "--exclude",
@@ -180,6 +182,8 @@ pub fn main() -> ExitCode {
             return ExitCode::from(if e.use_stderr() { 2 } else { 0 });
         }
     };
+    // An interrupted run removes its temporary files and output locks.
+    baserate::io::signals::remove_on_signal();
     // A panic is a bug: say so plainly and exit with 4, never a backtrace.
     std::panic::set_hook(Box::new(|info| {
         let _ = writeln!(

@@ -61,6 +61,9 @@ pub struct Args {
     /// No progress display and no summary on stderr (errors are still shown).
     #[arg(long, short = 'q')]
     pub quiet: bool,
+    /// Loading the model.
+    #[command(flatten)]
+    pub loading: crate::cli::model_arg::ModelArgs,
 }
 
 /// The prior flags of the commands that apply a model (`score`, `export-sql`).
@@ -132,7 +135,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             (baserate::error::Setting::Summary, args.summary.as_deref()),
         ],
     )?;
-    let file = ModelFile::load(&args.model)?;
+    let (file, integrity) = args.loading.load(&args.model)?;
     let prior = args.priors.resolve(&file)?;
     let costs = args.costs.as_deref().map(|path| file.read_costs(path)).transpose()?;
     if let Some(rate) = args.max_reject_rate {
@@ -158,6 +161,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         threads: args.threads,
         chunk_bytes: args.chunk_bytes,
         max_record_bytes: args.max_record_bytes.max(1),
+        model_integrity: integrity,
     };
     let outputs =
         Outputs { scores: args.out.clone(), rejects: args.apply.rejects.clone(), summary: args.summary.clone() };
@@ -181,6 +185,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         baserate::Error::Io { source, .. } if source.kind() == std::io::ErrorKind::BrokenPipe => Failure::BrokenPipe,
         other => Failure::Library(other),
     })?;
+    crate::cli::output::warn_stale(&summary.stale_temporaries_removed);
     if !args.quiet {
         let target = if args.out.as_os_str() == "-" { "stdout".to_string() } else { args.out.display().to_string() };
         eprint!("{}", baserate::report::score::render_score_summary(&file, &job, &summary, &target));

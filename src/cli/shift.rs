@@ -22,7 +22,6 @@ use baserate::error::Error;
 use baserate::prior::shift::{estimate_shift_from_scores, ShiftEstimate, ShiftOptions};
 use baserate::records::Dialect;
 use baserate::report::shift::render_shift;
-use baserate::train::file::ModelFile;
 
 /// Arguments of `shift`.
 #[derive(Debug, clap::Args)]
@@ -54,6 +53,9 @@ pub struct Args {
     /// Write every figure as JSON to FILE (`-` for stdout).
     #[arg(long, value_name = "FILE")]
     pub json: Option<PathBuf>,
+    /// Loading the model (the model form).
+    #[command(flatten)]
+    pub model: crate::cli::model_arg::ModelArgs,
 }
 
 /// Reads a prior from a `shift --json` file: `PATH` (EM) or `PATH:METHOD`.
@@ -66,7 +68,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let mut inputs: Vec<(&str, Option<&Path>)> =
         args.files.iter().map(|f| ("an input file", Some(f.as_path()))).collect();
     inputs.push(("the reference file", args.reference.as_deref()));
-    crate::cli::output::refuse_overwrites(
+    let _claim = crate::cli::output::claim_outputs(
         &inputs,
         &[
             (baserate::error::Setting::Json, args.json.as_deref()),
@@ -101,7 +103,7 @@ fn model_form(
     delimiter: u8,
     options: &ShiftOptions,
 ) -> baserate::Result<ShiftEstimate> {
-    let file = ModelFile::load(model)?;
+    let (file, integrity) = args.model.load(model)?;
     let missing = parse_missing(args.apply.policies.missing.as_deref())?;
     check_place_for_rejects(args.apply.policies.unseen, missing, args.apply.rejects.is_some())?;
     let request = ScoringRequest {
@@ -112,7 +114,8 @@ fn model_form(
         unseen: args.apply.policies.unseen,
         keep_rejects: args.apply.rejects.is_some(),
     };
-    let (estimate, read) = estimate_portfolio_shift(&file, data, &request, options)?;
+    let (mut estimate, read) = estimate_portfolio_shift(&file, data, &request, options)?;
+    estimate.model_integrity = Some(integrity.name().to_string());
     if let Some(path) = &args.apply.rejects {
         write_atomic(path, &reject_file(&read.rejects))?;
         let rejected = read.rejects.len();

@@ -70,6 +70,9 @@ pub struct ScoringRequest {
     pub unseen: UnseenPolicy,
     /// Missing-value tokens of text columns [default: the training file's].
     pub na_tokens: Option<Vec<String>>,
+    /// How the model file stood against its checksum when loaded (stated
+    /// in the statement's header).
+    pub integrity: crate::train::file::Integrity,
 }
 
 /// A chain of SELECT stages, each reading the one before.
@@ -204,6 +207,11 @@ fn header(file: &ModelFile, request: &ScoringRequest) -> Vec<String> {
             file.training.input_path,
             file.training.input_sha256,
             file.positive
+        ),
+        format!(
+            "model file content: {} (checksum {})",
+            request.integrity.name(),
+            file.checksum.as_deref().unwrap_or("none")
         ),
         format!("prior: {}; dialect: {}", prior.join(", "), request.dialect.name()),
         "output: the id columns, p_<class> per class, action and expected_cost with costs, reject_reason (NULL when scored)".into(),

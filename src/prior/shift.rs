@@ -101,6 +101,10 @@ pub struct ShiftEstimate {
     pub rows: usize,
     /// A plain-language summary.
     pub verdict: String,
+    /// How the model file stood against its checksum (the model form:
+    /// `verified`, `no-checksum` or `edit-accepted`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub model_integrity: Option<String>,
     /// Whether EM converged within its iteration limit.
     #[serde(skip)]
     pub em_converged: bool,
@@ -265,6 +269,7 @@ fn estimate(input: &ShiftInput<'_>, options: &ShiftOptions) -> Result<ShiftEstim
         unchanged_test: UnchangedTest { statistic, df, p_value },
         rows: n,
         verdict,
+        model_integrity: None,
         em_converged: em.converged,
         positive: classes[positive].clone(),
     })

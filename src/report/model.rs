@@ -11,7 +11,7 @@ use crate::model::logistic::{reference_class, LogisticModel};
 use crate::model::FittedModel;
 use crate::report::table::{Align, Table};
 use crate::report::{wrap, CAUTION};
-use crate::train::file::ModelFile;
+use crate::train::file::{Integrity, ModelFile};
 
 pub use crate::tails::{two_sided_p, NORMAL_975};
 
@@ -90,6 +90,12 @@ pub struct InspectJson {
     pub created: String,
     /// SHA-256 of the training file.
     pub input_sha256: String,
+    /// The checksum the file carries (`sha256:…`; absent in version 1 files).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub checksum: Option<String>,
+    /// How the file stood against its checksum when loaded: `verified`,
+    /// `no-checksum` or `edit-accepted`.
+    pub integrity: String,
 }
 
 /// What `inspect --json` says of a penalised fit.
@@ -200,7 +206,7 @@ fn by_class<T: Clone>(classes: &[String], values: &[T]) -> BTreeMap<String, T> {
 }
 
 /// The JSON view of a model file.
-pub fn inspect_json(file: &ModelFile) -> InspectJson {
+pub fn inspect_json(file: &ModelFile, integrity: Integrity) -> InspectJson {
     let positive = file.positive_index();
     let (coefficients, discriminant) = match &file.model {
         FittedModel::Logistic(m) => (logistic_coefficients(m), Vec::new()),
@@ -229,6 +235,8 @@ pub fn inspect_json(file: &ModelFile) -> InspectJson {
         tool_version: file.tool_version.clone(),
         created: file.created.clone(),
         input_sha256: file.training.input_sha256.clone(),
+        checksum: file.checksum.clone(),
+        integrity: integrity.name().to_string(),
     }
 }
 
@@ -245,12 +253,17 @@ fn p_text(p: Option<f64>) -> String {
 }
 
 /// The text view of a model file.
-pub fn inspect_text(path: &str, file: &ModelFile) -> String {
-    let json = inspect_json(file);
+pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> String {
+    let json = inspect_json(file, integrity);
     let mut out = format!(
         "{path}: {} model, format {} (written by baserate {} on {})\n",
         json.family, json.format_version, json.tool_version, json.created
     );
+    out.push_str(&match (integrity, &file.checksum) {
+        (Integrity::Verified, Some(sum)) => format!("content checksum verified ({}…)\n", &sum[..sum.len().min(19)]),
+        (Integrity::EditAccepted, _) => "content EDITED since it was fitted (checksum does not match; accepted)\n".into(),
+        _ => "no content checksum (format version 1); edits cannot be detected\n".into(),
+    });
     let mix: Vec<String> = file
         .classes
         .iter()

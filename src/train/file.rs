@@ -5,6 +5,17 @@
 //!
 //! Loading validates everything and rejects a corrupt, truncated or newer
 //! file with a message that says which; writing is atomic.
+//!
+//! ## Integrity
+//! From format version 2 a file carries `checksum`: `sha256:` and the
+//! SHA-256 of its canonical form — the content serialised as compact JSON
+//! in the format's field order, without the checksum itself, numbers in
+//! shortest round-trip form. Loading checks the format version, then the
+//! checksum, then consistency. Layout changes (spacing, `1.50` for `1.5`)
+//! keep the checksum, since the model is unchanged; any changed value, or a
+//! field the format does not have, is an edit, refused unless the caller
+//! accepts it. Version 1 files carry no checksum and still load, with
+//! [`Integrity::NoChecksum`] for the caller to warn about.
 
 use std::path::Path;
 
@@ -17,8 +28,54 @@ use crate::prior::spec::PRIOR_SUM_TOLERANCE;
 
 /// The format name every model file carries.
 pub const FORMAT: &str = "baserate-model";
-/// The format version this build writes, and the newest it reads.
-pub const FORMAT_VERSION: u32 = 1;
+/// The format version this build writes, and the newest it reads
+/// (2: the checksum).
+pub const FORMAT_VERSION: u32 = 2;
+
+/// The largest model file read: 256 MiB, refused before parsing. The
+/// largest models are QDA's covariance matrices, one per class: ten classes
+/// of 1,000 numeric inputs come to about 10⁷ numbers, some 200 MB of JSON,
+/// far past any scorecard or fraud model (common practice: tens to a few
+/// hundred inputs). A larger file is not a model a fit wrote.
+pub const MAX_MODEL_BYTES: u64 = 256 << 20;
+
+/// How a loaded model file stands against its checksum.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Integrity {
+    /// The content matches the checksum.
+    Verified,
+    /// A file of format version 1, written before files carried a checksum.
+    NoChecksum,
+    /// The content does not match its checksum (or a version 2 file has
+    /// none), and the caller accepted the edit.
+    EditAccepted,
+}
+
+impl Integrity {
+    /// The name written in summaries (`verified`, `no-checksum`,
+    /// `edit-accepted`).
+    pub fn name(self) -> &'static str {
+        match self {
+            Integrity::Verified => "verified",
+            Integrity::NoChecksum => "no-checksum",
+            Integrity::EditAccepted => "edit-accepted",
+        }
+    }
+
+    /// What a user should be told, if anything.
+    pub fn warning(self, path: &str) -> Option<String> {
+        match self {
+            Integrity::Verified => None,
+            Integrity::NoChecksum => Some(format!(
+                "{path} is a model file of format version 1, which carries no checksum, so edits to it cannot be detected; fit it again to get a file that can be checked"
+            )),
+            Integrity::EditAccepted => Some(format!(
+                "{path} has been edited since it was fitted, and is used because the edit was accepted"
+            )),
+        }
+    }
+}
 
 /// Where the model came from.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -37,6 +94,7 @@ pub struct TrainingInfo {
 
 /// A model file's whole content.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct ModelFile {
     /// Always [`FORMAT`].
     pub format: String,
@@ -87,6 +145,31 @@ pub struct ModelFile {
     /// scoring (absent in files written before it was kept).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub drift_reference: Option<crate::model::drift::DriftReference>,
+    /// `sha256:` and the hash of the canonical form (see the module
+    /// documentation); set when the file is written, checked when loaded.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub checksum: Option<String>,
+}
+
+/// The first fields of a model file, read before the rest.
+#[derive(Deserialize)]
+struct Preamble {
+    format: Option<serde_json::Value>,
+    format_version: Option<serde_json::Value>,
+}
+
+/// Feeds what is written to a SHA-256.
+struct Hashing(sha2::Sha256);
+
+impl std::io::Write for Hashing {
+    fn write(&mut self, bytes: &[u8]) -> std::io::Result<usize> {
+        sha2::Digest::update(&mut self.0, bytes);
+        Ok(bytes.len())
+    }
+
+    fn flush(&mut self) -> std::io::Result<()> {
+        Ok(())
+    }
 }
 
 /// What out-of-fold predictions of the training rows showed.
@@ -148,6 +231,7 @@ impl ModelFile {
                 calibration: None,
                 sampling_rates: None,
                 drift_reference: None,
+                checksum: None,
             },
         }
     }
@@ -251,12 +335,25 @@ impl ModelFile {
         lp
     }
 
-    /// Serialises to pretty JSON.
+    /// Serialises to pretty JSON, with the checksum of the content.
     pub fn to_json(&self) -> Result<String> {
-        serde_json::to_string_pretty(self).map_err(|e| Error::FitFailed {
+        let failed = |e: serde_json::Error| Error::FitFailed {
             family: self.family.name().into(),
             message: format!("the model could not be written as JSON: {e}").into(),
-        })
+        };
+        let mut signed = self.clone();
+        signed.checksum = None;
+        signed.checksum = Some(signed.content_checksum().map_err(failed)?);
+        serde_json::to_string_pretty(&signed).map_err(failed)
+    }
+
+    /// `sha256:` and the SHA-256 of the canonical form: compact JSON of
+    /// everything but the checksum (which must be `None` here).
+    fn content_checksum(&self) -> std::result::Result<String, serde_json::Error> {
+        let mut hashing = Hashing(sha2::Digest::new());
+        serde_json::to_writer(&mut hashing, self)?;
+        let digest = sha2::Digest::finalize(hashing.0);
+        Ok(format!("sha256:{}", digest.iter().map(|b| format!("{b:02x}")).collect::<String>()))
     }
 
     /// Writes the file atomically.
@@ -266,11 +363,37 @@ impl ModelFile {
         crate::io::write_atomic(path, text.as_bytes())
     }
 
-    /// Reads and validates a model file.
+    /// Reads and validates a model file, refusing one edited since it was
+    /// written; a file of the earlier format, without a checksum, loads
+    /// (use [`ModelFile::open`] to learn which).
     pub fn load(path: &Path) -> Result<ModelFile> {
+        ModelFile::open(path, false).map(|(file, _)| file)
+    }
+
+    /// Reads and validates a model file, and says how it stands against its
+    /// checksum; `accept_edited` loads a file whose content was changed
+    /// since it was written. A file over [`MAX_MODEL_BYTES`] is refused
+    /// before it is parsed.
+    pub fn open(path: &Path, accept_edited: bool) -> Result<(ModelFile, Integrity)> {
+        use std::io::Read;
         let shown = path.display().to_string();
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io(&shown, e))?;
-        ModelFile::from_json(&shown, &text)
+        let too_large = || Error::ModelFile {
+            path: shown.clone(),
+            message: format!(
+                "the file is larger than {} MiB, more than any model holds; it is not a model file as fitted",
+                MAX_MODEL_BYTES >> 20
+            ),
+        };
+        let file = std::fs::File::open(path).map_err(|e| Error::io(&shown, e))?;
+        if file.metadata().is_ok_and(|m| m.is_file() && m.len() > MAX_MODEL_BYTES) {
+            return Err(too_large());
+        }
+        let mut bytes = Vec::new();
+        file.take(MAX_MODEL_BYTES + 1).read_to_end(&mut bytes).map_err(|e| Error::io(&shown, e))?;
+        if bytes.len() as u64 > MAX_MODEL_BYTES {
+            return Err(too_large());
+        }
+        ModelFile::from_bytes(&shown, &bytes, accept_edited)
     }
 
     /// Reads a costs file for this model: its classes, and no categorical
@@ -297,20 +420,31 @@ impl ModelFile {
         }
     }
 
-    /// Parses and validates model JSON; `path` is only used in messages.
+    /// Parses and validates model JSON, refusing an edited file; `path` is
+    /// only used in messages.
     pub fn from_json(path: &str, text: &str) -> Result<ModelFile> {
+        ModelFile::from_bytes(path, text.as_bytes(), false).map(|(file, _)| file)
+    }
+
+    /// Parses model JSON: the format and its version first (from a pass
+    /// that keeps nothing else), then the content, straight into the
+    /// typed model (no intermediate JSON tree, so memory stays near the
+    /// file's size), then the checksum, then consistency.
+    pub fn from_bytes(path: &str, bytes: &[u8], accept_edited: bool) -> Result<(ModelFile, Integrity)> {
         let bad = |message: String| Error::ModelFile { path: path.to_string(), message };
-        let value: serde_json::Value = serde_json::from_str(text).map_err(|e| {
+        let preamble: Preamble = serde_json::from_slice(bytes).map_err(|e| {
             if e.is_eof() {
                 bad(format!("the model file is truncated (it ends at line {}, column {})", e.line(), e.column()))
+            } else if e.is_data() {
+                bad(format!("not a baserate model file (no \"format\": \"{FORMAT}\")"))
             } else {
                 bad(format!("not a valid model file: {e}"))
             }
         })?;
-        if value.get("format").and_then(|f| f.as_str()) != Some(FORMAT) {
+        if preamble.format.as_ref().and_then(|f| f.as_str()) != Some(FORMAT) {
             return Err(bad(format!("not a baserate model file (no \"format\": \"{FORMAT}\")")));
         }
-        let version = value.get("format_version").and_then(|v| v.as_u64()).unwrap_or(0);
+        let version = preamble.format_version.as_ref().and_then(|v| v.as_u64()).unwrap_or(0);
         if version > u64::from(FORMAT_VERSION) {
             return Err(bad(format!(
                 "the model file has format version {version}, written by a newer baserate; this build ({}) reads up to version {FORMAT_VERSION}",
@@ -320,10 +454,40 @@ impl ModelFile {
         if version == 0 {
             return Err(bad("the model file has no valid format_version".into()));
         }
-        let file: ModelFile =
-            serde_json::from_value(value).map_err(|e| bad(format!("the model file is corrupt: {e}")))?;
+        let mut file: ModelFile =
+            serde_json::from_slice(bytes).map_err(|e| bad(format!("the model file is corrupt: {e}")))?;
+        let integrity = file.integrity(path, version, accept_edited)?;
         file.validate().map_err(|m| bad(format!("the model file is corrupt: {m}")))?;
-        Ok(file)
+        Ok((file, integrity))
+    }
+
+    /// Checks the checksum of a file just read (format `version`).
+    fn integrity(&mut self, path: &str, version: u64, accept_edited: bool) -> Result<Integrity> {
+        let written = self.checksum.take();
+        let edited = |detail: String| {
+            if accept_edited {
+                Ok(Integrity::EditAccepted)
+            } else {
+                Err(Error::EditedModel { path: path.to_string(), detail })
+            }
+        };
+        let outcome = match (&written, version) {
+            (None, 1) => Ok(Integrity::NoChecksum),
+            (None, _) => edited(format!("the model file has no checksum, though every file of format version {version} is written with one")),
+            (Some(written), _) => {
+                let actual = self.content_checksum().map_err(|e| Error::ModelFile {
+                    path: path.to_string(),
+                    message: format!("the model's content could not be checked: {e}"),
+                })?;
+                if *written == actual {
+                    Ok(Integrity::Verified)
+                } else {
+                    edited("the model file's content does not match its checksum".to_string())
+                }
+            }
+        };
+        self.checksum = written;
+        outcome
     }
 
     /// Checks internal consistency.

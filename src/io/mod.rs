@@ -1,9 +1,53 @@
-//! Small file-system helpers shared by the library's writers.
+//! The file system as the library's writers use it:
+//!
+//! - outputs written whole or not at all ([`write_atomic`], [`AtomicFile`]):
+//!   into a temporary file beside the target, renamed into place when done;
+//! - a run's hold on its outputs ([`claim`]): a lock beside each, and stale
+//!   temporary files of killed runs removed;
+//! - temporary files removed when the process is interrupted ([`signals`]);
+//! - no output on an input ([`check_outputs`]), hashes and timestamps.
+
+pub mod claim;
+#[cfg(unix)]
+pub mod signals;
+#[cfg(not(unix))]
+pub mod signals {
+    //! Interrupted runs on platforms without POSIX signals: nothing to do.
+    /// A file that would be removed on a signal.
+    #[derive(Debug)]
+    pub struct Registered;
+    /// Does nothing here.
+    pub fn register(_: &std::path::Path) -> Registered {
+        Registered
+    }
+    /// Does nothing here.
+    pub fn remove_on_signal() {}
+    /// Runs `work`.
+    pub fn deferred<T>(work: impl FnOnce() -> T) -> T {
+        work()
+    }
+}
 
 use std::io::Write;
-use std::path::Path;
+use std::path::{Path, PathBuf};
+
+pub use claim::{claim_outputs, OutputClaim};
+use signals::Registered;
 
 use crate::error::{Error, Result};
+
+/// The folder an output goes in (`.` for a bare name) and its file name.
+fn place_of(path: &Path) -> (PathBuf, String) {
+    let directory = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    let file_name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    (directory.to_path_buf(), file_name)
+}
+
+/// The temporary file beside `path` that this process writes it through.
+fn temporary_beside(path: &Path) -> PathBuf {
+    let (directory, name) = place_of(path);
+    directory.join(claim::temporary_name(&name, std::process::id()))
+}
 
 /// Writes `bytes` to `path` atomically: into a temporary file beside it,
 /// flushed to disk, then renamed over the target, so a failed or killed run
@@ -17,14 +61,13 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
     if is_special(path) {
         return std::fs::write(path, bytes).map_err(|e| Error::io(shown, e));
     }
-    let directory = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
-    let file_name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
-    let temporary = directory.join(format!(".{file_name}.partial-{}", std::process::id()));
+    let temporary = temporary_beside(path);
+    let _on_signal = signals::register(&temporary);
     let result = (|| {
         let mut file = std::fs::File::create(&temporary)?;
         file.write_all(bytes)?;
         file.sync_all()?;
-        std::fs::rename(&temporary, path)
+        signals::deferred(|| std::fs::rename(&temporary, path))
     })();
     if let Err(e) = result {
         let _ = std::fs::remove_file(&temporary);
@@ -90,9 +133,10 @@ pub fn utc_timestamp() -> String {
 /// a hidden `.NAME.partial-PID` file, never a partial target. `-` writes
 /// to stdout directly.
 pub struct AtomicFile {
-    target: std::path::PathBuf,
-    temporary: Option<std::path::PathBuf>,
+    target: PathBuf,
+    temporary: Option<PathBuf>,
     writer: Option<Box<dyn Write + Send>>,
+    _on_signal: Option<Registered>,
 }
 
 impl AtomicFile {
@@ -100,23 +144,28 @@ impl AtomicFile {
     pub fn create(path: &Path) -> Result<AtomicFile> {
         if path.as_os_str() == "-" {
             let stdout: Box<dyn Write + Send> = Box::new(std::io::BufWriter::with_capacity(1 << 20, std::io::stdout()));
-            return Ok(AtomicFile { target: path.to_path_buf(), temporary: None, writer: Some(stdout) });
+            return Ok(AtomicFile { target: path.to_path_buf(), temporary: None, writer: Some(stdout), _on_signal: None });
         }
         if is_special(path) {
             let file = std::fs::OpenOptions::new()
                 .write(true)
                 .open(path)
                 .map_err(|e| Error::io(path.display().to_string(), e))?;
-            return Ok(AtomicFile { target: path.to_path_buf(), temporary: None, writer: Some(Box::new(file)) });
+            return Ok(AtomicFile {
+                target: path.to_path_buf(),
+                temporary: None,
+                writer: Some(Box::new(file)),
+                _on_signal: None,
+            });
         }
-        let directory = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
-        let file_name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
-        let temporary = directory.join(format!(".{file_name}.partial-{}", std::process::id()));
+        let temporary = temporary_beside(path);
+        let on_signal = signals::register(&temporary);
         let file = std::fs::File::create(&temporary).map_err(|e| Error::io(path.display().to_string(), e))?;
         Ok(AtomicFile {
             target: path.to_path_buf(),
             temporary: Some(temporary),
             writer: Some(Box::new(std::io::BufWriter::with_capacity(1 << 20, file))),
+            _on_signal: Some(on_signal),
         })
     }
 
@@ -154,15 +203,18 @@ impl AtomicFile {
                 std::fs::File::open(temporary).and_then(|f| f.sync_all()).map_err(|e| Error::io(&shown, e))?;
             }
         }
-        for file in &mut files {
-            if let Some(temporary) = file.temporary.take() {
-                if let Err(e) = std::fs::rename(&temporary, &file.target) {
-                    let _ = std::fs::remove_file(&temporary);
-                    return Err(Error::io(file.shown(), e));
+        // A signal meanwhile waits until the set is in place.
+        signals::deferred(|| {
+            for file in &mut files {
+                if let Some(temporary) = file.temporary.take() {
+                    if let Err(e) = std::fs::rename(&temporary, &file.target) {
+                        let _ = std::fs::remove_file(&temporary);
+                        return Err(Error::io(file.shown(), e));
+                    }
                 }
             }
-        }
-        Ok(())
+            Ok(())
+        })
     }
 }
 
@@ -177,7 +229,7 @@ impl Drop for AtomicFile {
 
 /// True for an existing target that is not a regular file (`/dev/null`, a
 /// named pipe): it is written in place, never replaced by a rename.
-fn is_special(path: &Path) -> bool {
+pub(crate) fn is_special(path: &Path) -> bool {
     std::fs::metadata(path).is_ok_and(|m| !m.is_file() && !m.is_dir())
 }
 
