@@ -22,13 +22,37 @@ fn fitted(dir: &std::path::Path) -> String {
 }
 
 /// The model with its intercept moved by `delta` (the edit that once
-/// scored silently with posteriors 55 times smaller).
+/// scored silently with posteriors 55 times smaller), edited as text, as a
+/// person with an editor would.
 fn with_intercept_moved(text: &str, delta: f64) -> String {
-    let mut model: Value = serde_json::from_str(text).expect("json");
-    let intercept = &mut model["model"]["coefficients"][0]["intercept"];
-    let moved = intercept.as_f64().expect("intercept") + delta;
-    *intercept = Value::from(moved);
-    serde_json::to_string_pretty(&model).expect("json")
+    let start = text.find("\"intercept\": ").expect("intercept") + "\"intercept\": ".len();
+    let end = start + text[start..].find([',', '\n']).expect("end");
+    let moved = text[start..end].parse::<f64>().expect("number") + delta;
+    format!("{}{moved}{}", &text[..start], &text[end..])
+}
+
+/// The file without its checksum line (the last member).
+fn without_checksum(text: &str) -> String {
+    let start = text.find(",\n  \"checksum\"").expect("checksum");
+    let end = start + 2 + text[start + 2..].find('\n').expect("line end");
+    format!("{}{}", &text[..start], &text[end..])
+}
+
+/// The file as one line, whitespace outside strings removed.
+fn minified(text: &str) -> String {
+    let (mut out, mut in_string, mut escaped) = (String::new(), false, false);
+    for c in text.chars() {
+        if in_string {
+            in_string = escaped || c != '"';
+            escaped = !escaped && c == '\\';
+        } else if c.is_whitespace() {
+            continue;
+        } else {
+            in_string = c == '"';
+        }
+        out.push(c);
+    }
+    out
 }
 
 #[test]
@@ -40,8 +64,9 @@ fn an_edited_model_is_refused_unless_accepted_and_then_recorded() {
     assert_eq!(model["format_version"], 2);
     assert!(model["checksum"].as_str().is_some_and(|c| c.starts_with("sha256:") && c.len() == 71));
 
-    // Layout is not content: re-indented, the file still verifies.
-    let compact = serde_json::to_string(&model).expect("json");
+    // Layout is not content: on one line, the file still verifies.
+    let compact = minified(&good);
+    assert!(compact.len() < good.len() && !compact.contains('\n'));
     write(d, "compact.json", compact.as_bytes());
     let (code, json, err) = run(d, &["inspect", "compact.json", "--json", "-"]);
     assert_eq!(code, 0, "{err}");
@@ -82,16 +107,15 @@ fn an_edited_model_is_refused_unless_accepted_and_then_recorded() {
 
     // A version 2 file without its checksum is an edit too; a field the
     // format does not have (a padding array) is refused as corrupt.
-    let mut stripped = model.clone();
-    stripped.as_object_mut().expect("object").remove("checksum");
-    write(d, "stripped.json", stripped.to_string().as_bytes());
+    write(d, "stripped.json", without_checksum(&good).as_bytes());
     let (code, _, err) = run(d, &["inspect", "stripped.json"]);
     assert!(code == 1 && err.contains("has no checksum"), "{err}");
-    let mut padded = model.clone();
-    padded["padding"] = Value::from(vec![0; 1000]);
-    write(d, "padded.json", padded.to_string().as_bytes());
+    let padding = format!("{{\n  \"padding\": [{}],", vec!["0"; 1000].join(","));
+    write(d, "padded.json", good.replacen('{', &padding, 1).as_bytes());
     let (code, _, err) = run(d, &["inspect", "padded.json"]);
-    assert!(code == 1 && err.contains("padded.json") && err.contains("unknown field `padding`"), "{err}");
+    assert!(code == 1 && err.contains("padded.json") && err.contains("does not match its checksum"), "{err}");
+    let (code, _, err) = run(d, &["inspect", "padded.json", "--accept-edited-model"]);
+    assert!(code == 1 && err.contains("unknown field `padding`"), "{err}");
 }
 
 #[test]
@@ -99,10 +123,8 @@ fn a_file_of_the_earlier_format_loads_with_a_warning() {
     let dir = temp_dir();
     let d = dir.path();
     let good = fitted(d);
-    let mut model: Value = serde_json::from_str(&good).expect("json");
-    model.as_object_mut().expect("object").remove("checksum");
-    model["format_version"] = Value::from(1);
-    write(d, "v1.json", serde_json::to_string_pretty(&model).expect("json").as_bytes());
+    let v1 = without_checksum(&good).replacen("\"format_version\": 2", "\"format_version\": 1", 1);
+    write(d, "v1.json", v1.as_bytes());
     let (code, _, err) = run(d, &["score", "v1.json", "new.csv", "-o", "a.csv", "--summary", "s.json"]);
     assert_eq!(code, 0, "{err}");
     assert!(err.contains("v1.json") && err.contains("format version 1, which carries no checksum"), "{err}");
@@ -126,4 +148,13 @@ fn a_file_larger_than_any_model_is_refused_before_parsing() {
     assert_eq!(code, 1, "{err}");
     assert!(err.contains("huge.json") && err.contains("larger than 256 MiB"), "{err}");
     assert!(!d.join("out.csv").exists());
+    // Within the size bound, values packed densely (a known field padded
+    // with zeros) are refused on the first pass's count, before anything
+    // is built from them.
+    let good = std::fs::read_to_string(d.join("m.json")).expect("model");
+    let zeros = vec!["0"; 20_000_000].join(",");
+    let dense = good.replacen("\"prior\": [", &format!("\"prior\": [{zeros},"), 1);
+    write(d, "dense.json", dense.as_bytes());
+    let (code, _, err) = run(d, &["inspect", "dense.json", "--accept-edited-model"]);
+    assert!(code == 1 && err.contains("packed more densely than any model file"), "{err}");
 }

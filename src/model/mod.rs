@@ -168,8 +168,10 @@ pub struct Diagnostics {
     pub warnings: Vec<String>,
 }
 
-/// A fitted model of any family.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+/// A fitted model of any family. Written with its `family` first, and read
+/// the same way, straight into the family's parameters (see the
+/// `Deserialize` impl).
+#[derive(Debug, Clone, PartialEq, Serialize)]
 #[serde(tag = "family", rename_all = "kebab-case")]
 pub enum FittedModel {
     /// A logistic regression.
@@ -180,6 +182,39 @@ pub enum FittedModel {
     Lda(discriminant::DiscriminantModel),
     /// A QDA model.
     Qda(discriminant::DiscriminantModel),
+}
+
+/// Reads `{"family": F, ...}` with the family first, as it is written, and
+/// the rest straight into that family's parameters: serde's own reading of
+/// a tagged enum would first copy the whole object into a buffer, several
+/// times the file's size for a large covariance.
+impl<'de> Deserialize<'de> for FittedModel {
+    fn deserialize<D: serde::Deserializer<'de>>(deserializer: D) -> std::result::Result<Self, D::Error> {
+        struct FamilyFirst;
+        impl<'de> serde::de::Visitor<'de> for FamilyFirst {
+            type Value = FittedModel;
+
+            fn expecting(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+                f.write_str("a fitted model whose first field is \"family\"")
+            }
+
+            fn visit_map<A: serde::de::MapAccess<'de>>(self, mut map: A) -> std::result::Result<FittedModel, A::Error> {
+                use serde::de::Error as _;
+                if map.next_key::<String>()?.as_deref() != Some("family") {
+                    return Err(A::Error::custom("the fitted model's first field must be \"family\""));
+                }
+                let family: Family = map.next_value()?;
+                let rest = serde::de::value::MapAccessDeserializer::new(map);
+                Ok(match family {
+                    Family::Logistic => FittedModel::Logistic(Deserialize::deserialize(rest)?),
+                    Family::NaiveBayes => FittedModel::NaiveBayes(Deserialize::deserialize(rest)?),
+                    Family::Lda => FittedModel::Lda(Deserialize::deserialize(rest)?),
+                    Family::Qda => FittedModel::Qda(Deserialize::deserialize(rest)?),
+                })
+            }
+        }
+        deserializer.deserialize_map(FamilyFirst)
+    }
 }
 
 /// Fits a family on a dataset, with the dataset's own row weights.

@@ -39,6 +39,29 @@ pub const FORMAT_VERSION: u32 = 2;
 /// hundred inputs). A larger file is not a model a fit wrote.
 pub const MAX_MODEL_BYTES: u64 = 256 << 20;
 
+/// The memory a model file may take while it loads: this many times its
+/// size, plus a fixed allowance.
+#[derive(Debug, Clone, Copy)]
+pub struct LoadMemory {
+    /// Times the file's size.
+    pub per_byte: u64,
+    /// Bytes on top.
+    pub fixed: u64,
+}
+
+impl LoadMemory {
+    /// The bound for a file of `size` bytes.
+    pub fn bound(self, size: u64) -> u64 {
+        self.per_byte * size + self.fixed
+    }
+}
+
+/// Loading takes at most four times the file's size plus 50 MB: the bytes
+/// themselves, and the typed model, whose bound the first pass computes
+/// before anything is built (a file that would take more is refused). The
+/// files baserate writes take well under twice their size.
+pub const MAX_LOAD_MEMORY: LoadMemory = LoadMemory { per_byte: 4, fixed: 50_000_000 };
+
 /// How a loaded model file stands against its checksum.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "kebab-case")]
@@ -149,27 +172,6 @@ pub struct ModelFile {
     /// documentation); set when the file is written, checked when loaded.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub checksum: Option<String>,
-}
-
-/// The first fields of a model file, read before the rest.
-#[derive(Deserialize)]
-struct Preamble {
-    format: Option<serde_json::Value>,
-    format_version: Option<serde_json::Value>,
-}
-
-/// Feeds what is written to a SHA-256.
-struct Hashing(sha2::Sha256);
-
-impl std::io::Write for Hashing {
-    fn write(&mut self, bytes: &[u8]) -> std::io::Result<usize> {
-        sha2::Digest::update(&mut self.0, bytes);
-        Ok(bytes.len())
-    }
-
-    fn flush(&mut self) -> std::io::Result<()> {
-        Ok(())
-    }
 }
 
 /// What out-of-fold predictions of the training rows showed.
@@ -350,10 +352,9 @@ impl ModelFile {
     /// `sha256:` and the SHA-256 of the canonical form: compact JSON of
     /// everything but the checksum (which must be `None` here).
     fn content_checksum(&self) -> std::result::Result<String, serde_json::Error> {
-        let mut hashing = Hashing(sha2::Digest::new());
+        let mut hashing = crate::train::checksum::Hashing::new();
         serde_json::to_writer(&mut hashing, self)?;
-        let digest = sha2::Digest::finalize(hashing.0);
-        Ok(format!("sha256:{}", digest.iter().map(|b| format!("{b:02x}")).collect::<String>()))
+        Ok(hashing.finish())
     }
 
     /// Writes the file atomically.
@@ -426,25 +427,27 @@ impl ModelFile {
         ModelFile::from_bytes(path, text.as_bytes(), false).map(|(file, _)| file)
     }
 
-    /// Parses model JSON: the format and its version first (from a pass
-    /// that keeps nothing else), then the content, straight into the
-    /// typed model (no intermediate JSON tree, so memory stays near the
-    /// file's size), then the checksum, then consistency.
+    /// Parses model JSON in two passes. The first streams through the
+    /// bytes keeping almost nothing: the format and its version, the
+    /// checksum against the canonical form, and a bound on the memory the
+    /// content would take. An edited file, or one packed more densely than
+    /// [`MAX_LOAD_MEMORY`] allows, is refused there. The second builds the
+    /// typed model straight from the bytes, then checks its consistency.
     pub fn from_bytes(path: &str, bytes: &[u8], accept_edited: bool) -> Result<(ModelFile, Integrity)> {
         let bad = |message: String| Error::ModelFile { path: path.to_string(), message };
-        let preamble: Preamble = serde_json::from_slice(bytes).map_err(|e| {
+        let scan = crate::train::checksum::scan(bytes).map_err(|e| {
             if e.is_eof() {
                 bad(format!("the model file is truncated (it ends at line {}, column {})", e.line(), e.column()))
-            } else if e.is_data() {
+            } else if e.is_data() && e.line() <= 1 && e.column() <= 1 {
                 bad(format!("not a baserate model file (no \"format\": \"{FORMAT}\")"))
             } else {
                 bad(format!("not a valid model file: {e}"))
             }
         })?;
-        if preamble.format.as_ref().and_then(|f| f.as_str()) != Some(FORMAT) {
+        if scan.format.as_deref() != Some(FORMAT) {
             return Err(bad(format!("not a baserate model file (no \"format\": \"{FORMAT}\")")));
         }
-        let version = preamble.format_version.as_ref().and_then(|v| v.as_u64()).unwrap_or(0);
+        let version = scan.format_version.unwrap_or(0);
         if version > u64::from(FORMAT_VERSION) {
             return Err(bad(format!(
                 "the model file has format version {version}, written by a newer baserate; this build ({}) reads up to version {FORMAT_VERSION}",
@@ -454,40 +457,31 @@ impl ModelFile {
         if version == 0 {
             return Err(bad("the model file has no valid format_version".into()));
         }
-        let mut file: ModelFile =
-            serde_json::from_slice(bytes).map_err(|e| bad(format!("the model file is corrupt: {e}")))?;
-        let integrity = file.integrity(path, version, accept_edited)?;
-        file.validate().map_err(|m| bad(format!("the model file is corrupt: {m}")))?;
-        Ok((file, integrity))
-    }
-
-    /// Checks the checksum of a file just read (format `version`).
-    fn integrity(&mut self, path: &str, version: u64, accept_edited: bool) -> Result<Integrity> {
-        let written = self.checksum.take();
-        let edited = |detail: String| {
+        let edited = |detail: &str| {
             if accept_edited {
                 Ok(Integrity::EditAccepted)
             } else {
-                Err(Error::EditedModel { path: path.to_string(), detail })
+                Err(Error::EditedModel { path: path.to_string(), detail: detail.to_string() })
             }
         };
-        let outcome = match (&written, version) {
-            (None, 1) => Ok(Integrity::NoChecksum),
-            (None, _) => edited(format!("the model file has no checksum, though every file of format version {version} is written with one")),
-            (Some(written), _) => {
-                let actual = self.content_checksum().map_err(|e| Error::ModelFile {
-                    path: path.to_string(),
-                    message: format!("the model's content could not be checked: {e}"),
-                })?;
-                if *written == actual {
-                    Ok(Integrity::Verified)
-                } else {
-                    edited("the model file's content does not match its checksum".to_string())
-                }
-            }
+        let integrity = match (&scan.checksum, version) {
+            (None, 1) => Integrity::NoChecksum,
+            (None, _) => edited("the model file has no checksum, though every file of its format version is written with one")?,
+            (Some(written), _) if *written == scan.digest => Integrity::Verified,
+            (Some(_), _) => edited("the model file's content does not match its checksum")?,
         };
-        self.checksum = written;
-        outcome
+        let size = bytes.len() as u64;
+        if size + scan.memory_bound() > MAX_LOAD_MEMORY.bound(size) {
+            return Err(bad(format!(
+                "the file holds {} values in {} bytes, packed more densely than any model file baserate writes; it is not a model as fitted",
+                scan.scalars + scan.strings + scan.containers,
+                size
+            )));
+        }
+        let file: ModelFile =
+            serde_json::from_slice(bytes).map_err(|e| bad(format!("the model file is corrupt: {e}")))?;
+        file.validate().map_err(|m| bad(format!("the model file is corrupt: {m}")))?;
+        Ok((file, integrity))
     }
 
     /// Checks internal consistency.

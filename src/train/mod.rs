@@ -4,6 +4,7 @@
 //! them, assembled by one builder ([`file::ModelFileBuilder`]) whatever the
 //! source (a file's rows or an engine's aggregates).
 
+pub mod checksum;
 pub mod file;
 
 use crate::data::split::{assign, SplitPlan};
