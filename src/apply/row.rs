@@ -169,12 +169,12 @@ impl<'a> RowRules<'a> {
         }
     }
 
-    /// True when `problem` stops the reading instead of setting the row
-    /// aside: nowhere to put it, or a policy of `error`.
-    pub fn stops(&self, problem: &Problem) -> bool {
+    /// True when a row's problem stops the reading instead of setting the
+    /// row aside: only when there is nowhere to put it. With a place for
+    /// rejects every row-level problem sets the row aside, whatever the
+    /// policy; a policy of `error` decides what the stop says.
+    pub fn stops(&self, _problem: &Problem) -> bool {
         !self.keep_rejects
-            || (problem.reason == RejectReason::MissingValue && self.missing == MissingPolicy::Error)
-            || (problem.reason == RejectReason::UnseenCategory && self.unseen == UnseenPolicy::Error)
     }
 
     /// The error that stops a reading at `line` for `problem`.
@@ -297,7 +297,8 @@ pub fn reject_fields(problem: &Problem, record: &[u8]) -> Vec<u8> {
     out.push(b',');
     push_field(&mut out, problem.message.as_bytes());
     out.push(b',');
-    push_field(&mut out, String::from_utf8_lossy(record).as_bytes());
+    // The row's bytes as read, invalid UTF-8 and all.
+    push_field(&mut out, record);
     out.push(b'\n');
     out
 }
@@ -347,6 +348,13 @@ struct Slots {
 
 /// Parses one record into `rows`; on a problem the caller rolls back.
 /// (Most callers want [`read_rows`].)
+///
+/// A row's problems are found in a fixed order, and the first is the one
+/// reported: the record's size (`record-size`, found by the record
+/// layer), its quoting (`quoting`), its field count (`field-count`), then
+/// its fields from left to right, each checked for its bytes
+/// (`encoding`) before its value (`not-a-number`, `not-finite`,
+/// `unseen-category`, `missing-value`, `cost-value`).
 pub fn parse_row(
     rules: &RowRules<'_>,
     record: &[u8],
@@ -401,7 +409,11 @@ pub fn parse_row(
                 }
             }
             let end = memchr::memchr(delimiter, &record[position..]).map_or(n, |o| position + o);
-            take_field(rules, i, &record[position..end], rows, &slots, &mut filled, &mut unseen)?;
+            if let Err(problem) = take_field(rules, i, &record[position..end], rows, &slots, &mut filled, &mut unseen) {
+                // The field count comes first: a problem in a field of a
+                // row of the wrong width is the width.
+                return Err(if found() == width { problem } else { field_count(found()) });
+            }
             position = end + 1;
         }
         if position <= n {
@@ -444,6 +456,14 @@ fn take_field(
     let usage = &plan.fields[i];
     let field = trim(field);
     let column = || plan.names[i].clone();
+    // Checked where a value was not understood, so valid rows pay nothing.
+    let encoding = || {
+        std::str::from_utf8(field).is_err().then(|| Problem {
+            reason: RejectReason::Encoding,
+            column: column(),
+            message: "the value is not valid UTF-8".into(),
+        })
+    };
     if let Some(j) = usage.numeric {
         let feature = &plan.numeric[j];
         if rules.na.is_missing(field) {
@@ -475,6 +495,9 @@ fn take_field(
                     })
                 }
                 None => {
+                    if let Some(problem) = encoding() {
+                        return Err(problem);
+                    }
                     return Err(Problem {
                         reason: RejectReason::NotANumber,
                         column: column(),
@@ -491,20 +514,36 @@ fn take_field(
         } else {
             match feature.codes.get(field) {
                 Some(&code) => Some((code, true)),
-                None => match rules.unseen {
-                    UnseenPolicy::Missing => {
-                        unseen.push(c);
-                        // Counted as unseen, not as a missing value filled.
-                        feature.missing_code.map(|m| (m, true))
+                None => {
+                    if let Some(problem) = encoding() {
+                        return Err(problem);
                     }
-                    _ => {
-                        return Err(Problem {
-                            reason: RejectReason::UnseenCategory,
-                            column: column(),
-                            message: String::from_utf8_lossy(field).into_owned(),
-                        })
+                    let level = || String::from_utf8_lossy(field).into_owned();
+                    match (rules.unseen, feature.missing_code) {
+                        (UnseenPolicy::Missing, Some(m)) => {
+                            unseen.push(c);
+                            // Counted as unseen, not as a missing value filled.
+                            Some((m, true))
+                        }
+                        (UnseenPolicy::Missing, None) => {
+                            return Err(Problem {
+                                reason: RejectReason::MissingValue,
+                                column: column(),
+                                message: format!(
+                                    "the level '{}' was not seen in training and was taken as missing, as asked, but the model has no fill for a missing value in this column",
+                                    level()
+                                ),
+                            })
+                        }
+                        _ => {
+                            return Err(Problem {
+                                reason: RejectReason::UnseenCategory,
+                                column: column(),
+                                message: level(),
+                            })
+                        }
                     }
-                },
+                }
             }
         };
         match code {
@@ -524,12 +563,8 @@ fn take_field(
         }
     }
     if let Some(t) = usage.text {
-        if std::str::from_utf8(field).is_err() {
-            return Err(Problem {
-                reason: RejectReason::Encoding,
-                column: column(),
-                message: "the value is not valid UTF-8".into(),
-            });
+        if let Some(problem) = encoding() {
+            return Err(problem);
         }
         let start = rows.text.len();
         rows.text.extend_from_slice(field);
@@ -539,6 +574,9 @@ fn take_field(
         match parse_f64(field).filter(|x| x.is_finite()) {
             Some(x) => rows.costs[cost_start + slot] = x,
             None => {
+                if let Some(problem) = encoding() {
+                    return Err(problem);
+                }
                 return Err(Problem {
                     reason: RejectReason::CostValue,
                     column: column(),
