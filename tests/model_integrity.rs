@@ -86,10 +86,8 @@ fn an_edited_model_is_refused_unless_accepted_and_then_recorded() {
     }
     assert!(!d.join("out.csv").exists());
 
-    let (code, _, err) = run(
-        d,
-        &["score", "edited.json", "new.csv", "-o", "out.csv", "--summary", "s.json", "--accept-edited-model"],
-    );
+    let (code, _, err) =
+        run(d, &["score", "edited.json", "new.csv", "-o", "out.csv", "--summary", "s.json", "--accept-edited-model"]);
     assert_eq!(code, 0, "{err}");
     assert!(err.contains("warning: edited.json has been edited"), "{err}");
     let summary: Value = serde_json::from_str(&std::fs::read_to_string(d.join("s.json")).expect("s")).expect("json");

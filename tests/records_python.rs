@@ -48,7 +48,7 @@ fn random_text(rng: &mut Rng) -> String {
 /// is — which leaves stray quotes inside unquoted fields.
 fn written(rng: &mut Rng, text: &str) -> String {
     let must = text.contains([',', '\n', '\r']);
-    if must || rng.next_u64() % 5 == 0 {
+    if must || rng.next_u64().is_multiple_of(5) {
         format!("\"{}\"", text.replace('"', "\"\""))
     } else {
         text.to_string()
@@ -61,7 +61,7 @@ fn generate(seed: u64, rows: usize) -> (Vec<u8>, Vec<Vec<String>>) {
     let mut rng = Rng::new(seed);
     let line_ends = ["\n", "\r\n", "\r"];
     let mut text = String::new();
-    if rng.next_u64() % 2 == 0 {
+    if rng.next_u64().is_multiple_of(2) {
         text.push('\u{feff}');
     }
     let mut records = vec![vec!["a".to_string(), "b".to_string(), "c".to_string(), "x".to_string()]];
@@ -74,7 +74,7 @@ fn generate(seed: u64, rows: usize) -> (Vec<u8>, Vec<Vec<String>>) {
         text.push_str(&shown.join(","));
         records.push(fields);
     }
-    if rng.next_u64() % 2 == 0 {
+    if rng.next_u64().is_multiple_of(2) {
         text.push_str(line_ends[(rng.next_u64() % 3) as usize]);
     }
     (text.into_bytes(), records)

@@ -38,7 +38,7 @@ fn random_number(rng: &mut Rng) -> String {
         text.push('.');
         text.push_str(&digits(rng, fraction_len));
     }
-    if rng.next_u64() % 4 == 0 {
+    if rng.next_u64().is_multiple_of(4) {
         text.push_str(&format!("e{}", (rng.next_u64() % 80) as i64 - 40));
     }
     text

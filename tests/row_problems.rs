@@ -127,10 +127,7 @@ fn rejects_keep_the_raw_bytes_and_invalid_utf8_is_an_encoding_problem() {
     assert_eq!(code, 0, "{err}");
     let found = rejects(d);
     let columns: Vec<(&str, &str)> = found.iter().map(|r| (r.1.as_str(), r.2.as_str())).collect();
-    assert_eq!(
-        columns,
-        [("channel", "encoding"), ("income", "encoding"), ("id", "encoding"), ("channel", "encoding")]
-    );
+    assert_eq!(columns, [("channel", "encoding"), ("income", "encoding"), ("id", "encoding"), ("channel", "encoding")]);
     // The row field holds each record's bytes as read (line end aside).
     let raw: Vec<&[u8]> = [bad_level, bad_number, bad_id].iter().map(|r| &r[..r.len() - 1]).collect();
     for (found, raw) in found.iter().zip(raw) {

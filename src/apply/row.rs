@@ -502,7 +502,7 @@ fn take_field(
                         reason: RejectReason::NotANumber,
                         column: column(),
                         message: format!("'{}' is not a number", String::from_utf8_lossy(field)),
-                    })
+                    });
                 }
             }
         }
@@ -584,7 +584,7 @@ fn take_field(
                         "the costs read this column, and '{}' is not a finite number",
                         String::from_utf8_lossy(field)
                     ),
-                })
+                });
             }
         }
     }

@@ -33,8 +33,8 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     )?;
     let (file, integrity) = args.loading.load(&args.model)?;
     if let Some(path) = &args.json {
-        let text =
-            serde_json::to_string_pretty(&inspect_json(&file, integrity)).map_err(|e| baserate::Error::Usage(e.to_string()))?;
+        let text = serde_json::to_string_pretty(&inspect_json(&file, integrity))
+            .map_err(|e| baserate::Error::Usage(e.to_string()))?;
         write_atomic(path, format!("{text}\n").as_bytes())?;
         if path.as_os_str() == "-" {
             return Ok(ExitCode::SUCCESS);

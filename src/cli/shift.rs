@@ -55,7 +55,7 @@ pub struct Args {
     pub json: Option<PathBuf>,
     /// Loading the model (the model form).
     #[command(flatten)]
-    pub model: crate::cli::model_arg::ModelArgs,
+    pub loading: crate::cli::model_arg::ModelArgs,
 }
 
 /// Reads a prior from a `shift --json` file: `PATH` (EM) or `PATH:METHOD`.
@@ -103,7 +103,7 @@ fn model_form(
     delimiter: u8,
     options: &ShiftOptions,
 ) -> baserate::Result<ShiftEstimate> {
-    let (file, integrity) = args.model.load(model)?;
+    let (file, integrity) = args.loading.load(model)?;
     let missing = parse_missing(args.apply.policies.missing.as_deref())?;
     check_place_for_rejects(args.apply.policies.unseen, missing, args.apply.rejects.is_some())?;
     let request = ScoringRequest {

@@ -109,12 +109,8 @@ pub fn scoring_sql(file: &ModelFile, request: &ScoringRequest) -> Result<String>
     }
     let missing = request.missing.unwrap_or(file.schema.missing_policy);
     let cost_columns = request.costs.as_ref().map(|s| s.columns()).unwrap_or_default();
-    for c in &cost_columns {
-        if file.schema.categorical_inputs().iter().any(|f| f.name == *c) {
-            return Err(Error::Usage(format!(
-                "the costs use column '{c}', which the model reads as categorical, not numeric"
-            )));
-        }
+    if let Some(spec) = &request.costs {
+        file.check_cost_columns(spec, &request.table)?;
     }
     // The plan `score` would make for a table holding exactly the columns
     // named: the same fills, indicators and level codes.

@@ -128,9 +128,8 @@ fn remove_stale(directory: &Path, name: &str) -> Vec<PathBuf> {
     for entry in entries.flatten() {
         let file_name = entry.file_name();
         let Some(text) = file_name.to_str() else { continue };
-        let is_stale = text
-            .strip_prefix(&prefix)
-            .is_some_and(|pid| !pid.is_empty() && pid.bytes().all(|b| b.is_ascii_digit()));
+        let is_stale =
+            text.strip_prefix(&prefix).is_some_and(|pid| !pid.is_empty() && pid.bytes().all(|b| b.is_ascii_digit()));
         if is_stale && std::fs::remove_file(entry.path()).is_ok() {
             removed.push(entry.path());
         }

@@ -144,7 +144,12 @@ impl AtomicFile {
     pub fn create(path: &Path) -> Result<AtomicFile> {
         if path.as_os_str() == "-" {
             let stdout: Box<dyn Write + Send> = Box::new(std::io::BufWriter::with_capacity(1 << 20, std::io::stdout()));
-            return Ok(AtomicFile { target: path.to_path_buf(), temporary: None, writer: Some(stdout), _on_signal: None });
+            return Ok(AtomicFile {
+                target: path.to_path_buf(),
+                temporary: None,
+                writer: Some(stdout),
+                _on_signal: None,
+            });
         }
         if is_special(path) {
             let file = std::fs::OpenOptions::new()

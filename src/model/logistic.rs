@@ -550,7 +550,7 @@ pub fn fit(
     };
     let parameter_name = |i: usize| {
         let class = &classes[order[i / width]];
-        let term = if i % width == 0 { "(intercept)".to_string() } else { terms[i % width - 1].clone() };
+        let term = if i.is_multiple_of(width) { "(intercept)".to_string() } else { terms[i % width - 1].clone() };
         if q > 1 {
             format!("{term} [{class}]")
         } else {

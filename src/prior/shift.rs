@@ -180,7 +180,7 @@ fn estimate(input: &ShiftInput<'_>, options: &ShiftOptions) -> Result<ShiftEstim
     let positive = input.positive;
     let training = input.training_prior;
     let posteriors = input.posteriors;
-    if k < 2 || training.len() != k || positive >= k || posteriors.len() % k != 0 {
+    if k < 2 || training.len() != k || positive >= k || !posteriors.len().is_multiple_of(k) {
         return Err(Error::Usage("the shift estimate needs posteriors for two or more classes".into()));
     }
     let n = posteriors.len() / k;

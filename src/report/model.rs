@@ -261,7 +261,9 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
     );
     out.push_str(&match (integrity, &file.checksum) {
         (Integrity::Verified, Some(sum)) => format!("content checksum verified ({}…)\n", &sum[..sum.len().min(19)]),
-        (Integrity::EditAccepted, _) => "content EDITED since it was fitted (checksum does not match; accepted)\n".into(),
+        (Integrity::EditAccepted, _) => {
+            "content EDITED since it was fitted (checksum does not match; accepted)\n".into()
+        }
         _ => "no content checksum (format version 1); edits cannot be detected\n".into(),
     });
     let mix: Vec<String> = file

@@ -86,7 +86,10 @@ impl Scan {
 pub fn scan(bytes: &[u8]) -> Result<Scan, serde_json::Error> {
     let mut sink = Sink { hash: Hashing::new(), scan: Scan::default(), kept: None };
     let mut deserializer = serde_json::Deserializer::from_slice(bytes);
-    DeserializeSeed::deserialize(Top(&mut sink), &mut deserializer)?;
+    DeserializeSeed::deserialize(
+        Canonical { sink: &mut sink, comma: false, keep: false, top: true },
+        &mut deserializer,
+    )?;
     deserializer.end()?;
     let Sink { hash, mut scan, .. } = sink;
     scan.digest = hash.finish();
@@ -113,62 +116,15 @@ impl Sink {
     }
 }
 
-/// The top-level object: like [`Canonical`], but it keeps `format`,
-/// `format_version` and `checksum`, and leaves `checksum` out of the hash.
-struct Top<'s>(&'s mut Sink);
-
-impl<'de> DeserializeSeed<'de> for Top<'_> {
-    type Value = ();
-
-    fn deserialize<D: serde::Deserializer<'de>>(self, deserializer: D) -> Result<(), D::Error> {
-        deserializer.deserialize_map(self)
-    }
-}
-
-impl<'de> Visitor<'de> for Top<'_> {
-    type Value = ();
-
-    fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        f.write_str("a JSON object")
-    }
-
-    fn visit_map<A: MapAccess<'de>>(self, mut map: A) -> Result<(), A::Error> {
-        let sink = self.0;
-        sink.scan.containers += 1;
-        sink.put(b"{");
-        let mut first = true;
-        while let Some(key) = map.next_key::<std::borrow::Cow<'de, str>>()? {
-            if key == "checksum" {
-                // A string, or an error: never a large value kept whole.
-                sink.scan.checksum = Some(map.next_value::<String>()?);
-                continue;
-            }
-            if !first {
-                sink.put(b",");
-            }
-            first = false;
-            sink.string(&key);
-            sink.put(b":");
-            let keep = matches!(key.as_ref(), "format" | "format_version");
-            sink.kept = None;
-            map.next_value_seed(Canonical { sink: &mut *sink, comma: false, keep })?;
-            match (key.as_ref(), sink.kept.take()) {
-                ("format", Some(serde_json::Value::String(name))) => sink.scan.format = Some(name),
-                ("format_version", Some(version)) => sink.scan.format_version = version.as_u64(),
-                _ => {}
-            }
-        }
-        sink.put(b"}");
-        Ok(())
-    }
-}
-
 /// One value, written to the hash in canonical form (after a comma when
-/// it is not the first of its array).
+/// it is not the first of its array). The file's top-level object (`top`)
+/// must be an object; its `checksum` is kept and left out of the hash, and
+/// its `format` and `format_version` are kept (`keep`) as they go by.
 struct Canonical<'s> {
     sink: &'s mut Sink,
     comma: bool,
     keep: bool,
+    top: bool,
 }
 
 impl Canonical<'_> {
@@ -189,7 +145,11 @@ impl<'de> DeserializeSeed<'de> for Canonical<'_> {
     type Value = ();
 
     fn deserialize<D: serde::Deserializer<'de>>(self, deserializer: D) -> Result<(), D::Error> {
-        deserializer.deserialize_any(self)
+        if self.top {
+            deserializer.deserialize_map(self)
+        } else {
+            deserializer.deserialize_any(self)
+        }
     }
 }
 
@@ -197,7 +157,7 @@ impl<'de> Visitor<'de> for Canonical<'_> {
     type Value = ();
 
     fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        f.write_str("a JSON value")
+        f.write_str(if self.top { "a JSON object" } else { "a JSON value" })
     }
 
     fn visit_bool<E>(self, v: bool) -> Result<(), E> {
@@ -245,7 +205,7 @@ impl<'de> Visitor<'de> for Canonical<'_> {
         self.sink.scan.containers += 1;
         self.sink.put(b"[");
         let mut comma = false;
-        while seq.next_element_seed(Canonical { sink: &mut *self.sink, comma, keep: false })?.is_some() {
+        while seq.next_element_seed(Canonical { sink: &mut *self.sink, comma, keep: false, top: false })?.is_some() {
             comma = true;
         }
         self.sink.put(b"]");
@@ -254,19 +214,32 @@ impl<'de> Visitor<'de> for Canonical<'_> {
 
     fn visit_map<A: MapAccess<'de>>(mut self, mut map: A) -> Result<(), A::Error> {
         self.start();
-        self.sink.scan.containers += 1;
-        self.sink.put(b"{");
+        let sink = self.sink;
+        sink.scan.containers += 1;
+        sink.put(b"{");
         let mut first = true;
         while let Some(key) = map.next_key::<std::borrow::Cow<'de, str>>()? {
+            if self.top && key == "checksum" {
+                // A string, or an error: never a large value kept whole.
+                sink.scan.checksum = Some(map.next_value::<String>()?);
+                continue;
+            }
             if !first {
-                self.sink.put(b",");
+                sink.put(b",");
             }
             first = false;
-            self.sink.string(&key);
-            self.sink.put(b":");
-            map.next_value_seed(Canonical { sink: &mut *self.sink, comma: false, keep: false })?;
+            sink.string(&key);
+            sink.put(b":");
+            let keep = self.top && matches!(key.as_ref(), "format" | "format_version");
+            sink.kept = None;
+            map.next_value_seed(Canonical { sink: &mut *sink, comma: false, keep, top: false })?;
+            match (keep, key.as_ref(), sink.kept.take()) {
+                (true, "format", Some(serde_json::Value::String(name))) => sink.scan.format = Some(name),
+                (true, "format_version", Some(version)) => sink.scan.format_version = version.as_u64(),
+                _ => {}
+            }
         }
-        self.sink.put(b"}");
+        sink.put(b"}");
         Ok(())
     }
 }
@@ -277,12 +250,16 @@ mod tests {
 
     #[test]
     fn layout_is_not_content_but_values_are() {
-        let written = r#"{"format":"f","format_version":2,"a":[1.5,-2,3e300,"x\"y",null,true,{"b":0.1}],"checksum":"sha256:00"}"#;
+        let written =
+            r#"{"format":"f","format_version":2,"a":[1.5,-2,3e300,"x\"y",null,true,{"b":0.1}],"checksum":"sha256:00"}"#;
         let spaced = "{ \"format\" : \"f\",\n \"format_version\": 2, \"checksum\": \"sha256:11\",\n \"a\": [1.50, -2, 3.0e300, \"x\\\"y\", null, true, {\"b\": 1e-1}] }";
         let a = scan(written.as_bytes()).unwrap();
         let b = scan(spaced.as_bytes()).unwrap();
         assert_eq!(a.digest, b.digest);
-        assert_eq!((a.format.as_deref(), a.format_version, a.checksum.as_deref()), (Some("f"), Some(2), Some("sha256:00")));
+        assert_eq!(
+            (a.format.as_deref(), a.format_version, a.checksum.as_deref()),
+            (Some("f"), Some(2), Some("sha256:00"))
+        );
         let edited = scan(written.replace("1.5", "1.6").as_bytes()).unwrap();
         assert_ne!(a.digest, edited.digest);
         // The hash of the canonical bytes, with the checksum member left out.

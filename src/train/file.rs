@@ -466,7 +466,9 @@ impl ModelFile {
         };
         let integrity = match (&scan.checksum, version) {
             (None, 1) => Integrity::NoChecksum,
-            (None, _) => edited("the model file has no checksum, though every file of its format version is written with one")?,
+            (None, _) => {
+                edited("the model file has no checksum, though every file of its format version is written with one")?
+            }
             (Some(written), _) if *written == scan.digest => Integrity::Verified,
             (Some(_), _) => edited("the model file's content does not match its checksum")?,
         };

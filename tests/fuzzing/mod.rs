@@ -148,11 +148,8 @@ impl Harness {
         let _ = std::fs::remove_file(dir.join("rejects.csv"));
         let reference = reference_records(&case.bytes, case.max_record_bytes);
         let score = |chunk_bytes: usize| -> Result<ScoreRun, String> {
-            let outputs = Outputs {
-                scores: dir.join("scores.csv"),
-                rejects: Some(dir.join("rejects.csv")),
-                summary: None,
-            };
+            let outputs =
+                Outputs { scores: dir.join("scores.csv"), rejects: Some(dir.join("rejects.csv")), summary: None };
             let job = ScoreJob {
                 data: data.clone(),
                 prior: self.model.prior.clone(),
@@ -178,14 +175,15 @@ impl Harness {
                     }
                     let scores = std::fs::read(&outputs.scores).map_err(|e| e.to_string())?;
                     let rejects = std::fs::read(dir.join("rejects.csv")).map_err(|e| e.to_string())?;
-                    Ok(ScoreRun::Done { summary, scores, rejects })
+                    Ok(ScoreRun::Done { summary: Box::new(summary), scores, rejects })
                 }
                 Err(error) => {
                     let text = error.to_string();
                     if text.is_empty() {
                         return Err("an error without a message".into());
                     }
-                    let written: Vec<_> = ["scores.csv", "rejects.csv"].iter().filter(|n| dir.join(n).exists()).collect();
+                    let written: Vec<_> =
+                        ["scores.csv", "rejects.csv"].iter().filter(|n| dir.join(n).exists()).collect();
                     if !written.is_empty() || !left.is_empty() {
                         return Err(format!("a refused run left {written:?} {left:?}: {text}"));
                     }
@@ -266,14 +264,18 @@ impl Harness {
         let args = ["score", "model.json", "data.csv", "-o", "out.csv", "--rejects", "r.csv", "--id", "id", "-q"];
         let mut args = args.to_vec();
         args.extend(["--unseen", unseen, "--max-record-bytes", &cap]);
-        let output = std::process::Command::new(program).args(&args).current_dir(dir).output().map_err(|e| e.to_string())?;
+        let output =
+            std::process::Command::new(program).args(&args).current_dir(dir).output().map_err(|e| e.to_string())?;
         let stderr = String::from_utf8_lossy(&output.stderr);
         let code = output.status.code().unwrap_or(-1);
         let _ = ["out.csv", "r.csv", "model.json"].map(|n| std::fs::remove_file(dir.join(n)));
         match (refused, code) {
             (false, 0) => Ok(()),
             (true, 1) if stderr.starts_with("error: ") && stderr.contains("data.csv") => Ok(()),
-            _ => Err(format!("score exited {code} where the library {}: {stderr}", if refused { "refused" } else { "scored" })),
+            _ => Err(format!(
+                "score exited {code} where the library {}: {stderr}",
+                if refused { "refused" } else { "scored" }
+            )),
         }
     }
 
@@ -305,7 +307,7 @@ impl Default for Harness {
 }
 
 enum ScoreRun {
-    Done { summary: baserate::batch::Summary, scores: Vec<u8>, rejects: Vec<u8> },
+    Done { summary: Box<baserate::batch::Summary>, scores: Vec<u8>, rejects: Vec<u8> },
     Refused(String),
 }
 
@@ -323,18 +325,17 @@ fn check_inspect_program(program: &Path, dir: &Path, bytes: &[u8], refused: bool
     match (refused, code) {
         (false, 0) => Ok(()),
         (true, 1) if stderr.starts_with("error: case.json: ") => Ok(()),
-        _ => Err(format!("inspect exited {code} where the library {}: {stderr}", if refused { "refused" } else { "loaded" })),
+        _ => Err(format!(
+            "inspect exited {code} where the library {}: {stderr}",
+            if refused { "refused" } else { "loaded" }
+        )),
     }
 }
 
 /// Hidden files left in a case's folder (temporaries, locks).
 fn leftovers(dir: &Path) -> Result<Vec<String>, String> {
     let entries = std::fs::read_dir(dir).map_err(|e| e.to_string())?;
-    Ok(entries
-        .flatten()
-        .map(|e| e.file_name().to_string_lossy().into_owned())
-        .filter(|n| n.starts_with('.'))
-        .collect())
+    Ok(entries.flatten().map(|e| e.file_name().to_string_lossy().into_owned()).filter(|n| n.starts_with('.')).collect())
 }
 
 /// The records of a file the library wrote, by a general-purpose reader.
@@ -473,8 +474,8 @@ fn mutate_csv(bytes: &mut Vec<u8>, rng: &mut Rng) {
             bytes.splice(at..at, b"\n\n".iter().copied());
         }
         12 => {
-            let value: &[u8] =
-                [&b"nan"[..], b"inf", b"", b"NA", b"kiosk", b"-", b"1e999", b" 5 ", b"\"\""][(rng.next_u64() % 9) as usize];
+            let value: &[u8] = [&b"nan"[..], b"inf", b"", b"NA", b"kiosk", b"-", b"1e999", b" 5 ", b"\"\""]
+                [(rng.next_u64() % 9) as usize];
             bytes.splice(at..at, value.iter().copied());
         }
         _ => {
@@ -577,7 +578,8 @@ pub fn model_case(original: &[u8], seed: u64) -> Vec<u8> {
         1 => bytes.truncate((rng.next_u64() % bytes.len() as u64) as usize),
         2 => {
             // A digit changed: an edited number.
-            let digits: Vec<usize> = bytes.iter().enumerate().filter(|(_, b)| b.is_ascii_digit()).map(|(i, _)| i).collect();
+            let digits: Vec<usize> =
+                bytes.iter().enumerate().filter(|(_, b)| b.is_ascii_digit()).map(|(i, _)| i).collect();
             if !digits.is_empty() {
                 let at = digits[(rng.next_u64() % digits.len() as u64) as usize];
                 bytes[at] = b'0' + ((bytes[at] - b'0' + 1 + (rng.next_u64() % 9) as u8) % 10);
