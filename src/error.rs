@@ -114,6 +114,12 @@ pub enum Setting {
     SplitBy,
     /// A holdout file (`Dataset::read_with_holdout`).
     Holdout,
+    /// Bootstrap draws (`ShiftOptions::bootstrap`).
+    Bootstrap,
+    /// Worker threads (`ScoreJob::threads`).
+    Threads,
+    /// The field delimiter (`Dialect::delimiter`).
+    Delimiter,
     /// Loading a model whose content no longer matches its checksum
     /// (`ModelFile::open`'s `accept_edited`).
     AcceptEdited,
@@ -173,6 +179,9 @@ impl Setting {
             Setting::SplitBy => "split_by",
             Setting::Holdout => "holdout",
             Setting::AcceptEdited => "accept_edited",
+            Setting::Bootstrap => "bootstrap",
+            Setting::Threads => "threads",
+            Setting::Delimiter => "delimiter",
         }
     }
 

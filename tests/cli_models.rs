@@ -443,7 +443,7 @@ fn costs_drive_decisions_in_score_and_compare() {
     write(dir.path(), "bad.toml", b"[actions.approve]\ngood = 0\ndefaulted = 5\n");
     let (code, _, err) = run(dir.path(), &["score", "m.json", "new.csv", "--costs", "bad.toml", "-o", "x.csv"]);
     assert_eq!(code, 1);
-    assert!(err.contains("bad.toml") && err.contains("'good' is not a class"), "{err}");
+    assert!(err.contains("bad.toml") && err.contains("unknown key 'good': not a class"), "{err}");
     write(dir.path(), "nocol.toml", LENDING_COSTS.replace("amount_requested", "loan_size").as_bytes());
     let (code, _, err) = run(dir.path(), &["score", "m.json", "new.csv", "--costs", "nocol.toml", "-o", "x.csv"]);
     assert_eq!(code, 1);

@@ -211,3 +211,47 @@ impl Plan {
         })
     }
 }
+
+/// What a scoring output holds besides the passed-through columns.
+#[derive(Debug, Clone, Copy)]
+pub struct OutputShape<'a> {
+    /// The classes: one posterior column each.
+    pub classes: &'a [String],
+    /// `action` and `expected_cost` (costs were given).
+    pub decisions: bool,
+    /// `reason_1..reason_K`.
+    pub reasons: usize,
+    /// `reject_reason` (the SQL export's marker of a row not scored).
+    pub reject_reason: bool,
+}
+
+/// The column names of a scoring output, in order: the id columns, one
+/// posterior column per class, `action` and `expected_cost`, the reason
+/// codes, `reject_reason`, then the kept columns. The one place the output's
+/// names are made, for `score` and the SQL export alike. Two columns of one
+/// name are refused, naming it, before anything is written.
+pub fn output_columns(ids: &[String], shape: OutputShape<'_>, kept: &[String]) -> Result<Vec<String>> {
+    let mut names: Vec<String> = ids.to_vec();
+    names.extend(shape.classes.iter().map(|c| format!("p_{c}")));
+    if shape.decisions {
+        names.extend(["action".to_string(), "expected_cost".to_string()]);
+    }
+    names.extend((1..=shape.reasons).map(|i| format!("reason_{i}")));
+    if shape.reject_reason {
+        names.push("reject_reason".into());
+    }
+    names.extend(kept.iter().cloned());
+    for (i, name) in names.iter().enumerate() {
+        if names[..i].contains(name) {
+            return Err(Error::invalid(crate::error::message![
+                format!("the output would hold two columns named '{name}'; a column of "),
+                Setting::Ids,
+                " or ",
+                Setting::Keep,
+                " may not share a name with another, nor with a column the scoring writes (",
+                format!("p_<class>, action, expected_cost, reason_<k>, reject_reason); rename it in the data")
+            ]));
+        }
+    }
+    Ok(names)
+}

@@ -27,7 +27,7 @@ use std::path::PathBuf;
 
 use serde::Serialize;
 
-use crate::apply::plan::{Plan, PlanRequest};
+use crate::apply::plan::{output_columns, OutputShape, Plan, PlanRequest};
 use crate::apply::row::{Policies, RowRules, REJECT_HEADER};
 use crate::apply::{RejectReason, UnseenPolicy};
 use crate::batch::capacity::{limit, limited_actions, Ranking, Settled};
@@ -44,6 +44,10 @@ use crate::train::file::ModelFile;
 /// Default chunk size: large enough that per-chunk overhead vanishes,
 /// small enough that a few chunks per thread stay in flight.
 pub const DEFAULT_CHUNK_BYTES: usize = 1 << 20;
+
+/// The most worker threads a run starts: far more than any machine's cores,
+/// few enough that starting them is quick.
+pub const MAX_THREADS: usize = 1024;
 
 /// The largest chunk asked for is taken as this (1 GiB).
 pub const MAX_CHUNK_BYTES: usize = 1 << 30;
@@ -256,6 +260,13 @@ pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progre
         }
     };
     let plan = Plan::new(&shown, &names, &file.schema, &request)?;
+    let shape = OutputShape {
+        classes: &file.classes,
+        decisions: job.costs.is_some(),
+        reasons: reason_codes.as_ref().map_or(0, |c| c.count),
+        reject_reason: false,
+    };
+    let output_names = output_columns(&plan.text_names[..plan.id_count], shape, &plan.text_names[plan.id_count..])?;
     let positive = file.positive_index();
     let drift = file.drift_reference.as_ref().map(|reference| {
         let slots = plan
@@ -278,6 +289,12 @@ pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progre
         drift,
         positive,
     };
+    if job.threads > MAX_THREADS {
+        return Err(Error::invalid(crate::error::message![
+            Setting::Threads,
+            format!(" must be at most {MAX_THREADS} (0: one per core); got {}", job.threads)
+        ]));
+    }
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(job.threads)
         .build()
@@ -321,7 +338,7 @@ pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progre
         Some(path) => Some(AtomicFile::create(path)?),
         None => None,
     };
-    scores.write_all(&output_header(file, &plan, &context))?;
+    scores.write_all(&output_header(&output_names))?;
     if let Some(r) = rejects.as_mut() {
         r.write_all(REJECT_HEADER.as_bytes())?;
     }
@@ -368,17 +385,7 @@ fn open_input(job: &ScoreJob, shown: &str) -> Result<(Vec<String>, ChunkReader)>
 }
 
 /// The output's header line.
-fn output_header(file: &ModelFile, plan: &Plan, context: &Context<'_>) -> Vec<u8> {
-    let mut names: Vec<String> = plan.text_names[..plan.id_count].to_vec();
-    names.extend(file.classes.iter().map(|c| format!("p_{c}")));
-    if context.spec.is_some() {
-        names.push("action".into());
-        names.push("expected_cost".into());
-    }
-    if let Some(codes) = context.reasons {
-        names.extend((1..=codes.count).map(|i| format!("reason_{i}")));
-    }
-    names.extend(plan.text_names[plan.id_count..].iter().cloned());
+fn output_header(names: &[String]) -> Vec<u8> {
     let mut line = Vec::new();
     for (i, name) in names.iter().enumerate() {
         if i > 0 {

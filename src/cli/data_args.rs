@@ -85,7 +85,10 @@ pub struct PolicyArgs {
 pub fn parse_delimiter(text: &str) -> Result<u8> {
     match text {
         "tab" | "\\t" | "\t" => Ok(b'\t'),
-        t if t.len() == 1 && t.is_ascii() => Ok(t.as_bytes()[0]),
+        t if t.len() == 1 && t.is_ascii() => {
+            baserate::records::Dialect::check_delimiter(t.as_bytes()[0])?;
+            Ok(t.as_bytes()[0])
+        }
         t => Err(Error::Usage(format!("--delimiter takes one ASCII character or 'tab', not '{t}'"))),
     }
 }

@@ -280,17 +280,22 @@ pub fn parse_candidate(spec: &str) -> baserate::Result<Candidate> {
             .ok_or_else(|| Error::Usage(format!("--family {spec}: '{part}' is not OPTION=VALUE")))?;
         let number =
             |v: &str| v.parse::<f64>().map_err(|_| Error::Usage(format!("--family {spec}: '{v}' is not a number")));
+        // A count is a whole number as written: `2.7` is refused, never cut to 2.
+        let count = |v: &str| {
+            v.parse::<usize>()
+                .map_err(|_| Error::Usage(format!("--family {spec}: {key} takes a whole number; got '{v}'")))
+        };
         match key {
             "l2" => options.l2 = Some(number(value)?),
             "class-weight" => options.class_weight = Some(value.to_string()),
-            "max-iterations" => options.max_iterations = Some(number(value)? as usize),
+            "max-iterations" => options.max_iterations = Some(count(value)?),
             "tolerance" => options.tolerance = Some(number(value)?),
             "penalty" => options.penalty = Some(value.to_string()),
             "mixing" => options.mixing = Some(number(value)?),
             "lambda" => options.lambda = Some(value.to_string()),
-            "path-length" => options.path_length = Some(number(value)? as usize),
+            "path-length" => options.path_length = Some(count(value)?),
             "lambda-rule" => options.lambda_rule = Some(value.to_string()),
-            "cv-folds" => options.cv_folds = Some(number(value)? as usize),
+            "cv-folds" => options.cv_folds = Some(count(value)?),
             "smoothing" => options.smoothing = Some(number(value)?),
             "variance-floor" => options.variance_floor = Some(number(value)?),
             "shrinkage" => options.shrinkage = Some(value.to_string()),

@@ -95,6 +95,9 @@ pub fn flag(setting: Setting, value: Option<&str>) -> String {
     let flag = match setting {
         Setting::Target => "--target",
         Setting::AcceptEdited => "--accept-edited-model",
+        Setting::Bootstrap => "--bootstrap",
+        Setting::Threads => "--threads",
+        Setting::Delimiter => "--delimiter",
         Setting::Ids => "--id",
         Setting::Weight => "--weight",
         Setting::Exclude => "--exclude",

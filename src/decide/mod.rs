@@ -68,11 +68,26 @@ fn bad(path: &str, message: String) -> Error {
     Error::SchemaMismatch { path: path.to_string(), message: message.into() }
 }
 
+/// An unknown key, named with the closest known one (and the known ones
+/// when none is close).
+fn unknown_key(path: &str, place: &str, key: &str, known: &[String]) -> Error {
+    let hint = match crate::data::suggest::closest(key, known) {
+        Some(close) => format!("did you mean '{close}'?"),
+        None => format!("the keys here are {}", known.join(", ")),
+    };
+    bad(path, format!("{place}unknown key '{key}' ({hint})"))
+}
+
 impl CostSpec {
     /// Parses the TOML form of the command-line contract for these classes.
     pub fn parse(path: &str, text: &str, classes: &[String]) -> Result<CostSpec> {
         let value: toml::Table =
             text.parse().map_err(|e: toml::de::Error| bad(path, format!("not a valid costs file: {e}")))?;
+        // Every key is known: a typo (`[action.decline]`) must not drop an
+        // action silently.
+        if let Some(key) = value.keys().find(|k| k.as_str() != "actions") {
+            return Err(unknown_key(path, "", key, &["actions".to_string()]));
+        }
         let actions = value
             .get("actions")
             .and_then(|a| a.as_table())
@@ -85,6 +100,14 @@ impl CostSpec {
             let table = table.as_table().ok_or_else(|| bad(path, format!("[actions.{name}] must be a table")))?;
             let mut costs: Vec<Option<Cost>> = vec![None; classes.len()];
             let mut capacity = None;
+            if table.contains_key("capacity") && table.contains_key("capacity_share") {
+                return Err(bad(
+                    path,
+                    format!("{name}: give capacity (rows) or capacity_share (a share of the rows), not both"),
+                ));
+            }
+            let known: Vec<String> =
+                classes.iter().cloned().chain(["capacity".to_string(), "capacity_share".to_string()]).collect();
             for (key, entry) in table {
                 match key.as_str() {
                     "capacity" => {
@@ -108,22 +131,24 @@ impl CostSpec {
                     }
                     class => {
                         let k = classes.iter().position(|c| c == class).ok_or_else(|| {
+                            let hint = crate::data::suggest::closest(class, &known)
+                                .map(|c| format!("; did you mean '{c}'?"))
+                                .unwrap_or_default();
                             bad(
                                 path,
-                                format!("{name}: '{class}' is not a class of the target ({})", classes.join(", ")),
+                                format!(
+                                    "{name}: unknown key '{class}': not a class of the target ({}) nor capacity or capacity_share{hint}",
+                                    classes.join(", ")
+                                ),
                             )
                         })?;
                         let number = |v: &toml::Value| v.as_float().or_else(|| v.as_integer().map(|i| i as f64));
                         let cost = if let Some(x) = number(entry) {
                             Cost { fixed: x, rate: 0.0, column: None }
                         } else if let Some(t) = entry.as_table() {
-                            for k in t.keys() {
-                                if !["fixed", "rate", "column"].contains(&k.as_str()) {
-                                    return Err(bad(
-                                        path,
-                                        format!("{name}.{class}: unknown key '{k}' (fixed, rate, column)"),
-                                    ));
-                                }
+                            let parts = ["fixed".to_string(), "rate".to_string(), "column".to_string()];
+                            if let Some(k) = t.keys().find(|k| !parts.contains(k)) {
+                                return Err(unknown_key(path, &format!("{name}.{class}: "), k, &parts));
                             }
                             let fixed = t
                                 .get("fixed")
@@ -133,7 +158,12 @@ impl CostSpec {
                                 .get("rate")
                                 .map_or(Some(0.0), number)
                                 .ok_or_else(|| bad(path, format!("{name}.{class}: rate must be a number")))?;
-                            let column = t.get("column").map(|c| c.as_str().map(String::from)).unwrap_or(None);
+                            let column = match t.get("column") {
+                                None => None,
+                                Some(c) => Some(c.as_str().map(String::from).ok_or_else(|| {
+                                    bad(path, format!("{name}.{class}: column must be a column's name, in quotes"))
+                                })?),
+                            };
                             if rate != 0.0 && column.is_none() {
                                 return Err(bad(path, format!("{name}.{class}: a rate needs a column")));
                             }
@@ -457,10 +487,11 @@ mod tests {
         let c = classes();
         for (text, message) in [
             ("[actions.a]\ngood = 0\n", "no cost for class 'bad'"),
-            ("[actions.a]\ngood = 0\nbad = 1\nugly = 2\n", "'ugly' is not a class"),
+            ("[actions.a]\ngood = 0\nbad = 1\nugly = 2\n", "unknown key 'ugly': not a class"),
             ("[actions.a]\ngood = 0\nbad = 1\ncapacity = -3\n", "must not be negative"),
             ("[actions.a]\ngood = { rate = 2 }\nbad = 1\n", "a rate needs a column"),
-            ("nonsense = 1\n", "[actions.NAME]"),
+            ("nonsense = 1\n", "unknown key 'nonsense'"),
+            ("[actions.a]\ngood = 0\nbad = 1\n[other]\n", "unknown key 'other'"),
             ("[actions.a\n", "not a valid costs file"),
             ("[actions.a]\ngood = 0\nbad = 1\ncapacity = 3\n", "every action has a capacity"),
         ] {

@@ -125,6 +125,25 @@ pub struct HosmerLemeshow {
     pub p_value: f64,
 }
 
+/// The name of the AUC interval's construction, as the JSON gives it.
+pub const AUC_INTERVAL: &str = "logit";
+
+/// The 95% interval of an AUC from its (DeLong) standard error, made on the
+/// logit scale and mapped back, so it stays inside [0, 1]: logit(A) ±
+/// 1.96·SE/(A(1 − A)), the delta method's standard error of logit(A)
+/// (common practice; Pepe 2003, *The Statistical Evaluation of Medical
+/// Tests for Classification and Prediction*, ch. 5, from memory). An AUC
+/// of exactly 0 or 1 gives the point itself.
+pub fn auc_interval(auc: f64, se: f64) -> (f64, f64) {
+    if !(auc > 0.0 && auc < 1.0 && se.is_finite()) {
+        return (auc, auc);
+    }
+    let centre = (auc / (1.0 - auc)).ln();
+    let half = NORMAL_975 * se / (auc * (1.0 - auc));
+    let back = |z: f64| 1.0 / (1.0 + (-z).exp());
+    (back(centre - half), back(centre + half))
+}
+
 /// Every figure for one binary score.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct BinaryMetrics {
@@ -136,10 +155,13 @@ pub struct BinaryMetrics {
     pub auc: f64,
     /// DeLong standard error.
     pub auc_se: Option<f64>,
-    /// Lower end of the 95% interval (AUC ± 1.96 SE).
+    /// Lower end of the 95% interval (see [`auc_interval`]).
     pub auc_ci_low: Option<f64>,
     /// Upper end.
     pub auc_ci_high: Option<f64>,
+    /// How the interval is made: `logit` (see [`auc_interval`]).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub auc_interval: Option<&'static str>,
     /// 2·AUC − 1.
     pub gini: f64,
     /// max (TPR − FPR).
@@ -330,8 +352,9 @@ pub fn binary_metrics_with_placements(scores: &BinaryScores<'_>) -> (BinaryMetri
         base_rate,
         auc: placed.auc,
         auc_se: se,
-        auc_ci_low: se.map(|s| placed.auc - NORMAL_975 * s),
-        auc_ci_high: se.map(|s| placed.auc + NORMAL_975 * s),
+        auc_ci_low: se.map(|s| auc_interval(placed.auc, s).0),
+        auc_ci_high: se.map(|s| auc_interval(placed.auc, s).1),
+        auc_interval: se.map(|_| AUC_INTERVAL),
         gini: 2.0 * placed.auc - 1.0,
         ks,
         ks_threshold: to_probability(ks_cut),
@@ -588,6 +611,21 @@ pub fn multiclass_metrics(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn the_auc_interval_is_made_on_the_logit_scale_and_stays_in_the_unit_interval() {
+        // The closed form, evaluated in Python (math.log, math.exp):
+        // logistic(logit(0.9) ∓ 1.959963984540054 · 0.05 / 0.09).
+        let (low, high) = auc_interval(0.9, 0.05);
+        assert!(approx::relative_eq!(low, 0.7518224354681983, max_relative = 1e-12), "{low}");
+        assert!(approx::relative_eq!(high, 0.9639486410722317, max_relative = 1e-12), "{high}");
+        // Near 1, where AUC ± 1.96 SE would pass 1 (0.99 + 0.039).
+        let (low, high) = auc_interval(0.99, 0.02);
+        assert!(approx::relative_eq!(low, 0.6537573999657866, max_relative = 1e-12), "{low}");
+        assert!(approx::relative_eq!(high, 0.999807388563576, max_relative = 1e-12), "{high}");
+        assert!(high < 1.0);
+        assert_eq!(auc_interval(1.0, 0.0), (1.0, 1.0));
+    }
 
     #[test]
     fn murphy_decomposition_is_exact_on_binned_forecasts() {

@@ -277,8 +277,10 @@ pub fn evaluate(scores: &[TestedScore], options: &EvaluationOptions<'_>) -> Eval
                 metrics.auc = auc_by_repeat.iter().sum::<f64>() / auc_by_repeat.len() as f64;
                 let se = ses.iter().sum::<f64>() / ses.len() as f64;
                 metrics.auc_se = Some(se);
-                metrics.auc_ci_low = Some(metrics.auc - crate::tails::NORMAL_975 * se);
-                metrics.auc_ci_high = Some(metrics.auc + crate::tails::NORMAL_975 * se);
+                let (low, high) = crate::evaluate::metrics::auc_interval(metrics.auc, se);
+                metrics.auc_ci_low = Some(low);
+                metrics.auc_ci_high = Some(high);
+                metrics.auc_interval = Some(crate::evaluate::metrics::AUC_INTERVAL);
                 metrics.gini = 2.0 * metrics.auc - 1.0;
             }
             let curve = metrics.curves.clone();

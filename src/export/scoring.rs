@@ -32,7 +32,7 @@
 //! posteriors and a `reject_reason` (SQL has no portable way to stop a
 //! query with a message), so no row is dropped silently.
 
-use crate::apply::plan::{Fill, Plan, PlanRequest};
+use crate::apply::plan::{output_columns, Fill, OutputShape, Plan, PlanRequest};
 use crate::apply::RejectReason;
 use crate::apply::UnseenPolicy;
 use crate::data::options::MissingPolicy;
@@ -137,12 +137,15 @@ pub fn scoring_sql(file: &ModelFile, request: &ScoringRequest) -> Result<String>
     };
 
     // The final SELECT: the output columns of `score`, then the reason.
+    let shape =
+        OutputShape { classes: &file.classes, decisions: request.costs.is_some(), reasons: 0, reject_reason: true };
+    let names = output_columns(&request.ids, shape, &[])?;
     let mut output = Vec::new();
-    for (i, id) in request.ids.iter().enumerate() {
+    for (i, id) in names[..request.ids.len()].iter().enumerate() {
         output.push(format!("{} AS {}", col(&format!("__br_id{i}")), output_ident(dialect, id)?));
     }
-    for (c, class) in file.classes.iter().enumerate() {
-        output.push(format!("{} AS {}", col(&format!("__br_p{c}")), output_ident(dialect, &format!("p_{class}"))?));
+    for (c, name) in names[request.ids.len()..request.ids.len() + k].iter().enumerate() {
+        output.push(format!("{} AS {}", col(&format!("__br_p{c}")), output_ident(dialect, name)?));
     }
     if let (Some(spec), Some(last)) = (&request.costs, decision) {
         let chosen = col(&format!("__br_a{last}"));

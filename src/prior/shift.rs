@@ -11,7 +11,7 @@ use std::collections::BTreeMap;
 
 use serde::Serialize;
 
-use crate::error::{Error, Result};
+use crate::error::{Error, Result, Setting};
 use crate::format::percent;
 use crate::prior::{bbse, bootstrap_interval, em_probabilities, EM_TOLERANCE};
 use crate::tails::chi_square_upper;
@@ -33,6 +33,10 @@ pub struct ShiftInput<'a> {
     /// on training rows, for BBSE.
     pub confusion: Option<&'a [Vec<f64>]>,
 }
+
+/// The fewest bootstrap draws whose 2.5% and 97.5% quantiles are distinct
+/// order statistics (common practice asks for hundreds; 200 is the default).
+pub const MIN_BOOTSTRAP: usize = 40;
 
 /// How the intervals are drawn.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -186,6 +190,12 @@ fn estimate(input: &ShiftInput<'_>, options: &ShiftOptions) -> Result<ShiftEstim
     let n = posteriors.len() / k;
     if n == 0 {
         return Err(Error::Usage("the new portfolio has no rows".into()));
+    }
+    if options.bootstrap < MIN_BOOTSTRAP {
+        return Err(Error::invalid(crate::error::message![
+            Setting::Bootstrap,
+            format!(" must be at least {MIN_BOOTSTRAP} draws for a 95% interval; got {}", options.bootstrap)
+        ]));
     }
     let em = em_probabilities(posteriors, k, training, None, EM_TOLERANCE, None);
     let em_ci = bootstrap_interval(n, k, options.bootstrap, options.seed, |rows| {

@@ -40,6 +40,21 @@ impl Default for Dialect {
 }
 
 impl Dialect {
+    /// Refuses a delimiter the record rules cannot split by: the quote,
+    /// a line end, or a byte outside ASCII.
+    pub fn check_delimiter(delimiter: u8) -> crate::error::Result<()> {
+        if delimiter.is_ascii() && !matches!(delimiter, b'"' | b'\n' | b'\r') {
+            return Ok(());
+        }
+        Err(crate::error::Error::invalid(crate::error::message![
+            crate::error::Setting::Delimiter,
+            format!(
+                " cannot be {:?}: a quote and a line end have their own meaning in a CSV record",
+                delimiter as char
+            )
+        ]))
+    }
+
     /// A dialect with this delimiter and the default record-size cap.
     pub fn with_delimiter(delimiter: u8) -> Self {
         Dialect { delimiter, ..Dialect::default() }

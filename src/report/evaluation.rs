@@ -75,7 +75,7 @@ pub fn evaluation_text(e: &Evaluation) -> String {
         table.row(row);
     }
     out.push_str(&table.render());
-    out.push_str("* best in the column. AUC 95% CI from DeLong's variance");
+    out.push_str("* best in the column. AUC 95% CI from DeLong's variance, on the logit scale");
     if e.repeats > 1 {
         out.push_str(&format!("; AUC and its SE are means over the {} repeats", e.repeats));
     }

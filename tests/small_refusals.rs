@@ -1,0 +1,51 @@
+//! Settings that cannot mean anything are refused at once, naming the
+//! setting: a quote or a line end as the delimiter, a thread count no
+//! machine has, a bootstrap too small for an interval, a fractional count
+//! in a family option.
+
+mod common;
+
+use common::{run, temp_dir, write};
+
+fn fitted(dir: &std::path::Path) {
+    let mut text = String::from("id,x,y\n");
+    for i in 0..120 {
+        let x = (i % 13) as f64;
+        text.push_str(&format!(
+            "r{i},{x},{}\n",
+            if (i * 7) % 10 < 2 + (x > 8.0) as usize * 4 { "bad" } else { "good" }
+        ));
+    }
+    write(dir, "train.csv", text.as_bytes());
+    let (code, _, err) =
+        run(dir, &["fit", "train.csv", "--target", "y", "--id", "id", "--family", "lda", "-o", "m.json"]);
+    assert_eq!(code, 0, "{err}");
+}
+
+#[test]
+fn meaningless_settings_are_refused_naming_them() {
+    let dir = temp_dir();
+    let d = dir.path();
+    fitted(d);
+    let started = std::time::Instant::now();
+    for (args, message) in [
+        (vec!["describe", "train.csv", "--target", "y", "--delimiter", "\""], "--delimiter cannot be '\"'"),
+        (vec!["describe", "train.csv", "--target", "y", "--delimiter", "\n"], "--delimiter cannot be '\\n'"),
+        (
+            vec!["score", "m.json", "train.csv", "-o", "out.csv", "--threads", "100000"],
+            "--threads must be at most 1024",
+        ),
+        (vec!["shift", "m.json", "train.csv", "--bootstrap", "0"], "--bootstrap must be at least 40 draws"),
+        (
+            vec!["compare", "train.csv", "--target", "y", "--family", "logistic:max-iterations=2.7"],
+            "max-iterations takes a whole number; got '2.7'",
+        ),
+    ] {
+        let (code, _, err) = run(d, &args);
+        assert_eq!(code, 2, "{args:?}: {err}");
+        assert!(err.contains(message), "{args:?}: {err}");
+    }
+    // Refused at once, not after starting a hundred thousand threads.
+    assert!(started.elapsed() < std::time::Duration::from_secs(60));
+    assert!(!d.join("out.csv").exists());
+}
