@@ -526,6 +526,11 @@ pub enum Error {
         message: Message,
     },
 
+    /// Every candidate of a comparison failed: each one's name, the fold
+    /// where it failed and the error.
+    #[error("{}", self.describe(&parameter_names))]
+    EveryCandidateFailed(Vec<(String, String, std::sync::Arc<Error>)>),
+
     /// A model file's content no longer matches the checksum written with it.
     #[error("{}", self.describe(&parameter_names))]
     EditedModel {
@@ -679,6 +684,13 @@ impl Error {
             ),
             Error::SchemaMismatch { path, message } => format!("{path}: {}", message.render(names)),
             Error::Invalid(message) => message.render(names),
+            Error::EveryCandidateFailed(failures) => {
+                let each: Vec<String> = failures
+                    .iter()
+                    .map(|(candidate, place, error)| format!("{candidate} failed in {place}: {}", error.describe(names)))
+                    .collect();
+                format!("no candidate could be evaluated; {}", each.join("; "))
+            }
             Error::EditedModel { path, detail } => format!(
                 "{path}: {detail}, so the model is not the one that was fitted; fit it again, or, if the edit was deliberate, load it with {} (the acceptance is recorded in what the run writes)",
                 name(Setting::AcceptEdited)

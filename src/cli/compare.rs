@@ -57,6 +57,9 @@ pub struct Args {
     /// Also fit on growing training sizes and chart holdout log loss and AUC.
     #[arg(long)]
     pub learning_curve: bool,
+    /// Ends with exit code 1 when any family failed (by default, 1 only when every family failed).
+    #[arg(long)]
+    pub strict: bool,
     /// Write out-of-fold predictions (first repeat) to FILE.
     #[arg(long, value_name = "FILE")]
     pub predictions: Option<PathBuf>,
@@ -111,16 +114,17 @@ impl EvaluationArgs {
     /// unless the JSON went to stdout; true when the screen was printed.
     pub fn write_outputs(&self, study: &Study, description: &str) -> Result<bool, Failure> {
         if let Some(path) = &self.json {
-            let text = serde_json::to_string_pretty(&study.json()?).map_err(|e| Error::Usage(e.to_string()))?;
+            let text = serde_json::to_string_pretty(&study.json(&crate::cli::flag)?)
+                .map_err(|e| Error::Usage(e.to_string()))?;
             write_atomic(path, format!("{text}\n").as_bytes())?;
         }
         if let Some(path) = &self.report {
-            write_atomic(path, study_html(study, description).as_bytes())?;
+            write_atomic(path, study_html(study, &crate::cli::flag, description).as_bytes())?;
         }
         if self.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
             return Ok(false);
         }
-        print!("{}", study_screen(study, true));
+        print!("{}", study_screen(study, &crate::cli::flag, true));
         Ok(true)
     }
 }
@@ -210,6 +214,13 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let printed = args.evaluation.write_outputs(&study, &description)?;
     if let (true, Some(path)) = (printed, &args.evaluation.report) {
         println!("report written to {}", path.display());
+    }
+    for failed in &study.failed {
+        eprintln!("warning: {} failed {}", failed.name, failed.reason(&crate::cli::flag));
+    }
+    if args.strict && !study.failed.is_empty() {
+        eprintln!("--strict: {} of the families failed, so the run ends with exit code 1", study.failed.len());
+        return Ok(ExitCode::from(1));
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -193,8 +193,8 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         // and go on with the rest of the demo.
         match compare_families(dataset.clone(), &request) {
             Ok(study) => {
-                write_atomic(report, study_html(&study, &description).as_bytes())?;
-                print!("{}", study_screen(&study, false));
+                write_atomic(report, study_html(&study, &crate::cli::flag, &description).as_bytes())?;
+                print!("{}", study_screen(&study, &crate::cli::flag, false));
             }
             Err(e) => println!("comparison skipped: {}\n", wrap(&crate::cli::error_text(&e), 100, 2)),
         }

@@ -91,6 +91,18 @@ pub struct Predictions {
     pub log_posteriors: Vec<Array2<f64>>,
     /// Warnings from any fold's fit.
     pub warnings: Vec<String>,
+    /// Why the candidate could not be evaluated: the first fold whose fit
+    /// failed (the other candidates are evaluated as usual).
+    pub failure: Option<CandidateFailure>,
+}
+
+/// A candidate's failed fit: where, and the error.
+#[derive(Debug, Clone)]
+pub struct CandidateFailure {
+    /// The fold, as `repeat R, fold F` (or `fold F` without repeats).
+    pub place: String,
+    /// What went wrong.
+    pub error: std::sync::Arc<crate::Error>,
 }
 
 /// One fold's predictions: (candidate, repeat, test rows, log-posteriors, warnings).
@@ -98,7 +110,9 @@ type FoldPrediction = (usize, usize, Vec<usize>, Array2<f64>, Vec<String>);
 
 /// Fits every candidate on every training fold and predicts the fold's test
 /// rows. `prior`: the class mix posteriors are stated at (each training
-/// fold's own class mix when `None`).
+/// fold's own class mix when `None`). A candidate whose fit fails in some
+/// fold comes back with its [`Predictions::failure`]; the others are
+/// unaffected.
 pub fn cross_predict(
     dataset: &Dataset,
     candidates: &[Candidate],
@@ -213,6 +227,16 @@ pub fn cross_predict(
             let inner = inner_assignment(assignment, repeat, fold, &dataset.target, k, 17);
             let plain = Candidate::new(candidates[c].name.clone(), candidates[c].params.clone());
             let inner_predictions = cross_predict(dataset, &[plain], &inner, Some(&prior))?;
+            if let Some(failed) = &inner_predictions[0].failure {
+                return Err(crate::Error::FitFailed {
+                    family: candidates[c].params.family().name().into(),
+                    message: format!(
+                        "the calibration map's own cross-validation failed in {}: {}",
+                        failed.place, failed.error
+                    )
+                    .into(),
+                });
+            }
             let (mut log_odds, mut labels, mut weights) = (Vec::new(), Vec::new(), Vec::new());
             for (i, row) in inner_predictions[0].log_posteriors[0].rows().into_iter().enumerate() {
                 if !row[0].is_nan() {
@@ -237,10 +261,13 @@ pub fn cross_predict(
             diagnostics.warnings.iter().map(|w| format!("repeat {} fold {}: {w}", repeat + 1, fold + 1)).collect();
         Ok((c, repeat, rows, predictions, warnings))
     };
-    let fitted: Vec<Result<FoldPrediction>> = splits
+    let fitted: Vec<(usize, usize, usize, Result<FoldPrediction>)> = splits
         .iter()
         .flat_map(|&(repeat, fold)| {
-            (0..candidates.len()).into_par_iter().map(|c| fit_fold(c, repeat, fold)).collect::<Vec<_>>()
+            (0..candidates.len())
+                .into_par_iter()
+                .map(|c| (c, repeat, fold, fit_fold(c, repeat, fold)))
+                .collect::<Vec<_>>()
         })
         .collect();
 
@@ -251,10 +278,26 @@ pub fn cross_predict(
             family: Some(c.params.family()),
             log_posteriors: (0..assignment.folds.len()).map(|_| Array2::from_elem((n, k), f64::NAN)).collect(),
             warnings: Vec::new(),
+            failure: None,
         })
         .collect();
-    for result in fitted {
-        let (c, repeat, rows, predictions, warnings) = result?;
+    let repeated = assignment.folds.len() > 1;
+    for (c, repeat, fold, result) in fitted {
+        let (c, repeat, rows, predictions, warnings) = match result {
+            Ok(fitted) => fitted,
+            Err(error) => {
+                // The first failing fold, in fold order, is the one reported.
+                if out[c].failure.is_none() {
+                    let place = if repeated {
+                        format!("repeat {}, fold {}", repeat + 1, fold + 1)
+                    } else {
+                        format!("fold {}", fold + 1)
+                    };
+                    out[c].failure = Some(CandidateFailure { place, error: std::sync::Arc::new(error) });
+                }
+                continue;
+            }
+        };
         let target = &mut out[c].log_posteriors[repeat];
         for (i, &r) in rows.iter().enumerate() {
             for class in 0..k {

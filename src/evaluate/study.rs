@@ -10,9 +10,9 @@ use std::path::Path;
 use crate::data::split::{assign, Assignment, SplitPlan};
 use crate::data::Dataset;
 use crate::decide::CostSpec;
-use crate::error::{Error, Result, Setting};
+use crate::error::{Error, Result, Setting, SettingNames};
 use crate::evaluate::cost_figures::{cost_figures, CostFigures};
-use crate::evaluate::cross_validation::{cross_predict, Candidate, Predictions};
+use crate::evaluate::cross_validation::{cross_predict, Candidate, CandidateFailure, Predictions};
 use crate::evaluate::learning_curve::{learning_curve, LearningPoint};
 use crate::evaluate::metrics::ScoreKind;
 use crate::evaluate::paired::{evaluate, evaluate_reweighted, multiclass, Evaluation, EvaluationOptions, TestedScore};
@@ -112,6 +112,24 @@ pub struct AssessRequest {
     pub options: StudyOptions,
 }
 
+/// A candidate that could not be evaluated, and why.
+#[derive(Debug, Clone)]
+pub struct FailedCandidate {
+    /// Its name.
+    pub name: String,
+    /// Its family.
+    pub family: crate::model::Family,
+    /// The first fold where its fit failed, and the error.
+    pub failure: CandidateFailure,
+}
+
+impl FailedCandidate {
+    /// `in fold F: the error`, settings named by `names`.
+    pub fn reason(&self, names: SettingNames<'_>) -> String {
+        format!("in {}: {}", self.failure.place, self.failure.error.describe(names))
+    }
+}
+
 /// A penalised logistic fit on all rows: name, term names, path.
 pub type PenalisedPath = (String, Vec<String>, PenaltyFit);
 
@@ -134,13 +152,40 @@ pub struct Study {
     pub notes: Vec<String>,
     /// Out-of-fold predictions as CSV (when asked for).
     pub predictions_csv: Option<Vec<u8>>,
+    /// Candidates whose fit failed (left out of every figure, paired
+    /// comparison and chart).
+    pub failed: Vec<FailedCandidate>,
 }
 
 impl Study {
-    /// Every figure as one JSON value (the `--json` output).
-    pub fn json(&self) -> Result<serde_json::Value> {
+    /// Every figure as one JSON value (the `--json` output); a failed
+    /// candidate is a result with `"status": "failed"` and its `error`
+    /// (settings named by `names`), and the paired comparisons left out
+    /// for it are listed in `paired_left_out`.
+    pub fn json(&self, names: SettingNames<'_>) -> Result<serde_json::Value> {
         let to_value = |v: serde_json::Result<serde_json::Value>| v.map_err(|e| Error::Usage(e.to_string()));
         let mut value = to_value(serde_json::to_value(&self.evaluation))?;
+        if !self.failed.is_empty() {
+            if let Some(results) = value.get_mut("results").and_then(|r| r.as_array_mut()) {
+                for f in &self.failed {
+                    results.push(serde_json::json!({
+                        "name": f.name,
+                        "family": f.family.name(),
+                        "status": "failed",
+                        "error": f.reason(names),
+                    }));
+                }
+            }
+            let evaluated: Vec<&str> = self.evaluation.results.iter().map(|r| r.name.as_str()).collect();
+            let left_out: Vec<serde_json::Value> = self
+                .failed
+                .iter()
+                .flat_map(|f| {
+                    evaluated.iter().map(move |other| serde_json::json!({"a": other, "b": f.name, "reason": format!("{} failed", f.name)}))
+                })
+                .collect();
+            value["paired_left_out"] = serde_json::Value::Array(left_out);
+        }
         if !self.learning.is_empty() {
             value["learning_curve"] = to_value(serde_json::to_value(&self.learning))?;
         }
@@ -379,8 +424,23 @@ pub fn compare_families(mut dataset: Dataset, request: &ComparisonRequest) -> Re
     let options = &request.options;
     let assignment = assignment(&dataset, &request.split, options.seed)?;
     let target_prior = resolve_target_prior(&dataset, options)?;
-    let candidates = &request.candidates;
-    let predictions = cross_predict(&dataset, candidates, &assignment, target_prior.as_deref())?;
+    let (predictions, failed): (Vec<Predictions>, Vec<Predictions>) =
+        cross_predict(&dataset, &request.candidates, &assignment, target_prior.as_deref())?
+            .into_iter()
+            .partition(|p| p.failure.is_none());
+    let failed: Vec<FailedCandidate> = failed
+        .into_iter()
+        .filter_map(|p| Some(FailedCandidate { name: p.name, family: p.family?, failure: p.failure? }))
+        .collect();
+    if predictions.is_empty() {
+        return Err(Error::EveryCandidateFailed(
+            failed.into_iter().map(|f| (f.name, f.failure.place, f.failure.error)).collect(),
+        ));
+    }
+    // The failed are left out of everything that follows.
+    let candidates: Vec<Candidate> =
+        request.candidates.iter().filter(|c| !failed.iter().any(|f| f.name == c.name)).cloned().collect();
+    let candidates = &candidates;
     let amounts = options.amount.as_deref().map(|c| amounts(&dataset, c)).transpose()?;
     let segments = options.by.as_deref().map(|c| segments(&dataset, c)).transpose()?;
     let learning = if request.learning_curve {
@@ -419,6 +479,7 @@ pub fn compare_families(mut dataset: Dataset, request: &ComparisonRequest) -> Re
     study.penalised = penalised;
     study.notes = notes;
     study.predictions_csv = predictions_csv;
+    study.failed = failed;
     Ok(study)
 }
 
@@ -465,6 +526,7 @@ fn judge(
         penalised: Vec::new(),
         notes: Vec::new(),
         predictions_csv: None,
+        failed: Vec::new(),
     }
 }
 

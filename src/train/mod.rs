@@ -210,8 +210,9 @@ fn held_out_summary(
     let k = dataset.schema.target.classes.len();
     let assignment = assign(&SplitPlan::KFold { folds: HELD_OUT_FOLDS, repeats: 1 }, &dataset.target, k, seed)?;
     let candidate = Candidate::new("held-out", params.clone());
-    let Ok(predictions) = cross_predict(dataset, &[candidate], &assignment, Some(prior)) else {
-        return Ok(None);
+    let predictions = match cross_predict(dataset, &[candidate], &assignment, Some(prior)) {
+        Ok(p) if p[0].failure.is_none() => p,
+        _ => return Ok(None),
     };
     let lp = &predictions[0].log_posteriors[0];
     let total: f64 = dataset.weights.as_ref().map_or(dataset.rows() as f64, |w| w.iter().sum());
