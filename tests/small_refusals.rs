@@ -49,3 +49,17 @@ fn meaningless_settings_are_refused_naming_them() {
     assert!(started.elapsed() < std::time::Duration::from_secs(60));
     assert!(!d.join("out.csv").exists());
 }
+
+#[test]
+fn assess_names_a_missing_score_column_as_a_score() {
+    let dir = temp_dir();
+    let d = dir.path();
+    fitted(d);
+    let (code, _, err) = run(d, &["assess", "train.csv", "--target", "y", "--score", "nocol"]);
+    assert_eq!(code, 1, "{err}");
+    assert!(err.contains("--score names column 'nocol'") && !err.contains("--numeric"), "{err}");
+    // A score column also declared numeric is fine.
+    let (code, _, err) =
+        run(d, &["assess", "train.csv", "--target", "y", "--score", "x", "--numeric", "x", "--score-type", "rank"]);
+    assert_eq!(code, 0, "{err}");
+}

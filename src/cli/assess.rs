@@ -67,11 +67,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         ],
     )?;
     let mut options = args.data_args.to_options()?;
-    for s in &args.scores {
-        if !options.numeric.contains(s) {
-            options.numeric.push(s.clone());
-        }
-    }
+    options.score_columns = args.scores.clone();
     let (dataset, _) = Dataset::read(&args.data, &options)?;
     let request = AssessRequest {
         scores: args.scores.clone(),

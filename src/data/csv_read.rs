@@ -452,6 +452,9 @@ fn settle_roles(path: &str, names: &[String], options: &ReadOptions) -> Result<V
     for column in &options.numeric {
         assign_kind(Setting::Numeric, column, ForcedKind::Numeric)?;
     }
+    for column in options.score_columns.iter().filter(|c| !options.numeric.contains(c)) {
+        assign_kind(Setting::ScoreColumns, column, ForcedKind::Numeric)?;
+    }
     // Scoring against a model: columns the model does not use are ignored.
     let unused = |i: usize| options.model_columns.as_ref().is_some_and(|m| !m.contains(&names[i]));
     Ok(roles

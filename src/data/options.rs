@@ -60,6 +60,9 @@ pub struct ReadOptions {
     pub model_columns: Option<Vec<String>>,
     /// The longest record, in bytes (see [`crate::records::Dialect`]).
     pub max_record_bytes: usize,
+    /// Score columns made elsewhere (`AssessRequest::scores`): read as
+    /// numbers, like `numeric`, and named as scores in errors.
+    pub score_columns: Vec<String>,
 }
 
 impl ReadOptions {
@@ -78,6 +81,7 @@ impl ReadOptions {
             positive: None,
             model_columns: None,
             max_record_bytes: crate::records::DEFAULT_MAX_RECORD_BYTES,
+            score_columns: Vec::new(),
         }
     }
 

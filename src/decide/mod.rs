@@ -64,6 +64,12 @@ pub struct CostSpec {
     pub actions: Vec<Action>,
 }
 
+/// The largest fixed cost or rate a costs file may give: far beyond any
+/// amount at risk, and small enough that totals over billions of rows stay
+/// finite and exact to the cent's order (double precision keeps 15–16
+/// digits).
+pub const MAX_COST: f64 = 1e15;
+
 fn bad(path: &str, message: String) -> Error {
     Error::SchemaMismatch { path: path.to_string(), message: message.into() }
 }
@@ -176,6 +182,12 @@ impl CostSpec {
                         };
                         if !(cost.fixed.is_finite() && cost.rate.is_finite()) {
                             return Err(bad(path, format!("{name}.{class}: costs must be finite")));
+                        }
+                        if cost.fixed.abs() > MAX_COST || cost.rate.abs() > MAX_COST {
+                            return Err(bad(
+                                path,
+                                format!("{name}.{class}: a cost or rate beyond ±{MAX_COST:e} is not an amount of money; totals over the rows would overflow"),
+                            ));
                         }
                         costs[k] = Some(cost);
                     }
@@ -494,6 +506,7 @@ mod tests {
             ("[actions.a]\ngood = 0\nbad = 1\n[other]\n", "unknown key 'other'"),
             ("[actions.a\n", "not a valid costs file"),
             ("[actions.a]\ngood = 0\nbad = 1\ncapacity = 3\n", "every action has a capacity"),
+            ("[actions.a]\ngood = -1e308\nbad = 1\n", "a.good: a cost or rate beyond ±1e15"),
         ] {
             let e = CostSpec::parse("c.toml", text, &c).unwrap_err().to_string();
             assert!(e.contains(message) && e.contains("c.toml"), "{text}: {e}");
