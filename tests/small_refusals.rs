@@ -63,3 +63,14 @@ fn assess_names_a_missing_score_column_as_a_score() {
         run(d, &["assess", "train.csv", "--target", "y", "--score", "x", "--numeric", "x", "--score-type", "rank"]);
     assert_eq!(code, 0, "{err}");
 }
+
+#[test]
+fn a_weighted_count_in_a_message_is_written_short() {
+    let dir = temp_dir();
+    let d = dir.path();
+    write(d, "w.csv", b"x,w,y\n1,1e-300,a\n2,1e-300,b\n3,1e-300,a\n4,1e-300,b\n");
+    let (code, _, err) = run(d, &["fit", "w.csv", "--target", "y", "--weight", "w", "--family", "lda", "-o", "m.json"]);
+    assert_eq!(code, 1, "{err}");
+    assert!(err.contains("4.00000e-300 rows (weighted) and 2 classes"), "{err}");
+    assert!(err.len() < 300, "{err}");
+}

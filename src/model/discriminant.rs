@@ -395,7 +395,13 @@ pub fn lda_from_moments(
     if divisor <= 0.0 || d == 0 {
         return Err(Error::FitFailed {
             family: "lda".into(),
-            message: format!("{n} rows and {k} classes leave nothing to estimate a covariance from").into(),
+            // A weighted count, written to six significant digits (1e-300
+            // weights once gave three hundred zeros).
+            message: format!(
+                "{} rows (weighted) and {k} classes leave nothing to estimate a covariance from",
+                crate::format::number(n, 6)
+            )
+            .into(),
         });
     }
     let mut covariance = pooled_scatter(&moments, d) / divisor;
