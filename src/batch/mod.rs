@@ -108,9 +108,7 @@ impl Outputs {
     /// Refuses two outputs on one path, an output on the input, and two
     /// outputs on stdout.
     fn check(&self, data: &std::path::Path) -> Result<()> {
-        let mut named: Vec<(Part, &std::path::Path)> = vec![(Setting::Scores.into(), self.scores.as_path())];
-        named.extend(self.rejects.iter().map(|p| (Setting::Rejects.into(), p.as_path())));
-        named.extend(self.summary.iter().map(|p| (Setting::Summary.into(), p.as_path())));
+        let named = self.named();
         crate::io::check_outputs(&[("the data file".into(), data)], &named)?;
         let on_stdout: Vec<&Part> = named.iter().filter(|(_, p)| p.as_os_str() == "-").map(|(s, _)| s).collect();
         if let [first, second, ..] = on_stdout.as_slice() {
@@ -126,10 +124,16 @@ impl Outputs {
 
     /// Locks the outputs for the run (see [`crate::io::claim`]).
     fn claim(&self) -> Result<crate::io::OutputClaim> {
-        let mut paths = vec![self.scores.as_path()];
-        paths.extend(self.rejects.as_deref());
-        paths.extend(self.summary.as_deref());
+        let paths: Vec<&std::path::Path> = self.named().into_iter().map(|(_, p)| p).collect();
         crate::io::claim_outputs(&paths)
+    }
+
+    /// The outputs given, each with the setting that names it.
+    fn named(&self) -> Vec<(Part, &std::path::Path)> {
+        let mut named: Vec<(Part, &std::path::Path)> = vec![(Setting::Scores.into(), self.scores.as_path())];
+        named.extend(self.rejects.iter().map(|p| (Setting::Rejects.into(), p.as_path())));
+        named.extend(self.summary.iter().map(|p| (Setting::Summary.into(), p.as_path())));
+        named
     }
 }
 

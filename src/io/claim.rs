@@ -107,11 +107,7 @@ fn lock(output: &Path, lock_path: &Path) -> Result<Lock> {
 fn still_named(file: &File, path: &Path) -> bool {
     #[cfg(unix)]
     {
-        use std::os::unix::fs::MetadataExt;
-        match (file.metadata(), std::fs::metadata(path)) {
-            (Ok(a), Ok(b)) => a.dev() == b.dev() && a.ino() == b.ino(),
-            _ => false,
-        }
+        matches!((file.metadata(), std::fs::metadata(path)), (Ok(a), Ok(b)) if super::same_inode(&a, &b))
     }
     #[cfg(not(unix))]
     {

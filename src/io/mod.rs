@@ -76,10 +76,15 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
     Ok(())
 }
 
+/// Bytes as lowercase hex (how every digest is written).
+pub fn hex(bytes: &[u8]) -> String {
+    bytes.iter().map(|b| format!("{b:02x}")).collect()
+}
+
 /// The SHA-256 of bytes, as lowercase hex.
 pub fn sha256_hex(bytes: &[u8]) -> String {
     use sha2::Digest;
-    sha2::Sha256::digest(bytes).iter().map(|b| format!("{b:02x}")).collect()
+    hex(&sha2::Sha256::digest(bytes))
 }
 
 /// The SHA-256 of a file, as lowercase hex.
@@ -96,7 +101,7 @@ pub fn sha256_file(path: &Path) -> Result<String> {
         }
         hasher.update(&buffer[..read]);
     }
-    Ok(hasher.finalize().iter().map(|b| format!("{b:02x}")).collect())
+    Ok(hex(&hasher.finalize()))
 }
 
 /// The current time as RFC 3339 UTC (`2026-12-01T19:15:34Z`); the
@@ -238,16 +243,20 @@ pub(crate) fn is_special(path: &Path) -> bool {
     std::fs::metadata(path).is_ok_and(|m| !m.is_file() && !m.is_dir())
 }
 
+/// True when two files' metadata are of one file: the same device and inode.
+#[cfg(unix)]
+fn same_inode(a: &std::fs::Metadata, b: &std::fs::Metadata) -> bool {
+    use std::os::unix::fs::MetadataExt;
+    a.dev() == b.dev() && a.ino() == b.ino()
+}
+
 /// True when `a` and `b` name one file: the same device and inode (so a
 /// hard link or a symlink counts), or, for a path that does not exist yet,
 /// the same place once its folder's symlinks are resolved.
 pub fn same_file(a: &Path, b: &Path) -> bool {
     #[cfg(unix)]
-    {
-        use std::os::unix::fs::MetadataExt;
-        if let (Ok(x), Ok(y)) = (std::fs::metadata(a), std::fs::metadata(b)) {
-            return x.dev() == y.dev() && x.ino() == y.ino();
-        }
+    if let (Ok(x), Ok(y)) = (std::fs::metadata(a), std::fs::metadata(b)) {
+        return same_inode(&x, &y);
     }
     let resolved = |p: &Path| -> Option<std::path::PathBuf> {
         if let Ok(full) = std::fs::canonicalize(p) {

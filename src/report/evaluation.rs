@@ -21,8 +21,12 @@ fn fixed(x: Option<f64>, decimals: usize) -> String {
 /// A table column: title, higher is better, the figure, decimals.
 type Column = (&'static str, bool, fn(&crate::evaluate::metrics::BinaryMetrics) -> Option<f64>, usize);
 
-/// The terminal view.
-pub fn evaluation_text(e: &Evaluation) -> String {
+/// A candidate that could not be evaluated: its name and why (`in fold F:
+/// the error`), shown under the results table.
+pub type FailedRow = (String, String);
+
+/// The terminal view; `failed` rows go under the results table.
+pub fn evaluation_text(e: &Evaluation, failed: &[FailedRow]) -> String {
     let mut out = format!(
         "{} rows, {} tested ({}); positive class: {}\n\n",
         count(e.rows),
@@ -75,6 +79,17 @@ pub fn evaluation_text(e: &Evaluation) -> String {
         table.row(row);
     }
     out.push_str(&table.render());
+    if !failed.is_empty() {
+        let width = e.results.iter().map(|r| r.name.chars().take(24).count()).max().unwrap_or(0);
+        for (name, reason) in failed {
+            out.push_str(&format!("{name:<width$}  FAILED {reason}\n"));
+        }
+        let names: Vec<&str> = failed.iter().map(|(n, _)| n.as_str()).collect();
+        out.push_str(&format!(
+            "failed: {} (left out of every figure, paired comparison and chart)\n",
+            names.join(", ")
+        ));
+    }
     out.push_str("* best in the column. AUC 95% CI from DeLong's variance, on the logit scale");
     if e.repeats > 1 {
         out.push_str(&format!("; AUC and its SE are means over the {} repeats", e.repeats));
@@ -153,14 +168,15 @@ pub fn evaluation_screen(
     measured: &Evaluation,
     reweighted: Option<(&Evaluation, &[f64], &[String])>,
     cost_table: &str,
+    failed: &[FailedRow],
     caution: bool,
 ) -> String {
-    let measured_text = format!("{}\n", evaluation_text(measured));
+    let measured_text = format!("{}\n", evaluation_text(measured, failed));
     let mut text = match reweighted {
         None => measured_text,
         Some((r, to, classes)) => {
             let mix: Vec<String> = classes.iter().zip(to).map(|(c, p)| format!("{c} {}", percent(*p))).collect();
-            let table = evaluation_text(r);
+            let table = evaluation_text(r, failed);
             let body = table.split("\n\n").nth(1).unwrap_or("");
             format!(
                 "posteriors stated at the target class mix ({}); figures as measured on the tested rows:\n\n{measured_text}the same, reweighted to the target class mix (importance weights by class):\n\n{}\n\n",
@@ -365,6 +381,7 @@ pub fn evaluation_html(
     e: &Evaluation,
     learning: &[LearningPoint],
     penalised: &[(String, Vec<String>, crate::model::penalised::PenaltyFit)],
+    failed: &[FailedRow],
     data_description: &str,
 ) -> String {
     let mut charts: Vec<(String, Result<String, String>)> = Vec::new();
@@ -532,7 +549,17 @@ pub fn evaluation_html(
             fixed(m.hosmer_lemeshow.map(|h| h.p_value), 4),
         ));
     }
-    html.push_str("</table>\n<p>Rank metrics use the log posterior odds; Brier = mean (p − y)²; ECE over 10 equal-width bins (empty bins shown empty); Hosmer–Lemeshow on 10 groups, 8 df.</p>\n");
+    html.push_str("</table>\n");
+    if !failed.is_empty() {
+        let items: String = failed
+            .iter()
+            .map(|(name, reason)| format!("<li><strong>{}</strong>: failed {}</li>", escape(name), escape(reason)))
+            .collect();
+        html.push_str(&format!(
+            "<p>Failed, and left out of every figure, paired comparison and chart:</p><ul class=\"failed\">{items}</ul>\n"
+        ));
+    }
+    html.push_str("<p>Rank metrics use the log posterior odds; Brier = mean (p − y)²; ECE over 10 equal-width bins (empty bins shown empty); Hosmer–Lemeshow on 10 groups, 8 df.</p>\n");
     if !e.paired.is_empty() {
         html.push_str("<h2>Paired comparisons (same rows)</h2>\n<table><tr><th class=\"l\">a</th><th class=\"l\">b</th><th>AUC diff</th><th>z</th><th>p</th><th>log loss diff</th><th>95% bootstrap</th><th>Brier diff</th><th>McNemar p</th></tr>\n");
         for p in &e.paired {

@@ -7,7 +7,7 @@ use crate::data::Dataset;
 use crate::error::SettingNames;
 use crate::evaluate::cost_figures::CostFigures;
 use crate::evaluate::study::Study;
-use crate::report::evaluation::{caution_text, escape, evaluation_html, evaluation_screen};
+use crate::report::evaluation::{evaluation_html, evaluation_screen, FailedRow};
 use crate::report::table::{Align, Table};
 
 /// The decisions table for the terminal.
@@ -41,49 +41,23 @@ pub fn costs_text(figures: &[CostFigures]) -> String {
 }
 
 /// The study on the terminal; `caution` adds the caution at the end.
+/// Failed candidates are rows under the results table, their reasons
+/// naming settings by `names`.
 pub fn study_screen(study: &Study, names: SettingNames<'_>, caution: bool) -> String {
     let costs = &study.evaluation.costs;
     let cost_table = if costs.is_empty() { String::new() } else { costs_text(costs) };
-    let mut text = evaluation_screen(&study.evaluation, study.reweighted_view(), &cost_table, false);
-    if !study.failed.is_empty() {
-        // The failed as rows of the results table, under the evaluated.
-        let width = study.evaluation.results.iter().map(|r| r.name.chars().count()).max().unwrap_or(0);
-        let rows: String =
-            study.failed.iter().map(|f| format!("{:<width$}  FAILED {}\n", f.name, f.reason(names))).collect();
-        let note = format!(
-            "failed: {} (left out of every figure, paired comparison and chart)\n",
-            study.failed.iter().map(|f| f.name.as_str()).collect::<Vec<_>>().join(", ")
-        );
-        match text.find("\n* best in the column") {
-            Some(at) => text.insert_str(at + 1, &format!("{rows}{note}")),
-            None => text.push_str(&format!("{rows}{note}")),
-        }
-    }
-    if caution {
-        text.push_str(&caution_text());
-    }
-    text
+    evaluation_screen(&study.evaluation, study.reweighted_view(), &cost_table, &failed_rows(study, names), caution)
 }
 
 /// The study as a self-contained HTML page; `data_description` opens it.
 /// Failed candidates are listed under the results table.
 pub fn study_html(study: &Study, names: SettingNames<'_>, data_description: &str) -> String {
-    let mut html = evaluation_html(&study.evaluation, &study.learning, &study.penalised, data_description);
-    if !study.failed.is_empty() {
-        let items: String = study
-            .failed
-            .iter()
-            .map(|f| format!("<li><strong>{}</strong>: failed {}</li>", escape(&f.name), escape(&f.reason(names))))
-            .collect();
-        let block = format!(
-            "<p>Failed, and left out of every figure, paired comparison and chart:</p><ul class=\"failed\">{items}</ul>\n"
-        );
-        match html.find("</table>") {
-            Some(at) => html.insert_str(at + "</table>".len(), &format!("\n{block}")),
-            None => html.push_str(&block),
-        }
-    }
-    html
+    let failed = failed_rows(study, names);
+    evaluation_html(&study.evaluation, &study.learning, &study.penalised, &failed, data_description)
+}
+
+fn failed_rows(study: &Study, names: SettingNames<'_>) -> Vec<FailedRow> {
+    study.failed.iter().map(|f| (f.name.clone(), f.reason(names))).collect()
 }
 
 /// "FILE: N rows; target 'T' with classes A, B; features X (numeric), ..."

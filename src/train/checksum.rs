@@ -29,7 +29,7 @@ impl Hashing {
 
     /// `sha256:` and the hex digest.
     pub fn finish(self) -> String {
-        format!("sha256:{}", self.0.finalize().iter().map(|b| format!("{b:02x}")).collect::<String>())
+        format!("sha256:{}", crate::io::hex(&self.0.finalize()))
     }
 }
 
