@@ -418,6 +418,18 @@ pub enum Error {
         hint: Message,
     },
 
+    /// A score column read as probabilities holds a number outside [0, 1]
+    /// (or, where every row needs a score, no value: `value` empty).
+    #[error("{}", self.describe(&parameter_names))]
+    NotAProbability {
+        /// Where the value is.
+        at: Position,
+        /// The column.
+        column: String,
+        /// The value as written.
+        value: String,
+    },
+
     /// A numeric column holds an `inf` or `nan` literal.
     #[error("{}", self.describe(&parameter_names))]
     NonFiniteValue {
@@ -651,6 +663,14 @@ impl Error {
             Error::NotANumber { at, column, value, hint } => {
                 format!("{at}, column '{column}': '{value}' is not a number, but the column is numeric{}", hint.render(names))
             }
+            Error::NotAProbability { at, column, value } if value.is_empty() => {
+                format!("{at}, column '{column}': the score is missing; every row needs a probability from 0 to 1")
+            }
+            Error::NotAProbability { at, column, value } => format!(
+                "{at}, column '{column}': '{value}' is not a probability from 0 to 1, which a {} column must hold (for points or grades, assess takes {})",
+                name(Setting::ScoreColumns),
+                names(Setting::ScoreKind, Some("rank"))
+            ),
             Error::NonFiniteValue { at, column, value } => format!(
                 "{at}, column '{column}': '{value}' is not a finite number; numeric data must be finite (declare it a missing-value token with {} if that is what it means)",
                 name(Setting::NaTokens)

@@ -28,9 +28,20 @@ pub fn count(n: usize) -> String {
     out
 }
 
+/// A number rounded to `decimals` places, as people read it: a value
+/// that rounds to zero is written without a sign (an empty sum is −0 in
+/// IEEE arithmetic, and "-0.0000" reads as a small loss).
+pub fn fixed(x: f64, decimals: usize) -> String {
+    let text = format!("{x:.decimals$}");
+    match text.strip_prefix('-') {
+        Some(rest) if rest.bytes().all(|b| b == b'0' || b == b'.') => rest.to_string(),
+        _ => text,
+    }
+}
+
 /// A share as a percentage with one decimal: 0.1012 → "10.1%".
 pub fn percent(share: f64) -> String {
-    format!("{:.1}%", 100.0 * share)
+    format!("{}%", fixed(100.0 * share, 1))
 }
 
 /// A number with about `significant` significant digits, without
@@ -90,6 +101,11 @@ mod tests {
         assert_eq!(number(0.012345, 3), "0.0123");
         assert_eq!(number(-2.5, 3), "-2.5");
         assert_eq!(number(600.0, 4), "600");
+        assert_eq!(fixed(-0.0, 4), "0.0000");
+        assert_eq!(fixed(-0.00004, 4), "0.0000");
+        assert_eq!(fixed(-0.00005001, 4), "-0.0001");
+        assert_eq!(fixed(-2.5, 1), "-2.5");
+        assert_eq!(percent(-0.0), "0.0%");
     }
 
     /// The fast layout reads back exactly, is as short as the report

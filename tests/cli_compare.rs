@@ -390,3 +390,34 @@ fn calibrated_variants_sit_beside_the_raw_ones() {
     args.extend(["--family", "lda+sigmoid"]);
     assert_eq!(run(dir.path(), &args).0, 2);
 }
+
+/// A segment without events has an event rate and a flag rate of zero,
+/// never "-0.0000": an empty sum is −0 in IEEE arithmetic.
+#[test]
+fn segments_without_events_show_unsigned_zero_rates() {
+    let dir = temp_dir();
+    lending(dir.path());
+    let mut args = vec!["compare"];
+    args.extend(LENDING);
+    args.extend(["--family", "lda", "--by", "income", "--json", "segments.json"]);
+    let (code, out, err) = run(dir.path(), &args);
+    assert_eq!(code, 0, "{err}");
+    assert!(!out.contains("-0.0000 ") && !out.contains("-0.00%"), "{out}");
+    let text = std::fs::read_to_string(dir.path().join("segments.json")).expect("json");
+    let json: Value = serde_json::from_str(&text).expect("json");
+    let segments = json["segments"].as_array().expect("segments");
+    assert!(!segments.is_empty());
+    for s in segments {
+        for field in ["base_rate", "flag_rate"] {
+            let rate = s[field].as_f64().expect("rate");
+            assert!(rate.is_sign_positive(), "{field} {rate} in {s}");
+        }
+    }
+    // With a segment per income value, most segments have no event.
+    let mut args = vec!["compare"];
+    args.extend(LENDING);
+    args.extend(["--family", "lda", "--by", "income"]);
+    let (code, out, err) = run(dir.path(), &args);
+    assert_eq!(code, 0, "{err}");
+    assert!(out.contains(" 0.0000 ") && !out.contains("-0.0000") && !out.contains("-0.00%"), "{out}");
+}

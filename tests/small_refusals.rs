@@ -74,3 +74,33 @@ fn a_weighted_count_in_a_message_is_written_short() {
     assert!(err.contains("4.00000e-300 rows (weighted) and 2 classes"), "{err}");
     assert!(err.len() < 300, "{err}");
 }
+
+#[test]
+fn a_score_that_is_not_a_probability_is_named_by_file_line_and_column() {
+    let dir = temp_dir();
+    let d = dir.path();
+    // Line 5 (the fourth row) holds 1.5.
+    write(d, "scored.csv", b"y,s\nyes,0.2\nno,0.3\nyes,0.9\nno,1.5\nno,0.1\n");
+    let expected = "scored.csv, line 5, column 's': '1.5' is not a probability from 0 to 1";
+    for args in [
+        vec!["assess", "scored.csv", "--target", "y", "--score", "s"],
+        vec!["shift", "scored.csv", "--score", "s", "--train-prior", "0.3"],
+    ] {
+        let (code, _, err) = run(d, &args);
+        assert_eq!(code, 1, "{args:?}: {err}");
+        assert!(err.contains(expected), "{args:?}: {err}");
+    }
+    // As points, the same column is read as it is.
+    let (code, _, err) = run(d, &["assess", "scored.csv", "--target", "y", "--score", "s", "--score-type", "rank"]);
+    assert_eq!(code, 0, "{err}");
+    // A score column is named as one when a value is not a number.
+    write(d, "text.csv", b"y,s\nyes,0.2\nno,abc\n");
+    let (code, _, err) = run(d, &["assess", "text.csv", "--target", "y", "--score", "s"]);
+    assert_eq!(code, 1, "{err}");
+    assert!(err.contains("line 3, column 's': 'abc' is not a number") && err.contains("named by --score"), "{err}");
+    // shift needs every row's score.
+    write(d, "gap.csv", b"y,s\nyes,0.2\nno,\n");
+    let (code, _, err) = run(d, &["shift", "gap.csv", "--score", "s", "--train-prior", "0.3"]);
+    assert_eq!(code, 1, "{err}");
+    assert!(err.contains("gap.csv, line 3, column 's': the score is missing"), "{err}");
+}

@@ -1044,6 +1044,19 @@ fn aggregates_written_by_hand_fit_as_the_rows_do_and_bad_ones_are_named() {
     let shrunk =
         ["fit", stats.to_str().unwrap(), "--from-stats", "--family", "lda", "--shrinkage", "ledoit-wolf", "-o", out];
     refused(d, &shrunk, 1, "Ledoit–Wolf shrinkage needs fourth moments");
+    // Deciles are cut points: ascending, or the file is not a result of
+    // the statistics query.
+    let with_deciles = |deciles: &str| {
+        let mut lines = HAND_STATS.lines();
+        let header = format!("{},deciles_1\n", lines.next().unwrap_or(""));
+        header + &lines.map(|l| format!("{l},\"{deciles}\"\n")).collect::<String>()
+    };
+    let ascending = write(d, "ascending.csv", with_deciles("{1,1,2,3,4,5,6,7,8}").as_bytes());
+    assert_eq!(run(d, &["fit", ascending.to_str().unwrap(), "--from-stats", "--family", "lda", "-o", out]).0, 0);
+    let descending = write(d, "descending.csv", with_deciles("{9,8,7,6,5,4,3,2,1}").as_bytes());
+    let args = ["fit", descending.to_str().unwrap(), "--from-stats", "--family", "lda", "-o", out];
+    let stderr = refused(d, &args, 1, "line 2, column 'deciles_1'");
+    assert!(stderr.contains("nine finite numbers in ascending order"), "{stderr}");
     // Usage errors: logistic has no aggregates; a malformed table name.
     refused(d, &["stats-sql", "--family", "logistic", "--table", "t", "--target", "y", "x"], 2, "logistic");
     refused(d, &["export-sql", model.to_str().unwrap(), "--table", "mart..t"], 2, "--table");

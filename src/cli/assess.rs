@@ -68,6 +68,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     )?;
     let mut options = args.data_args.to_options()?;
     options.score_columns = args.scores.clone();
+    options.scores_are_probabilities = args.score_type == ScoreTypeArg::Probability;
     let (dataset, _) = Dataset::read(&args.data, &options)?;
     let request = AssessRequest {
         scores: args.scores.clone(),

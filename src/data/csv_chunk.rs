@@ -25,10 +25,12 @@ pub const MISSING_CODE: u32 = u32::MAX;
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub(crate) enum Parse {
     Skip,
-    /// Numbers; `forced` makes a non-number an error instead of a switch to
-    /// categorical.
+    /// Numbers. `forced` (the setting that declared the column numeric)
+    /// makes a non-number an error instead of a switch to categorical;
+    /// `probability` makes a number outside [0, 1] an error.
     Numeric {
-        forced: bool,
+        forced: Option<Setting>,
+        probability: bool,
     },
     Categorical,
     Text,
@@ -317,7 +319,9 @@ fn parse_plain(sink: &mut RecordSink<'_, '_>, bytes: &[u8], first_line: u64) {
         for column in 0..width {
             let last = column + 1 == width;
             let fast = match (sink.plan[column], bytes.get(position)) {
-                (Parse::Numeric { .. }, Some(&first)) if !sink.context.na.first_bytes[first as usize] => {
+                (Parse::Numeric { probability: false, .. }, Some(&first))
+                    if !sink.context.na.first_bytes[first as usize] =>
+                {
                     scan_f64(&bytes[position..]).filter(|(_, used)| {
                         let end = position + used;
                         end == bytes.len() || matches!(bytes[end], b'\n' | b'\r') || bytes[end] == delimiter
@@ -397,7 +401,12 @@ impl RecordSink<'_, '_> {
         let facts = &mut self.out.facts[column];
         let fatal = match self.plan[column] {
             Parse::Skip => None,
-            Parse::Numeric { forced } => match read_number(&context.na, field) {
+            Parse::Numeric { forced, probability } => match read_number(&context.na, field) {
+                NumberField::Value(v) if probability && !(0.0..=1.0).contains(&v) => Some(Error::NotAProbability {
+                    at: context.at(line),
+                    column: context.names[column].clone(),
+                    value: lossy(field),
+                }),
                 NumberField::Value(v) => {
                     self.numeric_value(column, v);
                     None
@@ -408,7 +417,7 @@ impl RecordSink<'_, '_> {
                     self.numeric_value(column, f64::NAN);
                     None
                 }
-                NumberField::NonFinite if forced => Some(Error::NonFiniteValue {
+                NumberField::NonFinite if forced.is_some() => Some(Error::NonFiniteValue {
                     at: context.at(line),
                     column: context.names[column].clone(),
                     value: lossy(field),
@@ -418,13 +427,13 @@ impl RecordSink<'_, '_> {
                     self.numeric_value(column, f64::NAN);
                     None
                 }
-                NumberField::Text if forced => Some(Error::NotANumber {
+                NumberField::Text if forced.is_some() => Some(Error::NotANumber {
                     at: context.at(line),
                     column: context.names[column].clone(),
                     value: lossy(field),
                     hint: crate::error::message![
-                        " (declared with ",
-                        Setting::Numeric,
+                        " (named by ",
+                        forced.unwrap_or(Setting::Numeric),
                         "; use ",
                         Setting::NaTokens,
                         " to declare a missing-value token)"

@@ -174,8 +174,11 @@ pub(crate) fn read_bytes_chunked(
             ColumnRole::Weight => Parse::Weight,
             ColumnRole::Feature => match forced {
                 Some(ForcedKind::Categorical) => Parse::Categorical,
-                Some(ForcedKind::Numeric) => Parse::Numeric { forced: true },
-                None => Parse::Numeric { forced: false },
+                Some(ForcedKind::Numeric(by)) => Parse::Numeric {
+                    forced: Some(*by),
+                    probability: *by == Setting::ScoreColumns && options.scores_are_probabilities,
+                },
+                None => Parse::Numeric { forced: None, probability: false },
             },
         })
         .collect();
@@ -385,7 +388,8 @@ pub(crate) fn header_names(path: &str, record: &[u8], delimiter: u8, line: u64) 
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 enum ForcedKind {
-    Numeric,
+    /// Numeric, by this setting.
+    Numeric(Setting),
     Categorical,
 }
 
@@ -450,10 +454,10 @@ fn settle_roles(path: &str, names: &[String], options: &ReadOptions) -> Result<V
         assign_kind(Setting::Categorical, column, ForcedKind::Categorical)?;
     }
     for column in &options.numeric {
-        assign_kind(Setting::Numeric, column, ForcedKind::Numeric)?;
+        assign_kind(Setting::Numeric, column, ForcedKind::Numeric(Setting::Numeric))?;
     }
     for column in options.score_columns.iter().filter(|c| !options.numeric.contains(c)) {
-        assign_kind(Setting::ScoreColumns, column, ForcedKind::Numeric)?;
+        assign_kind(Setting::ScoreColumns, column, ForcedKind::Numeric(Setting::ScoreColumns))?;
     }
     // Scoring against a model: columns the model does not use are ignored.
     let unused = |i: usize| options.model_columns.as_ref().is_some_and(|m| !m.contains(&names[i]));

@@ -63,6 +63,9 @@ pub struct ReadOptions {
     /// Score columns made elsewhere (`AssessRequest::scores`): read as
     /// numbers, like `numeric`, and named as scores in errors.
     pub score_columns: Vec<String>,
+    /// The score columns hold probabilities: a value outside [0, 1] is an
+    /// error naming its line.
+    pub scores_are_probabilities: bool,
 }
 
 impl ReadOptions {
@@ -82,6 +85,7 @@ impl ReadOptions {
             model_columns: None,
             max_record_bytes: crate::records::DEFAULT_MAX_RECORD_BYTES,
             score_columns: Vec::new(),
+            scores_are_probabilities: false,
         }
     }
 

@@ -23,7 +23,8 @@ pub fn read_score_column(
     let shown = path.display().to_string();
     let mut options = ReadOptions::new(target.unwrap_or(""));
     options.delimiter = delimiter;
-    options.numeric = vec![column.to_string()];
+    options.score_columns = vec![column.to_string()];
+    options.scores_are_probabilities = true;
     options.model_columns = Some(vec![column.to_string()]);
     let table = read_path(path, &options)?;
     let not_numeric =
@@ -32,13 +33,13 @@ pub fn read_score_column(
     let ColumnValues::NumericFeature { index: j } = table.columns[index].values else {
         return Err(not_numeric());
     };
-    let p: Vec<f64> = table.numeric.column(j).to_vec();
-    if let Some(bad) = p.iter().find(|v| !(0.0..=1.0).contains(*v)) {
-        return Err(Error::SchemaMismatch {
-            path: shown,
-            message: format!("column '{column}' holds {bad}, not a probability").into(),
-        });
+    // The reader refused any value outside [0, 1], naming its line; a
+    // missing score is refused here, also by its line.
+    if let Some(line) = table.columns[index].facts.first_missing_line {
+        let at = crate::error::Position { path: shown, line };
+        return Err(Error::NotAProbability { at, column: column.to_string(), value: String::new() });
     }
+    let p: Vec<f64> = table.numeric.column(j).to_vec();
     let labels = target.and_then(|t| table.index_of(t)).and_then(|i| match &table.columns[i].values {
         ColumnValues::Categorical { codes, levels, .. } => Some(
             codes

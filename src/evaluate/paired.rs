@@ -344,9 +344,13 @@ pub fn evaluate(scores: &[TestedScore], options: &EvaluationOptions<'_>) -> Eval
                 let idx: Vec<usize> = (0..rows.len()).filter(|&i| values[rows[i]] == *segment).collect();
                 let w = |i: usize| options.weights.map_or(1.0, |w| w[rows[i]]);
                 let total: f64 = idx.iter().map(|&i| w(i)).sum();
-                let events: f64 =
-                    idx.iter().filter(|&&i| options.target[rows[i]] as usize == options.positive).map(|&i| w(i)).sum();
-                let flagged: f64 = idx.iter().filter(|&&i| s.log_odds[0][i] >= 0.0).map(|&i| w(i)).sum();
+                // Folded from +0: an empty f64 sum is −0, which JSON and
+                // tables would show as a negative rate.
+                let events = idx
+                    .iter()
+                    .filter(|&&i| options.target[rows[i]] as usize == options.positive)
+                    .fold(0.0, |acc, &i| acc + w(i));
+                let flagged = idx.iter().filter(|&&i| s.log_odds[0][i] >= 0.0).fold(0.0, |acc, &i| acc + w(i));
                 let mean: f64 = idx.iter().map(|&i| w(i) / (1.0 + (-s.log_odds[0][i]).exp())).sum::<f64>() / total;
                 let labels: Vec<bool> =
                     idx.iter().map(|&i| options.target[rows[i]] as usize == options.positive).collect();

@@ -114,26 +114,27 @@ fn parse_stats(path: &Path, bytes: &[u8]) -> Result<Aggregates> {
             aggregates.numeric = (1..=p).map(|j| text(&format!("feature_{j}"))).collect();
             aggregates.categorical = (1..=c).map(|g| text(&format!("categorical_{g}"))).collect();
             // Per numeric input, an SQL array of `len` numbers that pass `valid`.
-            let arrays = |prefix: &str, len: usize, valid: fn(f64) -> bool, what: &str| -> Result<Vec<Vec<f64>>> {
+            let arrays = |prefix: &str, len: usize, valid: fn(&[f64]) -> bool, what: &str| -> Result<Vec<Vec<f64>>> {
                 (1..=p)
                     .map(|j| {
                         let name = format!("{prefix}_{j}");
                         let raw = text(&name);
-                        braced_numbers(&raw).filter(|v| v.len() == len && v.iter().all(|&x| valid(x))).ok_or_else(
-                            || Error::Malformed {
-                                at: at(&record),
-                                column: name,
-                                message: format!("'{raw}' is not a list of {what} in braces"),
-                            },
-                        )
+                        braced_numbers(&raw).filter(|v| v.len() == len && valid(v)).ok_or_else(|| Error::Malformed {
+                            at: at(&record),
+                            column: name,
+                            message: format!("'{raw}' is not a list of {what} in braces"),
+                        })
                     })
                     .collect()
             };
             if has_deciles {
-                aggregates.deciles = Some(arrays("deciles", 9, f64::is_finite, "nine finite numbers")?);
+                // Deciles are cut points: finite and in ascending order
+                // (ties allowed, a constant stretch has equal deciles).
+                let ascending = |v: &[f64]| v.iter().all(|x| x.is_finite()) && v.windows(2).all(|w| w[0] <= w[1]);
+                aggregates.deciles = Some(arrays("deciles", 9, ascending, "nine finite numbers in ascending order")?);
             }
             if column("bins_1").is_some() {
-                aggregates.bins = Some(arrays("bins", 10, |x| x >= 0.0, "ten counts")?);
+                aggregates.bins = Some(arrays("bins", 10, |v| v.iter().all(|&x| x >= 0.0), "ten counts")?);
             }
             first = false;
         }

@@ -15,7 +15,7 @@ pub fn escape(text: &str) -> String {
 }
 
 fn fixed(x: Option<f64>, decimals: usize) -> String {
-    x.map_or_else(|| "–".to_string(), |v| format!("{v:.decimals$}"))
+    x.map_or_else(|| "–".to_string(), |v| crate::format::fixed(v, decimals))
 }
 
 /// A table column: title, higher is better, the figure, decimals.
@@ -116,8 +116,8 @@ pub fn evaluation_text(e: &Evaluation, failed: &[FailedRow]) -> String {
                 p.a.clone(),
                 p.b.clone(),
                 format!("{:+.4}", p.auc_diff),
-                format!("{:.2}", p.z),
-                format!("{:.4}", p.p_value),
+                crate::format::fixed(p.z, 2),
+                crate::format::fixed(p.p_value, 4),
                 ll,
                 fixed(p.mcnemar_p_value, 4),
             ]);
@@ -139,11 +139,11 @@ pub fn evaluation_text(e: &Evaluation, failed: &[FailedRow]) -> String {
             table.row(vec![
                 s.segment.chars().take(24).collect(),
                 s.name.chars().take(20).collect(),
-                format!("{:.0}", s.rows),
-                format!("{:.4}", s.base_rate),
+                crate::format::fixed(s.rows, 0),
+                crate::format::fixed(s.base_rate, 4),
                 fixed(s.auc, 4),
-                format!("{:.2}%", 100.0 * s.flag_rate),
-                format!("{:.4}", s.mean_predicted),
+                format!("{}%", crate::format::fixed(100.0 * s.flag_rate, 2)),
+                crate::format::fixed(s.mean_predicted, 4),
             ]);
         }
         out.push_str(&table.render());
@@ -591,7 +591,7 @@ pub fn evaluation_html(
                 c.recall,
                 c.f1,
                 c.lift,
-                c.amount_capture.map_or_else(|| "–".into(), |a| format!("{:.1}%", 100.0 * a)),
+                c.amount_capture.map_or_else(|| "–".into(), |a| format!("{}%", crate::format::fixed(100.0 * a, 1))),
             ));
         }
         html.push_str("</table>\n<table><tr><th>band</th><th>probability</th><th>rows</th><th>events</th><th>event rate</th><th>odds</th><th>cum. capture</th></tr>\n");
@@ -604,7 +604,7 @@ pub fn evaluation_html(
                 g.count,
                 g.events,
                 g.event_rate,
-                g.odds.map_or_else(|| "–".into(), |o| format!("{o:.1}")),
+                g.odds.map_or_else(|| "–".into(), |o| crate::format::fixed(o, 1)),
                 100.0 * g.cumulative_capture,
             ));
         }
@@ -638,7 +638,8 @@ pub fn evaluation_html(
                     escape(&f.name),
                     row.cutoff,
                     100.0 * row.approval_rate,
-                    row.bad_rate_among_approved.map_or("–".into(), |b| format!("{:.2}%", 100.0 * b)),
+                    row.bad_rate_among_approved
+                        .map_or("–".into(), |b| format!("{}%", crate::format::fixed(100.0 * b, 2))),
                     row.expected_cost,
                 ));
             }

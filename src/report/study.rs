@@ -25,12 +25,12 @@ pub fn costs_text(figures: &[CostFigures]) -> String {
     for f in figures {
         table.row(vec![
             f.name.clone(),
-            format!("{:.4}", f.expected_cost),
-            format!("{:.4}", f.expected_cost_se),
+            crate::format::fixed(f.expected_cost, 4),
+            crate::format::fixed(f.expected_cost_se, 4),
             format!("{:.4} – {:.4}", f.expected_cost_ci[0], f.expected_cost_ci[1]),
-            format!("{:.2}", f.total_cost),
-            f.theoretical_cutoff.map_or("–".into(), |c| format!("{c:.4}")),
-            f.best_cutoff_on_holdout.map_or("–".into(), |c| format!("{c:.4}")),
+            crate::format::fixed(f.total_cost, 2),
+            f.theoretical_cutoff.map_or("–".into(), |c| crate::format::fixed(c, 4)),
+            f.best_cutoff_on_holdout.map_or("–".into(), |c| crate::format::fixed(c, 4)),
             f.actions.iter().map(|(a, n)| format!("{a} {n:.0}")).collect::<Vec<_>>().join(", "),
         ]);
     }
