@@ -189,7 +189,7 @@ fn predictions_feed_assess() {
     assert_eq!(code, 0, "{err}");
     let oof = std::fs::read_to_string(dir.path().join("oof.csv")).expect("predictions");
     assert!(oof.starts_with(
-        "application_id,application_month,fold,outcome,logistic:p_defaulted,logistic:p_repaid,lda:p_defaulted"
+        "application_id,application_month,fold,outcome,logistic:p_defaulted,logistic:p_repaid,logistic:log_odds,lda:p_defaulted"
     ));
     assert_eq!(oof.lines().count(), 5001);
     let (code, out, err) = run(
@@ -420,4 +420,58 @@ fn segments_without_events_show_unsigned_zero_rates() {
     let (code, out, err) = run(dir.path(), &args);
     assert_eq!(code, 0, "{err}");
     assert!(out.contains(" 0.0000 ") && !out.contains("-0.0000") && !out.contains("-0.00%"), "{out}");
+}
+
+/// Every figure `assess` computes from a comparison's `:log_odds` columns
+/// equals the comparison's own, to 1e-12 relative: the file holds what the
+/// figures are computed from, at full precision. From the probabilities,
+/// rows that round to exactly 0 or 1 would be clipped.
+#[test]
+fn log_odds_predictions_reproduce_the_comparison() {
+    let dir = temp_dir();
+    lending(dir.path());
+    let families = ["logistic", "naive-bayes", "lda", "qda"];
+    let mut args = vec!["compare"];
+    args.extend(LENDING);
+    for f in families {
+        args.extend(["--family", f]);
+    }
+    args.extend(["--predictions", "oof.csv", "--json", "c.json"]);
+    let (code, _, err) = run(dir.path(), &args);
+    assert_eq!(code, 0, "{err}");
+    let compared: Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("c.json")).expect("c.json")).expect("json");
+    let mut args = vec!["assess", "oof.csv", "--target", "outcome", "--id", "application_id,application_month,fold"];
+    let columns: Vec<String> = families.iter().map(|f| format!("{f}:log_odds")).collect();
+    for c in &columns {
+        args.extend(["--score", c.as_str()]);
+    }
+    args.extend(["--score-type", "log-odds", "--json", "-"]);
+    let (code, out, err) = run(dir.path(), &args);
+    assert_eq!(code, 0, "{err}");
+    let assessed: Value = serde_json::from_str(&out).expect("json");
+    let relative = |a: f64, c: f64| a == c || (a - c).abs() <= 1e-12 * a.abs().max(c.abs());
+    let mut checked = 0;
+    for (i, family) in families.iter().enumerate() {
+        let ours = assessed["results"][i]["metrics"].as_object().expect("metrics");
+        let theirs = compared["results"][i]["metrics"].as_object().expect("metrics");
+        for (key, value) in theirs {
+            let Some(c) = value.as_f64() else { continue };
+            let a = ours.get(key).and_then(Value::as_f64).unwrap_or(f64::NAN);
+            assert!(relative(a, c), "{family} {key}: assess {a} vs compare {c}");
+            checked += 1;
+        }
+    }
+    assert!(checked >= 40, "{checked} figures checked");
+    // The paired tests agree too.
+    assert_eq!(assessed["paired"].as_array().map(Vec::len), Some(6));
+    assert_eq!(compared["paired"].as_array().map(Vec::len), Some(6));
+    for (a, c) in
+        assessed["paired"].as_array().into_iter().flatten().zip(compared["paired"].as_array().into_iter().flatten())
+    {
+        for key in ["auc_diff", "z", "p_value"] {
+            let (x, y) = (a[key].as_f64().unwrap_or(f64::NAN), c[key].as_f64().unwrap_or(f64::NAN));
+            assert!(relative(x, y), "paired {key}: {x} vs {y}");
+        }
+    }
 }

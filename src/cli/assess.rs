@@ -1,4 +1,4 @@
-//! `baserate assess DATA --target COL --score COL [--score COL]... [--score-type probability|rank] [--direction higher-positive|lower-positive] [--json FILE] [--report FILE]`
+//! `baserate assess DATA --target COL --score COL [--score COL]... [--score-type probability|log-odds|rank] [--direction higher-positive|lower-positive] [--json FILE] [--report FILE]`
 //!
 //! The evaluation of `compare` for scores made elsewhere — a bureau score,
 //! another team's model — on every row of DATA, with the paired tests
@@ -11,14 +11,15 @@ use std::process::ExitCode;
 use crate::cli::data_args::DataArgs;
 use crate::cli::Failure;
 use baserate::data::Dataset;
-use baserate::evaluate::metrics::ScoreKind;
-use baserate::evaluate::study::{assess_scores, AssessRequest};
+use baserate::evaluate::study::{assess_scores, AssessRequest, ScoreScale};
 
 /// `--score-type` values.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
 pub enum ScoreTypeArg {
     /// Probabilities of the positive class: every metric.
     Probability,
+    /// Log odds of the positive class (a comparison's `:log_odds` columns): every metric, nothing lost near 0 or 1.
+    LogOdds,
     /// Points or grades: rank metrics only.
     Rank,
 }
@@ -72,9 +73,10 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let (dataset, _) = Dataset::read(&args.data, &options)?;
     let request = AssessRequest {
         scores: args.scores.clone(),
-        kind: match args.score_type {
-            ScoreTypeArg::Probability => ScoreKind::Probability,
-            ScoreTypeArg::Rank => ScoreKind::Rank,
+        scale: match args.score_type {
+            ScoreTypeArg::Probability => ScoreScale::Probability,
+            ScoreTypeArg::LogOdds => ScoreScale::LogOdds,
+            ScoreTypeArg::Rank => ScoreScale::Rank,
         },
         lower_positive: args.direction == DirectionArg::LowerPositive,
         train_prior: args.train_prior,

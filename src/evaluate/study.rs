@@ -15,7 +15,9 @@ use crate::evaluate::cost_figures::{cost_figures, CostFigures};
 use crate::evaluate::cross_validation::{cross_predict, Candidate, CandidateFailure, Predictions};
 use crate::evaluate::learning_curve::{learning_curve, LearningPoint};
 use crate::evaluate::metrics::ScoreKind;
-use crate::evaluate::paired::{evaluate, evaluate_reweighted, multiclass, Evaluation, EvaluationOptions, TestedScore};
+use crate::evaluate::paired::{
+    evaluate, evaluate_reweighted, log_odds_of, multiclass, Evaluation, EvaluationOptions, TestedScore,
+};
 use crate::model::penalised::{Penalty, PenaltyFit};
 use crate::model::{FamilyParams, FittedModel};
 use crate::prior::PriorSpec;
@@ -96,13 +98,38 @@ pub struct ComparisonRequest {
     pub predictions: bool,
 }
 
+/// How external scores are written.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ScoreScale {
+    /// Probabilities of the positive class, in [0, 1]; clipped to
+    /// [`PROBABILITY_CLIP`] from either end before taking log odds.
+    Probability,
+    /// Log posterior odds of the positive class, any finite number: read
+    /// as they are, so nothing is lost to rounding near 0 or 1 (the
+    /// `:log_odds` columns of a comparison's predictions file).
+    LogOdds,
+    /// Points or grades, only their order meaningful.
+    Rank,
+}
+
+impl ScoreScale {
+    /// The metrics a score of this scale gets.
+    pub fn kind(self) -> ScoreKind {
+        match self {
+            ScoreScale::Probability | ScoreScale::LogOdds => ScoreKind::Probability,
+            ScoreScale::Rank => ScoreKind::Rank,
+        }
+    }
+}
+
 /// Scores made elsewhere, to be judged like a comparison's candidates.
 #[derive(Debug, Clone)]
 pub struct AssessRequest {
     /// Numeric score columns of the dataset.
     pub scores: Vec<String>,
-    /// Probabilities (every metric) or ranks (rank metrics only).
-    pub kind: ScoreKind,
+    /// What the scores are: probabilities or log odds (every metric), or
+    /// ranks (rank metrics only).
+    pub scale: ScoreScale,
     /// Lower scores mean more likely positive (credit points, say).
     pub lower_positive: bool,
     /// The positive class's share in the data the probability scores are
@@ -355,7 +382,11 @@ fn assignment(dataset: &Dataset, split: &SplitChoice, seed: u64) -> Result<Assig
 }
 
 /// The out-of-fold predictions of the first repeat as CSV: the id columns,
-/// the fold, the label, then each candidate's posteriors.
+/// the fold, the label, then each candidate's posteriors and, at full
+/// precision, what the figures are computed from: the log odds of the
+/// positive class (`NAME:log_odds`) for two classes, each class's log
+/// posterior (`NAME:log_posterior_CLASS`) for more. Posteriors round to
+/// exactly 0 or 1 far from the boundary; the logs do not.
 fn predictions_csv(dataset: &Dataset, predictions: &[Predictions], assignment: &Assignment) -> Vec<u8> {
     let target = &dataset.schema.target;
     let k = target.classes.len();
@@ -372,8 +403,14 @@ fn predictions_csv(dataset: &Dataset, predictions: &[Predictions], assignment: &
     let mut header: Vec<String> = dataset.ids.iter().map(|(n, _)| n.clone()).collect();
     header.push("fold".into());
     header.push(target.column.clone());
+    let positive = target.positive_index();
     for p in predictions {
         header.extend(target.classes.iter().map(|c| format!("{}:p_{c}", p.name)));
+        if k == 2 {
+            header.push(format!("{}:log_odds", p.name));
+        } else {
+            header.extend(target.classes.iter().map(|c| format!("{}:log_posterior_{c}", p.name)));
+        }
     }
     write(&header);
     for i in 0..dataset.rows() {
@@ -384,7 +421,13 @@ fn predictions_csv(dataset: &Dataset, predictions: &[Predictions], assignment: &
         record.push((assignment.folds[0][i] + 1).to_string());
         record.push(target.classes[dataset.target[i] as usize].clone());
         for p in predictions {
-            record.extend((0..k).map(|c| crate::format::exact(p.log_posteriors[0][(i, c)].exp())));
+            let row: Vec<f64> = (0..k).map(|c| p.log_posteriors[0][(i, c)]).collect();
+            record.extend(row.iter().map(|lp| crate::format::exact(lp.exp())));
+            if k == 2 {
+                record.push(crate::format::exact(log_odds_of(&row, positive)));
+            } else {
+                record.extend(row.iter().map(|&lp| crate::format::exact(lp)));
+            }
         }
         write(&record);
     }
@@ -556,7 +599,7 @@ pub fn assess_scores(dataset: &Dataset, request: &AssessRequest) -> Result<Study
                 " must lie strictly between 0 and 1"
             ]))
         }
-        (Some(_), None) if request.kind == ScoreKind::Probability => {
+        (Some(_), None) if request.scale != ScoreScale::Rank => {
             return Err(Error::invalid(crate::error::message![
                 Setting::Prior,
                 " and ",
@@ -577,9 +620,10 @@ pub fn assess_scores(dataset: &Dataset, request: &AssessRequest) -> Result<Study
             Error::invalid(crate::error::message![Setting::ScoreColumns, format!(" {name} is not a numeric column")])
         })?;
         let column = dataset.numeric.column(j);
-        let log_odds: Vec<f64> = match request.kind {
-            ScoreKind::Rank => column.iter().map(|v| sign * v).collect(),
-            ScoreKind::Probability => {
+        let log_odds: Vec<f64> = match request.scale {
+            ScoreScale::Rank => column.iter().map(|v| sign * v).collect(),
+            ScoreScale::LogOdds => column.iter().map(|v| sign * v + shift).collect(),
+            ScoreScale::Probability => {
                 if let Some((i, v)) = column.iter().enumerate().find(|(_, v)| !(0.0..=1.0).contains(*v)) {
                     return Err(Error::invalid(crate::error::message![
                         Setting::ScoreColumns,
@@ -603,7 +647,7 @@ pub fn assess_scores(dataset: &Dataset, request: &AssessRequest) -> Result<Study
             family: None,
             log_odds: vec![log_odds],
             rows: vec![rows.clone()],
-            kind: request.kind,
+            kind: request.scale.kind(),
             warnings: Vec::new(),
         });
     }
