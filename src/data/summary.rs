@@ -12,8 +12,24 @@ use crate::data::schema::NumericSummary;
 
 const BUCKETS: usize = 1 << 12;
 
+/// The power of two that brings a column's largest magnitude near 1: its
+/// values are divided by it before sums of squares are taken, so that a
+/// column at 1e300 does not overflow and one at 1e-300 does not underflow
+/// to a spread of 0. Exactly 1 for everyday magnitudes (1e-100 to 1e100),
+/// where dividing would change nothing; the exponent is kept within ±1000
+/// so that both the unit and its inverse are normal doubles.
+pub fn magnitude_unit(largest: f64) -> f64 {
+    if !(largest > 1e-100 && largest < 1e100) && largest.is_finite() && largest > 0.0 {
+        2f64.powi((largest.log2().round() as i32).clamp(-1000, 1000))
+    } else {
+        1.0
+    }
+}
+
 /// Summarises the non-missing (non-NaN) values of a column; `None` when
-/// every value is missing.
+/// every value is missing. Mean and standard deviation are computed on the
+/// values divided by [`magnitude_unit`], so they are right at any scale a
+/// double holds.
 pub fn summarize(values: &[f64]) -> Option<NumericSummary> {
     // Pass 1: count, sum and range.
     let mut count = 0usize;
@@ -35,28 +51,37 @@ pub fn summarize(values: &[f64]) -> Option<NumericSummary> {
     if count == 0 {
         return None;
     }
+    let unit = magnitude_unit(min.abs().max(max.abs()));
+    let inverse_unit = 1.0 / unit;
+    if unit != 1.0 {
+        // Only at extreme scales: the sum again, of scaled values.
+        sum = values.iter().filter(|v| !v.is_nan()).map(|v| v * inverse_unit).sum();
+    }
+    // The first mean, in units of `unit`.
     let rough_mean = sum / count as f64;
     // Pass 2: deviations about the first mean (the correction term keeps
     // the result accurate when the mean is large against the spread), and
     // the quantile histogram.
-    let buckets = Buckets::new(min, max);
+    let buckets = Buckets::new(min * inverse_unit, max * inverse_unit);
     let mut histogram = vec![0u32; BUCKETS];
     let mut bucket_of = vec![u16::MAX; values.len()];
     let (mut deviation_sum, mut square_sum) = (0.0, 0.0);
     for (&v, bucket) in values.iter().zip(bucket_of.iter_mut()) {
         if !v.is_nan() {
-            let d = v - rough_mean;
+            let d = v * inverse_unit - rough_mean;
             deviation_sum += d;
             square_sum += d * d;
-            let b = buckets.of(v);
+            let b = buckets.of(v * inverse_unit);
             histogram[b] += 1;
             *bucket = b as u16;
         }
     }
     let n = count as f64;
-    let mean = rough_mean + deviation_sum / n;
+    let mean = (rough_mean + deviation_sum / n) * unit;
     let variance =
         if count > 1 { ((square_sum - deviation_sum * deviation_sum / n) / (n - 1.0)).max(0.0) } else { 0.0 };
+    // A column with two distinct values is never constant, however close.
+    let std_dev = if max > min { (variance.sqrt() * unit).max(f64::from_bits(1)) } else { 0.0 };
     let probabilities: Vec<f64> = (1..=9).map(|k| k as f64 / 10.0).chain([0.5]).collect();
     let ranks = type7_ranks(count, &probabilities);
     // Pass 3: the values in the buckets that hold the wanted ranks.
@@ -66,15 +91,7 @@ pub fn summarize(values: &[f64]) -> Option<NumericSummary> {
         order_statistics(&histogram, &ranks, values.iter().zip(&bucket_of).map(|(&v, &b)| (usize::from(b), v)))
     };
     let quantiles = interpolate_type7(count, &probabilities, &order);
-    Some(NumericSummary {
-        count,
-        mean,
-        std_dev: variance.sqrt(),
-        min,
-        max,
-        deciles: quantiles[..9].to_vec(),
-        median: quantiles[9],
-    })
+    Some(NumericSummary { count, mean, std_dev, min, max, deciles: quantiles[..9].to_vec(), median: quantiles[9] })
 }
 
 /// Equal-width buckets between the minimum and the maximum; the map from
@@ -130,12 +147,13 @@ pub fn quantiles_type7(values: &[f64], count: usize, min: f64, max: f64, probabi
     let order = if max <= min {
         vec![min; ranks.len()]
     } else {
-        let buckets = Buckets::new(min, max);
+        let inverse_unit = 1.0 / magnitude_unit(min.abs().max(max.abs()));
+        let buckets = Buckets::new(min * inverse_unit, max * inverse_unit);
         let mut histogram = vec![0u32; BUCKETS];
         for &v in values.iter().filter(|v| !v.is_nan()) {
-            histogram[buckets.of(v)] += 1;
+            histogram[buckets.of(v * inverse_unit)] += 1;
         }
-        let tagged = values.iter().filter(|v| !v.is_nan()).map(|&v| (buckets.of(v), v));
+        let tagged = values.iter().filter(|v| !v.is_nan()).map(|&v| (buckets.of(v * inverse_unit), v));
         order_statistics(&histogram, &ranks, tagged)
     };
     interpolate_type7(count, probabilities, &order)
@@ -196,6 +214,24 @@ mod tests {
             assert_eq!(*d, sorted_type7(&values, (k + 1) as f64 / 10.0));
         }
         assert_eq!(s.median, sorted_type7(&values, 0.5));
+    }
+
+    /// Mean and standard deviation at the edges of what a double holds:
+    /// the values 1, 2, 3 times 10^e have mean 2·10^e and standard
+    /// deviation 10^e (n − 1 divisor), at every e.
+    #[test]
+    fn moments_hold_at_any_scale() {
+        for e in [-300, -200, -154, 0, 154, 200, 300] {
+            let scale = 10f64.powi(e);
+            let s = summarize(&[scale, 2.0 * scale, 3.0 * scale]).unwrap();
+            approx::assert_relative_eq!(s.mean, 2.0 * scale, max_relative = 1e-14);
+            approx::assert_relative_eq!(s.std_dev, scale, max_relative = 1e-14);
+            approx::assert_relative_eq!(s.median, 2.0 * scale, max_relative = 1e-14);
+        }
+        // Two distinct values are never constant, however close.
+        let s = summarize(&[1e-320, 2e-320, 1e-320]).unwrap();
+        assert!(s.std_dev > 0.0);
+        assert_eq!(summarize(&[7.0, 7.0]).unwrap().std_dev, 0.0);
     }
 
     #[test]

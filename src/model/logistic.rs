@@ -431,6 +431,14 @@ impl Problem<'_> {
     }
 }
 
+/// Weighted mean and standard deviation (divisor: the total weight) of
+/// values already brought near unit magnitude.
+fn scaled_mean_sd(values: impl Iterator<Item = f64> + Clone, weights: &[f64], total: f64) -> (f64, f64) {
+    let mean = values.clone().zip(weights).map(|(v, w)| w * v).sum::<f64>() / total;
+    let square = values.zip(weights).map(|(v, w)| w * (v - mean) * (v - mean)).sum::<f64>() / total;
+    (mean, square.sqrt())
+}
+
 /// Fits a logistic regression with the given row weights (the dataset's
 /// own, or those of a training fold), starting from `start` (a previous
 /// fit on similar rows: a warm start) or from the intercept-only solution.
@@ -465,8 +473,21 @@ pub fn fit(
     let class_mix: Vec<f64> = class_weight_totals.iter().map(|w| w / total_weight).collect();
     let all_one_class = vec![0u32; dataset.rows()];
     let overall = crate::model::moments::class_moments(&encoding, &inputs, &all_one_class, Some(&weights), 1, true);
-    let centre = overall[0].mean.clone();
-    let scale: Vec<f64> = overall[0].scatter.iter().map(|s| (s / total_weight).sqrt()).collect();
+    let mut centre = overall[0].mean.clone();
+    let mut scale: Vec<f64> = overall[0].scatter.iter().map(|s| (s / total_weight).sqrt()).collect();
+    // A numeric input at an extreme magnitude is standardised from moments
+    // of its values divided by a power of two near that magnitude: squares
+    // in its own units would overflow (1e300) or underflow to 0 (1e-300).
+    for j in 0..inputs.numeric.ncols() {
+        let column = inputs.numeric.column(j);
+        let largest = column.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        let unit = crate::data::summary::magnitude_unit(largest);
+        if unit != 1.0 {
+            let (mean, sd) = scaled_mean_sd(column.iter().map(|v| v / unit), &weights, total_weight);
+            centre[j] = mean * unit;
+            scale[j] = sd * unit;
+        }
+    }
     if let Some(j) = (0..d).find(|&j| !(scale[j] > 0.0)) {
         return Err(Error::SingularCovariance {
             family: "logistic".into(),
@@ -697,10 +718,26 @@ pub fn fit(
     }
     let covariance = if lambda == 0.0 && !current.hessian.is_empty() {
         let information = DMatrix::from_row_slice(size, size, &current.hessian);
-        cholesky(&information).ok().map(|f| {
+        cholesky(&information).ok().and_then(|f| {
             let standardised = f.inverse();
             let original = &transform * standardised * transform.transpose();
-            original.transpose().as_slice().to_vec()
+            // At an input's extreme scale its slope's variance (the square
+            // of a standard error of 1e200, say) may lie beyond a double.
+            let beyond: Vec<&str> = (0..size)
+                .filter(|&i| i % width > 0 && !original.row(i).iter().all(|v| v.is_finite()))
+                .map(|i| terms[i % width - 1].as_str())
+                .collect();
+            if beyond.is_empty() {
+                Some(original.transpose().as_slice().to_vec())
+            } else {
+                let mut named = beyond;
+                named.dedup();
+                warnings.push(format!(
+                    "no standard errors are stored: at the scale of {} the coefficients' variances lie beyond what a double holds; rescale the column for them",
+                    named.iter().map(|t| format!("'{t}'")).collect::<Vec<_>>().join(", ")
+                ));
+                None
+            }
         })
     } else {
         None

@@ -222,6 +222,38 @@ pub fn fit(dataset: &Dataset, params: &FamilyParams) -> Result<(FittedModel, Dia
     fit_weighted(dataset, params, dataset.weights.as_deref(), None)
 }
 
+/// Standard deviations beyond which a Gaussian family's variances (the
+/// squares) would leave the range a double holds with full precision,
+/// about 1e-290 to 1e290.
+pub const GAUSSIAN_SPREAD_RANGE: (f64, f64) = (1e-145, 1e145);
+
+/// The Gaussian families hold variances in the data's own units. A numeric
+/// input whose spread (its training summary's standard deviation, computed
+/// at any scale) puts them outside [`GAUSSIAN_SPREAD_RANGE`] is refused with
+/// the remedy, rather than called constant (the squares underflow to 0) or
+/// given an infinite variance. Logistic regression standardises each input
+/// by its own magnitude and fits such a column as it is.
+fn check_gaussian_scale(dataset: &Dataset, family: &str) -> Result<()> {
+    let (low, high) = GAUSSIAN_SPREAD_RANGE;
+    for column in &dataset.schema.columns {
+        let Some(summary) = &column.numeric else { continue };
+        let sd = summary.std_dev;
+        if sd > 0.0 && !(low..=high).contains(&sd) {
+            let magnitude = if sd < low { "small" } else { "large" };
+            return Err(Error::FitFailed {
+                family: family.into(),
+                message: format!(
+                    "column '{}' varies on a scale of about {sd:.0e}, too {magnitude} for its variance to be held in the data's units; rescale it (multiply it by about {:.0e}), or use logistic regression, which fits it as it is",
+                    column.name,
+                    1.0 / sd
+                )
+                .into(),
+            });
+        }
+    }
+    Ok(())
+}
+
 /// Fits a family with the given row weights — the dataset's own, or those of
 /// a training fold (a weight of 0 leaves a row out exactly) — optionally
 /// starting from an earlier fit of the same family (used by logistic
@@ -233,6 +265,9 @@ pub fn fit_weighted(
     start: Option<&FittedModel>,
 ) -> Result<(FittedModel, Diagnostics)> {
     params.check()?;
+    if !matches!(params, FamilyParams::Logistic(_)) {
+        check_gaussian_scale(dataset, params.family().name())?;
+    }
     match params {
         FamilyParams::Logistic(p) => {
             let start = match start {

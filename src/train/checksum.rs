@@ -2,7 +2,8 @@
 //!
 //! The canonical form of a model file is its content as compact JSON:
 //! members in the order they appear, no whitespace, numbers in shortest
-//! round-trip form (`1.50` is `1.5`), strings escaped as serde_json escapes
+//! round-trip form as serde_json writes them (`1.50` is `1.5`, `3.0e300` is
+//! `3e+300`), strings escaped as serde_json escapes
 //! them, and the top-level `checksum` member left out. The writer hashes
 //! the compact serialisation of the typed file; the reader rebuilds the same
 //! bytes from the file's tokens as it streams through them, keeping
@@ -178,11 +179,17 @@ impl<'de> Visitor<'de> for Canonical<'_> {
         Ok(())
     }
 
-    fn visit_f64<E>(self, v: f64) -> Result<(), E> {
-        // serde_json writes finite floats with ryu, as here; JSON has no
-        // other kind.
-        let mut buffer = ryu::Buffer::new();
-        self.scalar(buffer.format_finite(v).as_bytes());
+    fn visit_f64<E: serde::de::Error>(self, v: f64) -> Result<(), E> {
+        // Written exactly as the writer's serde_json writes it (its float
+        // formatter puts a `+` in large exponents, `1e+154`, where other
+        // shortest-digit writers do not); JSON has no non-finite numbers.
+        use serde_json::ser::Formatter;
+        let mut buffer = std::io::Cursor::new([0u8; 40]);
+        if serde_json::ser::CompactFormatter.write_f64(&mut buffer, v).is_err() {
+            return Err(E::custom("a number too long to write"));
+        }
+        let written = buffer.position() as usize;
+        self.scalar(&buffer.get_ref()[..written]);
         Ok(())
     }
 
@@ -263,11 +270,23 @@ mod tests {
         let edited = scan(written.replace("1.5", "1.6").as_bytes()).unwrap();
         assert_ne!(a.digest, edited.digest);
         // The hash of the canonical bytes, with the checksum member left out.
-        let canonical = r#"{"format":"f","format_version":2,"a":[1.5,-2,3e300,"x\"y",null,true,{"b":0.1}]}"#;
+        let canonical = r#"{"format":"f","format_version":2,"a":[1.5,-2,3e+300,"x\"y",null,true,{"b":0.1}]}"#;
         let mut expected = Hashing::new();
         expected.write_all(canonical.as_bytes()).unwrap();
         assert_eq!(a.digest, expected.finish());
         assert_eq!((a.scalars, a.containers), (7, 3));
+    }
+
+    /// The canonical bytes of compact serde_json output are that output
+    /// itself, whatever the numbers: serde_json writes `1e+154` with a
+    /// sign in the exponent, and the reader must write it so too.
+    #[test]
+    fn compact_serde_json_is_its_own_canonical_form() {
+        let numbers = [1e154, 1e16, 1.5e300, -2.5e-310, 5e-324, 0.1, 1e-7, 123456789012345680000.0, -0.0];
+        let text = serde_json::to_string(&serde_json::json!({ "format": "f", "a": numbers })).unwrap();
+        let mut hashing = Hashing::new();
+        hashing.write_all(text.as_bytes()).unwrap();
+        assert_eq!(scan(text.as_bytes()).unwrap().digest, hashing.finish(), "{text}");
     }
 
     #[test]
