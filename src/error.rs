@@ -123,6 +123,8 @@ pub enum Setting {
     /// Loading a model whose content no longer matches its checksum
     /// (`ModelFile::open`'s `accept_edited`).
     AcceptEdited,
+    /// The most memory a fit may take (`TrainRequest::memory_limit`).
+    MemoryLimit,
 }
 
 impl Setting {
@@ -182,6 +184,7 @@ impl Setting {
             Setting::Bootstrap => "bootstrap",
             Setting::Threads => "threads",
             Setting::Delimiter => "delimiter",
+            Setting::MemoryLimit => "memory_limit",
         }
     }
 

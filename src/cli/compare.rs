@@ -27,6 +27,9 @@ pub struct Args {
     /// Data options.
     #[command(flatten)]
     pub data_args: DataArgs,
+    /// The memory limit of a fit.
+    #[command(flatten)]
+    pub memory: crate::cli::memory_arg::MemoryArgs,
     /// A family to compare, with options after a colon (repeatable; default: all four).
     #[arg(long = "family", value_name = "F[:OPTION=VALUE,...]")]
     pub families: Vec<String>,
@@ -203,6 +206,8 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         learning_curve: args.learning_curve,
         penalised_paths: args.evaluation.report.is_some(),
         predictions: args.predictions.is_some(),
+
+        memory_limit: args.memory.memory_limit,
     };
     let study = compare_families(dataset, &request)?;
     for note in &study.notes {

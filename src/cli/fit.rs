@@ -28,6 +28,9 @@ pub struct Args {
     /// Data options.
     #[command(flatten)]
     pub data_args: DataArgs,
+    /// The memory limit of a fit.
+    #[command(flatten)]
+    pub memory: crate::cli::memory_arg::MemoryArgs,
     /// The family to fit.
     #[arg(long, value_enum)]
     pub family: FamilyArg,
@@ -167,6 +170,8 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         }),
         seed: args.seed,
         source: TrainingSource { input_path: args.data.display().to_string(), input_sha256 },
+
+        memory_limit: args.memory.memory_limit,
     };
     let file = train(&dataset, &request)?;
     file.save(&args.out)?;

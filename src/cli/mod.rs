@@ -20,6 +20,7 @@ pub mod export_sql;
 pub mod family_args;
 pub mod fit;
 pub mod inspect;
+pub mod memory_arg;
 pub mod model_arg;
 pub mod output;
 pub mod score;
@@ -95,6 +96,7 @@ pub fn flag(setting: Setting, value: Option<&str>) -> String {
     let flag = match setting {
         Setting::Target => "--target",
         Setting::AcceptEdited => "--accept-edited-model",
+        Setting::MemoryLimit => "--memory-limit",
         Setting::Bootstrap => "--bootstrap",
         Setting::Threads => "--threads",
         Setting::Delimiter => "--delimiter",

@@ -96,6 +96,9 @@ pub struct ComparisonRequest {
     pub penalised_paths: bool,
     /// Also return the out-of-fold predictions (first repeat) as CSV.
     pub predictions: bool,
+    /// The most memory one candidate's fit may take, in bytes (`None`:
+    /// half the machine's); a candidate estimated above it fails at once.
+    pub memory_limit: Option<u64>,
 }
 
 /// How external scores are written.
@@ -467,14 +470,33 @@ pub fn compare_families(mut dataset: Dataset, request: &ComparisonRequest) -> Re
     let options = &request.options;
     let assignment = assignment(&dataset, &request.split, options.seed)?;
     let target_prior = resolve_target_prior(&dataset, options)?;
-    let (predictions, failed): (Vec<Predictions>, Vec<Predictions>) =
-        cross_predict(&dataset, &request.candidates, &assignment, target_prior.as_deref())?
+    // What the schema, the counts and the memory estimate rule out fails
+    // before any fold, and costs no pass over the rows.
+    let mut failed: Vec<FailedCandidate> = Vec::new();
+    let mut runnable: Vec<Candidate> = Vec::new();
+    for c in &request.candidates {
+        let checked = crate::model::check_before_fitting(&dataset, &c.params, dataset.weights.as_deref())
+            .and_then(|()| crate::model::check_memory(&dataset, &c.params, request.memory_limit));
+        match checked {
+            Ok(()) => runnable.push(c.clone()),
+            Err(e) => failed.push(FailedCandidate {
+                name: c.name.clone(),
+                family: c.params.family(),
+                failure: CandidateFailure { place: "the checks before fitting".into(), error: std::sync::Arc::new(e) },
+            }),
+        }
+    }
+    let (predictions, failed_in_folds): (Vec<Predictions>, Vec<Predictions>) =
+        cross_predict(&dataset, &runnable, &assignment, target_prior.as_deref())?
             .into_iter()
             .partition(|p| p.failure.is_none());
-    let failed: Vec<FailedCandidate> = failed
-        .into_iter()
-        .filter_map(|p| Some(FailedCandidate { name: p.name, family: p.family?, failure: p.failure? }))
-        .collect();
+    failed.extend(
+        failed_in_folds
+            .into_iter()
+            .filter_map(|p| Some(FailedCandidate { name: p.name, family: p.family?, failure: p.failure? })),
+    );
+    // In the order the candidates were given.
+    failed.sort_by_key(|f| request.candidates.iter().position(|c| c.name == f.name));
     if predictions.is_empty() {
         return Err(Error::EveryCandidateFailed(
             failed.into_iter().map(|f| (f.name, f.failure.place, f.failure.error)).collect(),

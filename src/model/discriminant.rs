@@ -236,6 +236,17 @@ impl DiscriminantModel {
     }
 }
 
+/// The rows with positive weight each class needs for QDA on `d` design
+/// columns: a class's own covariance is singular with d rows or fewer,
+/// unless `reg` mixes the pooled one in fully.
+pub(crate) fn qda_rows_needed(params: &QdaParams, d: usize) -> usize {
+    let needed = match params.divisor {
+        Divisor::Unbiased => 2,
+        Divisor::Rows => 1,
+    };
+    needed.max(if params.reg < 1.0 { d + 1 } else { needed })
+}
+
 fn check_classes(family: &str, classes: &[String], moments: &[Moments], needed: usize, hint: Message) -> Result<()> {
     for (k, m) in moments.iter().enumerate() {
         if m.rows < needed {
@@ -330,6 +341,15 @@ fn lda_hint() -> Message {
         Setting::Exclude,
         "), or shrink the covariance with ",
         Setting::Shrinkage.set_to("ledoit-wolf")
+    ]
+}
+
+/// What to do when a class has no more rows than QDA has inputs.
+pub(crate) fn qda_rows_hint() -> Message {
+    crate::error::message![
+        "a class's own covariance of that many inputs is singular with so few rows; use fewer inputs (",
+        Setting::Exclude,
+        "), naive-bayes or lda"
     ]
 }
 
@@ -494,11 +514,7 @@ pub fn qda_from_moments(
     if d == 0 {
         return Err(Error::FitFailed { family: "qda".into(), message: "there are no inputs to model".into() });
     }
-    let needed = match params.divisor {
-        Divisor::Unbiased => 2,
-        Divisor::Rows => 1,
-    };
-    check_classes("qda", classes, &moments, needed.max(if params.reg < 1.0 { d + 1 } else { needed }), qda_hint())?;
+    check_classes("qda", classes, &moments, qda_rows_needed(params, d), qda_rows_hint())?;
     let n: f64 = moments.iter().map(|m| m.weight).sum();
     let pooled = if params.reg > 0.0 {
         let divisor = match params.divisor {

@@ -222,6 +222,120 @@ pub fn fit(dataset: &Dataset, params: &FamilyParams) -> Result<(FittedModel, Dia
     fit_weighted(dataset, params, dataset.weights.as_deref(), None)
 }
 
+/// What can be refused from the schema and the counts alone, before any
+/// pass over the rows: a spread the Gaussian families cannot hold, and
+/// what the row counts rule out. Every fit runs it; a comparison runs it
+/// (with [`check_memory`]) for each candidate before its folds.
+pub fn check_before_fitting(dataset: &Dataset, params: &FamilyParams, weights: Option<&[f64]>) -> Result<()> {
+    if !matches!(params, FamilyParams::Logistic(_)) {
+        check_gaussian_scale(dataset, params.family().name())?;
+    }
+    check_counts(dataset, params, weights)
+}
+
+/// What the row counts rule out, refused before any pass over the rows
+/// (a pass costs d² per row; at thousands of columns, minutes and
+/// gigabytes): QDA with no more rows in some class than design columns,
+/// LDA without a diagonal weight with d ≥ n − K.
+fn check_counts(dataset: &Dataset, params: &FamilyParams, weights: Option<&[f64]>) -> Result<()> {
+    let d = design::Encoding::from_schema(&dataset.schema).width();
+    let classes = &dataset.schema.target.classes;
+    let mut rows = vec![0usize; classes.len()];
+    for (r, &y) in dataset.target.iter().enumerate() {
+        if weights.map_or(true, |w| w[r] > 0.0) {
+            rows[y as usize] += 1;
+        }
+    }
+    match params {
+        FamilyParams::Qda(p) => {
+            let needed = discriminant::qda_rows_needed(p, d);
+            if let Some((class, &n)) = rows.iter().enumerate().find(|(_, &n)| n < needed) {
+                return Err(Error::TooFewRows {
+                    family: "qda".into(),
+                    class: classes[class].clone(),
+                    rows: n,
+                    needed,
+                    hint: discriminant::qda_rows_hint(),
+                });
+            }
+        }
+        FamilyParams::Lda(p) if p.shrinkage == discriminant::Shrinkage::None => {
+            let (n, k) = (rows.iter().sum::<usize>(), classes.len());
+            if d >= n.saturating_sub(k) {
+                return Err(Error::FitFailed {
+                    family: "lda".into(),
+                    message: crate::error::message![
+                        format!(
+                            "{n} rows in {k} classes leave {} degrees of freedom for a pooled covariance of {d} inputs, which needs more than {d}; use a diagonal weight (",
+                            n.saturating_sub(k)
+                        ),
+                        Setting::Shrinkage.set_to("ledoit-wolf"),
+                        "), fewer inputs, or naive-bayes"
+                    ],
+                });
+            }
+        }
+        _ => {}
+    }
+    Ok(())
+}
+
+/// Bytes a fit of `params` holds at its peak beyond the dataset itself:
+/// the d × d (or, for logistic regression, parameter-sized) matrices it
+/// builds, counted as the code allocates them, with one set of per-class
+/// accumulators per thread.
+pub fn fit_memory_estimate(dataset: &Dataset, params: &FamilyParams) -> u64 {
+    let d = design::Encoding::from_schema(&dataset.schema).width() as u64;
+    let k = dataset.schema.target.classes.len() as u64;
+    let threads = rayon::current_num_threads() as u64;
+    let matrix = d * d * 8;
+    match params {
+        // Information matrix, its copy as a system, the factor, the
+        // inverse and the transform, and a per-thread accumulator.
+        FamilyParams::Logistic(_) => {
+            let size = (k - 1) * (d + 1);
+            (5 + threads) * size * size * 8
+        }
+        FamilyParams::NaiveBayes(_) => (threads + 2) * k * d * 8,
+        // Per-class scatter (per thread while accumulating), the pooled
+        // covariance, its factor, inverse and copies.
+        FamilyParams::Lda(_) => (threads * k + k + 5) * matrix,
+        // Per class: scatter (per thread), covariance, factor, inverse.
+        FamilyParams::Qda(_) => (threads * k + 4 * k + 1) * matrix,
+    }
+}
+
+/// Half the machine's memory: the default limit of a fit's estimate
+/// (`None` where the machine's memory cannot be read).
+pub fn default_memory_limit() -> Option<u64> {
+    crate::io::machine_memory().map(|bytes| bytes / 2)
+}
+
+/// Refuses a fit whose [`fit_memory_estimate`] exceeds `limit` (`None`:
+/// [`default_memory_limit`]), before any pass over the rows.
+pub fn check_memory(dataset: &Dataset, params: &FamilyParams, limit: Option<u64>) -> Result<()> {
+    let Some(limit) = limit.or_else(default_memory_limit) else { return Ok(()) };
+    let estimate = fit_memory_estimate(dataset, params);
+    if estimate > limit {
+        let gib = |b: u64| b as f64 / (1u64 << 30) as f64;
+        return Err(Error::FitFailed {
+            family: params.family().name().into(),
+            message: crate::error::message![
+                format!(
+                    "with {} design columns the fit would take about {:.1} GiB, above the limit of {:.1} GiB; use fewer inputs (",
+                    design::Encoding::from_schema(&dataset.schema).width(),
+                    gib(estimate),
+                    gib(limit)
+                ),
+                Setting::Exclude,
+                "), or raise ",
+                Setting::MemoryLimit
+            ],
+        });
+    }
+    Ok(())
+}
+
 /// Standard deviations beyond which a Gaussian family's variances (the
 /// squares) would leave the range a double holds with full precision,
 /// about 1e-290 to 1e290.
@@ -265,9 +379,7 @@ pub fn fit_weighted(
     start: Option<&FittedModel>,
 ) -> Result<(FittedModel, Diagnostics)> {
     params.check()?;
-    if !matches!(params, FamilyParams::Logistic(_)) {
-        check_gaussian_scale(dataset, params.family().name())?;
-    }
+    check_before_fitting(dataset, params, weights)?;
     match params {
         FamilyParams::Logistic(p) => {
             let start = match start {

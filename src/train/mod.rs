@@ -56,6 +56,9 @@ pub struct TrainRequest {
     pub seed: u64,
     /// Where the rows came from.
     pub source: TrainingSource,
+    /// The most memory the fit may take, in bytes (`None`: half the
+    /// machine's); a fit estimated above it is refused before it starts.
+    pub memory_limit: Option<u64>,
 }
 
 impl TrainRequest {
@@ -68,6 +71,7 @@ impl TrainRequest {
             calibration: None,
             seed: 1,
             source: TrainingSource::default(),
+            memory_limit: None,
         }
     }
 }
@@ -122,6 +126,7 @@ pub fn train(dataset: &Dataset, request: &TrainRequest) -> Result<ModelFile> {
     if request.calibration.is_some() && target.classes.len() != 2 {
         return Err(Error::Usage("calibration is for two classes".into()));
     }
+    crate::model::check_memory(dataset, params, request.memory_limit)?;
     let (model, diagnostics) = crate::model::fit(dataset, params)?;
     let training_class_mix = match &model {
         FittedModel::Logistic(m) => m.class_mix.clone(),
