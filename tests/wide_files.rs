@@ -36,6 +36,11 @@ fn wide_files_are_refused_before_the_fit_starts() {
     let (code, _, err) = run(d, &["fit", "wide.csv", "--target", "y", "--family", "qda", "-o", "m.json"]);
     assert_eq!(code, 1, "{err}");
     assert!(err.contains("class 'a' has 133 rows with positive weight, and needs at least 5001"), "{err}");
+    assert!(err.contains("--reg"), "{err}");
+    let (code, _, err) =
+        run(d, &["fit", "wide.csv", "--target", "y", "--family", "qda", "--reg", "0.1", "-o", "m.json"]);
+    assert_eq!(code, 1, "{err}");
+    assert!(err.contains("pooled covariance of 5000 inputs") && err.contains("cannot mend"), "{err}");
     let (code, _, err) =
         run(d, &["fit", "wide.csv", "--target", "y", "--family", "logistic", "--memory-limit", "100M", "-o", "m.json"]);
     assert_eq!(code, 1, "{err}");

@@ -238,13 +238,13 @@ impl DiscriminantModel {
 
 /// The rows with positive weight each class needs for QDA on `d` design
 /// columns: a class's own covariance is singular with d rows or fewer,
-/// unless `reg` mixes the pooled one in fully.
+/// which only mixing in the pooled one (`reg` > 0) mends.
 pub(crate) fn qda_rows_needed(params: &QdaParams, d: usize) -> usize {
     let needed = match params.divisor {
         Divisor::Unbiased => 2,
         Divisor::Rows => 1,
     };
-    needed.max(if params.reg < 1.0 { d + 1 } else { needed })
+    needed.max(if params.reg > 0.0 { needed } else { d + 1 })
 }
 
 fn check_classes(family: &str, classes: &[String], moments: &[Moments], needed: usize, hint: Message) -> Result<()> {
@@ -347,9 +347,11 @@ fn lda_hint() -> Message {
 /// What to do when a class has no more rows than QDA has inputs.
 pub(crate) fn qda_rows_hint() -> Message {
     crate::error::message![
-        "a class's own covariance of that many inputs is singular with so few rows; use fewer inputs (",
+        "a class's own covariance of that many inputs is singular with so few rows; mix in the pooled one with ",
+        Setting::Reg,
+        " (e.g. 0.1), use fewer inputs (",
         Setting::Exclude,
-        "), naive-bayes or lda"
+        "), or use naive-bayes or lda"
     ]
 }
 

@@ -248,6 +248,20 @@ fn check_counts(dataset: &Dataset, params: &FamilyParams, weights: Option<&[f64]
     }
     match params {
         FamilyParams::Qda(p) => {
+            let (n, k) = (rows.iter().sum::<usize>(), classes.len());
+            if p.reg > 0.0 && d >= n.saturating_sub(k) {
+                return Err(Error::FitFailed {
+                    family: "qda".into(),
+                    message: crate::error::message![
+                        pooled_too_wide(n, k, d),
+                        ", so mixing it in (",
+                        Setting::Reg,
+                        ") cannot mend a class's own; use fewer inputs (",
+                        Setting::Exclude,
+                        "), or naive-bayes"
+                    ],
+                });
+            }
             let needed = discriminant::qda_rows_needed(p, d);
             if let Some((class, &n)) = rows.iter().enumerate().find(|(_, &n)| n < needed) {
                 return Err(Error::TooFewRows {
@@ -265,10 +279,8 @@ fn check_counts(dataset: &Dataset, params: &FamilyParams, weights: Option<&[f64]
                 return Err(Error::FitFailed {
                     family: "lda".into(),
                     message: crate::error::message![
-                        format!(
-                            "{n} rows in {k} classes leave {} degrees of freedom for a pooled covariance of {d} inputs, which needs more than {d}; use a diagonal weight (",
-                            n.saturating_sub(k)
-                        ),
+                        pooled_too_wide(n, k, d),
+                        "; use a diagonal weight (",
                         Setting::Shrinkage.set_to("ledoit-wolf"),
                         "), fewer inputs, or naive-bayes"
                     ],
@@ -278,6 +290,15 @@ fn check_counts(dataset: &Dataset, params: &FamilyParams, weights: Option<&[f64]
         _ => {}
     }
     Ok(())
+}
+
+/// Why a pooled covariance of `d` inputs is singular with `n` rows in `k`
+/// classes.
+fn pooled_too_wide(n: usize, k: usize, d: usize) -> String {
+    format!(
+        "{n} rows in {k} classes leave {} degrees of freedom for a pooled covariance of {d} inputs, which needs more than {d}",
+        n.saturating_sub(k)
+    )
 }
 
 /// Bytes a fit of `params` holds at its peak beyond the dataset itself:
