@@ -120,10 +120,25 @@ fn separation_and_non_convergence_are_warnings() {
     write(dir.path(), "sep.csv", text.as_bytes());
     let (code, _, err) = run(dir.path(), &["fit", "sep.csv", "--target", "y", "--family", "logistic", "-o", "m.json"]);
     assert_eq!(code, 0, "{err}");
-    assert!(err.contains("separation") && err.contains("'score'"), "{err}");
+    // Named truthfully: the kind, the input, and a penalty as the remedy,
+    // never more iterations (the estimates do not exist).
+    assert!(err.contains("complete separation by 'score'"), "{err}");
+    assert!(err.contains("--l2 0.01") && !err.contains("--max-iterations"), "{err}");
+    let (code, _, err) = run(
+        dir.path(),
+        &["fit", "sep.csv", "--target", "y", "--family", "logistic", "--max-iterations", "200", "-o", "m.json"],
+    );
+    assert_eq!(code, 0, "{err}");
+    assert!(!err.contains("--max-iterations"), "{err}");
     let (_, json, _) = run(dir.path(), &["inspect", "m.json", "--json", "-"]);
     let v: Value = serde_json::from_str(&json).expect("json");
     assert!(v["warnings"].as_array().is_some_and(|w| !w.is_empty()));
+    let score = v["coefficients"].as_array().and_then(|c| c.iter().find(|c| c["term"] == "score")).expect("score");
+    assert_eq!(score["diverges"], true, "{score}");
+    assert!(score.get("odds_ratio").is_none() && score.get("std_error").is_none(), "{score}");
+    let (_, text, _) = run(dir.path(), &["inspect", "m.json"]);
+    assert!(text.contains("diverges") && !text.contains(" inf\n") && !text.contains("penalised fit"), "{text}");
+    assert!(text.contains("separation: the estimates of 'score'"), "{text}");
 
     let dir2 = temp_dir();
     lending(dir2.path());

@@ -73,3 +73,29 @@ fn when_every_family_fails_the_run_fails() {
     assert!(err.contains("no candidate could be evaluated; qda failed in fold"), "{err}");
     assert!(!d.join("c.json").exists());
 }
+
+/// On the breast_cancer fixture (as scikit-learn ships it) every family is
+/// evaluated: the logistic folds, warm-started from a fit that separates
+/// the rows, are diagnosed as `fit` diagnoses all rows (separation, not
+/// collinearity), and the run exits 0.
+#[test]
+fn every_family_is_evaluated_on_the_breast_cancer_fixture() {
+    let dir = common::temp_dir();
+    let d = dir.path();
+    let data =
+        std::fs::read(concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference/data/breast_cancer.csv")).expect("fixture");
+    common::write(d, "bc.csv", &data);
+    let (code, out, err) = common::run(d, &["compare", "bc.csv", "--target", "target", "--json", "c.json"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(!out.contains("FAILED"), "{out}");
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.join("c.json")).expect("json")).expect("json");
+    let results = json["results"].as_array().expect("results");
+    assert_eq!(results.len(), 4);
+    assert!(results.iter().all(|r| r.get("status").is_none() && r["metrics"]["auc"].as_f64().is_some()));
+    let (code, _, fit_err) =
+        common::run(d, &["fit", "bc.csv", "--target", "target", "--family", "logistic", "-o", "m.json"]);
+    assert_eq!(code, 0, "{fit_err}");
+    assert!(fit_err.contains("complete separation by") && !fit_err.contains("collinear"), "{fit_err}");
+    assert!(!err.contains("collinear"), "{err}");
+}

@@ -151,6 +151,11 @@ pub struct LogisticModel {
     /// A coordinate-descent penalty's record: λ, how it was chosen, the path.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub penalty: Option<PenaltyFit>,
+    /// Under separation, the design terms whose coefficients grow without
+    /// bound (the maximum-likelihood estimate does not exist): their
+    /// estimates are where the fit stopped, and their odds ratios diverge.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub diverging: Vec<String>,
 }
 
 impl LogisticModel {
@@ -445,9 +450,10 @@ fn scaled_mean_sd(values: impl Iterator<Item = f64> + Clone, weights: &[f64], to
 pub fn fit(
     dataset: &Dataset,
     params: &LogisticParams,
-    weights: Option<&[f64]>,
+    row_weights: Option<&[f64]>,
     start: Option<&LogisticModel>,
 ) -> Result<(LogisticModel, Diagnostics)> {
+    let weights = row_weights;
     let schema = &dataset.schema;
     let classes = schema.target.classes.clone();
     let k = classes.len();
@@ -532,6 +538,7 @@ pub fn fit(
             covariance: None,
             l2: 0.0,
             penalty: Some(fitted.record),
+            diverging: Vec::new(),
         };
         let diagnostics =
             Diagnostics { iterations, converged: fitted.converged, log_likelihood: fitted.log_likelihood, warnings };
@@ -630,6 +637,10 @@ pub fn fit(
                 }
                 f
             }
+            // From a warm start the information can be singular because
+            // the start already separates the rows; the fit from the usual
+            // start tells collinearity from separation, as `fit` does.
+            Err(_) if iterations == 1 && start.is_some() => return fit(dataset, params, row_weights, None),
             Err(s) if iterations == 1 => {
                 return Err(Error::SingularCovariance {
                     family: "logistic".into(),
@@ -680,19 +691,41 @@ pub fn fit(
         current = next;
     }
 
-    // Separation: fitted probabilities at 0 or 1 and slopes that keep growing.
+    // Separation (Albert & Anderson 1984, "On the existence of maximum
+    // likelihood estimates in logistic regression models", Biometrika
+    // 71(1)): rows fitted with probability 0 or 1 while slopes keep
+    // growing. Complete when every row is so fitted, quasi-complete when
+    // some are. The inputs involved are those whose standardised slope is
+    // large (beyond 10: an odds ratio of e¹⁰ per standard deviation,
+    // common practice as a sign of divergence).
     let largest = (0..size).filter(|i| i % width != 0).max_by(|&a, &b| theta[a].abs().total_cmp(&theta[b].abs()));
-    if current.extreme_rows > 0 && (!converged || largest.is_some_and(|i| theta[i].abs() > 10.0)) {
-        let feature = largest.map(parameter_name).unwrap_or_default();
+    let separated = current.extreme_rows > 0 && (!converged || largest.is_some_and(|i| theta[i].abs() > 10.0));
+    let mut diverging = Vec::new();
+    if separated {
+        // The separation warning below says what the singular information meant.
+        warnings.retain(|w| !w.starts_with("the information matrix became singular"));
+        let mut involved: Vec<usize> = (0..size).filter(|&i| i % width != 0 && theta[i].abs() > 10.0).collect();
+        if involved.is_empty() {
+            involved.extend(largest);
+        }
+        diverging = involved.iter().map(|&i| terms[i % width - 1].clone()).collect();
+        diverging.dedup();
+        let kind =
+            if current.extreme_rows >= dataset.target.iter().enumerate().filter(|(r, _)| weights[*r] > 0.0).count() {
+                "complete"
+            } else {
+                "quasi-complete"
+            };
+        let names: Vec<String> = involved.iter().map(|&i| format!("'{}'", parameter_name(i))).collect();
         warnings.push(format!(
-            "(quasi-)complete separation: {} rows are fitted with probability 0 or 1, and the coefficient of '{feature}' grows without bound; \
-             estimates and standard errors are not reliable (consider --l2, or removing '{feature}')",
+            "{kind} separation by {}: {} rows are fitted with probability 0 or 1, and the maximum-likelihood estimates do not exist (those coefficients grow without bound, however many iterations); \
+             the estimates are where the fit stopped and have no standard errors. Fit with a penalty (--l2 0.01, or --penalty ridge), or look at what separates the classes",
+            names.join(", "),
             current.extreme_rows
         ));
-    }
-    if !converged {
+    } else if !converged {
         warnings.push(format!(
-            "did not converge in {iterations} iterations (last standardised step {last_step:.2e}); raise --max-iterations or look for separation"
+            "did not converge in {iterations} iterations (last standardised step {last_step:.2e}); raise --max-iterations"
         ));
     }
 
@@ -742,7 +775,19 @@ pub fn fit(
     } else {
         None
     };
-    let model =
-        LogisticModel { encoding, classes, reference, class_mix, coefficients, covariance, l2: lambda, penalty: None };
+    // Standard errors of diverging estimates would be an artefact of where
+    // the fit stopped.
+    let covariance = if diverging.is_empty() { covariance } else { None };
+    let model = LogisticModel {
+        encoding,
+        classes,
+        reference,
+        class_mix,
+        coefficients,
+        covariance,
+        l2: lambda,
+        penalty: None,
+        diverging,
+    };
     Ok((model, Diagnostics { iterations, converged, log_likelihood: current.log_likelihood, warnings }))
 }

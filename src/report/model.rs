@@ -43,9 +43,13 @@ pub struct Coefficient {
     /// Upper end of the 95% Wald interval.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub ci_high: Option<f64>,
-    /// exp(estimate), for logistic slopes.
+    /// exp(estimate), for logistic slopes (absent where it diverges).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub odds_ratio: Option<f64>,
+    /// Under separation: the estimate grows without bound, so it and its
+    /// odds ratio are where the fit stopped, not values.
+    #[serde(skip_serializing_if = "std::ops::Not::not")]
+    pub diverges: bool,
 }
 
 /// `inspect --json`.
@@ -155,6 +159,7 @@ pub fn logistic_coefficients(model: &LogisticModel) -> Vec<Coefficient> {
         let values = std::iter::once(c.intercept).chain(c.slopes.iter().copied());
         let names = std::iter::once("(intercept)".to_string()).chain(terms.iter().cloned());
         for (a, (term, estimate)) in names.zip(values).enumerate() {
+            let diverges = a > 0 && model.diverging.contains(&term);
             let se = standard_errors.as_ref().map(|s| s[q][a]);
             let z = se.map(|s| estimate / s);
             out.push(Coefficient {
@@ -166,7 +171,8 @@ pub fn logistic_coefficients(model: &LogisticModel) -> Vec<Coefficient> {
                 p_value: z.map(two_sided_p),
                 ci_low: se.map(|s| estimate - NORMAL_975 * s),
                 ci_high: se.map(|s| estimate + NORMAL_975 * s),
-                odds_ratio: (a > 0).then(|| estimate.exp()),
+                odds_ratio: (a > 0 && !diverges).then(|| estimate.exp()).filter(|r| r.is_finite() && *r > 0.0),
+                diverges,
             });
         }
     }
@@ -195,6 +201,7 @@ pub fn discriminant_coefficients(model: &DiscriminantModel, prior: &[f64], posit
                 ci_low: None,
                 ci_high: None,
                 odds_ratio: None,
+                diverges: false,
             });
         }
     }
@@ -355,14 +362,29 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
                     optional(c.z, 4),
                     p_text(c.p_value),
                     interval,
-                    optional(c.odds_ratio, 4),
+                    match (c.diverges, c.odds_ratio) {
+                        (true, _) => "diverges".to_string(),
+                        // exp overflows or underflows a double: an input on
+                        // an extreme scale, per unit of it.
+                        (false, None) if c.term != "(intercept)" => {
+                            if c.estimate > 0.0 { "> 1e308" } else { "< 1e-308" }.to_string()
+                        }
+                        (false, ratio) => optional(ratio, 4),
+                    },
                 ]);
             }
             out.push_str(&table.render());
             if m.penalty.is_some() {
                 out.push_str("(penalised fit: no standard errors; a penalised estimate's sampling error is not the inverse information)\n");
-            } else if m.covariance.is_none() {
+            } else if !m.diverging.is_empty() {
+                out.push_str(&format!(
+                    "(separation: the estimates of {} grow without bound, so the maximum-likelihood fit does not exist and no standard errors are given; fit with a penalty, --l2 or --penalty)\n",
+                    m.diverging.iter().map(|t| format!("'{t}'")).collect::<Vec<_>>().join(", ")
+                ));
+            } else if m.covariance.is_none() && m.l2 > 0.0 {
                 out.push_str(&format!("(penalised fit, --l2 {}: no standard errors)\n", m.l2));
+            } else if m.covariance.is_none() {
+                out.push_str("(no standard errors: the fit's warnings say why)\n");
             }
         }
         FittedModel::Lda(m) => {
