@@ -304,6 +304,15 @@ pub fn check_outputs(inputs: &[(crate::error::Part, &Path)], outputs: &[(crate::
     Ok(())
 }
 
+/// The machine's memory in bytes (Linux: `MemTotal` in /proc/meminfo;
+/// `None` elsewhere or when it cannot be read).
+pub fn machine_memory() -> Option<u64> {
+    let text = std::fs::read_to_string("/proc/meminfo").ok()?;
+    let line = text.lines().find(|l| l.starts_with("MemTotal:"))?;
+    let kib: u64 = line.split_whitespace().nth(1)?.parse().ok()?;
+    kib.checked_mul(1024)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -327,13 +336,4 @@ mod tests {
         std::fs::write(&path, b"abc").unwrap();
         assert_eq!(sha256_file(&path).unwrap(), "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
     }
-}
-
-/// The machine's memory in bytes (Linux: `MemTotal` in /proc/meminfo;
-/// `None` elsewhere or when it cannot be read).
-pub fn machine_memory() -> Option<u64> {
-    let text = std::fs::read_to_string("/proc/meminfo").ok()?;
-    let line = text.lines().find(|l| l.starts_with("MemTotal:"))?;
-    let kib: u64 = line.split_whitespace().nth(1)?.parse().ok()?;
-    kib.checked_mul(1024)
 }

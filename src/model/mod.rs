@@ -242,7 +242,7 @@ fn check_counts(dataset: &Dataset, params: &FamilyParams, weights: Option<&[f64]
     let classes = &dataset.schema.target.classes;
     let mut rows = vec![0usize; classes.len()];
     for (r, &y) in dataset.target.iter().enumerate() {
-        if weights.map_or(true, |w| w[r] > 0.0) {
+        if weights.is_none_or(|w| w[r] > 0.0) {
             rows[y as usize] += 1;
         }
     }
