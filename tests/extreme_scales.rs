@@ -101,3 +101,19 @@ fn gaussian_families_refuse_an_unrepresentable_spread_with_the_remedy() {
         assert_eq!(code, 0, "{family}: {err}");
     }
 }
+
+/// LDA far from the data: an income of 1e21 (or −1e21) is decided by the
+/// linear discriminant, as the SQL export computes it, not given the prior
+/// because xᵀΣ⁻¹x swamped the class terms.
+#[test]
+fn lda_decides_a_value_far_from_the_data_by_its_discriminant() {
+    let dir = temp_dir();
+    let d = dir.path();
+    let name = scaled_file(d, 0);
+    let (code, _, err) = run(d, &["fit", &name, "--target", "y", "--family", "lda", "-o", "lda.json"]);
+    assert_eq!(code, 0, "{err}");
+    write(d, "far.csv", b"x,z\n1e21,0\n-1e21,0\n");
+    // x is larger in class bad (the first class): p(bad) → 1 at +1e21.
+    let p = posteriors(d, "lda.json", "far.csv");
+    assert_eq!(p, vec![1.0, 0.0]);
+}

@@ -164,7 +164,13 @@ impl DiscriminantModel {
         self.factors().map(|_| ()).map_err(|e| e.to_string())
     }
 
-    /// Writes log p(x | k) for `rows` into `out` (row-major, K per row).
+    /// Writes log p(x | k) for `rows` into `out` (row-major, K per row),
+    /// for LDA up to a term common to every class of a row: −½‖L⁻¹x‖² is
+    /// left out. It cancels from every posterior, and far from the data
+    /// (an income of 1e21) it would swamp the class terms, so that every
+    /// class looked alike and the posterior came out as the prior. The
+    /// remaining terms are LDA's linear discriminant, as the SQL export
+    /// computes it.
     pub fn log_likelihoods(&self, inputs: &Inputs<'_>, rows: &[usize], out: &mut [f64]) {
         let Ok(factors) = self.factors() else {
             out.iter_mut().for_each(|v| *v = 0.0);
@@ -192,11 +198,9 @@ impl DiscriminantModel {
             for (i, &r) in rows.iter().enumerate() {
                 self.encoding.fill_row(inputs, r, &mut x);
                 factor.solve_lower_in_place(&mut x);
-                let u_norm: f64 = x.iter().map(|u| u * u).sum();
                 for class in 0..k {
                     let cross: f64 = x.iter().zip(&v[class]).map(|(a, b)| a * b).sum();
-                    let quadratic = (u_norm - 2.0 * cross + v_norms[class]).max(0.0);
-                    out[i * k + class] = -0.5 * (constant + factor.log_det + quadratic);
+                    out[i * k + class] = -0.5 * (constant + factor.log_det + v_norms[class]) + cross;
                 }
             }
             return;

@@ -446,7 +446,10 @@ impl FittedModel {
     }
 
     /// Per-row class log-likelihoods log p(x | k) (rows × classes), for the
-    /// class-conditional families; `None` for logistic regression.
+    /// class-conditional families, up to a term common to every class of a
+    /// row (LDA leaves out −½xᵀΣ⁻¹x, which cancels from the posteriors;
+    /// see [`discriminant::DiscriminantModel::log_likelihoods`]); `None` for
+    /// logistic regression.
     pub fn log_likelihoods(&self, inputs: &Inputs<'_>) -> Option<Array2<f64>> {
         let rows: Vec<usize> = (0..inputs.rows()).collect();
         self.log_likelihoods_of(inputs, &rows)
