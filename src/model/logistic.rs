@@ -484,11 +484,13 @@ pub fn fit(
     // A numeric input at an extreme magnitude is standardised from moments
     // of its values divided by a power of two near that magnitude: squares
     // in its own units would overflow (1e300) or underflow to 0 (1e-300).
-    for j in 0..inputs.numeric.ncols() {
-        let column = inputs.numeric.column(j);
-        let largest = column.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    // The magnitude comes from the training summary, not another pass.
+    for (j, name) in encoding.numeric.iter().enumerate() {
+        let summary = schema.columns.iter().find(|c| &c.name == name).and_then(|c| c.numeric.as_ref());
+        let largest = summary.map_or(1.0, |s| s.min.abs().max(s.max.abs()));
         let unit = crate::data::summary::magnitude_unit(largest);
         if unit != 1.0 {
+            let column = inputs.numeric.column(j);
             let (mean, sd) = scaled_mean_sd(column.iter().map(|v| v / unit), &weights, total_weight);
             centre[j] = mean * unit;
             scale[j] = sd * unit;
