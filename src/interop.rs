@@ -192,7 +192,7 @@ impl FittedBayesRule {
     /// error names the first record that cannot be scored (a `NaN` or an
     /// infinite value) or a matrix of the wrong width.
     pub fn posteriors(&self, records: ArrayView2<'_, f64>) -> Result<Array2<f64>> {
-        let data = inputs_from_arrays(&self.file.schema, records, &self.columns, None, UnseenPolicy::Error)?;
+        let data = inputs_from_arrays(&self.file, records, &self.columns, None, UnseenPolicy::Error)?;
         let log_posteriors = self.file.log_posteriors(&data.inputs(), &self.file.prior);
         let mut posteriors = Array2::zeros((records.nrows(), self.label_of_class.len()));
         for (r, row) in log_posteriors.rows().into_iter().enumerate() {

@@ -52,7 +52,7 @@
 //!
 //! // New rows, scored at the training class mix.
 //! let new = features.slice(ndarray::s![..100, ..]).to_owned();
-//! let inputs = inputs_from_arrays(&model.schema, new.view(), &columns, None, UnseenPolicy::Error)?;
+//! let inputs = inputs_from_arrays(&model, new.view(), &columns, None, UnseenPolicy::Error)?;
 //! let base = model.calibrated_to().to_vec();
 //! let posteriors: Vec<f64> = model.log_posteriors(&inputs.inputs(), &base).iter().map(|v| v.exp()).collect();
 //!

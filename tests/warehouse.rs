@@ -1072,3 +1072,82 @@ fn aggregates_written_by_hand_fit_as_the_rows_do_and_bad_ones_are_named() {
     assert_eq!(code, 0);
     assert!(sql.contains("decision support, not a decision"), "the statement carries the caution");
 }
+
+/// Values far from the data, in every family, in PostgreSQL and DuckDB as
+/// in `score`: a row whose evidence is a double is scored (posteriors to
+/// [`POSTERIOR_TOLERANCE`], the same actions), one whose evidence is not is
+/// marked `out-of-range` with its column — the query neither aborts on an
+/// overflow nor returns NaN.
+#[test]
+fn extreme_values_are_scored_or_set_aside_in_the_engines_as_in_score() {
+    let pg = postgres();
+    let with_duckdb = python_with("duckdb");
+    if pg.is_none() && !with_duckdb {
+        return;
+    }
+    let dir = temp_dir();
+    let d = dir.path();
+    let demo = demo(d);
+    let lending = demo.join("lending");
+    let (train, costs) = (lending.join("train.csv"), lending.join("costs.toml"));
+    let extreme = d.join("extreme.csv");
+    let values = ["1e21", "1e155", "1e200", "1e300", "-1e300", "-1e21", "-1e155"];
+    edited(&lending.join("new_portfolio.csv"), &extreme, |i, column, value| match column {
+        "income" if i % 40 < values.len() => values[i % 40].into(),
+        "debt_to_income" if i % 40 == 10 => "1e155".into(),
+        "amount_requested" if i % 40 == 11 => "1e300".into(),
+        _ => value.to_string(),
+    });
+    let (train, costs) = (train.to_str().unwrap(), costs.to_str().unwrap());
+    let flags = || vec!["--id", "application_id", "--costs", costs];
+    let cases: Vec<Case<'_>> = ["logistic", "lda", "qda", "naive-bayes"]
+        .into_iter()
+        .map(|family| Case {
+            name: family,
+            fit: fit_lending(train, family),
+            flags: flags(),
+            table: "extreme",
+            data: &extreme,
+            key: "application_id",
+        })
+        .chain(std::iter::once(Case {
+            name: "naive-bayes + platt",
+            fit: with(fit_lending(train, "naive-bayes"), &["--calibrate", "platt"]),
+            flags: flags(),
+            table: "extreme",
+            data: &extreme,
+            key: "application_id",
+        }))
+        .collect();
+    let prepared: Vec<Prepared> = cases.iter().enumerate().map(|(i, c)| prepare(d, c, &format!("-x{i}"))).collect();
+    for (case, p) in cases.iter().zip(&prepared) {
+        let rejects = std::fs::read_to_string(&p.rejects).expect("rejects");
+        let out_of_range = rejects.lines().filter(|l| l.contains(",out-of-range,")).count();
+        // The linear families score every finite value of these columns;
+        // the Gaussian ones set 1e200 and beyond aside.
+        match case.name {
+            "logistic" | "lda" => assert_eq!(out_of_range, 0, "{}: {rejects}", case.name),
+            _ => assert!(out_of_range >= 3 * 5000 / 40, "{}: {out_of_range} out of range", case.name),
+        }
+    }
+    if let Some(pg) = &pg {
+        pg.load("extreme", &extreme, &numeric_columns(&d.join("case-x0.json")));
+        for (case, p) in cases.iter().zip(&prepared) {
+            let engine = pg.query_csv(&std::fs::read_to_string(&p.sql).expect("sql"));
+            check(p, &engine, case.key);
+        }
+    }
+    if with_duckdb {
+        let mut arguments = vec![format!("table:extreme={}", extreme.display())];
+        let results: Vec<PathBuf> = (0..prepared.len()).map(|i| d.join(format!("duck-x{i}.csv"))).collect();
+        for (p, result) in prepared.iter().zip(&results) {
+            arguments.push(format!("query:{}={}", p.sql.display(), result.display()));
+        }
+        duckdb(&arguments);
+        for ((case, p), result) in cases.iter().zip(&prepared).zip(&results) {
+            let engine = std::fs::read_to_string(result).expect("result");
+            assert!(!engine.contains("nan") && !engine.contains("NaN"), "{}: NaN in DuckDB's result", case.name);
+            check(p, &engine, case.key);
+        }
+    }
+}

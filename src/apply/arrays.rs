@@ -12,17 +12,18 @@ use crate::apply::row::{Policies, Problem, RowCounts, RowRules};
 use crate::apply::{RejectReason, UnseenPolicy};
 use crate::data::arrays::{ColumnDescription, ARRAYS_PATH};
 use crate::data::options::MissingPolicy;
-use crate::data::schema::{ColumnKind, Schema};
+use crate::data::schema::ColumnKind;
 use crate::error::{Error, Result};
 use crate::records::Dialect;
+use crate::train::file::ModelFile;
 
-/// The inputs a model trained on `schema` takes from `features` (rows ×
+/// The inputs the model of `file` takes from `features` (rows ×
 /// columns, described by `columns`; categorical columns hold codes into
 /// their described levels, `NaN` is missing). `missing` defaults to the
 /// training policy; `unseen` may be `Error` or `Missing` (`Reject` is an
 /// error here: arrays have no reject file).
 pub fn inputs_from_arrays(
-    schema: &Schema,
+    file: &ModelFile,
     features: ArrayView2<'_, f64>,
     columns: &[ColumnDescription],
     missing: Option<MissingPolicy>,
@@ -35,9 +36,10 @@ pub fn inputs_from_arrays(
             message: format!("the matrix has {width} columns but {} are described", columns.len()).into(),
         });
     }
+    let schema = &file.schema;
     let names: Vec<String> = columns.iter().map(|c| c.name.clone()).collect();
     let missing = missing.unwrap_or(schema.missing_policy);
-    let request = PlanRequest { missing, ..PlanRequest::default() };
+    let request = PlanRequest { missing, input_bounds: file.input_bounds(), ..PlanRequest::default() };
     let plan = Plan::new(ARRAYS_PATH, &names, schema, &request)?;
     let policies = Policies { unseen, missing, keep_rejects: false };
     let rules = RowRules::new(ARRAYS_PATH, &plan, Dialect::default(), &[], policies);
@@ -73,11 +75,9 @@ pub fn inputs_from_arrays(
                             );
                         }
                     }
-                } else if !x.is_finite() {
-                    let message = format!("'{x}' is not a finite number");
-                    return Err(rules.error(r as u64 + 1, problem(RejectReason::NotFinite, &feature.name, message)));
                 } else {
-                    numeric[(r, j)] = x;
+                    numeric[(r, j)] =
+                        feature.check_value(x, || x.to_string()).map_err(|p| rules.error(r as u64 + 1, p))?;
                 }
             }
             if let Some(c) = usage.categorical {

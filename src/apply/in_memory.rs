@@ -14,7 +14,7 @@ use crate::apply::row::{read_rows, reject_fields, Policies, RowCounts, RowRules,
 use crate::apply::UnseenPolicy;
 use crate::data::dataset::Inputs;
 use crate::data::options::MissingPolicy;
-use crate::data::schema::Schema;
+use crate::train::file::ModelFile;
 use crate::error::{Error, Result};
 use crate::records::Dialect;
 
@@ -81,8 +81,8 @@ impl ScoringData {
     }
 }
 
-/// Reads `path` (`-` for stdin) for scoring with a model trained on `schema`.
-pub fn read_for_scoring(path: &std::path::Path, schema: &Schema, request: &ScoringRequest) -> Result<ScoringData> {
+/// Reads `path` (`-` for stdin) for scoring with the model of `file`.
+pub fn read_for_scoring(path: &std::path::Path, file: &ModelFile, request: &ScoringRequest) -> Result<ScoringData> {
     let shown = if path.as_os_str() == "-" { "<stdin>".to_string() } else { path.display().to_string() };
     let bytes = if path.as_os_str() == "-" {
         let mut bytes = Vec::new();
@@ -91,7 +91,7 @@ pub fn read_for_scoring(path: &std::path::Path, schema: &Schema, request: &Scori
     } else {
         std::fs::read(path).map_err(|e| Error::io(&shown, e))?
     };
-    read_bytes_for_scoring(&shown, &bytes, schema, request)
+    read_bytes_for_scoring(&shown, &bytes, file, request)
 }
 
 /// [`read_for_scoring`] on bytes held in memory; `path` is only used in
@@ -99,13 +99,20 @@ pub fn read_for_scoring(path: &std::path::Path, schema: &Schema, request: &Scori
 pub fn read_bytes_for_scoring(
     path: &str,
     bytes: &[u8],
-    schema: &Schema,
+    file: &ModelFile,
     request: &ScoringRequest,
 ) -> Result<ScoringData> {
+    let schema = &file.schema;
     let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
     let (names, data_start, first_line) = crate::data::csv_read::read_header(path, bytes, &request.dialect)?;
     let missing = request.missing.unwrap_or(schema.missing_policy);
-    let plan_request = PlanRequest { ids: request.ids.clone(), keep: Vec::new(), cost_columns: Vec::new(), missing };
+    let plan_request = PlanRequest {
+        ids: request.ids.clone(),
+        keep: Vec::new(),
+        cost_columns: Vec::new(),
+        missing,
+        input_bounds: file.input_bounds(),
+    };
     let plan = Plan::new(path, &names, schema, &plan_request)?;
     let na_tokens = request.na_tokens.as_ref().unwrap_or(&schema.na_tokens);
     let policies = Policies { unseen: request.unseen, missing, keep_rejects: request.keep_rejects };
@@ -154,12 +161,12 @@ pub fn read_bytes_for_scoring(
 /// to (see [`crate::prior::shift`]); the rows as read come back too (for
 /// their counts and rejects).
 pub fn estimate_portfolio_shift(
-    file: &crate::train::file::ModelFile,
+    file: &ModelFile,
     path: &std::path::Path,
     request: &ScoringRequest,
     options: &crate::prior::shift::ShiftOptions,
 ) -> Result<(crate::prior::shift::ShiftEstimate, ScoringData)> {
-    let data = read_for_scoring(path, &file.schema, request)?;
+    let data = read_for_scoring(path, file, request)?;
     let base = file.calibrated_to().to_vec();
     let posteriors: Vec<f64> = file.log_posteriors(&data.inputs(), &base).iter().map(|v| v.exp()).collect();
     let confusion = file.held_out.as_ref().map(|h| h.confusion.clone());

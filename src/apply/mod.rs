@@ -64,6 +64,10 @@ pub enum RejectReason {
     NotANumber,
     /// A numeric feature's value is `inf` or `nan`.
     NotFinite,
+    /// A numeric feature's value is so far from the training data that the
+    /// model's evidence would pass the largest double (see
+    /// [`crate::model::range`]).
+    OutOfRange,
     /// A categorical feature has a level the training data never had.
     UnseenCategory,
     /// A missing value the model cannot fill.
@@ -76,12 +80,13 @@ pub enum RejectReason {
 
 impl RejectReason {
     /// Every reason, in the order the summary lists them.
-    pub const ALL: [RejectReason; 9] = [
+    pub const ALL: [RejectReason; 10] = [
         RejectReason::FieldCount,
         RejectReason::Quoting,
         RejectReason::Encoding,
         RejectReason::NotANumber,
         RejectReason::NotFinite,
+        RejectReason::OutOfRange,
         RejectReason::UnseenCategory,
         RejectReason::MissingValue,
         RejectReason::CostValue,
@@ -96,6 +101,7 @@ impl RejectReason {
             RejectReason::Encoding => "encoding",
             RejectReason::NotANumber => "not-a-number",
             RejectReason::NotFinite => "not-finite",
+            RejectReason::OutOfRange => "out-of-range",
             RejectReason::UnseenCategory => "unseen-category",
             RejectReason::MissingValue => "missing-value",
             RejectReason::CostValue => "cost-value",

@@ -12,6 +12,7 @@ use crate::data::dataset::MISSING_LEVEL;
 use crate::data::options::MissingPolicy;
 use crate::data::schema::{ColumnKind, Imputation, Schema};
 use crate::error::{Error, Part, Result, Setting};
+use crate::apply::RejectReason;
 
 /// What one field of a record feeds.
 #[derive(Debug, Clone, Default)]
@@ -48,6 +49,34 @@ pub struct NumericFeature {
     pub min: f64,
     /// The training range.
     pub max: f64,
+    /// The largest |value| the model scores ([`crate::model::range`]).
+    pub bound: f64,
+}
+
+impl NumericFeature {
+    /// A value read for this feature, checked: a number that is not finite
+    /// is `not-finite`, one beyond the model's bound `out-of-range`.
+    pub fn check_value(&self, x: f64, shown: impl FnOnce() -> String) -> Result<f64, super::row::Problem> {
+        if !x.is_finite() {
+            return Err(super::row::Problem {
+                reason: RejectReason::NotFinite,
+                column: self.name.clone(),
+                message: format!("'{}' is not a finite number", shown()),
+            });
+        }
+        if x.abs() > self.bound {
+            return Err(super::row::Problem {
+                reason: RejectReason::OutOfRange,
+                column: self.name.clone(),
+                message: format!(
+                    "'{}' is beyond the range this model scores in this column (±{}): its evidence would pass the largest double",
+                    shown(),
+                    crate::format::number(self.bound, 3)
+                ),
+            });
+        }
+        Ok(x)
+    }
 }
 
 /// A categorical feature of the model.
@@ -95,6 +124,9 @@ pub struct PlanRequest {
     pub cost_columns: Vec<String>,
     /// The missing-value policy in force.
     pub missing: MissingPolicy,
+    /// Per numeric model input, the largest |value| the model scores
+    /// ([`crate::train::file::ModelFile::input_bounds`]); none when empty.
+    pub input_bounds: Vec<f64>,
 }
 
 impl Plan {
@@ -157,6 +189,7 @@ impl Plan {
                         indicator,
                         min: summary.map_or(f64::NEG_INFINITY, |s| s.min),
                         max: summary.map_or(f64::INFINITY, |s| s.max),
+                        bound: request.input_bounds.get(numeric.len()).copied().unwrap_or(f64::INFINITY),
                     });
                 }
                 _ => {

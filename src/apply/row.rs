@@ -354,7 +354,7 @@ struct Slots {
 /// layer), its quoting (`quoting`), its field count (`field-count`), then
 /// its fields from left to right, each checked for its bytes
 /// (`encoding`) before its value (`not-a-number`, `not-finite`,
-/// `unseen-category`, `missing-value`, `cost-value`).
+/// `out-of-range`, `unseen-category`, `missing-value`, `cost-value`).
 pub fn parse_row(
     rules: &RowRules<'_>,
     record: &[u8],
@@ -399,7 +399,8 @@ pub fn parse_row(
                     if !rules.na.may_be_missing(first) {
                         if let Some((value, used)) = scan_f64(&record[position..]) {
                             let end = position + used;
-                            if end == n || record[end] == delimiter {
+                            // Beyond the model's range, the slow path says so.
+                            if (end == n || record[end] == delimiter) && value.abs() <= plan.numeric[j].bound {
                                 rows.numeric[slots.numeric + j] = value;
                                 position = end + 1;
                                 continue;
@@ -486,13 +487,9 @@ fn take_field(
             }
         } else {
             match parse_f64(field) {
-                Some(x) if x.is_finite() => rows.numeric[row_start + j] = x,
-                Some(_) => {
-                    return Err(Problem {
-                        reason: RejectReason::NotFinite,
-                        column: column(),
-                        message: format!("'{}' is not a finite number", String::from_utf8_lossy(field)),
-                    })
+                Some(x) => {
+                    rows.numeric[row_start + j] =
+                        feature.check_value(x, || String::from_utf8_lossy(field).into_owned())?
                 }
                 None => {
                     if let Some(problem) = encoding() {

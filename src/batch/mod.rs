@@ -252,7 +252,13 @@ pub fn run(file: &ModelFile, job: &ScoreJob, outputs: &Outputs, progress: Progre
     if let Some(spec) = &job.costs {
         file.check_cost_columns(spec, &shown)?;
     }
-    let request = PlanRequest { ids: job.ids.clone(), keep: job.keep.clone(), cost_columns, missing };
+    let request = PlanRequest {
+        ids: job.ids.clone(),
+        keep: job.keep.clone(),
+        cost_columns,
+        missing,
+        input_bounds: file.input_bounds(),
+    };
     let (names, first_reader) = open_input(job, &shown)?;
     // The first pass reads on from the header already read (stdin can be
     // read only once); later passes (files only) open the file again.

@@ -10,7 +10,9 @@
 //!    missing, −2 unseen).
 //! 2. `__br_in`: the missing-value and unseen-category policy of `score`
 //!    (fills, indicator inputs, the missing level) and the reason a row
-//!    cannot be scored, in the words of `score`'s reject file.
+//!    cannot be scored, in the words of `score`'s reject file — among them
+//!    a value beyond the model's range ([`crate::model::range`]), checked
+//!    before any arithmetic, so no row overflows.
 //! 3. `__br_ev`: each class's evidence at the class mix the model is
 //!    calibrated to — logistic regression's linear predictor (coefficients
 //!    already on the original scale), LDA's linear discriminant, QDA's
@@ -21,8 +23,8 @@
 //!    the isotonic step as a CASE searched by halves.
 //! 5. `__br_u` … `__br_p`: the odds correction to the prior asked for
 //!    (added on the log scale), then log-sum-exp with the row maximum
-//!    subtracted and exponents kept above −700, so no row overflows,
-//!    underflows to an error, or divides by zero.
+//!    subtracted and a class more than 700 below it given weight 0, so no
+//!    row overflows, underflows to an error, or divides by zero.
 //! 6. With costs: expected costs Σₖ pₖ·C(a, k, row), the first cheapest
 //!    action, and each capacity in the order of the costs file through
 //!    `ROW_NUMBER() OVER (ORDER BY saving DESC, ids)` — the same
@@ -120,8 +122,13 @@ pub fn scoring_sql(file: &ModelFile, request: &ScoringRequest) -> Result<String>
             names.push(extra.clone());
         }
     }
-    let plan_request =
-        PlanRequest { ids: request.ids.clone(), keep: Vec::new(), cost_columns: cost_columns.clone(), missing };
+    let plan_request = PlanRequest {
+        ids: request.ids.clone(),
+        keep: Vec::new(),
+        cost_columns: cost_columns.clone(),
+        missing,
+        input_bounds: file.input_bounds(),
+    };
     let plan = Plan::new(&request.table, &names, &file.schema, &plan_request)?;
     let na_tokens = request.na_tokens.clone().unwrap_or_else(|| file.schema.na_tokens.clone());
 
@@ -284,6 +291,14 @@ fn input_stage(stages: &mut Stages, plan: &Plan, request: &ScoringRequest, cost_
             not_finite(&raw),
             reason(RejectReason::NotFinite.name(), &feature.name)?
         ));
+        if feature.bound < FINITE {
+            // Before any arithmetic: PostgreSQL aborts a query on overflow.
+            reasons.push(format!(
+                "WHEN ABS({raw}) > {} THEN {}",
+                number(feature.bound),
+                reason(RejectReason::OutOfRange.name(), &feature.name)?
+            ));
+        }
         match feature.fill {
             Fill::Value(v) => {
                 columns.push(alias(format!("COALESCE({raw}, {})", number(v)), &format!("__br_x{j}")));
@@ -462,9 +477,13 @@ fn evidence_stages(stages: &mut Stages, file: &ModelFile, plan: &Plan, base: &[f
             for class in 0..k {
                 let mut terms = vec![number(gaussian_part.constants[class])];
                 for j in (0..p).filter(|&j| gaussian_part.gaussian[j]) {
-                    let deviation = format!("(\"__br_x{j}\" - {})", number(m.means[class][j]));
-                    let inverse = number(gaussian_part.inverse[class][j]);
-                    terms.push(format!("{} * {deviation} * {deviation} * {inverse}", number(-1.0)));
+                    // Scaled before squaring, as in the library.
+                    let scaled = format!(
+                        "((\"__br_x{j}\" - {}) * {})",
+                        number(m.means[class][j]),
+                        number(gaussian_part.scale[class][j])
+                    );
+                    terms.push(format!("{} * {scaled} * {scaled}", number(-1.0)));
                 }
                 for b in &m.bernoulli {
                     let [one, zero] = b.log_probabilities[class];
@@ -564,10 +583,17 @@ fn posterior_stages(
     stages.push("__br_u", scores);
     let u: Vec<String> = (0..k).map(|c| col(&format!("__br_u{c}"))).collect();
     stages.push("__br_m", vec![alias(greatest(dialect, &u), "__br_max")]);
+    // Below the floor a class's weight is 0, as the library's exp gives 0
+    // far below it (PostgreSQL would raise an underflow instead), so a row
+    // decided by evidence of 1e295 gives the losing class exactly 0 — which
+    // matters when a cost of 1e300 multiplies it.
     let exponents: Vec<String> = (0..k)
         .map(|c| {
-            let exponent = clamp(dialect, &format!("{} - \"__br_max\"", u[c]), Some(EXPONENT_FLOOR), None);
-            alias(format!("EXP({exponent})"), &format!("__br_w{c}"))
+            let exponent = format!("{} - \"__br_max\"", u[c]);
+            alias(
+                format!("CASE WHEN {exponent} < {floor} THEN 0E0 ELSE EXP({exponent}) END", floor = number(EXPONENT_FLOOR)),
+                &format!("__br_w{c}"),
+            )
         })
         .collect();
     stages.push("__br_x", exponents);

@@ -26,6 +26,7 @@ pub mod logistic;
 pub mod moments;
 pub mod naive_bayes;
 pub mod penalised;
+pub mod range;
 
 use ndarray::Array2;
 use rayon::prelude::*;

@@ -95,15 +95,18 @@ pub struct GaussianTerms {
     pub gaussian: Vec<bool>,
     /// −½ Σⱼ ln(2πσ²ₖⱼ) over the Gaussian inputs, per class.
     pub constants: Vec<f64>,
-    /// 1/(2σ²ₖⱼ) for the Gaussian inputs, 0 for the others, per class.
-    pub inverse: Vec<Vec<f64>>,
+    /// 1/(σₖⱼ√2) for the Gaussian inputs, 0 for the others, per class: the
+    /// deviation is scaled before it is squared, so that a value far from
+    /// the data (1e155 in a column whose σ is in the thousands) gives a
+    /// finite term wherever the term itself is a finite double.
+    pub scale: Vec<Vec<f64>>,
 }
 
 /// The smallest probability a smoothed level can have.
 const SMALLEST_PROBABILITY: f64 = f64::MIN_POSITIVE;
 
 impl NaiveBayesModel {
-    /// The Gaussian part of log p(x | k) = constantₖ − Σⱼ (xⱼ − μₖⱼ)²·inverseₖⱼ,
+    /// The Gaussian part of log p(x | k) = constantₖ − Σⱼ ((xⱼ − μₖⱼ)·scaleₖⱼ)²,
     /// with the 0/1 indicator inputs (modelled as Bernoulli) left out.
     pub fn gaussian_terms(&self) -> GaussianTerms {
         let mut gaussian = vec![true; self.numeric.len()];
@@ -122,12 +125,12 @@ impl NaiveBayesModel {
                     .sum::<f64>()
             })
             .collect();
-        let inverse = self
+        let scale = self
             .variances
             .iter()
-            .map(|v| v.iter().zip(&gaussian).map(|(s, &g)| if g { 0.5 / s } else { 0.0 }).collect())
+            .map(|v| v.iter().zip(&gaussian).map(|(s, &g)| if g { (0.5 / s).sqrt() } else { 0.0 }).collect())
             .collect();
-        GaussianTerms { gaussian, constants, inverse }
+        GaussianTerms { gaussian, constants, scale }
     }
 
     /// Writes log p(x | k) for `rows` into `out` (row-major, K per row).
@@ -135,15 +138,15 @@ impl NaiveBayesModel {
         let k = self.classes.len();
         let p = self.numeric.len();
         // Per class: −½ Σⱼ ln(2πσ²) once, then the quadratic terms per row.
-        let GaussianTerms { constants, inverse, .. } = self.gaussian_terms();
+        let GaussianTerms { constants, scale, .. } = self.gaussian_terms();
         for (i, &r) in rows.iter().enumerate() {
             for class in 0..k {
                 let mut ll = constants[class];
                 let means = &self.means[class];
-                let inv = &inverse[class];
+                let scale = &scale[class];
                 for j in 0..p {
-                    let dev = inputs.numeric[(r, j)] - means[j];
-                    ll -= dev * dev * inv[j];
+                    let scaled = (inputs.numeric[(r, j)] - means[j]) * scale[j];
+                    ll -= scaled * scaled;
                 }
                 for b in &self.bernoulli {
                     let one = inputs.numeric[(r, b.index)] > 0.5;

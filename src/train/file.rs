@@ -314,6 +314,16 @@ impl ModelFile {
         }
     }
 
+    /// Per numeric model input, the largest |x| the model scores (see
+    /// [`crate::model::range`]): beyond it a row is `out-of-range`.
+    pub fn input_bounds(&self) -> Vec<f64> {
+        let slope = match &self.calibration {
+            Some(crate::model::calibration::CalibrationMap::Platt { a, .. }) => a.abs(),
+            _ => 1.0,
+        };
+        crate::model::range::input_bounds(&self.model, slope)
+    }
+
     /// Log posteriors of the rows under `prior`: the model's posteriors at
     /// the class mix it is calibrated to, then the calibration map (if any),
     /// then the odds correction to `prior` — the order fit → calibrate →
