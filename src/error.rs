@@ -125,6 +125,9 @@ pub enum Setting {
     AcceptEdited,
     /// The most memory a fit may take (`TrainRequest::memory_limit`).
     MemoryLimit,
+    /// Refusing aliased inputs rather than dropping them
+    /// (`LogisticParams::refuse_aliased`, `LdaParams::refuse_aliased`).
+    RefuseAliased,
 }
 
 impl Setting {
@@ -185,6 +188,7 @@ impl Setting {
             Setting::Threads => "threads",
             Setting::Delimiter => "delimiter",
             Setting::MemoryLimit => "memory_limit",
+            Setting::RefuseAliased => "refuse_aliased",
         }
     }
 

@@ -83,9 +83,14 @@ fn singular_covariances_name_the_class_and_columns() {
         text.push_str(&format!("{x},{},{flat},{},{class}\n", 2.0 * x, (i * 13 % 7) as f64));
     }
     write(dir.path(), "s.csv", text.as_bytes());
+    // An exact multiple is aliased: dropped with a warning, or refused.
     let (code, _, err) = run(dir.path(), &["fit", "s.csv", "--target", "y", "--family", "lda", "-o", "m.json"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(err.contains("'twice' is aliased: a linear combination of 'x'"), "{err}");
+    let refuse = ["fit", "s.csv", "--target", "y", "--family", "lda", "--refuse-aliased", "-o", "m.json"];
+    let (code, _, err) = run(dir.path(), &refuse);
     assert_eq!(code, 1);
-    assert!(err.contains("singular") && err.contains("x, twice") && err.contains("--shrinkage"), "{err}");
+    assert!(err.contains("singular") && err.contains("x, twice") && err.contains("--exclude"), "{err}");
     let (code, _, err) =
         run(dir.path(), &["fit", "s.csv", "--target", "y", "--family", "qda", "--exclude", "twice", "-o", "m.json"]);
     assert_eq!(code, 1);
@@ -96,8 +101,13 @@ fn singular_covariances_name_the_class_and_columns() {
     );
     assert_eq!(code, 0, "{err}");
     let (code, _, err) = run(dir.path(), &["fit", "s.csv", "--target", "y", "--family", "logistic", "-o", "m.json"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(err.contains("'twice' is aliased"), "{err}");
+    let refuse = ["fit", "s.csv", "--target", "y", "--family", "logistic", "--refuse-aliased", "-o", "m2.json"];
+    let (code, _, err) = run(dir.path(), &refuse);
     assert_eq!(code, 1);
-    assert!(err.contains("collinear") && err.contains("twice"), "{err}");
+    assert!(err.contains("'twice' is aliased") && err.contains("x, twice"), "{err}");
+    assert!(!dir.path().join("m2.json").exists());
     assert!(!dir.path().join("m.json.partial").exists());
 }
 

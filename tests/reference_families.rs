@@ -82,7 +82,14 @@ fn class_conditional_families_match_scikit_learn() {
     for name in ["breast_cancer", "wine", "iris"] {
         let data = dataset(name, "target", |_| {});
         let families = [
-            ("lda", FamilyParams::Lda(LdaParams { shrinkage: Shrinkage::None, divisor: Divisor::Rows })),
+            (
+                "lda",
+                FamilyParams::Lda(LdaParams {
+                    shrinkage: Shrinkage::None,
+                    divisor: Divisor::Rows,
+                    refuse_aliased: false,
+                }),
+            ),
             ("qda", FamilyParams::Qda(QdaParams { reg: 0.0, divisor: Divisor::Rows })),
             ("naive_bayes", FamilyParams::NaiveBayes(NaiveBayesParams { smoothing: 1.0, variance_floor: 0.0 })),
         ];
@@ -142,7 +149,11 @@ fn lda_shrinkage_matches_scikit_learn() {
     let f = fixtures();
     for name in ["breast_cancer", "wine", "iris"] {
         let data = dataset(name, "target", |_| {});
-        let params = FamilyParams::Lda(LdaParams { shrinkage: Shrinkage::LedoitWolf, divisor: Divisor::Unbiased });
+        let params = FamilyParams::Lda(LdaParams {
+            shrinkage: Shrinkage::LedoitWolf,
+            divisor: Divisor::Unbiased,
+            refuse_aliased: false,
+        });
         let (model, _) = fit(&data, &params).expect("fit");
         let FittedModel::Lda(lda) = &model else { panic!("lda") };
         let expected = f[format!("{name}_ledoit_wolf")]["shrinkage"].as_f64().expect("shrinkage");
@@ -154,7 +165,11 @@ fn lda_shrinkage_matches_scikit_learn() {
         for (j, s) in scale.iter().enumerate() {
             scaled.numeric.column_mut(j).mapv_inplace(|v| v / s);
         }
-        let params = FamilyParams::Lda(LdaParams { shrinkage: Shrinkage::Value(0.3), divisor: Divisor::Rows });
+        let params = FamilyParams::Lda(LdaParams {
+            shrinkage: Shrinkage::Value(0.3),
+            divisor: Divisor::Rows,
+            refuse_aliased: false,
+        });
         let (model, _) = fit(&scaled, &params).expect("fit");
         let worst = worst_relative(&posteriors(&model, &scaled, None), &matrix(&fixture["posteriors"]));
         assert!(worst < 1e-6, "{name} shrinkage 0.3: {worst:e}");

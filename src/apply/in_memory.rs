@@ -14,9 +14,9 @@ use crate::apply::row::{read_rows, reject_fields, Policies, RowCounts, RowRules,
 use crate::apply::UnseenPolicy;
 use crate::data::dataset::Inputs;
 use crate::data::options::MissingPolicy;
-use crate::train::file::ModelFile;
 use crate::error::{Error, Result};
 use crate::records::Dialect;
+use crate::train::file::ModelFile;
 
 /// How a file to score is read.
 #[derive(Debug, Clone)]

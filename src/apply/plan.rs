@@ -8,11 +8,11 @@
 
 use std::collections::HashMap;
 
+use crate::apply::RejectReason;
 use crate::data::dataset::MISSING_LEVEL;
 use crate::data::options::MissingPolicy;
 use crate::data::schema::{ColumnKind, Imputation, Schema};
 use crate::error::{Error, Part, Result, Setting};
-use crate::apply::RejectReason;
 
 /// What one field of a record feeds.
 #[derive(Debug, Clone, Default)]

@@ -33,6 +33,9 @@ pub struct Args {
     /// A family to compare, with options after a colon (repeatable; default: all four).
     #[arg(long = "family", value_name = "F[:OPTION=VALUE,...]")]
     pub families: Vec<String>,
+    /// logistic, lda: refuse inputs that are exact linear combinations of others, instead of dropping them from the fit.
+    #[arg(long)]
+    pub refuse_aliased: bool,
     /// Stratified K-fold cross-validation [default: 5 folds].
     #[arg(long, value_name = "K")]
     pub folds: Option<usize>,
@@ -182,7 +185,8 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     } else {
         args.families.iter().map(String::as_str).collect()
     };
-    let candidates = names.into_iter().map(parse_candidate).collect::<baserate::Result<Vec<_>>>()?;
+    let mut candidates = names.into_iter().map(parse_candidate).collect::<baserate::Result<Vec<_>>>()?;
+    candidates.iter_mut().for_each(|c| c.params.set_refuse_aliased(args.refuse_aliased));
     let mut split = split_choice(&args)?;
     let (dataset, notices) = match &args.holdout {
         Some(holdout) => {

@@ -45,7 +45,8 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         &[(baserate::error::Setting::Json, args.json.as_deref())],
     )?;
     let options = args.data_args.to_options()?;
-    let (dataset, notices) = Dataset::read(&args.data, &options)?;
+    let (dataset, mut notices) = Dataset::read(&args.data, &options)?;
+    notices.extend(baserate::model::collinearity::collinearity_notices(&dataset));
     let path = args.data.display().to_string();
     if let Some(json_path) = &args.json {
         let body = DescribeJson {

@@ -92,6 +92,9 @@ pub struct FamilyOptions {
     /// lda, qda: covariance divisor.
     #[arg(long, value_enum, value_name = "D")]
     pub covariance_divisor: Option<DivisorArg>,
+    /// logistic, lda: refuse inputs that are exact linear combinations of others, instead of dropping them from the fit.
+    #[arg(long)]
+    pub refuse_aliased: bool,
 }
 
 fn only_for(flag: &str, families: &str, family: Family) -> Error {
@@ -124,6 +127,11 @@ impl FamilyOptions {
         check(&nb_flags, "naive-bayes", family == Family::NaiveBayes)?;
         check(&[("--shrinkage", self.shrinkage.is_some())], "lda", family == Family::Lda)?;
         check(&[("--reg", self.reg.is_some())], "qda", family == Family::Qda)?;
+        check(
+            &[("--refuse-aliased", self.refuse_aliased)],
+            "logistic and lda",
+            matches!(family, Family::Logistic | Family::Lda),
+        )?;
         check(
             &[("--covariance-divisor", self.covariance_divisor.is_some())],
             "lda and qda",
@@ -194,6 +202,7 @@ impl FamilyOptions {
                     lambda_rule,
                     cv_folds: self.cv_folds.unwrap_or(defaults.cv_folds),
                     cv_seed: defaults.cv_seed,
+                    refuse_aliased: self.refuse_aliased,
                 })
             }
             Family::NaiveBayes => {
@@ -203,9 +212,11 @@ impl FamilyOptions {
                     variance_floor: self.variance_floor.unwrap_or(defaults.variance_floor),
                 })
             }
-            Family::Lda => {
-                FamilyParams::Lda(LdaParams { shrinkage: parse_shrinkage(self.shrinkage.as_deref())?, divisor })
-            }
+            Family::Lda => FamilyParams::Lda(LdaParams {
+                shrinkage: parse_shrinkage(self.shrinkage.as_deref())?,
+                divisor,
+                refuse_aliased: self.refuse_aliased,
+            }),
             Family::Qda => FamilyParams::Qda(QdaParams { reg: self.reg.unwrap_or(0.0), divisor }),
         };
         params.check()?;

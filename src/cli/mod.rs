@@ -97,6 +97,7 @@ pub fn flag(setting: Setting, value: Option<&str>) -> String {
         Setting::Target => "--target",
         Setting::AcceptEdited => "--accept-edited-model",
         Setting::MemoryLimit => "--memory-limit",
+        Setting::RefuseAliased => "--refuse-aliased",
         Setting::Bootstrap => "--bootstrap",
         Setting::Threads => "--threads",
         Setting::Delimiter => "--delimiter",

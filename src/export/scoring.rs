@@ -591,7 +591,10 @@ fn posterior_stages(
         .map(|c| {
             let exponent = format!("{} - \"__br_max\"", u[c]);
             alias(
-                format!("CASE WHEN {exponent} < {floor} THEN 0E0 ELSE EXP({exponent}) END", floor = number(EXPONENT_FLOOR)),
+                format!(
+                    "CASE WHEN {exponent} < {floor} THEN 0E0 ELSE EXP({exponent}) END",
+                    floor = number(EXPONENT_FLOOR)
+                ),
                 &format!("__br_w{c}"),
             )
         })

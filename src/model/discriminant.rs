@@ -68,6 +68,10 @@ pub struct LdaParams {
     pub shrinkage: Shrinkage,
     /// Divisor of the pooled covariance.
     pub divisor: Divisor,
+    /// Refuse inputs that are exact linear combinations of earlier ones
+    /// instead of dropping them from the fit (`--refuse-aliased`).
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub refuse_aliased: bool,
 }
 
 /// QDA hyperparameters.
@@ -100,6 +104,12 @@ pub struct DiscriminantModel {
     /// The shrinkage α applied to LDA's pooled covariance (0 when none).
     #[serde(default)]
     pub shrinkage: f64,
+    /// Design terms dropped from LDA's fit as exact linear combinations of
+    /// earlier ones (within the classes): their class means are the pooled
+    /// mean and their covariances with the other terms 0, so they carry no
+    /// evidence.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub aliased: Vec<String>,
     /// Cholesky factors, computed on first use.
     #[serde(skip)]
     factors: OnceLock<Vec<Factor>>,
@@ -113,6 +123,7 @@ impl PartialEq for DiscriminantModel {
             && self.means == other.means
             && self.covariances == other.covariances
             && self.shrinkage == other.shrinkage
+            && self.aliased == other.aliased
     }
 }
 
@@ -431,8 +442,8 @@ pub fn lda_from_moments(
         });
     }
     let mut covariance = pooled_scatter(&moments, d) / divisor;
-    let means: Vec<Vec<f64>> = moments.iter().map(|m| m.mean.clone()).collect();
-    let warnings = Vec::new();
+    let mut means: Vec<Vec<f64>> = moments.iter().map(|m| m.mean.clone()).collect();
+    let mut warnings = Vec::new();
     let alpha = match params.shrinkage {
         Shrinkage::None => 0.0,
         Shrinkage::Value(a) => a,
@@ -469,6 +480,33 @@ pub fn lda_from_moments(
         let diagonal = DMatrix::from_diagonal(&covariance.diagonal());
         covariance = covariance * (1.0 - alpha) + diagonal * alpha;
     }
+    // Without shrinkage an aliased term leaves the pooled covariance
+    // singular: it is dropped by giving it no evidence — every class its
+    // pooled mean, no covariance with the other terms — so the factor,
+    // the scoring and the SQL export need nothing of their own for it.
+    let aliased = if alpha > 0.0 { Vec::new() } else { crate::model::linalg::aliased_columns(&covariance) };
+    if !aliased.is_empty() {
+        let terms = encoding.terms();
+        if params.refuse_aliased {
+            return Err(crate::model::logistic::aliased_error("lda", &terms, &aliased));
+        }
+        warnings.push(crate::model::logistic::aliased_warning(&terms, &aliased));
+        for a in &aliased {
+            let j = a.column;
+            let pooled = moments.iter().map(|m| m.weight * m.mean[j]).sum::<f64>() / n;
+            // Each class's spread about the pooled mean now counts as within-class.
+            let between = moments.iter().map(|m| m.weight * (m.mean[j] - pooled).powi(2)).sum::<f64>() / divisor;
+            let variance = covariance[(j, j)] + between;
+            covariance.row_mut(j).fill(0.0);
+            covariance.column_mut(j).fill(0.0);
+            covariance[(j, j)] = variance;
+            means.iter_mut().for_each(|m| m[j] = pooled);
+        }
+    }
+    let aliased: Vec<String> = {
+        let terms = encoding.terms();
+        aliased.iter().map(|a| terms[a.column].clone()).collect()
+    };
     let factor = cholesky(&covariance)
         .map_err(|s| singular("lda", "pooled over the classes".into(), &encoding, s, lda_hint()))?;
     let log_likelihood =
@@ -480,6 +518,7 @@ pub fn lda_from_moments(
         means,
         covariances: vec![covariance.transpose().as_slice().to_vec()],
         shrinkage: alpha,
+        aliased,
         factors: OnceLock::new(),
     };
     let _ = model.factors.set(vec![factor]);
@@ -562,6 +601,7 @@ pub fn qda_from_moments(
         means: moments.iter().map(|m| m.mean.clone()).collect(),
         covariances: covariances.iter().map(|c| c.transpose().as_slice().to_vec()).collect(),
         shrinkage: 0.0,
+        aliased: Vec::new(),
         factors: OnceLock::new(),
     };
     let _ = model.factors.set(factors);

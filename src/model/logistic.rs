@@ -28,7 +28,7 @@ use serde::{Deserialize, Serialize};
 use crate::data::{Dataset, Inputs};
 use crate::error::{Error, Result, Setting};
 use crate::model::design::{tiles, Encoding, TILE_ROWS};
-use crate::model::linalg::{cholesky, dot};
+use crate::model::linalg::{aliased_columns, cholesky, dot, Aliased};
 use crate::model::penalised::{LambdaChoice, LambdaRule, PathSettings, Penalty, PenaltyFit};
 use crate::model::{normalise_log, Diagnostics};
 
@@ -85,6 +85,10 @@ pub struct LogisticParams {
     /// Seed of those folds.
     #[serde(default = "default_cv_seed")]
     pub cv_seed: u64,
+    /// Refuse inputs that are exact linear combinations of earlier ones
+    /// instead of dropping them from the fit (`--refuse-aliased`).
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub refuse_aliased: bool,
 }
 
 fn auto_lambda() -> LambdaChoice {
@@ -114,6 +118,7 @@ impl Default for LogisticParams {
             lambda_rule: LambdaRule::OneSe,
             cv_folds: default_cv_folds(),
             cv_seed: default_cv_seed(),
+            refuse_aliased: false,
         }
     }
 }
@@ -156,6 +161,10 @@ pub struct LogisticModel {
     /// estimates are where the fit stopped, and their odds ratios diverge.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub diverging: Vec<String>,
+    /// Design terms dropped from the fit as exact linear combinations of
+    /// earlier ones: their slopes are 0 and carry no standard error.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub aliased: Vec<String>,
 }
 
 impl LogisticModel {
@@ -310,6 +319,9 @@ struct Problem<'a> {
     /// Standardisation of each design column.
     centre: Vec<f64>,
     scale: Vec<f64>,
+    /// Design columns left out of the fit (aliased): read as 0, so their
+    /// slopes stay at 0 and their rows of the information are empty.
+    inert: Vec<bool>,
 }
 
 impl Problem<'_> {
@@ -352,7 +364,12 @@ impl Problem<'_> {
                     self.encoding.fill_tile(&self.inputs, rows.clone(), &mut z[len..len * width]);
                     for j in 0..d {
                         let (c, s) = (self.centre[j], self.scale[j]);
-                        z[(j + 1) * len..(j + 2) * len].iter_mut().for_each(|v| *v = (*v - c) / s);
+                        let column = &mut z[(j + 1) * len..(j + 2) * len];
+                        if self.inert[j] {
+                            column.iter_mut().for_each(|v| *v = 0.0);
+                        } else {
+                            column.iter_mut().for_each(|v| *v = (*v - c) / s);
+                        }
                     }
                     // Linear predictors, column by column.
                     for c in 0..q {
@@ -434,6 +451,51 @@ impl Problem<'_> {
         }
         total
     }
+}
+
+/// The refusal under `--refuse-aliased`: the aliased terms and what they
+/// are combinations of.
+pub fn aliased_error(family: &str, terms: &[String], aliased: &[Aliased]) -> Error {
+    Error::SingularCovariance {
+        family: family.into(),
+        whose: "of the inputs".into(),
+        columns: aliased.iter().flat_map(|a| a.involved.iter().chain([&a.column])).map(|&c| terms[c].clone()).collect(),
+        hint: crate::error::message![
+            format!("{}: remove them (", describe_aliased(terms, aliased)),
+            Setting::Exclude,
+            "), or leave out ",
+            Setting::RefuseAliased,
+            " to have them dropped from the fit"
+        ],
+    }
+}
+
+/// The warning when aliased terms are dropped.
+pub fn aliased_warning(terms: &[String], aliased: &[Aliased]) -> String {
+    format!(
+        "{}, so {} dropped from the fit (coefficient 0, no standard error; the model records {}); --refuse-aliased refuses instead",
+        describe_aliased(terms, aliased),
+        if aliased.len() == 1 { "it is" } else { "they are" },
+        if aliased.len() == 1 { "it" } else { "them" },
+    )
+}
+
+/// `'total' is aliased: a linear combination of 'a', 'b'; …`.
+fn describe_aliased(terms: &[String], aliased: &[Aliased]) -> String {
+    let quoted = |c: &usize| format!("'{}'", terms[*c]);
+    aliased
+        .iter()
+        .map(|a| {
+            let of: Vec<String> = a.involved.iter().map(quoted).collect();
+            let what = if of.is_empty() {
+                "constant".to_string()
+            } else {
+                format!("a linear combination of {}", of.join(", "))
+            };
+            format!("{} is aliased: {what} in the training rows", quoted(&a.column))
+        })
+        .collect::<Vec<_>>()
+        .join("; ")
 }
 
 /// Weighted mean and standard deviation (divisor: the total weight) of
@@ -541,6 +603,7 @@ pub fn fit(
             l2: 0.0,
             penalty: Some(fitted.record),
             diverging: Vec::new(),
+            aliased: Vec::new(),
         };
         let diagnostics =
             Diagnostics { iterations, converged: fitted.converged, log_likelihood: fitted.log_likelihood, warnings };
@@ -554,8 +617,16 @@ pub fn fit(
             order.push(c);
         }
     }
-    let problem =
-        Problem { encoding: &encoding, inputs, target: &dataset.target, weights: &weights, slot, centre, scale };
+    let mut problem = Problem {
+        encoding: &encoding,
+        inputs,
+        target: &dataset.target,
+        weights: &weights,
+        slot,
+        centre,
+        scale,
+        inert: vec![false; d],
+    };
     let q = order.len();
     let width = d + 1;
     let size = q * width;
@@ -564,8 +635,9 @@ pub fn fit(
     for (position, &c) in order.iter().enumerate() {
         theta[position * width] = (class_mix[c] / class_mix[reference]).ln();
     }
+    let warm = start.filter(|m| m.encoding == encoding && m.reference == reference);
     // A warm start: the previous fit's coefficients on this fit's standardised scale.
-    if let Some(previous) = start.filter(|m| m.encoding == encoding && m.reference == reference) {
+    if let Some(previous) = warm {
         for (position, c) in previous.coefficients.iter().enumerate() {
             let block = &mut theta[position * width..(position + 1) * width];
             let slopes: Vec<f64> = (0..d).map(|j| c.slopes[j] * problem.scale[j]).collect();
@@ -574,6 +646,7 @@ pub fn fit(
         }
     }
     let lambda = params.l2;
+    let mut warnings = Vec::new();
     let objective = |log_likelihood: f64, theta: &[f64]| {
         let penalty: f64 = (0..size).filter(|i| i % width != 0).map(|i| theta[i] * theta[i]).sum();
         -log_likelihood / total_weight + 0.5 * lambda * penalty
@@ -588,11 +661,52 @@ pub fn fit(
         }
     };
 
-    let mut warnings = Vec::new();
     let mut iterations = 0;
     let mut converged = false;
     let mut last_step = f64::INFINITY;
     let mut current = problem.pass(&theta, Derivatives::Hessian);
+    // Aliased inputs (unpenalised fits, where they leave the information
+    // singular). From the intercept-only start the information is the
+    // weighted cross-product of the standardised design, so its aliasing
+    // is the design's; a warm start (a fit on a superset of these rows)
+    // carries its own, which holds on any subset of its rows.
+    let aliased: Vec<Aliased> = match warm {
+        _ if lambda > 0.0 => Vec::new(),
+        Some(previous) => previous
+            .aliased
+            .iter()
+            .filter_map(|t| terms.iter().position(|x| x == t))
+            .map(|column| Aliased { column, involved: Vec::new() })
+            .collect(),
+        None => {
+            let block = DMatrix::from_fn(width, width, |a, b| current.hessian[a * size + b]);
+            // The intercept is column 0 of the information, never aliased.
+            aliased_columns(&block)
+                .into_iter()
+                .filter(|a| a.column > 0)
+                .map(|a| Aliased {
+                    column: a.column - 1,
+                    involved: a.involved.iter().filter(|&&c| c > 0).map(|c| c - 1).collect(),
+                })
+                .collect()
+        }
+    };
+    if !aliased.is_empty() {
+        if params.refuse_aliased {
+            return Err(aliased_error("logistic", &terms, &aliased));
+        }
+        if warm.is_none() {
+            warnings.push(aliased_warning(&terms, &aliased));
+        }
+        for a in &aliased {
+            problem.inert[a.column] = true;
+            for position in 0..q {
+                theta[position * width + a.column + 1] = 0.0;
+            }
+        }
+        current = problem.pass(&theta, Derivatives::Hessian);
+    }
+    let inert_parameter = |i: usize| !i.is_multiple_of(width) && problem.inert[i % width - 1];
     // From a warm start (a fit on similar rows, as in cross-validation) the
     // information matrix at the start is kept for every step: a
     // fixed-Hessian Newton iteration, which converges to the same optimum
@@ -628,6 +742,9 @@ pub fn fit(
                 let mut system = DMatrix::from_row_slice(size, size, &current.hessian) / total_weight;
                 for i in (0..size).filter(|i| i % width != 0) {
                     system[(i, i)] += lambda;
+                }
+                for i in (0..size).filter(|&i| inert_parameter(i)) {
+                    system[(i, i)] = 1.0;
                 }
                 cholesky(&system)
             }
@@ -752,9 +869,17 @@ pub fn fit(
         current = problem.pass(&theta, Derivatives::Hessian);
     }
     let covariance = if lambda == 0.0 && !current.hessian.is_empty() {
-        let information = DMatrix::from_row_slice(size, size, &current.hessian);
+        let mut information = DMatrix::from_row_slice(size, size, &current.hessian);
+        for i in (0..size).filter(|&i| inert_parameter(i)) {
+            information[(i, i)] = 1.0;
+        }
         cholesky(&information).ok().and_then(|f| {
-            let standardised = f.inverse();
+            let mut standardised = f.inverse();
+            // An aliased slope is fixed at 0: no variance, no covariance.
+            for i in (0..size).filter(|&i| inert_parameter(i)) {
+                standardised.row_mut(i).fill(0.0);
+                standardised.column_mut(i).fill(0.0);
+            }
             let original = &transform * standardised * transform.transpose();
             // At an input's extreme scale its slope's variance (the square
             // of a standard error of 1e200, say) may lie beyond a double.
@@ -790,6 +915,7 @@ pub fn fit(
         l2: lambda,
         penalty: None,
         diverging,
+        aliased: aliased.iter().map(|a| terms[a.column].clone()).collect(),
     };
     Ok((model, Diagnostics { iterations, converged, log_likelihood: current.log_likelihood, warnings }))
 }

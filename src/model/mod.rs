@@ -18,6 +18,7 @@
 
 pub mod aggregates;
 pub mod calibration;
+pub mod collinearity;
 pub mod design;
 pub mod discriminant;
 pub mod drift;
@@ -426,7 +427,28 @@ pub fn fit_weighted(
     }
 }
 
+impl FamilyParams {
+    /// Sets whether aliased inputs are refused (logistic regression and
+    /// LDA; the other families have no such inputs to drop).
+    pub fn set_refuse_aliased(&mut self, refuse: bool) {
+        match self {
+            FamilyParams::Logistic(p) => p.refuse_aliased = refuse,
+            FamilyParams::Lda(p) => p.refuse_aliased = refuse,
+            _ => {}
+        }
+    }
+}
+
 impl FittedModel {
+    /// The design terms dropped from the fit as aliased.
+    pub fn aliased(&self) -> &[String] {
+        match self {
+            FittedModel::Logistic(m) => &m.aliased,
+            FittedModel::Lda(m) | FittedModel::Qda(m) => &m.aliased,
+            FittedModel::NaiveBayes(_) => &[],
+        }
+    }
+
     /// The family.
     pub fn family(&self) -> Family {
         match self {

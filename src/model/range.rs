@@ -87,11 +87,8 @@ fn lda_bounds(m: &DiscriminantModel, budget: f64) -> Vec<f64> {
     let Some((inverse, norms)) = m.factors().ok().and_then(|f| inverse_column_norms(&f[0].lower)) else {
         return vec![0.0; p];
     };
-    let largest_v = m
-        .means
-        .iter()
-        .map(|mean| (&inverse * nalgebra::DVector::from_column_slice(mean)).norm())
-        .fold(1.0, f64::max);
+    let largest_v =
+        m.means.iter().map(|mean| (&inverse * nalgebra::DVector::from_column_slice(mean)).norm()).fold(1.0, f64::max);
     let share = share(budget, p);
     norms[..p].iter().map(|n| share / (2.0 * n * largest_v)).collect()
 }

@@ -50,6 +50,10 @@ pub struct Coefficient {
     /// odds ratio are where the fit stopped, not values.
     #[serde(skip_serializing_if = "std::ops::Not::not")]
     pub diverges: bool,
+    /// Dropped from the fit as an exact linear combination of earlier
+    /// terms: the estimate is 0 by construction and has no error.
+    #[serde(skip_serializing_if = "std::ops::Not::not")]
+    pub aliased: bool,
 }
 
 /// `inspect --json`.
@@ -160,7 +164,8 @@ pub fn logistic_coefficients(model: &LogisticModel) -> Vec<Coefficient> {
         let names = std::iter::once("(intercept)".to_string()).chain(terms.iter().cloned());
         for (a, (term, estimate)) in names.zip(values).enumerate() {
             let diverges = a > 0 && model.diverging.contains(&term);
-            let se = standard_errors.as_ref().map(|s| s[q][a]);
+            let aliased = a > 0 && model.aliased.contains(&term);
+            let se = standard_errors.as_ref().map(|s| s[q][a]).filter(|_| !aliased);
             let z = se.map(|s| estimate / s);
             out.push(Coefficient {
                 term,
@@ -171,8 +176,11 @@ pub fn logistic_coefficients(model: &LogisticModel) -> Vec<Coefficient> {
                 p_value: z.map(two_sided_p),
                 ci_low: se.map(|s| estimate - NORMAL_975 * s),
                 ci_high: se.map(|s| estimate + NORMAL_975 * s),
-                odds_ratio: (a > 0 && !diverges).then(|| estimate.exp()).filter(|r| r.is_finite() && *r > 0.0),
+                odds_ratio: (a > 0 && !diverges && !aliased)
+                    .then(|| estimate.exp())
+                    .filter(|r| r.is_finite() && *r > 0.0),
                 diverges,
+                aliased,
             });
         }
     }
@@ -191,6 +199,7 @@ pub fn discriminant_coefficients(model: &DiscriminantModel, prior: &[f64], posit
     for (class, intercept, w) in functions {
         let names = std::iter::once("(intercept)".to_string()).chain(terms.iter().cloned());
         for (term, estimate) in names.zip(std::iter::once(intercept).chain(w)) {
+            let aliased = model.aliased.contains(&term);
             out.push(Coefficient {
                 term,
                 class: several.then(|| model.classes[class].clone()),
@@ -202,10 +211,23 @@ pub fn discriminant_coefficients(model: &DiscriminantModel, prior: &[f64], posit
                 ci_high: None,
                 odds_ratio: None,
                 diverges: false,
+                aliased,
             });
         }
     }
     out
+}
+
+/// The line under a coefficient table naming the aliased terms.
+fn aliased_note(aliased: &[String], pooled_means: bool) -> String {
+    if aliased.is_empty() {
+        return String::new();
+    }
+    format!(
+        "(aliased: {} — an exact linear combination of earlier inputs in the training rows, dropped from the fit; it carries no evidence{})\n",
+        aliased.iter().map(|t| format!("'{t}'")).collect::<Vec<_>>().join(", "),
+        if pooled_means { ", and its class means are the pooled mean" } else { "" }
+    )
 }
 
 fn by_class<T: Clone>(classes: &[String], values: &[T]) -> BTreeMap<String, T> {
@@ -350,6 +372,20 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
                 if json.penalty.is_some() && c.term != "(intercept)" && c.estimate == 0.0 {
                     continue;
                 }
+                if c.aliased {
+                    let class = c.class.clone().unwrap_or_else(|| file.positive.clone());
+                    table.row(vec![
+                        c.term.clone(),
+                        class,
+                        "aliased".into(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                    ]);
+                    continue;
+                }
                 let interval = match (c.ci_low, c.ci_high) {
                     (Some(a), Some(b)) => format!("{} … {}", number(a, 4), number(b, 4)),
                     _ => String::new(),
@@ -374,6 +410,7 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
                 ]);
             }
             out.push_str(&table.render());
+            out.push_str(&aliased_note(&m.aliased, false));
             if m.penalty.is_some() {
                 out.push_str("(penalised fit: no standard errors; a penalised estimate's sampling error is not the inverse information)\n");
             } else if !m.diverging.is_empty() {
@@ -397,10 +434,11 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
                 table.row(vec![
                     c.term.clone(),
                     c.class.clone().unwrap_or_else(|| file.positive.clone()),
-                    number(c.estimate, 6),
+                    if c.aliased { "aliased".into() } else { number(c.estimate, 6) },
                 ]);
             }
             out.push_str(&table.render());
+            out.push_str(&aliased_note(&m.aliased, true));
             out.push_str(&class_means(&m.classes, &m.encoding.terms(), &m.means));
         }
         FittedModel::Qda(m) => {
