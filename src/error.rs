@@ -128,6 +128,9 @@ pub enum Setting {
     /// Refusing aliased inputs rather than dropping them
     /// (`LogisticParams::refuse_aliased`, `LdaParams::refuse_aliased`).
     RefuseAliased,
+    /// How LDA and QDA take categorical inputs (`LdaParams::categories`,
+    /// `QdaParams::categories`).
+    Categories,
 }
 
 impl Setting {
@@ -189,6 +192,7 @@ impl Setting {
             Setting::Delimiter => "delimiter",
             Setting::MemoryLimit => "memory_limit",
             Setting::RefuseAliased => "refuse_aliased",
+            Setting::Categories => "categories",
         }
     }
 

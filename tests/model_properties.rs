@@ -202,8 +202,13 @@ fn model_files_round_trip_exactly() {
 #[test]
 fn fold_moments_equal_direct_fold_fits() {
     use baserate::model::design::Encoding;
-    use baserate::model::discriminant::{fit_lda_from_moments, fit_qda, fit_qda_from_moments, LdaParams, QdaParams};
+    use baserate::model::discriminant::{
+        fit_lda_from_moments, fit_qda, fit_qda_from_moments, CategoryModel, LdaParams, QdaParams,
+    };
     use baserate::model::moments::{grouped_class_moments, Moments};
+    // The moment path is the one-hot design's; the level frequencies have none.
+    let qda = QdaParams { categories: CategoryModel::OneHot, ..QdaParams::default() };
+    let lda_params = LdaParams { categories: CategoryModel::OneHot, ..LdaParams::default() };
     let data = lending(&demo_lending());
     let folds: Vec<u32> = (0..data.rows()).map(|i| (i * 7 % 5) as u32).collect();
     let encoding = Encoding::from_schema(&data.schema);
@@ -218,15 +223,15 @@ fn fold_moments_equal_direct_fold_fits() {
             }
         }
         let weights: Vec<f64> = folds.iter().map(|&f| if f == fold { 0.0 } else { 1.0 }).collect();
-        let (direct, _) = fit_qda(&data, &QdaParams::default(), Some(&weights)).expect("fit");
+        let (direct, _) = fit_qda(&data, &qda, Some(&weights)).expect("fit");
         let (from_moments, _) =
-            fit_qda_from_moments(&data, &QdaParams::default(), encoding.clone(), merged.clone()).expect("fit");
+            fit_qda_from_moments(&data, &qda, encoding.clone(), merged.clone(), Vec::new()).expect("fit");
         let a = baserate::model::FittedModel::Qda(direct).posteriors(&data.inputs(), &[0.1, 0.9]);
         let b = baserate::model::FittedModel::Qda(from_moments).posteriors(&data.inputs(), &[0.1, 0.9]);
         assert!(max_difference(&a, &b) < 1e-12, "fold {fold}: {}", max_difference(&a, &b));
-        let (lda, _) = fit_lda_from_moments(&data, &LdaParams::default(), None, encoding.clone(), merged).expect("lda");
-        let (direct, _) =
-            baserate::model::discriminant::fit_lda(&data, &LdaParams::default(), Some(&weights)).expect("lda");
+        let (lda, _) =
+            fit_lda_from_moments(&data, &lda_params, None, encoding.clone(), merged, Vec::new()).expect("lda");
+        let (direct, _) = baserate::model::discriminant::fit_lda(&data, &lda_params, Some(&weights)).expect("lda");
         assert_eq!(lda.classes, direct.classes);
         let a = baserate::model::FittedModel::Lda(lda).posteriors(&data.inputs(), &[0.1, 0.9]);
         let b = baserate::model::FittedModel::Lda(direct).posteriors(&data.inputs(), &[0.1, 0.9]);

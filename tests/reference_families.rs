@@ -8,7 +8,7 @@ mod common;
 use std::path::{Path, PathBuf};
 
 use baserate::data::{Dataset, ReadOptions};
-use baserate::model::discriminant::{Divisor, LdaParams, QdaParams, Shrinkage};
+use baserate::model::discriminant::{CategoryModel, Divisor, LdaParams, QdaParams, Shrinkage};
 use baserate::model::logistic::LogisticParams;
 use baserate::model::naive_bayes::NaiveBayesParams;
 use baserate::model::{fit, FamilyParams, FittedModel};
@@ -88,9 +88,13 @@ fn class_conditional_families_match_scikit_learn() {
                     shrinkage: Shrinkage::None,
                     divisor: Divisor::Rows,
                     refuse_aliased: false,
+                    categories: CategoryModel::OneHot,
                 }),
             ),
-            ("qda", FamilyParams::Qda(QdaParams { reg: 0.0, divisor: Divisor::Rows })),
+            (
+                "qda",
+                FamilyParams::Qda(QdaParams { reg: 0.0, divisor: Divisor::Rows, categories: CategoryModel::OneHot }),
+            ),
             ("naive_bayes", FamilyParams::NaiveBayes(NaiveBayesParams { smoothing: 1.0, variance_floor: 0.0 })),
         ];
         for (key, params) in families {
@@ -153,6 +157,7 @@ fn lda_shrinkage_matches_scikit_learn() {
             shrinkage: Shrinkage::LedoitWolf,
             divisor: Divisor::Unbiased,
             refuse_aliased: false,
+            categories: CategoryModel::OneHot,
         });
         let (model, _) = fit(&data, &params).expect("fit");
         let FittedModel::Lda(lda) = &model else { panic!("lda") };
@@ -169,6 +174,7 @@ fn lda_shrinkage_matches_scikit_learn() {
             shrinkage: Shrinkage::Value(0.3),
             divisor: Divisor::Rows,
             refuse_aliased: false,
+            categories: CategoryModel::OneHot,
         });
         let (model, _) = fit(&scaled, &params).expect("fit");
         let worst = worst_relative(&posteriors(&model, &scaled, None), &matrix(&fixture["posteriors"]));

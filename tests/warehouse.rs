@@ -275,6 +275,23 @@ fn exported_sql_reproduces_score_in_postgresql() {
             key: "application_id",
         });
     }
+    // Both treatments of the categorical inputs, each family's other one.
+    cases.push(Case {
+        name: "lda, level frequencies",
+        fit: with(lending_fit("lda"), &["--category-model", "frequencies"]),
+        flags: lending_flags(&[]),
+        table: "new_portfolio",
+        data: Path::new(portfolio),
+        key: "application_id",
+    });
+    cases.push(Case {
+        name: "qda, one-hot",
+        fit: with(lending_fit("qda"), &["--category-model", "one-hot"]),
+        flags: lending_flags(&[]),
+        table: "new_portfolio",
+        data: Path::new(portfolio),
+        key: "application_id",
+    });
     cases.push(Case {
         name: "qda, base rate 3%",
         fit: lending_fit("qda"),
@@ -682,8 +699,11 @@ fn fitting_from_postgresql_aggregates_equals_fitting_from_the_file() {
     pg.load("train", &weighted, &numeric);
     let portfolio = lending.join("new_portfolio.csv");
     let inputs = ["income", "debt_to_income", "revolving_utilisation", "months_at_address", "amount_requested"];
-    let cases: [(&str, &[&str], &[&str], &str); 6] = [
+    let cases: [(&str, &[&str], &[&str], &str); 8] = [
         ("lda", &[], &[], "postgres"),
+        // Each family's other treatment of the categorical inputs.
+        ("lda", &[], &["--category-model", "frequencies"], "postgres"),
+        ("qda", &["--weight", "w"], &["--category-model", "one-hot"], "ansi"),
         ("qda", &[], &[], "postgres"),
         ("naive-bayes", &[], &[], "postgres"),
         ("lda", &["--weight", "w"], &["--shrinkage", "0.2"], "ansi"),
@@ -866,6 +886,12 @@ fn the_ansi_dialect_runs_in_duckdb_too() {
     let cases = [
         lending_case("lda, capacity", lending_fit("lda"), lending_flags(&[])),
         lending_case("qda, base rate", lending_fit("qda"), lending_flags(&["--base-rate", "0.03"])),
+        lending_case(
+            "lda, level frequencies",
+            with(lending_fit("lda"), &["--category-model", "frequencies"]),
+            lending_flags(&[]),
+        ),
+        lending_case("qda, one-hot", with(lending_fit("qda"), &["--category-model", "one-hot"]), lending_flags(&[])),
         lending_case(
             "naive-bayes + platt",
             with(lending_fit("naive-bayes"), &["--calibrate", "platt"]),

@@ -4,7 +4,7 @@
 
 use baserate::error::Error;
 use baserate::evaluate::compare::Candidate;
-use baserate::model::discriminant::{Divisor, LdaParams, QdaParams, Shrinkage};
+use baserate::model::discriminant::{CategoryModel, Divisor, LdaParams, QdaParams, Shrinkage};
 use baserate::model::logistic::{ClassWeight, LogisticParams};
 use baserate::model::naive_bayes::NaiveBayesParams;
 use baserate::model::penalised::{LambdaChoice, LambdaRule, Penalty};
@@ -42,6 +42,24 @@ pub enum DivisorArg {
     Unbiased,
     /// n for LDA, nₖ for QDA (maximum likelihood).
     Rows,
+}
+
+/// `--category-model` values.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum CategoryModelArg {
+    /// 0/1 columns, Gaussian with the numeric inputs.
+    OneHot,
+    /// Smoothed class-conditional level frequencies beside the numeric inputs' Gaussian.
+    Frequencies,
+}
+
+impl From<CategoryModelArg> for CategoryModel {
+    fn from(c: CategoryModelArg) -> CategoryModel {
+        match c {
+            CategoryModelArg::OneHot => CategoryModel::OneHot,
+            CategoryModelArg::Frequencies => CategoryModel::Frequencies,
+        }
+    }
 }
 
 /// Per-family options, shared by `fit` and (later) `compare`.
@@ -92,6 +110,9 @@ pub struct FamilyOptions {
     /// lda, qda: covariance divisor.
     #[arg(long, value_enum, value_name = "D")]
     pub covariance_divisor: Option<DivisorArg>,
+    /// lda, qda: how categorical inputs enter [default: one-hot for lda, frequencies for qda].
+    #[arg(long, value_enum, value_name = "M")]
+    pub category_model: Option<CategoryModelArg>,
     /// logistic, lda: refuse inputs that are exact linear combinations of others, instead of dropping them from the fit.
     #[arg(long)]
     pub refuse_aliased: bool,
@@ -133,7 +154,10 @@ impl FamilyOptions {
             matches!(family, Family::Logistic | Family::Lda),
         )?;
         check(
-            &[("--covariance-divisor", self.covariance_divisor.is_some())],
+            &[
+                ("--covariance-divisor", self.covariance_divisor.is_some()),
+                ("--category-model", self.category_model.is_some()),
+            ],
             "lda and qda",
             matches!(family, Family::Lda | Family::Qda),
         )?;
@@ -141,6 +165,7 @@ impl FamilyOptions {
             Some(DivisorArg::Rows) => Divisor::Rows,
             _ => Divisor::Unbiased,
         };
+        let categories = self.category_model.map(CategoryModel::from);
         let params = match family {
             Family::Logistic => {
                 let defaults = LogisticParams::default();
@@ -216,8 +241,13 @@ impl FamilyOptions {
                 shrinkage: parse_shrinkage(self.shrinkage.as_deref())?,
                 divisor,
                 refuse_aliased: self.refuse_aliased,
+                categories: categories.unwrap_or(LdaParams::default().categories),
             }),
-            Family::Qda => FamilyParams::Qda(QdaParams { reg: self.reg.unwrap_or(0.0), divisor }),
+            Family::Qda => FamilyParams::Qda(QdaParams {
+                reg: self.reg.unwrap_or(0.0),
+                divisor,
+                categories: categories.unwrap_or(QdaParams::default().categories),
+            }),
         };
         params.check()?;
         Ok(params)
@@ -318,6 +348,17 @@ pub fn parse_candidate(spec: &str) -> baserate::Result<Candidate> {
                     v => {
                         return Err(Error::Usage(format!(
                             "--family {spec}: covariance-divisor '{v}' is not unbiased or rows"
+                        )))
+                    }
+                })
+            }
+            "category-model" => {
+                options.category_model = Some(match value {
+                    "one-hot" => CategoryModelArg::OneHot,
+                    "frequencies" => CategoryModelArg::Frequencies,
+                    v => {
+                        return Err(Error::Usage(format!(
+                            "--family {spec}: category-model '{v}' is not one-hot or frequencies"
                         )))
                     }
                 })

@@ -98,6 +98,7 @@ pub fn flag(setting: Setting, value: Option<&str>) -> String {
         Setting::AcceptEdited => "--accept-edited-model",
         Setting::MemoryLimit => "--memory-limit",
         Setting::RefuseAliased => "--refuse-aliased",
+        Setting::Categories => "--category-model",
         Setting::Bootstrap => "--bootstrap",
         Setting::Threads => "--threads",
         Setting::Delimiter => "--delimiter",

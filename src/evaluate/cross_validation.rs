@@ -13,7 +13,7 @@ use crate::data::split::{Assignment, LEFT_OUT};
 use crate::data::Dataset;
 use crate::error::Result;
 use crate::evaluate::paired::log_odds_of;
-use crate::model::discriminant::{fit_lda_from_moments, fit_qda_from_moments};
+use crate::model::discriminant::{fit_lda_from_moments, fit_qda_from_moments, CategoryModel, Shrinkage};
 use crate::model::moments::{grouped_class_moments, Moments};
 use crate::model::{fit_weighted, Family, FamilyParams, FittedModel};
 use crate::rng::Rng;
@@ -135,10 +135,14 @@ pub fn cross_predict(
     // LDA and QDA need only per-class moments: one pass per repeat gives
     // every fold's, and a fold's training moments are the merge of the
     // other folds' (Chan, Golub & LeVeque's update: exact, with no
-    // cancellation, unlike subtracting the fold from the total).
+    // cancellation, unlike subtracting the fold from the total). Level
+    // frequencies of categorical inputs are fitted fold by fold instead.
+    let one_hot_design = |categories: CategoryModel| {
+        categories == CategoryModel::OneHot || dataset.schema.categorical_inputs().is_empty()
+    };
     let uses_moments = |c: &Candidate| match &c.params {
-        FamilyParams::Lda(p) => p.shrinkage != crate::model::discriminant::Shrinkage::LedoitWolf,
-        FamilyParams::Qda(_) => true,
+        FamilyParams::Lda(p) => p.shrinkage != Shrinkage::LedoitWolf && one_hot_design(p.categories),
+        FamilyParams::Qda(p) => one_hot_design(p.categories),
         _ => false,
     };
     let encoding = crate::model::design::Encoding::from_schema(&dataset.schema);
@@ -185,11 +189,13 @@ pub fn cross_predict(
     let fit_fold = |c: usize, repeat: usize, fold: usize| -> Result<FoldPrediction> {
         let (model, diagnostics) = match &candidates[c].params {
             FamilyParams::Lda(p) if uses_moments(&candidates[c]) => {
-                let (m, d) = fit_lda_from_moments(dataset, p, None, encoding.clone(), training_moments(repeat, fold))?;
+                let moments = training_moments(repeat, fold);
+                let (m, d) = fit_lda_from_moments(dataset, p, None, encoding.clone(), moments, Vec::new())?;
                 (FittedModel::Lda(m), d)
             }
-            FamilyParams::Qda(p) => {
-                let (m, d) = fit_qda_from_moments(dataset, p, encoding.clone(), training_moments(repeat, fold))?;
+            FamilyParams::Qda(p) if uses_moments(&candidates[c]) => {
+                let moments = training_moments(repeat, fold);
+                let (m, d) = fit_qda_from_moments(dataset, p, encoding.clone(), moments, Vec::new())?;
                 (FittedModel::Qda(m), d)
             }
             params => {
@@ -257,9 +263,7 @@ pub fn cross_predict(
                 }
             }
         }
-        let warnings =
-            diagnostics.warnings.iter().map(|w| format!("repeat {} fold {}: {w}", repeat + 1, fold + 1)).collect();
-        Ok((c, repeat, rows, predictions, warnings))
+        Ok((c, repeat, rows, predictions, diagnostics.warnings))
     };
     let fitted: Vec<(usize, usize, usize, Result<FoldPrediction>)> = splits
         .iter()
@@ -282,17 +286,23 @@ pub fn cross_predict(
         })
         .collect();
     let repeated = assignment.folds.len() > 1;
+    let place_of = |repeat: usize, fold: usize| {
+        if repeated {
+            format!("repeat {}, fold {}", repeat + 1, fold + 1)
+        } else {
+            format!("fold {}", fold + 1)
+        }
+    };
+    // Each candidate's warnings in fold order, one entry per text with the
+    // folds that gave it.
+    let mut warned: Vec<Vec<(String, Vec<String>)>> = vec![Vec::new(); candidates.len()];
     for (c, repeat, fold, result) in fitted {
         let (c, repeat, rows, predictions, warnings) = match result {
             Ok(fitted) => fitted,
             Err(error) => {
                 // The first failing fold, in fold order, is the one reported.
                 if out[c].failure.is_none() {
-                    let place = if repeated {
-                        format!("repeat {}, fold {}", repeat + 1, fold + 1)
-                    } else {
-                        format!("fold {}", fold + 1)
-                    };
+                    let place = place_of(repeat, fold);
                     out[c].failure = Some(CandidateFailure { place, error: std::sync::Arc::new(error) });
                 }
                 continue;
@@ -304,7 +314,16 @@ pub fn cross_predict(
                 target[(r, class)] = predictions[(i, class)];
             }
         }
-        out[c].warnings.extend(warnings);
+        for warning in warnings {
+            match warned[c].iter_mut().find(|(text, _)| *text == warning) {
+                Some((_, places)) => places.push(place_of(repeat, fold)),
+                None => warned[c].push((warning, vec![place_of(repeat, fold)])),
+            }
+        }
+    }
+    for (predictions, warnings) in out.iter_mut().zip(warned) {
+        predictions.warnings =
+            warnings.into_iter().map(|(text, places)| format!("{}: {text}", places.join("; "))).collect();
     }
     Ok(out)
 }

@@ -43,6 +43,7 @@ use crate::error::{Error, Result};
 use crate::export::sql::{self, clamp, greatest, ident, number, output_ident, pick_first, string, Dialect};
 use crate::model::calibration::CalibrationMap;
 use crate::model::design::Encoding;
+use crate::model::levels::CategoricalLikelihood;
 use crate::model::FittedModel;
 use crate::train::file::ModelFile;
 
@@ -420,8 +421,10 @@ fn evidence_stages(stages: &mut Stages, file: &ModelFile, plan: &Plan, base: &[f
             }
         }
         FittedModel::Lda(m) => {
-            check_width(file, plan, m.encoding.numeric.len(), m.encoding.one_hot.len())?;
-            let terms = design_terms(&m.encoding);
+            // Level-frequency inputs are in the discriminant as one-hot terms.
+            let encoding = m.full_encoding();
+            check_width(file, plan, encoding.numeric.len(), encoding.one_hot.len())?;
+            let terms = design_terms(&encoding);
             let reference = 0;
             let discriminants = m.linear_discriminant(base, reference)?;
             columns.push(alias(guarded("0E0".into()), &format!("__br_s{reference}")));
@@ -430,7 +433,7 @@ fn evidence_stages(stages: &mut Stages, file: &ModelFile, plan: &Plan, base: &[f
             }
         }
         FittedModel::Qda(m) => {
-            check_width(file, plan, m.encoding.numeric.len(), m.encoding.one_hot.len())?;
+            check_width(file, plan, m.encoding.numeric.len(), m.encoding.one_hot.len() + m.levels.len())?;
             let terms = design_terms(&m.encoding);
             let d = terms.len();
             let factors = m.factors()?;
@@ -457,16 +460,12 @@ fn evidence_stages(stages: &mut Stages, file: &ModelFile, plan: &Plan, base: &[f
                 }
                 let squares: Vec<String> =
                     (0..d).map(|i| format!("\"__br_z{class}_{i}\" * \"__br_z{class}_{i}\"")).collect();
-                columns.push(alias(
-                    format!(
-                        "{} * ({} + ({})) + {}",
-                        number(-0.5),
-                        number(factor.log_det),
-                        sql::sum(&squares),
-                        number(log_base[class])
-                    ),
-                    &format!("__br_s{class}"),
-                ));
+                let mut evidence = vec![
+                    format!("{} * ({} + ({}))", number(-0.5), number(factor.log_det), sql::sum(&squares)),
+                    number(log_base[class]),
+                ];
+                evidence.extend(level_terms(&m.levels, class));
+                columns.push(alias(sql::sum(&evidence), &format!("__br_s{class}")));
             }
             stages.push("__br_wh", whitened);
         }
@@ -494,14 +493,7 @@ fn evidence_stages(stages: &mut Stages, file: &ModelFile, plan: &Plan, base: &[f
                         number(zero)
                     ));
                 }
-                for (c, table) in m.categorical.iter().enumerate() {
-                    let branches: String = table.log_probabilities[class]
-                        .iter()
-                        .enumerate()
-                        .map(|(level, lp)| format!(" WHEN {level} THEN {}", number(*lp)))
-                        .collect();
-                    terms.push(format!("CASE \"__br_g{c}\"{branches} END"));
-                }
+                terms.extend(level_terms(&m.categorical, class));
                 terms.push(number(log_base[class]));
                 columns.push(alias(guarded(sql::sum(&terms)), &format!("__br_s{class}")));
             }
@@ -509,6 +501,23 @@ fn evidence_stages(stages: &mut Stages, file: &ModelFile, plan: &Plan, base: &[f
     }
     stages.push("__br_ev", columns);
     Ok((0..k).map(|c| col(&format!("__br_s{c}"))).collect())
+}
+
+/// log P(level | class) of each level-frequency input, as a `CASE` on its
+/// level code (the inputs are the plan's categorical inputs, in order).
+fn level_terms(tables: &[CategoricalLikelihood], class: usize) -> Vec<String> {
+    tables
+        .iter()
+        .enumerate()
+        .map(|(c, table)| {
+            let branches: String = table.log_probabilities[class]
+                .iter()
+                .enumerate()
+                .map(|(level, lp)| format!(" WHEN {level} THEN {}", number(*lp)))
+                .collect();
+            format!("CASE \"__br_g{c}\"{branches} END")
+        })
+        .collect()
 }
 
 /// How errors name the model (the request does not carry its file name).

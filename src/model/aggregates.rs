@@ -41,8 +41,9 @@ use crate::data::schema::{
 };
 use crate::error::{Error, Message, Result, Setting};
 use crate::model::design::Encoding;
-use crate::model::discriminant::{lda_from_moments, qda_from_moments};
+use crate::model::discriminant::{gaussian_encoding, lda_from_moments, qda_from_moments};
 use crate::model::drift::{DriftReference, FeatureBins};
+use crate::model::levels::LevelCounts;
 use crate::model::moments::Moments;
 use crate::model::naive_bayes::{fit_summaries, NaiveBayesSummaries};
 use crate::model::{Diagnostics, Family, FamilyParams, FittedModel};
@@ -313,12 +314,26 @@ pub fn fit_from_aggregates(aggregates: &Aggregates, request: &FromAggregates) ->
         rows_dropped: if request.missing == MissingPolicy::DropRows { incomplete as usize } else { 0 },
     };
 
-    // The moments of each class's design columns (naive Bayes: the numeric
-    // inputs alone; its categorical inputs are counted, not one-hot).
-    let encoding = match family {
-        Family::NaiveBayes => Encoding { numeric: schema.numeric_inputs(), one_hot: Vec::new() },
-        _ => Encoding::from_schema(&schema),
+    // The moments of each class's design columns (naive Bayes and the level
+    // frequencies of LDA and QDA: the numeric inputs alone; their
+    // categorical inputs are counted, not one-hot).
+    let encoding = match &request.params {
+        FamilyParams::Lda(p) => gaussian_encoding(&schema, p.categories),
+        FamilyParams::Qda(p) => gaussian_encoding(&schema, p.categories),
+        _ => Encoding { numeric: schema.numeric_inputs(), one_hot: Vec::new() },
     };
+    // Level counts of the inputs the design leaves out.
+    let level_counts: Vec<LevelCounts> = aggregates
+        .categorical
+        .iter()
+        .enumerate()
+        .filter(|(_, name)| !encoding.one_hot.iter().any(|h| &h.column == *name))
+        .map(|(g, name)| {
+            let counts =
+                classes.iter().map(|c| levels[g].iter().map(|l| level_sums(c, g, l).weight).collect()).collect();
+            (name.clone(), levels[g].clone(), counts)
+        })
+        .collect();
     let moments: Vec<Moments> = classes
         .iter()
         .map(|class| {
@@ -338,31 +353,19 @@ pub fn fit_from_aggregates(aggregates: &Aggregates, request: &FromAggregates) ->
         .map_err(|m: String| bad(m.into()))?;
     let (model, mut diagnostics) = match &request.params {
         FamilyParams::Lda(params) => {
-            let (m, d) = lda_from_moments(&classes, params, encoding, moments, None)?;
+            let (m, d) = lda_from_moments(&classes, params, encoding, moments, level_counts, None)?;
             (FittedModel::Lda(m), d)
         }
         FamilyParams::Qda(params) => {
-            let (m, d) = qda_from_moments(&classes, params, encoding, moments)?;
+            let (m, d) = qda_from_moments(&classes, params, encoding, moments, level_counts)?;
             (FittedModel::Qda(m), d)
         }
         FamilyParams::NaiveBayes(params) => {
-            let categorical = aggregates
-                .categorical
-                .iter()
-                .enumerate()
-                .map(|(g, name)| {
-                    let counts = classes
-                        .iter()
-                        .map(|c| levels[g].iter().map(|l| level_sums(c, g, l).weight).collect())
-                        .collect();
-                    (name.clone(), levels[g].clone(), counts)
-                })
-                .collect();
             let summaries = NaiveBayesSummaries {
                 numeric: aggregates.numeric.clone(),
                 moments,
                 indicators: Vec::new(),
-                categorical,
+                categorical: level_counts,
             };
             let (m, d) = fit_summaries(&classes, params, &summaries)?;
             (FittedModel::NaiveBayes(m), d)

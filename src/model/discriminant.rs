@@ -16,6 +16,20 @@
 //!   pooled covariance, (1 − γ)Σₖ + γΣ (Friedman 1989, "Regularized
 //!   discriminant analysis", JASA 84(405)).
 //!
+//! - Categorical inputs enter in one of two ways ([`CategoryModel`]):
+//!   one-hot, as 0/1 design columns modelled as Gaussian with the numeric
+//!   inputs (LDA's default), or (QDA's) through their smoothed
+//!   class-conditional level frequencies beside a Gaussian model of the
+//!   numeric inputs alone: p(x | k) = p(x_cat | k)·p(x_num | k), each
+//!   categorical input independent of the rest given the class. This is
+//!   the simplest case of the location model (Krzanowski 1975,
+//!   "Discrimination and classification using both binary and continuous
+//!   variables", JASA 70(352), §2: a multinomial over the cells of the
+//!   categorical inputs, a Gaussian of the continuous ones within each
+//!   cell, here with the cell means equal and the cell probabilities a
+//!   product over the inputs), with Laplace smoothing (α = 1) of the level
+//!   frequencies as in naive Bayes.
+//!
 //! log p(x | k) = −½(d·ln 2π + ln|Σₖ| + ‖Lₖ⁻¹(x − μₖ)‖²) through the Cholesky
 //! factor Lₖ: one triangular solve per row and class, no explicit inverse.
 
@@ -25,10 +39,12 @@ use nalgebra::{DMatrix, DVector};
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
+use crate::data::schema::Schema;
 use crate::data::{Dataset, Inputs};
 use crate::error::{Error, Message, Result, Setting};
-use crate::model::design::Encoding;
-use crate::model::linalg::{cholesky, Factor, Singularity};
+use crate::model::design::{Encoding, OneHot};
+use crate::model::levels::{add_level_terms, level_counts, level_likelihoods, CategoricalLikelihood, LevelCounts};
+use crate::model::linalg::{cholesky, weakest_direction, Factor, Singularity, NEAR_SINGULAR_RATIO};
 use crate::model::moments::{class_moments, Moments};
 use crate::model::Diagnostics;
 
@@ -56,13 +72,61 @@ pub enum Divisor {
     Rows,
 }
 
+/// How LDA and QDA take categorical inputs.
+///
+/// Each family's default is the treatment that predicted better out of
+/// sample on the demo lending data and on statsmodels' fair data (README,
+/// "Categorical inputs in LDA and QDA"): one-hot for LDA, whose pooled
+/// covariance also carries how the levels move with the numeric inputs;
+/// level frequencies for QDA, whose class covariances are nearly singular
+/// along the 0/1 columns of rare levels.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum CategoryModel {
+    /// One 0/1 design column per level but the first, modelled as Gaussian
+    /// with the numeric inputs.
+    OneHot,
+    /// Smoothed class-conditional level frequencies beside a Gaussian model
+    /// of the numeric inputs (the location model; see the module notes).
+    Frequencies,
+}
+
+impl CategoryModel {
+    /// The treatment of model files written before there was a choice.
+    fn older_files() -> Self {
+        CategoryModel::OneHot
+    }
+
+    /// The name `--category-model` takes.
+    pub fn name(self) -> &'static str {
+        match self {
+            CategoryModel::OneHot => "one-hot",
+            CategoryModel::Frequencies => "frequencies",
+        }
+    }
+}
+
+/// Additive smoothing of the level frequencies under
+/// [`CategoryModel::Frequencies`]: Laplace's, naive Bayes' default.
+pub const LEVEL_SMOOTHING: f64 = 1.0;
+
+/// The design columns of the Gaussian part: every input under one-hot, the
+/// numeric inputs alone under level frequencies.
+pub fn gaussian_encoding(schema: &Schema, categories: CategoryModel) -> Encoding {
+    match categories {
+        CategoryModel::OneHot => Encoding::from_schema(schema),
+        CategoryModel::Frequencies => Encoding { numeric: schema.numeric_inputs(), one_hot: Vec::new() },
+    }
+}
+
 /// LDA hyperparameters.
 ///
 /// | name | default | meaning | range |
 /// |---|---|---|---|
 /// | shrinkage | none | shrinkage of the pooled covariance | none, ledoit-wolf, [0, 1] |
 /// | divisor | unbiased | n − K, or n | |
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, Default)]
+/// | categories | one-hot | how categorical inputs enter | one-hot, frequencies |
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct LdaParams {
     /// Shrinkage of the pooled covariance.
     pub shrinkage: Shrinkage,
@@ -72,6 +136,20 @@ pub struct LdaParams {
     /// instead of dropping them from the fit (`--refuse-aliased`).
     #[serde(default, skip_serializing_if = "std::ops::Not::not")]
     pub refuse_aliased: bool,
+    /// How categorical inputs enter.
+    #[serde(default = "CategoryModel::older_files")]
+    pub categories: CategoryModel,
+}
+
+impl Default for LdaParams {
+    fn default() -> Self {
+        LdaParams {
+            shrinkage: Shrinkage::default(),
+            divisor: Divisor::default(),
+            refuse_aliased: false,
+            categories: CategoryModel::OneHot,
+        }
+    }
 }
 
 /// QDA hyperparameters.
@@ -80,19 +158,35 @@ pub struct LdaParams {
 /// |---|---|---|---|
 /// | reg | 0 | weight of the pooled covariance in each class's | [0, 1] |
 /// | divisor | unbiased | nₖ − 1, or nₖ | |
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, Default)]
+/// | categories | frequencies | how categorical inputs enter | one-hot, frequencies |
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct QdaParams {
     /// Friedman's γ: Σₖ(γ) = (1 − γ)Σₖ + γΣ.
     pub reg: f64,
     /// Divisor of the class covariances.
     pub divisor: Divisor,
+    /// How categorical inputs enter.
+    #[serde(default = "CategoryModel::older_files")]
+    pub categories: CategoryModel,
+}
+
+impl Default for QdaParams {
+    fn default() -> Self {
+        QdaParams { reg: 0.0, divisor: Divisor::default(), categories: CategoryModel::Frequencies }
+    }
 }
 
 /// A fitted LDA or QDA model.
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct DiscriminantModel {
-    /// How inputs become design columns.
+    /// How inputs become the design columns of the Gaussian part (the
+    /// numeric inputs alone under level frequencies).
     pub encoding: Encoding,
+    /// Categorical inputs modelled by their smoothed class-conditional
+    /// level frequencies ([`CategoryModel::Frequencies`]); empty under
+    /// one-hot, where they are design columns.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub levels: Vec<CategoricalLikelihood>,
     /// Class names.
     pub classes: Vec<String>,
     /// Training weight of each class.
@@ -118,6 +212,7 @@ pub struct DiscriminantModel {
 impl PartialEq for DiscriminantModel {
     fn eq(&self, other: &Self) -> bool {
         self.encoding == other.encoding
+            && self.levels == other.levels
             && self.classes == other.classes
             && self.class_weights == other.class_weights
             && self.means == other.means
@@ -138,6 +233,28 @@ fn to_matrix(covariance: &[f64]) -> DMatrix<f64> {
 }
 
 impl DiscriminantModel {
+    /// How the model takes categorical inputs; `None` when it has none.
+    pub fn category_model(&self) -> Option<CategoryModel> {
+        if !self.levels.is_empty() {
+            Some(CategoryModel::Frequencies)
+        } else if !self.encoding.one_hot.is_empty() {
+            Some(CategoryModel::OneHot)
+        } else {
+            None
+        }
+    }
+
+    /// Every input as one-hot design columns: the Gaussian part's columns
+    /// followed by the level-frequency inputs' levels. The linear
+    /// discriminant is written on these terms whichever the treatment.
+    pub fn full_encoding(&self) -> Encoding {
+        let mut encoding = self.encoding.clone();
+        encoding
+            .one_hot
+            .extend(self.levels.iter().map(|t| OneHot { column: t.column.clone(), levels: t.levels.clone() }));
+        encoding
+    }
+
     /// The covariance factors; an error when a covariance is not positive
     /// definite (a corrupt or hand-edited model file).
     pub fn factors(&self) -> Result<&[Factor]> {
@@ -169,8 +286,8 @@ impl DiscriminantModel {
             return Err("a covariance has the wrong size".into());
         }
         let all = self.means.iter().flatten().chain(self.covariances.iter().flatten());
-        if all.clone().any(|v| !v.is_finite()) {
-            return Err("a parameter is not a finite number".into());
+        if all.clone().any(|v| !v.is_finite()) || !self.levels.iter().all(|t| crate::model::levels::valid(t, k)) {
+            return Err("a parameter is not a finite number, or a level table has the wrong shape".into());
         }
         self.factors().map(|_| ()).map_err(|e| e.to_string())
     }
@@ -211,7 +328,9 @@ impl DiscriminantModel {
                 factor.solve_lower_in_place(&mut x);
                 for class in 0..k {
                     let cross: f64 = x.iter().zip(&v[class]).map(|(a, b)| a * b).sum();
-                    out[i * k + class] = -0.5 * (constant + factor.log_det + v_norms[class]) + cross;
+                    let mut ll = -0.5 * (constant + factor.log_det + v_norms[class]) + cross;
+                    add_level_terms(&self.levels, inputs.categorical, r, class, &mut ll);
+                    out[i * k + class] = ll;
                 }
             }
             return;
@@ -223,7 +342,9 @@ impl DiscriminantModel {
                 z.iter_mut().zip(&x).zip(&self.means[class]).for_each(|((z, x), m)| *z = x - m);
                 factor.solve_lower_in_place(&mut z);
                 let quadratic: f64 = z.iter().map(|v| v * v).sum();
-                out[i * k + class] = -0.5 * (constant + factor.log_det + quadratic);
+                let mut ll = -0.5 * (constant + factor.log_det + quadratic);
+                add_level_terms(&self.levels, inputs.categorical, r, class, &mut ll);
+                out[i * k + class] = ll;
             }
         }
     }
@@ -231,7 +352,11 @@ impl DiscriminantModel {
     /// LDA's linear discriminant: for each class other than `reference`, the
     /// coefficients w = Σ⁻¹(μₖ − μ_ref) on the design columns and the
     /// intercept −½(μₖᵀΣ⁻¹μₖ − μ_refᵀΣ⁻¹μ_ref) + log(πₖ/π_ref), so that
-    /// log p(k | x)/p(ref | x) = intercept + wᵀx.
+    /// log p(k | x)/p(ref | x) = intercept + wᵀx. The terms are those of
+    /// [`DiscriminantModel::full_encoding`]: a level-frequency input adds
+    /// log(P(l | k)/P(l | ref)) for its level l, written as one-hot
+    /// coefficients against its first level, whose own ratio goes into the
+    /// intercept.
     pub fn linear_discriminant(&self, prior: &[f64], reference: usize) -> Result<Vec<(usize, f64, Vec<f64>)>> {
         let factors = self.factors()?;
         let factor = &factors[0];
@@ -242,9 +367,14 @@ impl DiscriminantModel {
         Ok((0..self.classes.len())
             .filter(|&c| c != reference)
             .map(|c| {
-                let w: Vec<f64> =
+                let mut w: Vec<f64> =
                     (0..self.encoding.width()).map(|j| inverse_mean[c][j] - inverse_mean[reference][j]).collect();
-                let intercept = -0.5 * (quadratic[c] - quadratic[reference]) + (prior[c] / prior[reference]).ln();
+                let mut intercept = -0.5 * (quadratic[c] - quadratic[reference]) + (prior[c] / prior[reference]).ln();
+                for table in &self.levels {
+                    let ratio = |l: usize| table.log_probabilities[c][l] - table.log_probabilities[reference][l];
+                    intercept += ratio(0);
+                    w.extend((1..table.levels.len()).map(|l| ratio(l) - ratio(0)));
+                }
                 (c, intercept, w)
             })
             .collect())
@@ -387,14 +517,46 @@ pub fn fit_lda(
     params: &LdaParams,
     weights: Option<&[f64]>,
 ) -> Result<(DiscriminantModel, Diagnostics)> {
-    let encoding = Encoding::from_schema(&dataset.schema);
+    let encoding = gaussian_encoding(&dataset.schema, params.categories);
     let k = dataset.schema.target.classes.len();
     let moments = class_moments(&encoding, &dataset.inputs(), &dataset.target, weights, k, false);
-    fit_lda_from_moments(dataset, params, weights, encoding, moments)
+    let levels = frequency_counts(dataset, params.categories, weights);
+    fit_lda_from_moments(dataset, params, weights, encoding, moments, levels)
 }
 
-/// Fits LDA from per-class moments of the design (as [`class_moments`]
-/// gives them for the rows with positive `weights`); the data is read again
+/// The level counts the frequency treatment fits on (none under one-hot).
+fn frequency_counts(dataset: &Dataset, categories: CategoryModel, weights: Option<&[f64]>) -> Vec<LevelCounts> {
+    match categories {
+        CategoryModel::OneHot => Vec::new(),
+        CategoryModel::Frequencies => level_counts(dataset, weights, dataset.schema.target.classes.len()),
+    }
+}
+
+/// The level-frequency tables and their share of the training
+/// log-likelihood; refuses a model with no numeric input for its Gaussian
+/// part (that model is naive Bayes).
+fn frequency_tables(
+    family: &str,
+    d: usize,
+    levels: &[LevelCounts],
+    moments: &[Moments],
+) -> Result<(Vec<CategoricalLikelihood>, f64)> {
+    if d == 0 && !levels.is_empty() {
+        return Err(Error::FitFailed {
+            family: family.to_string(),
+            message: crate::error::message![
+                "every input is categorical, so the level frequencies leave no numeric input for the Gaussian part; that model is naive-bayes, or give ",
+                Setting::Categories.set_to("one-hot")
+            ],
+        });
+    }
+    let class_weights: Vec<f64> = moments.iter().map(|m| m.weight).collect();
+    Ok(level_likelihoods(levels, &class_weights, LEVEL_SMOOTHING))
+}
+
+/// Fits LDA from per-class moments of the Gaussian part's design (as
+/// [`class_moments`] gives them for the rows with positive `weights`) and
+/// the level counts of the level-frequency inputs; the data is read again
 /// only for the Ledoit–Wolf intensity.
 pub fn fit_lda_from_moments(
     dataset: &Dataset,
@@ -402,28 +564,32 @@ pub fn fit_lda_from_moments(
     weights: Option<&[f64]>,
     encoding: Encoding,
     moments: Vec<Moments>,
+    levels: Vec<LevelCounts>,
 ) -> Result<(DiscriminantModel, Diagnostics)> {
     let fourth = |means: &[Vec<f64>], scale: &[f64]| fourth_moment(&encoding, dataset, weights, means, scale);
     let classes = dataset.schema.target.classes.clone();
-    lda_from_moments(&classes, params, encoding.clone(), moments, Some(&fourth))
+    lda_from_moments(&classes, params, encoding.clone(), moments, levels, Some(&fourth))
 }
 
 /// Σᵢ wᵢ‖zᵢ‖⁴ of the rows given the class means and the column scales.
 pub type FourthMoment<'a> = dyn Fn(&[Vec<f64>], &[f64]) -> f64 + 'a;
 
-/// Fits LDA from per-class moments alone. `fourth_moment(means, scale)`
-/// gives Σᵢ wᵢ‖zᵢ‖⁴ for the Ledoit–Wolf intensity; without it (moments
-/// computed elsewhere, e.g. by an SQL engine) that shrinkage is refused.
+/// Fits LDA from per-class moments and level counts alone.
+/// `fourth_moment(means, scale)` gives Σᵢ wᵢ‖zᵢ‖⁴ for the Ledoit–Wolf
+/// intensity; without it (moments computed elsewhere, e.g. by an SQL
+/// engine) that shrinkage is refused.
 pub fn lda_from_moments(
     classes: &[String],
     params: &LdaParams,
     encoding: Encoding,
     moments: Vec<Moments>,
+    levels: Vec<LevelCounts>,
     fourth_moment: Option<&FourthMoment<'_>>,
 ) -> Result<(DiscriminantModel, Diagnostics)> {
     let d = encoding.width();
     let k = classes.len();
     check_classes("lda", classes, &moments, 1, "collect more rows of that class".into())?;
+    let (levels, level_log_likelihood) = frequency_tables("lda", d, &levels, &moments)?;
     let n: f64 = moments.iter().map(|m| m.weight).sum();
     let divisor = match params.divisor {
         Divisor::Unbiased => n - k as f64,
@@ -510,9 +676,11 @@ pub fn lda_from_moments(
     let factor = cholesky(&covariance)
         .map_err(|s| singular("lda", "pooled over the classes".into(), &encoding, s, lda_hint()))?;
     let log_likelihood =
-        joint_log_likelihood(&moments, std::slice::from_ref(&factor), std::slice::from_ref(&covariance));
+        joint_log_likelihood(&moments, std::slice::from_ref(&factor), std::slice::from_ref(&covariance))
+            + level_log_likelihood;
     let model = DiscriminantModel {
         encoding,
+        levels,
         classes: classes.to_vec(),
         class_weights: moments.iter().map(|m| m.weight).collect(),
         means,
@@ -531,31 +699,37 @@ pub fn fit_qda(
     params: &QdaParams,
     weights: Option<&[f64]>,
 ) -> Result<(DiscriminantModel, Diagnostics)> {
-    let encoding = Encoding::from_schema(&dataset.schema);
+    let encoding = gaussian_encoding(&dataset.schema, params.categories);
     let k = dataset.schema.target.classes.len();
     let moments = class_moments(&encoding, &dataset.inputs(), &dataset.target, weights, k, false);
-    fit_qda_from_moments(dataset, params, encoding, moments)
+    let levels = frequency_counts(dataset, params.categories, weights);
+    fit_qda_from_moments(dataset, params, encoding, moments, levels)
 }
 
-/// Fits QDA from per-class moments of the design; the data is not read.
+/// Fits QDA from per-class moments of the Gaussian part's design and the
+/// level counts of the level-frequency inputs; the data is not read.
 pub fn fit_qda_from_moments(
     dataset: &Dataset,
     params: &QdaParams,
     encoding: Encoding,
     moments: Vec<Moments>,
+    levels: Vec<LevelCounts>,
 ) -> Result<(DiscriminantModel, Diagnostics)> {
-    qda_from_moments(&dataset.schema.target.classes, params, encoding, moments)
+    qda_from_moments(&dataset.schema.target.classes, params, encoding, moments, levels)
 }
 
-/// Fits QDA from per-class moments alone, for classes named `classes`.
+/// Fits QDA from per-class moments and level counts alone, for classes
+/// named `classes`.
 pub fn qda_from_moments(
     classes: &[String],
     params: &QdaParams,
     encoding: Encoding,
     moments: Vec<Moments>,
+    levels: Vec<LevelCounts>,
 ) -> Result<(DiscriminantModel, Diagnostics)> {
     let d = encoding.width();
     let k = classes.len();
+    let (levels, level_log_likelihood) = frequency_tables("qda", d, &levels, &moments)?;
     if d == 0 {
         return Err(Error::FitFailed { family: "qda".into(), message: "there are no inputs to model".into() });
     }
@@ -572,6 +746,7 @@ pub fn qda_from_moments(
     };
     let mut covariances = Vec::with_capacity(k);
     let mut factors = Vec::with_capacity(k);
+    let mut warnings = Vec::new();
     for (class, m) in moments.iter().enumerate() {
         let divisor = match params.divisor {
             Divisor::Unbiased => m.weight - 1.0,
@@ -590,12 +765,16 @@ pub fn qda_from_moments(
         let covariance = own * (1.0 - params.reg) + &pooled * params.reg;
         let whose = format!("of class '{}'", classes[class]);
         let factor = cholesky(&covariance).map_err(|s| singular("qda", whose, &encoding, s, qda_hint()))?;
+        if let Some(warning) = near_singular_warning(&classes[class], &encoding, &covariance) {
+            warnings.push(warning);
+        }
         covariances.push(covariance);
         factors.push(factor);
     }
-    let log_likelihood = joint_log_likelihood(&moments, &factors, &covariances);
+    let log_likelihood = joint_log_likelihood(&moments, &factors, &covariances) + level_log_likelihood;
     let model = DiscriminantModel {
         encoding,
+        levels,
         classes: classes.to_vec(),
         class_weights: moments.iter().map(|m| m.weight).collect(),
         means: moments.iter().map(|m| m.mean.clone()).collect(),
@@ -605,7 +784,27 @@ pub fn qda_from_moments(
         factors: OnceLock::new(),
     };
     let _ = model.factors.set(factors);
-    Ok((model, Diagnostics { iterations: 1, converged: true, log_likelihood, warnings: Vec::new() }))
+    Ok((model, Diagnostics { iterations: 1, converged: true, log_likelihood, warnings }))
+}
+
+/// The warning for a class covariance whose smallest correlation
+/// eigenvalue is below [`NEAR_SINGULAR_RATIO`] of its largest, naming the
+/// inputs that carry that direction.
+fn near_singular_warning(class: &str, encoding: &Encoding, covariance: &DMatrix<f64>) -> Option<String> {
+    let weakest = weakest_direction(covariance, 0.25);
+    if !(weakest.smallest < NEAR_SINGULAR_RATIO * weakest.largest) {
+        return None;
+    }
+    let terms = encoding.terms();
+    let named: Vec<String> = weakest.columns.iter().map(|&j| format!("'{}'", terms[j])).collect();
+    let one_hot = weakest.columns.iter().any(|&j| j >= encoding.numeric.len());
+    Some(format!(
+        "the covariance of class '{class}' is nearly singular along {}: its smallest eigenvalue on the correlation scale is {} of its largest (the warning is given below {}), so rows a little off that direction get posteriors near 0 or 1; mix in the pooled covariance with --reg (e.g. 0.1){}",
+        named.join(", "),
+        crate::format::number(weakest.smallest / weakest.largest, 3),
+        NEAR_SINGULAR_RATIO,
+        if one_hot { ", or take the categorical inputs by their level frequencies (--category-model frequencies)" } else { "" }
+    ))
 }
 
 /// Σᵢ wᵢ log N(xᵢ; μ_{yᵢ}, Σ_{yᵢ}) in closed form from the moments (the rows

@@ -46,6 +46,48 @@ pub struct Singularity {
     pub smallest_eigenvalue: f64,
 }
 
+/// The direction in which a covariance is thinnest, judged on the
+/// correlation scale so that units do not matter.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Weakest {
+    /// The smallest eigenvalue of the correlation matrix.
+    pub smallest: f64,
+    /// The largest.
+    pub largest: f64,
+    /// The columns whose loading on the smallest eigenvalue's eigenvector
+    /// is at least the given share of the largest loading.
+    pub columns: Vec<usize>,
+}
+
+/// The weakest direction of a symmetric matrix with a positive diagonal
+/// (see [`Weakest`]); `share` picks the columns named.
+pub fn weakest_direction(matrix: &DMatrix<f64>, share: f64) -> Weakest {
+    let d = matrix.nrows();
+    let scale: Vec<f64> = (0..d).map(|i| matrix[(i, i)].sqrt()).collect();
+    let correlation = DMatrix::from_fn(d, d, |i, j| matrix[(i, j)] / (scale[i] * scale[j]));
+    let eigen = nalgebra::SymmetricEigen::new(correlation);
+    let (smallest, position) = eigen
+        .eigenvalues
+        .iter()
+        .enumerate()
+        .map(|(i, &v)| (v, i))
+        .fold((f64::INFINITY, 0), |a, b| if b.0 < a.0 { b } else { a });
+    let largest = eigen.eigenvalues.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let vector = eigen.eigenvectors.column(position);
+    let loading = vector.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    let columns = (0..d).filter(|&i| vector[i].abs() >= share * loading).collect();
+    Weakest { smallest, largest, columns }
+}
+
+/// Smallest over largest eigenvalue of a class covariance's correlation
+/// matrix below which QDA warns that the class is nearly singular along
+/// some inputs: a condition number above 100, a condition index above 10,
+/// where Belsley, Kuh & Welsch (1980, "Regression Diagnostics", ch. 3;
+/// from memory) place the start of dependencies worth a look. Along such a
+/// direction a class's density is so narrow that rows a little off it get
+/// posteriors near 0 or 1 (rare one-hot levels do this).
+pub const NEAR_SINGULAR_RATIO: f64 = 1e-2;
+
 /// Relative size below which a correlation-matrix eigenvalue counts as zero:
 /// the condition number of a usable covariance stays below 1e12 (common
 /// practice for double precision, leaving about four significant digits).
@@ -63,21 +105,10 @@ pub fn cholesky(matrix: &DMatrix<f64>) -> Result<Factor, Singularity> {
     if !constant.is_empty() {
         return Err(Singularity { columns: constant, smallest_eigenvalue: 0.0 });
     }
-    // Judge conditioning on the correlation scale, so units do not matter.
-    let scale: Vec<f64> = (0..d).map(|i| matrix[(i, i)].sqrt()).collect();
-    let correlation = DMatrix::from_fn(d, d, |i, j| matrix[(i, j)] / (scale[i] * scale[j]));
-    let eigen = nalgebra::SymmetricEigen::new(correlation);
-    let (smallest, position) = eigen
-        .eigenvalues
-        .iter()
-        .enumerate()
-        .map(|(i, &v)| (v, i))
-        .fold((f64::INFINITY, 0), |a, b| if b.0 < a.0 { b } else { a });
+    let weakest = weakest_direction(matrix, 0.1);
+    let smallest = weakest.smallest;
     if !(smallest > SINGULAR_EIGENVALUE * d as f64) {
-        let vector = eigen.eigenvectors.column(position);
-        let largest = vector.iter().fold(0.0f64, |m, v| m.max(v.abs()));
-        let columns = (0..d).filter(|&i| vector[i].abs() >= 0.1 * largest).collect();
-        return Err(Singularity { columns, smallest_eigenvalue: smallest });
+        return Err(Singularity { columns: weakest.columns, smallest_eigenvalue: smallest });
     }
     match nalgebra::Cholesky::new(matrix.clone()) {
         Some(c) => {

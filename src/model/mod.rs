@@ -22,6 +22,7 @@ pub mod collinearity;
 pub mod design;
 pub mod discriminant;
 pub mod drift;
+pub mod levels;
 pub mod linalg;
 pub mod logistic;
 pub mod moments;
@@ -240,7 +241,7 @@ pub fn check_before_fitting(dataset: &Dataset, params: &FamilyParams, weights: O
 /// gigabytes): QDA with no more rows in some class than design columns,
 /// LDA without a diagonal weight with d ≥ n − K.
 fn check_counts(dataset: &Dataset, params: &FamilyParams, weights: Option<&[f64]>) -> Result<()> {
-    let d = design::Encoding::from_schema(&dataset.schema).width();
+    let d = params.design_width(&dataset.schema);
     let classes = &dataset.schema.target.classes;
     let mut rows = vec![0usize; classes.len()];
     for (r, &y) in dataset.target.iter().enumerate() {
@@ -308,7 +309,7 @@ fn pooled_too_wide(n: usize, k: usize, d: usize) -> String {
 /// builds, counted as the code allocates them, with one set of per-class
 /// accumulators per thread.
 pub fn fit_memory_estimate(dataset: &Dataset, params: &FamilyParams) -> u64 {
-    let d = design::Encoding::from_schema(&dataset.schema).width() as u64;
+    let d = params.design_width(&dataset.schema) as u64;
     let k = dataset.schema.target.classes.len() as u64;
     let threads = rayon::current_num_threads() as u64;
     let matrix = d * d * 8;
@@ -428,6 +429,19 @@ pub fn fit_weighted(
 }
 
 impl FamilyParams {
+    /// The number of design columns a fit of these parameters models
+    /// jointly: every one-hot column for logistic regression and one-hot
+    /// LDA and QDA, the numeric inputs alone for naive Bayes and the level
+    /// frequencies.
+    pub fn design_width(&self, schema: &crate::data::schema::Schema) -> usize {
+        match self {
+            FamilyParams::Logistic(_) => design::Encoding::from_schema(schema).width(),
+            FamilyParams::NaiveBayes(_) => schema.numeric_inputs().len(),
+            FamilyParams::Lda(p) => discriminant::gaussian_encoding(schema, p.categories).width(),
+            FamilyParams::Qda(p) => discriminant::gaussian_encoding(schema, p.categories).width(),
+        }
+    }
+
     /// Sets whether aliased inputs are refused (logistic regression and
     /// LDA; the other families have no such inputs to drop).
     pub fn set_refuse_aliased(&mut self, refuse: bool) {

@@ -21,10 +21,11 @@
 
 use serde::{Deserialize, Serialize};
 
-use crate::data::schema::ColumnKind;
 use crate::data::{Dataset, Inputs};
 use crate::error::{Error, Result, Setting};
 use crate::model::design::Encoding;
+pub use crate::model::levels::CategoricalLikelihood;
+use crate::model::levels::{level_counts, level_likelihoods, SMALLEST_PROBABILITY};
 use crate::model::moments::{class_moments, Moments};
 use crate::model::Diagnostics;
 
@@ -46,17 +47,6 @@ impl Default for NaiveBayesParams {
     fn default() -> Self {
         NaiveBayesParams { smoothing: 1.0, variance_floor: 1e-9 }
     }
-}
-
-/// A categorical input's class-conditional probabilities.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct CategoricalLikelihood {
-    /// The column.
-    pub column: String,
-    /// Its levels.
-    pub levels: Vec<String>,
-    /// log P(level | class), one row per class.
-    pub log_probabilities: Vec<Vec<f64>>,
 }
 
 /// A fitted naive Bayes model.
@@ -101,9 +91,6 @@ pub struct GaussianTerms {
     /// finite term wherever the term itself is a finite double.
     pub scale: Vec<Vec<f64>>,
 }
-
-/// The smallest probability a smoothed level can have.
-const SMALLEST_PROBABILITY: f64 = f64::MIN_POSITIVE;
 
 impl NaiveBayesModel {
     /// The Gaussian part of log p(x | k) = constantₖ − Σⱼ ((xⱼ − μₖⱼ)·scaleₖⱼ)²,
@@ -152,9 +139,7 @@ impl NaiveBayesModel {
                     let one = inputs.numeric[(r, b.index)] > 0.5;
                     ll += b.log_probabilities[class][usize::from(!one)];
                 }
-                for (c, table) in self.categorical.iter().enumerate() {
-                    ll += table.log_probabilities[class][inputs.categorical[c][r] as usize];
-                }
+                crate::model::levels::add_level_terms(&self.categorical, inputs.categorical, r, class, &mut ll);
                 out[i * k + class] = ll;
             }
         }
@@ -168,9 +153,7 @@ impl NaiveBayesModel {
             && self.variances.len() == k
             && self.class_weights.len() == k
             && self.means.iter().chain(&self.variances).all(|r| r.len() == p)
-            && self.categorical.iter().all(|c| {
-                c.log_probabilities.len() == k && c.log_probabilities.iter().all(|r| r.len() == c.levels.len())
-            });
+            && self.categorical.iter().all(|c| crate::model::levels::valid(c, k));
         let bernoulli = self.bernoulli.iter().all(|b| {
             b.index < p && b.log_probabilities.len() == k && b.log_probabilities.iter().flatten().all(|v| v.is_finite())
         });
@@ -179,7 +162,6 @@ impl NaiveBayesModel {
         }
         if self.variances.iter().flatten().any(|v| !(*v > 0.0 && v.is_finite()))
             || self.means.iter().flatten().any(|v| !v.is_finite())
-            || self.categorical.iter().flat_map(|c| c.log_probabilities.iter().flatten()).any(|v| !v.is_finite())
         {
             return Err("a parameter is not a finite number (or a variance is not positive)".into());
         }
@@ -199,7 +181,7 @@ pub struct NaiveBayesSummaries {
     /// Indicator inputs: (index among the numeric inputs, weight of ones per class).
     pub indicators: Vec<(usize, Vec<f64>)>,
     /// Categorical inputs: (column, levels, weight per class and level).
-    pub categorical: Vec<(String, Vec<String>, Vec<Vec<f64>>)>,
+    pub categorical: Vec<crate::model::levels::LevelCounts>,
 }
 
 /// Fits naive Bayes with the given row weights (the dataset's own, or those
@@ -235,16 +217,7 @@ pub fn fit(
             (j, ones)
         })
         .collect();
-    let mut categorical = Vec::new();
-    for (c, column) in schema.categorical_inputs().iter().enumerate() {
-        debug_assert_eq!(column.kind, Some(ColumnKind::Categorical));
-        let levels = column.categorical.as_ref().map(|s| s.levels.clone()).unwrap_or_default();
-        let mut counts = vec![vec![0.0; levels.len()]; k];
-        for (r, &code) in dataset.categorical[c].iter().enumerate() {
-            counts[dataset.target[r] as usize][code as usize] += weights.map_or(1.0, |w| w[r]);
-        }
-        categorical.push((column.name.clone(), levels, counts));
-    }
+    let categorical = level_counts(dataset, weights, k);
     let summaries = NaiveBayesSummaries { numeric: numeric_only.numeric, moments, indicators, categorical };
     fit_summaries(&schema.target.classes, params, &summaries)
 }
@@ -323,23 +296,10 @@ pub fn fit_summaries(
         variances.push(row);
     }
     // Categorical likelihoods from weighted counts.
-    let mut categorical = Vec::new();
-    for (column, levels, counts) in &summaries.categorical {
-        let log_probabilities: Vec<Vec<f64>> = counts
-            .iter()
-            .zip(moments)
-            .map(|(row, m)| {
-                let denominator = m.weight + params.smoothing * levels.len() as f64;
-                row.iter()
-                    .map(|count| ((count + params.smoothing) / denominator).max(SMALLEST_PROBABILITY).ln())
-                    .collect()
-            })
-            .collect();
-        for (row, lp) in counts.iter().zip(&log_probabilities) {
-            log_likelihood += row.iter().zip(lp).map(|(c, l)| c * l).sum::<f64>();
-        }
-        categorical.push(CategoricalLikelihood { column: column.clone(), levels: levels.clone(), log_probabilities });
-    }
+    let class_weights: Vec<f64> = moments.iter().map(|m| m.weight).collect();
+    let (categorical, categorical_log_likelihood) =
+        level_likelihoods(&summaries.categorical, &class_weights, params.smoothing);
+    log_likelihood += categorical_log_likelihood;
     // Σᵢ wᵢ log p(xᵢ | yᵢ) in closed form.
     for (class, m) in moments.iter().enumerate() {
         for j in (0..p).filter(|j| !indicators.contains(j)) {

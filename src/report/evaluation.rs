@@ -64,7 +64,8 @@ pub fn evaluation_text(e: &Evaluation, failed: &[FailedRow]) -> String {
         .collect();
     for r in &e.results {
         let Some(m) = &r.binary else { continue };
-        let mut row = vec![r.name.chars().take(24).collect::<String>()];
+        // Names in full: two option sets may share their first characters.
+        let mut row = vec![r.name.clone()];
         for (c, (_, _, get, decimals)) in columns.iter().enumerate() {
             let value = get(m);
             let mark = if metrics.len() > 1 && value.is_some() && value == best[c] { "*" } else { " " };
@@ -80,7 +81,7 @@ pub fn evaluation_text(e: &Evaluation, failed: &[FailedRow]) -> String {
     }
     out.push_str(&table.render());
     if !failed.is_empty() {
-        let width = e.results.iter().map(|r| r.name.chars().take(24).count()).max().unwrap_or(0);
+        let width = e.results.iter().map(|r| r.name.chars().count()).max().unwrap_or(0);
         for (name, reason) in failed {
             out.push_str(&format!("{name:<width$}  FAILED {reason}\n"));
         }
@@ -138,7 +139,7 @@ pub fn evaluation_text(e: &Evaluation, failed: &[FailedRow]) -> String {
         for s in &e.segments {
             table.row(vec![
                 s.segment.chars().take(24).collect(),
-                s.name.chars().take(20).collect(),
+                s.name.clone(),
                 crate::format::fixed(s.rows, 0),
                 crate::format::fixed(s.base_rate, 4),
                 fixed(s.auc, 4),

@@ -6,7 +6,8 @@ use std::collections::BTreeMap;
 use serde::Serialize;
 
 use crate::format::{count, number, percent};
-use crate::model::discriminant::DiscriminantModel;
+use crate::model::discriminant::{CategoryModel, DiscriminantModel};
+use crate::model::levels::CategoricalLikelihood;
 use crate::model::logistic::{reference_class, LogisticModel};
 use crate::model::FittedModel;
 use crate::report::table::{Align, Table};
@@ -82,6 +83,10 @@ pub struct InspectJson {
     /// A penalised logistic fit: λ, how it was chosen, the sparsity.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub penalty: Option<PenaltyJson>,
+    /// How LDA or QDA takes its categorical inputs (`one-hot` or
+    /// `frequencies`); absent without categorical inputs.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub category_model: Option<String>,
     /// Iterations of the fit.
     pub iterations: usize,
     /// Whether the fit converged.
@@ -190,7 +195,7 @@ pub fn logistic_coefficients(model: &LogisticModel) -> Vec<Coefficient> {
 /// LDA's discriminant coefficients at `prior`, against the reference class.
 pub fn discriminant_coefficients(model: &DiscriminantModel, prior: &[f64], positive: usize) -> Vec<Coefficient> {
     let reference = reference_class(model.classes.len(), positive);
-    let terms = model.encoding.terms();
+    let terms = model.full_encoding().terms();
     let Ok(functions) = model.linear_discriminant(prior, reference) else {
         return Vec::new();
     };
@@ -254,6 +259,10 @@ pub fn inspect_json(file: &ModelFile, integrity: Integrity) -> InspectJson {
         discriminant_coefficients: discriminant,
         penalty: match &file.model {
             FittedModel::Logistic(m) => penalty_json(m),
+            _ => None,
+        },
+        category_model: match &file.model {
+            FittedModel::Lda(m) | FittedModel::Qda(m) => m.category_model().map(|c| c.name().to_string()),
             _ => None,
         },
         iterations: file.diagnostics.iterations,
@@ -439,10 +448,14 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
             }
             out.push_str(&table.render());
             out.push_str(&aliased_note(&m.aliased, true));
+            out.push_str(&category_model_line(m));
             out.push_str(&class_means(&m.classes, &m.encoding.terms(), &m.means));
+            out.push_str(&level_tables(&m.classes, &m.levels));
         }
         FittedModel::Qda(m) => {
+            out.push_str(&category_model_line(m));
             out.push_str(&class_means(&m.classes, &m.encoding.terms(), &m.means));
+            out.push_str(&level_tables(&m.classes, &m.levels));
             let factors = m.factors().map(|f| f.iter().map(|f| f.log_det).collect::<Vec<_>>()).unwrap_or_default();
             let dets: Vec<String> =
                 m.classes.iter().zip(factors).map(|(c, l)| format!("{c} {}", number(l, 6))).collect();
@@ -466,25 +479,47 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
             }
             out.push_str("Gaussian class-conditional inputs:\n");
             out.push_str(&table.render());
-            for c in &m.categorical {
-                out.push_str(&format!("\n'{}': P(level | class)\n", c.column));
-                let mut headers: Vec<(String, Align)> = vec![("level".into(), Align::Left)];
-                headers.extend(m.classes.iter().map(|k| (k.clone(), Align::Right)));
-                let headers_ref: Vec<(&str, Align)> = headers.iter().map(|(h, a)| (h.as_str(), *a)).collect();
-                let mut table = Table::new(&headers_ref);
-                for (l, level) in c.levels.iter().enumerate() {
-                    let mut row = vec![level.clone()];
-                    row.extend((0..m.classes.len()).map(|k| number(c.log_probabilities[k][l].exp(), 4)));
-                    table.row(row);
-                }
-                out.push_str(&table.render());
-            }
+            out.push_str(&level_tables(&m.classes, &m.categorical));
         }
     }
     out.push('\n');
     out.push_str(&wrap(CAUTION, 100, 0));
     out.push('\n');
     out
+}
+
+/// P(level | class) of each input modelled by its level frequencies.
+fn level_tables(classes: &[String], tables: &[CategoricalLikelihood]) -> String {
+    let mut out = String::new();
+    for c in tables {
+        out.push_str(&format!("\n'{}': P(level | class)\n", c.column));
+        let mut headers: Vec<(String, Align)> = vec![("level".into(), Align::Left)];
+        headers.extend(classes.iter().map(|k| (k.clone(), Align::Right)));
+        let headers_ref: Vec<(&str, Align)> = headers.iter().map(|(h, a)| (h.as_str(), *a)).collect();
+        let mut table = Table::new(&headers_ref);
+        for (l, level) in c.levels.iter().enumerate() {
+            let mut row = vec![level.clone()];
+            row.extend((0..classes.len()).map(|k| number(c.log_probabilities[k][l].exp(), 4)));
+            table.row(row);
+        }
+        out.push_str(&table.render());
+    }
+    out
+}
+
+/// The line saying how LDA or QDA takes its categorical inputs.
+fn category_model_line(model: &DiscriminantModel) -> String {
+    match model.category_model() {
+        Some(CategoryModel::Frequencies) => format!(
+            "categorical inputs ({}): smoothed class-conditional level frequencies beside the Gaussian numeric inputs (--category-model frequencies)\n",
+            model.levels.iter().map(|t| format!("'{}'", t.column)).collect::<Vec<_>>().join(", ")
+        ),
+        Some(CategoryModel::OneHot) => format!(
+            "categorical inputs ({}): one-hot columns, Gaussian with the numeric inputs (--category-model one-hot)\n",
+            model.encoding.one_hot.iter().map(|h| format!("'{}'", h.column)).collect::<Vec<_>>().join(", ")
+        ),
+        None => String::new(),
+    }
 }
 
 fn class_means(classes: &[String], terms: &[String], means: &[Vec<f64>]) -> String {

@@ -539,7 +539,7 @@ impl ModelFile {
         let encoding = crate::model::design::Encoding::from_schema(&self.schema);
         let matches = match &self.model {
             FittedModel::Logistic(m) => m.encoding == encoding,
-            FittedModel::Lda(m) | FittedModel::Qda(m) => m.encoding == encoding,
+            FittedModel::Lda(m) | FittedModel::Qda(m) => m.full_encoding() == encoding,
             FittedModel::NaiveBayes(m) => {
                 m.numeric == encoding.numeric
                     && m.categorical.len() == encoding.one_hot.len()
