@@ -100,11 +100,11 @@ pub enum Setting {
     Prior,
     /// The table a query reads (`table` of the SQL writers).
     Table,
-    /// Score columns made elsewhere (`AssessRequest::scores`).
+    /// Score columns made elsewhere (`JudgeRequest::scores`).
     ScoreColumns,
-    /// What outside scores are: probabilities or ranks (`AssessRequest::kind`).
+    /// What outside scores are: probabilities or ranks (`JudgeRequest::kind`).
     ScoreKind,
-    /// The class mix outside scores are calibrated to (`AssessRequest::train_prior`).
+    /// The class mix outside scores are calibrated to (`JudgeRequest::train_prior`).
     TrainPrior,
     /// A column of amounts (`StudyOptions::amount`).
     Amount,
@@ -156,8 +156,8 @@ impl Setting {
             Setting::Predictions => "predictions",
             Setting::Summary => "summary",
             Setting::Reasons => "reasons",
-            Setting::L2 => "l2",
-            Setting::ClassWeight => "class_weight",
+            Setting::L2 => "newton_ridge",
+            Setting::ClassWeight => "reweight",
             Setting::MaxIterations => "max_iterations",
             Setting::Tolerance => "tolerance",
             Setting::Penalty => "penalty",
@@ -167,8 +167,8 @@ impl Setting {
             Setting::CvFolds => "cv_folds",
             Setting::Smoothing => "smoothing",
             Setting::VarianceFloor => "variance_floor",
-            Setting::Shrinkage => "shrinkage",
-            Setting::Reg => "reg",
+            Setting::Shrinkage => "diagonal_weight",
+            Setting::Reg => "pooled_weight",
             Setting::FromAggregates => "from_aggregates",
             Setting::Family => "family",
             Setting::Folds => "folds",
@@ -678,7 +678,7 @@ impl Error {
                 format!("{at}, column '{column}': the score is missing; every row needs a probability from 0 to 1")
             }
             Error::NotAProbability { at, column, value } => format!(
-                "{at}, column '{column}': '{value}' is not a probability from 0 to 1, which a {} column must hold (for points or grades, assess takes {})",
+                "{at}, column '{column}': '{value}' is not a probability from 0 to 1, which a {} column must hold (for points or grades, judge takes {})",
                 name(Setting::ScoreColumns),
                 names(Setting::ScoreKind, Some("rank"))
             ),

@@ -69,10 +69,10 @@ fn aliased_inputs_are_dropped_recorded_and_shown() {
         assert_eq!(code, 0);
         let view: serde_json::Value = serde_json::from_str(&out).expect("inspect json");
         let field = if family == "lda" { "discriminant_coefficients" } else { "coefficients" };
-        let total = view[field].as_array().expect("coefficients").iter().find(|c| c["term"] == "total").cloned();
+        let total = view[field].as_array().expect("coefficients").iter().find(|c| c["input"] == "total").cloned();
         let total = total.expect("total");
         assert_eq!(total["aliased"], true, "{family}: {total}");
-        assert!(total.get("std_error").is_none() && total.get("odds_ratio").is_none(), "{family}: {total}");
+        assert!(total.get("se").is_none() && total.get("odds_ratio").is_none(), "{family}: {total}");
         // --refuse-aliased refuses, naming the columns.
         let args = ["fit", "aliased.csv", "--target", "y", "--family", family, "--refuse-aliased", "-o", "r.json"];
         let (code, _, err) = run(d, &args);

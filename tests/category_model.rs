@@ -61,7 +61,7 @@ fn p_bad(dir: &Path, model: &str, data: &str) -> Vec<f64> {
     let text = std::fs::read_to_string(dir.join(out)).expect("scores");
     let mut lines = text.lines();
     let header: Vec<&str> = lines.next().expect("header").split(',').collect();
-    let column = header.iter().position(|h| *h == "p_bad").expect("p_bad");
+    let column = header.iter().position(|h| *h == "posterior_bad").expect("posterior_bad");
     lines.map(|l| l.split(',').nth(column).and_then(|v| v.parse().ok()).expect("p")).collect()
 }
 
@@ -233,7 +233,7 @@ fn frequencies_with_only_categorical_inputs_are_refused() {
 /// QDA's class covariances are nearly singular along the occupation
 /// columns (numpy: smallest/largest eigenvalue of the correlation matrix
 /// 0.0042 for 'no', 0.0019 for 'yes'), which the fit says, naming the
-/// class and the columns and suggesting --reg. Under level frequencies
+/// class and the columns and suggesting --pooled-weight. Under level frequencies
 /// there is no warning, and the 41 rows of occupation 1, which one-hot QDA
 /// gave P(yes) ≤ 3.9e-35 in sample, get posteriors that are not absurd.
 /// Out of sample, level frequencies give QDA the lower log loss here as on
@@ -265,7 +265,7 @@ fn one_hot_qda_warns_on_the_fair_data_and_frequencies_do_not() {
     };
     let warned = fit_fair("one-hot", "one-hot.json");
     assert!(warned.contains("the covariance of class 'yes' is nearly singular along"), "{warned}");
-    assert!(warned.contains("'occupation=occ2'") && warned.contains("--reg"), "{warned}");
+    assert!(warned.contains("'occupation=occ2'") && warned.contains("--pooled-weight"), "{warned}");
     let quiet = fit_fair("frequencies", "frequencies.json");
     assert!(!quiet.contains("nearly singular"), "{quiet}");
     let (code, _, err) = run(d, &["score", "frequencies.json", "fair.csv", "-o", "s.csv", "-q"]);
@@ -275,7 +275,7 @@ fn one_hot_qda_warns_on_the_fair_data_and_frequencies_do_not() {
     let header: Vec<&str> = data.lines().next().expect("header").split(',').collect();
     let occupation = header.iter().position(|h| *h == "occupation").expect("occupation");
     let score_header: Vec<&str> = scores.lines().next().expect("header").split(',').collect();
-    let p_yes = score_header.iter().position(|h| *h == "p_yes").expect("p_yes");
+    let p_yes = score_header.iter().position(|h| *h == "posterior_yes").expect("posterior_yes");
     let smallest = data
         .lines()
         .skip(1)

@@ -1,4 +1,4 @@
-//! `compare` and `assess` through the binary: the contract's JSON fields,
+//! `compare` and `judge` through the binary: the contract's JSON fields,
 //! seeded determinism, every kind of split, out-of-fold predictions, and
 //! escaping of names that come from the data.
 
@@ -79,21 +79,23 @@ fn family_options_and_names() {
             "--family",
             "qda",
             "--family",
-            "qda:reg=0.3",
+            "qda:pooled-weight=0.3",
             "--family",
-            "lda:shrinkage=ledoit-wolf",
+            "lda:diagonal-weight=ledoit-wolf",
             "--test-fraction",
             "0.3",
         ],
     );
     let names: Vec<&str> =
         v["results"].as_array().expect("results").iter().map(|r| r["name"].as_str().unwrap_or("")).collect();
-    assert_eq!(names, vec!["qda", "qda:reg=0.3", "lda:shrinkage=ledoit-wolf"]);
+    assert_eq!(names, vec!["qda", "qda:pooled-weight=0.3", "lda:diagonal-weight=ledoit-wolf"]);
     assert_eq!(v["results"][1]["family"], "qda");
     assert_eq!(v["tested_rows"], 1500);
-    for (bad, message) in
-        [("qda:rge=0.1", "unknown option 'rge'"), ("tree", "not one of"), ("lda:reg=0.1", "--reg applies to qda")]
-    {
+    for (bad, message) in [
+        ("qda:rge=0.1", "unknown option 'rge'"),
+        ("tree", "not one of"),
+        ("lda:pooled-weight=0.1", "--pooled-weight applies to qda"),
+    ] {
         let mut args = vec!["compare"];
         args.extend(LENDING);
         args.extend(["--family", bad]);
@@ -179,7 +181,7 @@ fn a_holdout_column_with_text_makes_the_column_categorical_in_both_files() {
 }
 
 #[test]
-fn predictions_feed_assess() {
+fn predictions_feed_judge() {
     let dir = temp_dir();
     lending(dir.path());
     let mut args = vec!["compare"];
@@ -189,49 +191,49 @@ fn predictions_feed_assess() {
     assert_eq!(code, 0, "{err}");
     let oof = std::fs::read_to_string(dir.path().join("oof.csv")).expect("predictions");
     assert!(oof.starts_with(
-        "application_id,application_month,fold,outcome,logistic:p_defaulted,logistic:p_repaid,logistic:log_odds,lda:p_defaulted"
+        "application_id,application_month,fold,outcome,logistic:posterior_defaulted,logistic:posterior_repaid,logistic:log_odds,lda:posterior_defaulted"
     ));
     assert_eq!(oof.lines().count(), 5001);
     let (code, out, err) = run(
         dir.path(),
         &[
-            "assess",
+            "judge",
             "oof.csv",
             "--target",
             "outcome",
             "--exclude",
             "application_id,application_month,fold",
             "--score",
-            "logistic:p_defaulted",
+            "logistic:posterior_defaulted",
             "--score",
-            "lda:p_defaulted",
+            "lda:posterior_defaulted",
             "--json",
             "-",
         ],
     );
     assert_eq!(code, 0, "{err}");
-    let assessed: Value = serde_json::from_str(&out).expect("json");
+    let judged: Value = serde_json::from_str(&out).expect("json");
     let compared: Value =
         serde_json::from_str(&std::fs::read_to_string(dir.path().join("c.json")).expect("c.json")).expect("json");
     // The same rows and the same predictions give the same AUC (the file
     // holds the probabilities to full precision).
-    let a = assessed["results"][0]["metrics"]["auc"].as_f64().unwrap_or(0.0);
+    let a = judged["results"][0]["metrics"]["auc"].as_f64().unwrap_or(0.0);
     let c = compared["results"][0]["metrics"]["auc"].as_f64().unwrap_or(1.0);
     assert!((a - c).abs() < 1e-12, "{a} vs {c}");
-    assert!(assessed["results"][0].get("family").is_none());
-    assert_eq!(assessed["paired"].as_array().map(Vec::len), Some(1));
+    assert!(judged["results"][0].get("family").is_none());
+    assert_eq!(judged["paired"].as_array().map(Vec::len), Some(1));
     // Rank scores get rank metrics only.
     let (code, out, _) = run(
         dir.path(),
         &[
-            "assess",
+            "judge",
             "oof.csv",
             "--target",
             "outcome",
             "--exclude",
             "application_id,application_month,fold",
             "--score",
-            "lda:p_repaid",
+            "lda:posterior_repaid",
             "--score-type",
             "rank",
             "--direction",
@@ -244,7 +246,7 @@ fn predictions_feed_assess() {
     let ranked: Value = serde_json::from_str(&out).expect("json");
     assert!(ranked["results"][0]["metrics"].get("log_loss").is_none());
     let auc = ranked["results"][0]["metrics"]["auc"].as_f64().unwrap_or(0.0);
-    let lda = assessed["results"][1]["metrics"]["auc"].as_f64().unwrap_or(1.0);
+    let lda = judged["results"][1]["metrics"]["auc"].as_f64().unwrap_or(1.0);
     assert!((auc - lda).abs() < 1e-12, "a reversed rank score gives the same AUC: {auc} vs {lda}");
 }
 
@@ -303,7 +305,7 @@ fn names_from_the_data_are_escaped_in_the_report() {
 
 /// With a target prior, posteriors are stated at it and the figures come
 /// twice: as measured, and reweighted to the target class mix. Reweighting
-/// by class leaves AUC exactly unchanged; assess applies the same odds
+/// by class leaves AUC exactly unchanged; judge applies the same odds
 /// correction to external scores given the prior they are calibrated to.
 #[test]
 fn a_target_prior_restates_and_reweights() {
@@ -316,7 +318,7 @@ fn a_target_prior_restates_and_reweights() {
     assert!((measured["auc"].as_f64().unwrap_or(0.0) - reweighted["auc"].as_f64().unwrap_or(1.0)).abs() < 1e-12);
     assert!((reweighted["base_rate"].as_f64().unwrap_or(0.0) - 0.03).abs() < 1e-12);
     assert_ne!(measured["log_loss"], reweighted["log_loss"]);
-    // The same predictions without the prior, corrected by assess.
+    // The same predictions without the prior, corrected by judge.
     let mut args = vec!["compare"];
     args.extend(LENDING);
     args.extend(["--family", "lda", "--predictions", "oof.csv", "--json", "plain.json"]);
@@ -324,14 +326,14 @@ fn a_target_prior_restates_and_reweights() {
     let (code, out, err) = run(
         dir.path(),
         &[
-            "assess",
+            "judge",
             "oof.csv",
             "--target",
             "outcome",
             "--exclude",
             "application_id,application_month,fold",
             "--score",
-            "lda:p_defaulted",
+            "lda:posterior_defaulted",
             "--train-prior",
             "0.1072",
             "--base-rate",
@@ -350,14 +352,14 @@ fn a_target_prior_restates_and_reweights() {
     let (code, _, err) = run(
         dir.path(),
         &[
-            "assess",
+            "judge",
             "oof.csv",
             "--target",
             "outcome",
             "--exclude",
             "application_id,application_month,fold",
             "--score",
-            "lda:p_defaulted",
+            "lda:posterior_defaulted",
             "--base-rate",
             "0.03",
         ],
@@ -422,7 +424,7 @@ fn segments_without_events_show_unsigned_zero_rates() {
     assert!(out.contains(" 0.0000 ") && !out.contains("-0.0000") && !out.contains("-0.00%"), "{out}");
 }
 
-/// Every figure `assess` computes from a comparison's `:log_odds` columns
+/// Every figure `judge` computes from a comparison's `:log_odds` columns
 /// equals the comparison's own, to 1e-12 relative: the file holds what the
 /// figures are computed from, at full precision. From the probabilities,
 /// rows that round to exactly 0 or 1 would be clipped.
@@ -441,7 +443,7 @@ fn log_odds_predictions_reproduce_the_comparison() {
     assert_eq!(code, 0, "{err}");
     let compared: Value =
         serde_json::from_str(&std::fs::read_to_string(dir.path().join("c.json")).expect("c.json")).expect("json");
-    let mut args = vec!["assess", "oof.csv", "--target", "outcome", "--id", "application_id,application_month,fold"];
+    let mut args = vec!["judge", "oof.csv", "--target", "outcome", "--id", "application_id,application_month,fold"];
     let columns: Vec<String> = families.iter().map(|f| format!("{f}:log_odds")).collect();
     for c in &columns {
         args.extend(["--score", c.as_str()]);
@@ -449,25 +451,25 @@ fn log_odds_predictions_reproduce_the_comparison() {
     args.extend(["--score-type", "log-odds", "--json", "-"]);
     let (code, out, err) = run(dir.path(), &args);
     assert_eq!(code, 0, "{err}");
-    let assessed: Value = serde_json::from_str(&out).expect("json");
+    let judged: Value = serde_json::from_str(&out).expect("json");
     let relative = |a: f64, c: f64| a == c || (a - c).abs() <= 1e-12 * a.abs().max(c.abs());
     let mut checked = 0;
     for (i, family) in families.iter().enumerate() {
-        let ours = assessed["results"][i]["metrics"].as_object().expect("metrics");
+        let ours = judged["results"][i]["metrics"].as_object().expect("metrics");
         let theirs = compared["results"][i]["metrics"].as_object().expect("metrics");
         for (key, value) in theirs {
             let Some(c) = value.as_f64() else { continue };
             let a = ours.get(key).and_then(Value::as_f64).unwrap_or(f64::NAN);
-            assert!(relative(a, c), "{family} {key}: assess {a} vs compare {c}");
+            assert!(relative(a, c), "{family} {key}: judge {a} vs compare {c}");
             checked += 1;
         }
     }
     assert!(checked >= 40, "{checked} figures checked");
     // The paired tests agree too.
-    assert_eq!(assessed["paired"].as_array().map(Vec::len), Some(6));
+    assert_eq!(judged["paired"].as_array().map(Vec::len), Some(6));
     assert_eq!(compared["paired"].as_array().map(Vec::len), Some(6));
     for (a, c) in
-        assessed["paired"].as_array().into_iter().flatten().zip(compared["paired"].as_array().into_iter().flatten())
+        judged["paired"].as_array().into_iter().flatten().zip(compared["paired"].as_array().into_iter().flatten())
     {
         for key in ["auc_diff", "z", "p_value"] {
             let (x, y) = (a[key].as_f64().unwrap_or(f64::NAN), c[key].as_f64().unwrap_or(f64::NAN));

@@ -40,13 +40,13 @@ fn every_family_fits_inspects_and_scores() {
         match family {
             "logistic" => {
                 let c = v["coefficients"].as_array().expect("coefficients");
-                assert_eq!(c[0]["term"], "(intercept)");
-                assert!(c.iter().any(|t| t["term"] == "channel=broker"));
-                for field in ["estimate", "std_error", "z", "p_value"] {
+                assert_eq!(c[0]["input"], "<intercept>");
+                assert!(c.iter().any(|t| t["input"] == "channel=broker"));
+                for field in ["coefficient", "se", "z", "p_value", "interval_low", "interval_high"] {
                     assert!(c[1][field].is_number(), "{field}");
                 }
             }
-            "lda" => assert_eq!(v["discriminant_coefficients"][0]["term"], "(intercept)"),
+            "lda" => assert_eq!(v["discriminant_coefficients"][0]["input"], "<intercept>"),
             _ => {}
         }
         let (code, text, err) = run(dir.path(), &["inspect", "model.json"]);
@@ -60,7 +60,7 @@ fn every_family_fits_inspects_and_scores() {
         assert_eq!(code, 0, "{err}");
         let scores = std::fs::read_to_string(dir.path().join("scores.csv")).expect("scores");
         let mut lines = scores.lines();
-        assert_eq!(lines.next(), Some("application_id,p_defaulted,p_repaid"));
+        assert_eq!(lines.next(), Some("application_id,posterior_defaulted,posterior_repaid"));
         let rows: Vec<&str> = lines.collect();
         assert_eq!(rows.len(), 5_000);
         for row in rows {
@@ -94,10 +94,23 @@ fn singular_covariances_name_the_class_and_columns() {
     let (code, _, err) =
         run(dir.path(), &["fit", "s.csv", "--target", "y", "--family", "qda", "--exclude", "twice", "-o", "m.json"]);
     assert_eq!(code, 1);
-    assert!(err.contains("class 'b'") && err.contains("flat") && err.contains("--reg"), "{err}");
+    assert!(err.contains("class 'b'") && err.contains("flat") && err.contains("--pooled-weight"), "{err}");
     let (code, _, err) = run(
         dir.path(),
-        &["fit", "s.csv", "--target", "y", "--family", "qda", "--exclude", "twice", "--reg", "0.2", "-o", "m.json"],
+        &[
+            "fit",
+            "s.csv",
+            "--target",
+            "y",
+            "--family",
+            "qda",
+            "--exclude",
+            "twice",
+            "--pooled-weight",
+            "0.2",
+            "-o",
+            "m.json",
+        ],
     );
     assert_eq!(code, 0, "{err}");
     let (code, _, err) = run(dir.path(), &["fit", "s.csv", "--target", "y", "--family", "logistic", "-o", "m.json"]);
@@ -117,7 +130,7 @@ fn too_few_rows_for_qda() {
     write(dir.path(), "t.csv", b"x1,x2,x3,y\n1,2,3,a\n2,1,0,a\n3,3,1,a\n0,1,2,a\n5,4,2,a\n1,1,1,b\n2,0,1,b\n");
     let (code, _, err) = run(dir.path(), &["fit", "t.csv", "--target", "y", "--family", "qda", "-o", "m.json"]);
     assert_eq!(code, 1);
-    assert!(err.contains("class 'b' has 2 rows") && err.contains("--reg"), "{err}");
+    assert!(err.contains("class 'b' has 2 rows") && err.contains("--pooled-weight"), "{err}");
 }
 
 #[test]
@@ -133,7 +146,7 @@ fn separation_and_non_convergence_are_warnings() {
     // Named truthfully: the kind, the input, and a penalty as the remedy,
     // never more iterations (the estimates do not exist).
     assert!(err.contains("complete separation by 'score'"), "{err}");
-    assert!(err.contains("--l2 0.01") && !err.contains("--max-iterations"), "{err}");
+    assert!(err.contains("--newton-ridge 0.01") && !err.contains("--max-iterations"), "{err}");
     let (code, _, err) = run(
         dir.path(),
         &["fit", "sep.csv", "--target", "y", "--family", "logistic", "--max-iterations", "200", "-o", "m.json"],
@@ -143,9 +156,9 @@ fn separation_and_non_convergence_are_warnings() {
     let (_, json, _) = run(dir.path(), &["inspect", "m.json", "--json", "-"]);
     let v: Value = serde_json::from_str(&json).expect("json");
     assert!(v["warnings"].as_array().is_some_and(|w| !w.is_empty()));
-    let score = v["coefficients"].as_array().and_then(|c| c.iter().find(|c| c["term"] == "score")).expect("score");
+    let score = v["coefficients"].as_array().and_then(|c| c.iter().find(|c| c["input"] == "score")).expect("score");
     assert_eq!(score["diverges"], true, "{score}");
-    assert!(score.get("odds_ratio").is_none() && score.get("std_error").is_none(), "{score}");
+    assert!(score.get("odds_ratio").is_none() && score.get("se").is_none(), "{score}");
     let (_, text, _) = run(dir.path(), &["inspect", "m.json"]);
     assert!(text.contains("diverges") && !text.contains(" inf\n") && !text.contains("penalised fit"), "{text}");
     assert!(text.contains("separation: the estimates of 'score'"), "{text}");
@@ -252,10 +265,10 @@ fn priors_are_validated() {
     }
     let mut args = vec!["fit"];
     args.extend(LENDING);
-    args.extend(["--family", "lda", "--reg", "0.1", "-o", "m.json"]);
+    args.extend(["--family", "lda", "--pooled-weight", "0.1", "-o", "m.json"]);
     let (code, _, err) = run(dir.path(), &args);
     assert_eq!(code, 2);
-    assert!(err.contains("--reg applies to qda"), "{err}");
+    assert!(err.contains("--pooled-weight applies to qda"), "{err}");
 }
 
 #[test]
@@ -460,7 +473,7 @@ fn costs_drive_decisions_in_score_and_compare() {
     );
     assert_eq!(code, 0, "{err}");
     let out = std::fs::read_to_string(dir.path().join("d.csv")).expect("decisions");
-    assert!(out.starts_with("application_id,p_defaulted,p_repaid,action,expected_cost\n"));
+    assert!(out.starts_with("application_id,posterior_defaulted,posterior_repaid,action,expected_cost\n"));
     let refer = out.lines().filter(|l| l.contains(",refer,")).count();
     assert!(refer <= 300 && refer > 0, "{refer}");
     assert!(err.contains("decisions: approve") && err.contains("total expected cost"), "{err}");

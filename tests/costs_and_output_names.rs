@@ -8,7 +8,7 @@ mod common;
 use common::{run, temp_dir, write};
 
 fn fitted(dir: &std::path::Path) {
-    let mut text = String::from("id,p_good,action,x,y\n");
+    let mut text = String::from("id,posterior_good,action,x,y\n");
     for i in 0..120 {
         let x = (i % 13) as f64;
         text.push_str(&format!(
@@ -18,7 +18,8 @@ fn fitted(dir: &std::path::Path) {
         ));
     }
     write(dir, "train.csv", text.as_bytes());
-    let args = ["fit", "train.csv", "--target", "y", "--id", "id,p_good,action", "--family", "lda", "-o", "m.json"];
+    let args =
+        ["fit", "train.csv", "--target", "y", "--id", "id,posterior_good,action", "--family", "lda", "-o", "m.json"];
     let (code, _, err) = run(dir, &args);
     assert_eq!(code, 0, "{err}");
 }
@@ -67,9 +68,9 @@ fn clashing_output_columns_are_refused() {
     fitted(d);
     write(d, "costs.toml", GOOD.as_bytes());
     for (args, name) in [
-        (vec!["score", "m.json", "train.csv", "-o", "a.csv", "--id", "p_good"], "p_good"),
+        (vec!["score", "m.json", "train.csv", "-o", "a.csv", "--id", "posterior_good"], "posterior_good"),
         (vec!["score", "m.json", "train.csv", "-o", "a.csv", "--costs", "costs.toml", "--id", "action"], "action"),
-        (vec!["export-sql", "m.json", "--table", "t", "--id", "p_good", "-o", "a.sql"], "p_good"),
+        (vec!["export-sql", "m.json", "--table", "t", "--id", "posterior_good", "-o", "a.sql"], "posterior_good"),
         (
             vec!["export-sql", "m.json", "--table", "t", "--costs", "costs.toml", "--id", "action", "-o", "a.sql"],
             "action",

@@ -25,10 +25,10 @@ fn impute_uses_the_median_an_indicator_and_a_missing_level() {
     assert_eq!(d.numeric.column(0).to_vec(), vec![1.0, 3.0, 3.0, 5.0]);
     assert_eq!(d.numeric.column(1).to_vec(), vec![0.0, 1.0, 0.0, 0.0]);
     let c = &d.schema.columns[2];
-    assert_eq!(c.imputation, Some(Imputation::Level { level: "(missing)".into() }));
+    assert_eq!(c.imputation, Some(Imputation::Level { level: "<missing>".into() }));
     assert_eq!(
         c.categorical.as_ref().map(|s| s.levels.clone()),
-        Some(vec!["a".into(), "b".into(), "(missing)".into()])
+        Some(vec!["a".into(), "b".into(), "<missing>".into()])
     );
     assert_eq!(d.categorical[0], vec![0, 1, 2, 0]);
     assert_eq!(d.weights, Some(vec![1.0, 2.0, 1.0, 0.5]));

@@ -49,7 +49,7 @@ fn no_command_writes_over_its_input() {
         refused(d, &args, "train.csv", flag);
     }
     for flag in ["--report", "--json"] {
-        refused(d, &["assess", "train.csv", "--target", "y", "--score", "x", flag, "train.csv"], "train.csv", flag);
+        refused(d, &["judge", "train.csv", "--target", "y", "--score", "x", flag, "train.csv"], "train.csv", flag);
     }
     let score = |extra: &[&'static str]| {
         let mut args = vec!["score", "m.json", "train.csv", "-o", "scores.csv"];

@@ -142,7 +142,7 @@ fn lambda_max_is_where_the_first_slope_enters() {
     assert_eq!(below.coefficients[0].slopes.iter().filter(|b| **b != 0.0).count(), 1);
 }
 
-/// Ridge by coordinate descent and the Newton fit's --l2 minimise the same
+/// Ridge by coordinate descent and the Newton fit's --newton-ridge minimise the same
 /// objective (the module docs of logistic.rs and penalised.rs): the same
 /// coefficients to 1e-8.
 #[test]
@@ -223,7 +223,10 @@ fn lasso_one_se_model_finds_the_true_features() {
     let data = Dataset::read(&path, &ReadOptions::new("y")).expect("read").0;
     let model = logistic(
         &data,
-        LogisticParams { lambda_rule: LambdaRule::OneSe, ..penalised(Penalty::Lasso, None, LambdaChoice::Auto) },
+        LogisticParams {
+            lambda_rule: LambdaRule::SparsestWithinSe,
+            ..penalised(Penalty::Lasso, None, LambdaChoice::Auto)
+        },
     );
     let kept: Vec<usize> = (0..p).filter(|&j| model.coefficients[0].slopes[j] != 0.0).collect();
     let true_kept = kept.iter().filter(|&&j| j < true_features).count();
@@ -232,11 +235,11 @@ fn lasso_one_se_model_finds_the_true_features() {
     eprintln!(
         "one-SE λ = {:.5} (min {:.5}): {true_kept} of 10 true features kept, {noise_kept} of 190 noise",
         record.lambda,
-        record.lambda_min.unwrap_or(f64::NAN)
+        record.lambda_lowest_deviance.unwrap_or(f64::NAN)
     );
     assert!(true_kept >= 9, "{true_kept} true features kept");
     assert!(noise_kept <= 10, "{noise_kept} noise features kept");
-    assert!(record.lambda >= record.lambda_min.unwrap_or(f64::INFINITY));
+    assert!(record.lambda >= record.lambda_lowest_deviance.unwrap_or(f64::INFINITY));
 }
 
 /// The multinomial fit (classes against the reference class, each class's

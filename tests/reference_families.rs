@@ -187,10 +187,10 @@ fn logistic_check(model: &FittedModel, fixture: &Value, relative: f64, what: &st
     let estimates: Vec<f64> =
         std::iter::once(m.coefficients[0].intercept).chain(m.coefficients[0].slopes.iter().copied()).collect();
     let errors = &m.standard_errors().expect("standard errors")[0];
-    for (i, (ours, theirs)) in estimates.iter().zip(numbers(&fixture["estimate"])).enumerate() {
+    for (i, (ours, theirs)) in estimates.iter().zip(numbers(&fixture["coefficient"])).enumerate() {
         assert!(common::close(*ours, theirs, relative), "{what} estimate {i}: {ours} vs {theirs}");
     }
-    for (i, (ours, theirs)) in errors.iter().zip(numbers(&fixture["std_error"])).enumerate() {
+    for (i, (ours, theirs)) in errors.iter().zip(numbers(&fixture["se"])).enumerate() {
         assert!(common::close(*ours, theirs, relative), "{what} std error {i}: {ours} vs {theirs}");
     }
 }
@@ -373,8 +373,8 @@ fn multinomial_logistic_matches_statsmodels() {
     let FittedModel::Logistic(m) = &model else { panic!() };
     assert_eq!(m.classes[m.reference], "class_0");
     let se = m.standard_errors().expect("se");
-    let estimates = matrix(&f["estimate"]);
-    let errors = matrix(&f["std_error"]);
+    let estimates = matrix(&f["coefficient"]);
+    let errors = matrix(&f["se"]);
     for (q, class) in ["class_1", "class_2"].iter().enumerate() {
         let c = &m.coefficients[q];
         assert_eq!(m.classes[c.class], *class);
@@ -407,7 +407,7 @@ fn ridge_matches_scikit_learn() {
     assert!(worst < 1e-6, "ridge: {worst:e}");
 }
 
-/// `--class-weight equal` against scikit-learn 1.9.1's class_weight =
+/// `--reweight equal-totals` against scikit-learn 1.9.1's class_weight =
 /// 'balanced' (the same definition, n/(K·nₖ)), unpenalised, on spector:
 /// estimates to 1e-6 relative; the recorded class mix is then uniform.
 #[test]
@@ -420,7 +420,7 @@ fn equal_class_weights_match_scikit_learn_balanced() {
     let FittedModel::Logistic(m) = &model else { panic!() };
     let ours: Vec<f64> =
         std::iter::once(m.coefficients[0].intercept).chain(m.coefficients[0].slopes.iter().copied()).collect();
-    for (i, (a, b)) in ours.iter().zip(numbers(&f["estimate"])).enumerate() {
+    for (i, (a, b)) in ours.iter().zip(numbers(&f["coefficient"])).enumerate() {
         assert!(common::close(*a, b, 1e-6), "term {i}: {a} vs {b}");
     }
     assert!(m.class_mix.iter().all(|p| (p - 0.5).abs() < 1e-12));

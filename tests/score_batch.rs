@@ -352,7 +352,10 @@ fn the_header_is_checked_before_scoring() {
     );
     assert_eq!(code, 0, "{err}");
     let out = std::fs::read_to_string(dir.path().join("k.csv")).expect("out");
-    assert!(out.starts_with("application_id,p_defaulted,p_repaid,application_month,channel\n"), "{out:.200}");
+    assert!(
+        out.starts_with("application_id,posterior_defaulted,posterior_repaid,application_month,channel\n"),
+        "{out:.200}"
+    );
     let (code, _, err) = run(dir.path(), &["score", "m.json", "new.csv", "--keep", "nowhere", "-o", "k2.csv"]);
     assert_eq!(code, 1);
     assert!(err.contains("--keep") && err.contains("nowhere"), "{err}");
@@ -495,8 +498,8 @@ fn logistic_reasons_are_the_largest_terms() {
     let slope = |term: &str| {
         model["coefficients"]
             .as_array()
-            .and_then(|c| c.iter().find(|t| t["term"] == term))
-            .and_then(|t| t["estimate"].as_f64())
+            .and_then(|c| c.iter().find(|t| t["input"] == term))
+            .and_then(|t| t["coefficient"].as_f64())
     };
     let file: Value = serde_json::from_str(&std::fs::read_to_string(dir.path().join("m.json")).expect("m")).expect("m");
     let mean = |name: &str| {

@@ -51,16 +51,16 @@ fn meaningless_settings_are_refused_naming_them() {
 }
 
 #[test]
-fn assess_names_a_missing_score_column_as_a_score() {
+fn judge_names_a_missing_score_column_as_a_score() {
     let dir = temp_dir();
     let d = dir.path();
     fitted(d);
-    let (code, _, err) = run(d, &["assess", "train.csv", "--target", "y", "--score", "nocol"]);
+    let (code, _, err) = run(d, &["judge", "train.csv", "--target", "y", "--score", "nocol"]);
     assert_eq!(code, 1, "{err}");
     assert!(err.contains("--score names column 'nocol'") && !err.contains("--numeric"), "{err}");
     // A score column also declared numeric is fine.
     let (code, _, err) =
-        run(d, &["assess", "train.csv", "--target", "y", "--score", "x", "--numeric", "x", "--score-type", "rank"]);
+        run(d, &["judge", "train.csv", "--target", "y", "--score", "x", "--numeric", "x", "--score-type", "rank"]);
     assert_eq!(code, 0, "{err}");
 }
 
@@ -83,7 +83,7 @@ fn a_score_that_is_not_a_probability_is_named_by_file_line_and_column() {
     write(d, "scored.csv", b"y,s\nyes,0.2\nno,0.3\nyes,0.9\nno,1.5\nno,0.1\n");
     let expected = "scored.csv, line 5, column 's': '1.5' is not a probability from 0 to 1";
     for args in [
-        vec!["assess", "scored.csv", "--target", "y", "--score", "s"],
+        vec!["judge", "scored.csv", "--target", "y", "--score", "s"],
         vec!["shift", "scored.csv", "--score", "s", "--train-prior", "0.3"],
     ] {
         let (code, _, err) = run(d, &args);
@@ -91,11 +91,11 @@ fn a_score_that_is_not_a_probability_is_named_by_file_line_and_column() {
         assert!(err.contains(expected), "{args:?}: {err}");
     }
     // As points, the same column is read as it is.
-    let (code, _, err) = run(d, &["assess", "scored.csv", "--target", "y", "--score", "s", "--score-type", "rank"]);
+    let (code, _, err) = run(d, &["judge", "scored.csv", "--target", "y", "--score", "s", "--score-type", "rank"]);
     assert_eq!(code, 0, "{err}");
     // A score column is named as one when a value is not a number.
     write(d, "text.csv", b"y,s\nyes,0.2\nno,abc\n");
-    let (code, _, err) = run(d, &["assess", "text.csv", "--target", "y", "--score", "s"]);
+    let (code, _, err) = run(d, &["judge", "text.csv", "--target", "y", "--score", "s"]);
     assert_eq!(code, 1, "{err}");
     assert!(err.contains("line 3, column 's': 'abc' is not a number") && err.contains("named by --score"), "{err}");
     // shift needs every row's score.

@@ -64,7 +64,7 @@ fn assert_same(case: &str, score: &str, rejects: Option<&str>, engine: &str, key
         assert_eq!(other["reject_reason"], "", "{case}: row {id} marked as a reject");
         for column in &score_header {
             let (a, b) = (&row[column], &other[column]);
-            if column.starts_with("p_") {
+            if column.starts_with("posterior_") {
                 let d = (a.parse::<f64>().expect("p") - b.parse::<f64>().expect("p")).abs();
                 assert!(d <= POSTERIOR_TOLERANCE, "{case}: row {id}, {column}: score {a}, engine {b}");
                 worst = worst.max(d);
@@ -93,7 +93,7 @@ fn assert_same(case: &str, score: &str, rejects: Option<&str>, engine: &str, key
         }
         let reason = set_aside.get(id).unwrap_or_else(|| panic!("{case}: row {id} is neither scored nor set aside"));
         assert_eq!(&row["reject_reason"], reason, "{case}: row {id}'s reason");
-        for column in engine_header.iter().filter(|c| c.starts_with("p_")) {
+        for column in engine_header.iter().filter(|c| c.starts_with("posterior_")) {
             assert_eq!(row[column], "", "{case}: a rejected row has a posterior");
         }
     }
@@ -302,7 +302,7 @@ fn exported_sql_reproduces_score_in_postgresql() {
     });
     cases.push(Case {
         name: "lda with shrinkage, prior stated",
-        fit: with(lending_fit("lda"), &["--shrinkage", "ledoit-wolf"]),
+        fit: with(lending_fit("lda"), &["--diagonal-weight", "ledoit-wolf"]),
         flags: lending_flags(&["--prior", "defaulted=0.05,repaid=0.95"]),
         table: "new_portfolio",
         data: Path::new(portfolio),
@@ -326,7 +326,7 @@ fn exported_sql_reproduces_score_in_postgresql() {
     });
     cases.push(Case {
         name: "qda:reg + isotonic, base rate 2%",
-        fit: with(lending_fit("qda"), &["--reg", "0.2", "--calibrate", "isotonic"]),
+        fit: with(lending_fit("qda"), &["--pooled-weight", "0.2", "--calibrate", "isotonic"]),
         flags: lending_flags(&["--base-rate", "0.02"]),
         table: "new_portfolio",
         data: Path::new(portfolio),
@@ -632,7 +632,7 @@ fn worst_difference(a: &Path, b: &Path, key: &str) -> f64 {
     assert_eq!(left.len(), right.len());
     let mut worst = 0.0f64;
     for (id, row) in &left {
-        for column in header.iter().filter(|c| c.starts_with("p_")) {
+        for column in header.iter().filter(|c| c.starts_with("posterior_")) {
             let x: f64 = row[column].parse().expect("p");
             let y: f64 = right[id][column].parse().expect("p");
             worst = worst.max((x - y).abs());
@@ -706,8 +706,8 @@ fn fitting_from_postgresql_aggregates_equals_fitting_from_the_file() {
         ("qda", &["--weight", "w"], &["--category-model", "one-hot"], "ansi"),
         ("qda", &[], &[], "postgres"),
         ("naive-bayes", &[], &[], "postgres"),
-        ("lda", &["--weight", "w"], &["--shrinkage", "0.2"], "ansi"),
-        ("qda", &["--weight", "w"], &["--reg", "0.1"], "postgres"),
+        ("lda", &["--weight", "w"], &["--diagonal-weight", "0.2"], "ansi"),
+        ("qda", &["--weight", "w"], &["--pooled-weight", "0.1"], "postgres"),
         ("naive-bayes", &["--weight", "w"], &["--smoothing", "0.5"], "ansi"),
     ];
     for (family, weight, options, dialect) in cases {
@@ -1067,8 +1067,17 @@ fn aggregates_written_by_hand_fit_as_the_rows_do_and_bad_ones_are_named() {
     let empty_class = write(d, "empty.csv", HAND_STATS.replace(",y,b,", ",y,,").as_bytes());
     let args = ["fit", empty_class.to_str().unwrap(), "--from-stats", "--family", "lda", "-o", out];
     refused(d, &args, 1, "line 3, column 'class': the class is empty");
-    let shrunk =
-        ["fit", stats.to_str().unwrap(), "--from-stats", "--family", "lda", "--shrinkage", "ledoit-wolf", "-o", out];
+    let shrunk = [
+        "fit",
+        stats.to_str().unwrap(),
+        "--from-stats",
+        "--family",
+        "lda",
+        "--diagonal-weight",
+        "ledoit-wolf",
+        "-o",
+        out,
+    ];
     refused(d, &shrunk, 1, "Ledoit–Wolf shrinkage needs fourth moments");
     // Deciles are cut points: ascending, or the file is not a result of
     // the statistics query.

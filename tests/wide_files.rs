@@ -32,13 +32,13 @@ fn wide_files_are_refused_before_the_fit_starts() {
         err.contains("200 rows in 2 classes leave 198 degrees of freedom for a pooled covariance of 5000 inputs"),
         "{err}"
     );
-    assert!(err.contains("--shrinkage ledoit-wolf"), "{err}");
+    assert!(err.contains("--diagonal-weight ledoit-wolf"), "{err}");
     let (code, _, err) = run(d, &["fit", "wide.csv", "--target", "y", "--family", "qda", "-o", "m.json"]);
     assert_eq!(code, 1, "{err}");
     assert!(err.contains("class 'a' has 133 rows with positive weight, and needs at least 5001"), "{err}");
-    assert!(err.contains("--reg"), "{err}");
+    assert!(err.contains("--pooled-weight"), "{err}");
     let (code, _, err) =
-        run(d, &["fit", "wide.csv", "--target", "y", "--family", "qda", "--reg", "0.1", "-o", "m.json"]);
+        run(d, &["fit", "wide.csv", "--target", "y", "--family", "qda", "--pooled-weight", "0.1", "-o", "m.json"]);
     assert_eq!(code, 1, "{err}");
     assert!(err.contains("pooled covariance of 5000 inputs") && err.contains("cannot mend"), "{err}");
     let (code, _, err) =

@@ -265,7 +265,7 @@ pub struct OutputShape<'a> {
 /// name are refused, naming it, before anything is written.
 pub fn output_columns(ids: &[String], shape: OutputShape<'_>, kept: &[String]) -> Result<Vec<String>> {
     let mut names: Vec<String> = ids.to_vec();
-    names.extend(shape.classes.iter().map(|c| format!("p_{c}")));
+    names.extend(shape.classes.iter().map(|c| crate::model::posterior_column(c)));
     if shape.decisions {
         names.extend(["action".to_string(), "expected_cost".to_string()]);
     }
@@ -282,7 +282,7 @@ pub fn output_columns(ids: &[String], shape: OutputShape<'_>, kept: &[String]) -
                 " or ",
                 Setting::Keep,
                 " may not share a name with another, nor with a column the scoring writes (",
-                format!("p_<class>, action, expected_cost, reason_<k>, reject_reason); rename it in the data")
+                format!("posterior_<class>, action, expected_cost, reason_<k>, reject_reason); rename it in the data")
             ]));
         }
     }

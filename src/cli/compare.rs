@@ -2,8 +2,8 @@
 //!
 //! Fits families side by side on the same splits and evaluates them out of
 //! sample. Each `--family` may carry its own options after a colon, e.g.
-//! `--family lda:shrinkage=ledoit-wolf`, `--family qda:reg=0.1`,
-//! `--family logistic:l2=0.01,class-weight=equal`; the text given is the
+//! `--family lda:diagonal-weight=ledoit-wolf`, `--family qda:pooled-weight=0.1`,
+//! `--family logistic:newton-ridge=0.01,reweight=equal-totals`; the text given is the
 //! result's name. Holds the whole file in memory.
 
 use std::path::PathBuf;
@@ -71,7 +71,7 @@ pub struct Args {
     pub predictions: Option<PathBuf>,
 }
 
-/// The evaluation options `compare` and `assess` share.
+/// The evaluation options `compare` and `judge` share.
 #[derive(Debug, clap::Args)]
 pub struct EvaluationArgs {
     /// Seed of the splits and the bootstrap.

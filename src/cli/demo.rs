@@ -142,8 +142,10 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             .collect()
     };
     let mut payments_candidates = families(&["logistic", "naive-bayes", "lda", "qda"]);
-    payments_candidates
-        .push(Candidate::new("qda:reg=0.2", FamilyParams::Qda(QdaParams { reg: 0.2, ..QdaParams::default() })));
+    payments_candidates.push(Candidate::new(
+        "qda:pooled-weight=0.2",
+        FamilyParams::Qda(QdaParams { reg: 0.2, ..QdaParams::default() }),
+    ));
     let studies = [
         (
             "lending: the four families, 5-fold cross-validation",

@@ -65,12 +65,12 @@ impl From<CategoryModelArg> for CategoryModel {
 /// Per-family options, shared by `fit` and (later) `compare`.
 #[derive(Debug, Clone, Default, clap::Args)]
 pub struct FamilyOptions {
-    /// logistic: ridge penalty λ on standardised slopes (intercept unpenalised).
+    /// logistic: the Newton fit's ridge λ on standardised slopes (intercept unpenalised); --penalty ridge is the coordinate-descent path.
     #[arg(long, value_name = "LAMBDA")]
-    pub l2: Option<f64>,
-    /// logistic: class weights, `equal` or CLASS=W,... (multiplying row weights).
+    pub newton_ridge: Option<f64>,
+    /// logistic: class weights multiplying row weights: `equal-totals` (every class the same total weight) or CLASS=W,....
     #[arg(long, value_name = "SPEC")]
-    pub class_weight: Option<String>,
+    pub reweight: Option<String>,
     /// logistic: Newton iterations at most [default: 50].
     #[arg(long, value_name = "N")]
     pub max_iterations: Option<usize>,
@@ -89,7 +89,7 @@ pub struct FamilyOptions {
     /// logistic: points on the λ path [default: 100].
     #[arg(long, value_name = "N")]
     pub path_length: Option<usize>,
-    /// logistic: which cross-validated λ: one-se (largest within one standard error of the minimum) or min [default: one-se].
+    /// logistic: which cross-validated λ: sparsest-within-se (largest within one standard error of the minimum) or lowest-deviance [default: sparsest-within-se].
     #[arg(long, value_name = "RULE")]
     pub lambda_rule: Option<String>,
     /// logistic: folds for --lambda auto [default: 5].
@@ -102,11 +102,11 @@ pub struct FamilyOptions {
     #[arg(long, value_name = "F")]
     pub variance_floor: Option<f64>,
     /// lda: none, ledoit-wolf, or α in [0, 1] (toward the diagonal of the pooled covariance).
-    #[arg(long, value_name = "S")]
-    pub shrinkage: Option<String>,
+    #[arg(long, value_name = "A")]
+    pub diagonal_weight: Option<String>,
     /// qda: weight γ of the pooled covariance in each class's, in [0, 1].
-    #[arg(long, value_name = "GAMMA")]
-    pub reg: Option<f64>,
+    #[arg(long, value_name = "G")]
+    pub pooled_weight: Option<f64>,
     /// lda, qda: covariance divisor.
     #[arg(long, value_enum, value_name = "D")]
     pub covariance_divisor: Option<DivisorArg>,
@@ -126,8 +126,8 @@ impl FamilyOptions {
     /// The checked parameters of `family`; an option of another family is a usage error.
     pub fn params(&self, family: Family) -> baserate::Result<FamilyParams> {
         let logistic_flags = [
-            ("--l2", self.l2.is_some()),
-            ("--class-weight", self.class_weight.is_some()),
+            ("--newton-ridge", self.newton_ridge.is_some()),
+            ("--reweight", self.reweight.is_some()),
             ("--max-iterations", self.max_iterations.is_some()),
             ("--tolerance", self.tolerance.is_some()),
             ("--penalty", self.penalty.is_some()),
@@ -146,8 +146,8 @@ impl FamilyOptions {
         };
         check(&logistic_flags, "logistic", family == Family::Logistic)?;
         check(&nb_flags, "naive-bayes", family == Family::NaiveBayes)?;
-        check(&[("--shrinkage", self.shrinkage.is_some())], "lda", family == Family::Lda)?;
-        check(&[("--reg", self.reg.is_some())], "qda", family == Family::Qda)?;
+        check(&[("--diagonal-weight", self.diagonal_weight.is_some())], "lda", family == Family::Lda)?;
+        check(&[("--pooled-weight", self.pooled_weight.is_some())], "qda", family == Family::Qda)?;
         check(
             &[("--refuse-aliased", self.refuse_aliased)],
             "logistic and lda",
@@ -191,9 +191,9 @@ impl FamilyOptions {
                     if let Some((flag, _)) = path_flags.iter().find(|(_, set)| *set) {
                         return Err(Error::Usage(format!("{flag} needs --penalty ridge, lasso or elastic-net")));
                     }
-                } else if self.l2.is_some() {
+                } else if self.newton_ridge.is_some() {
                     return Err(Error::Usage(
-                        "--l2 is the Newton fit's ridge; with --penalty give --lambda instead".into(),
+                        "--newton-ridge is the Newton fit's ridge; with --penalty give --lambda instead".into(),
                     ));
                 }
                 if self.mixing.is_some() && penalty != Penalty::ElasticNet {
@@ -209,15 +209,17 @@ impl FamilyOptions {
                     ),
                 };
                 let lambda_rule = match self.lambda_rule.as_deref() {
-                    None | Some("one-se") => LambdaRule::OneSe,
-                    Some("min") => LambdaRule::Min,
+                    None | Some("sparsest-within-se") => LambdaRule::SparsestWithinSe,
+                    Some("lowest-deviance") => LambdaRule::LowestDeviance,
                     Some(other) => {
-                        return Err(Error::Usage(format!("--lambda-rule takes one-se or min, not '{other}'")))
+                        return Err(Error::Usage(format!(
+                            "--lambda-rule takes sparsest-within-se or lowest-deviance, not '{other}'"
+                        )))
                     }
                 };
                 FamilyParams::Logistic(LogisticParams {
-                    l2: self.l2.unwrap_or(defaults.l2),
-                    class_weight: parse_class_weight(self.class_weight.as_deref())?,
+                    l2: self.newton_ridge.unwrap_or(defaults.l2),
+                    class_weight: parse_class_weight(self.reweight.as_deref())?,
                     max_iterations: self.max_iterations.unwrap_or(defaults.max_iterations),
                     tolerance: self.tolerance.unwrap_or(defaults.tolerance),
                     penalty,
@@ -238,13 +240,13 @@ impl FamilyOptions {
                 })
             }
             Family::Lda => FamilyParams::Lda(LdaParams {
-                shrinkage: parse_shrinkage(self.shrinkage.as_deref())?,
+                shrinkage: parse_shrinkage(self.diagonal_weight.as_deref())?,
                 divisor,
                 refuse_aliased: self.refuse_aliased,
                 categories: categories.unwrap_or(LdaParams::default().categories),
             }),
             Family::Qda => FamilyParams::Qda(QdaParams {
-                reg: self.reg.unwrap_or(0.0),
+                reg: self.pooled_weight.unwrap_or(0.0),
                 divisor,
                 categories: categories.unwrap_or(QdaParams::default().categories),
             }),
@@ -254,30 +256,30 @@ impl FamilyOptions {
     }
 }
 
-/// Parses `--shrinkage`.
+/// Parses `--diagonal-weight`.
 pub fn parse_shrinkage(text: Option<&str>) -> baserate::Result<Shrinkage> {
     match text {
         None | Some("none") => Ok(Shrinkage::None),
         Some("ledoit-wolf") => Ok(Shrinkage::LedoitWolf),
         Some(v) => v.parse::<f64>().ok().filter(|a| (0.0..=1.0).contains(a)).map(Shrinkage::Value).ok_or_else(|| {
-            Error::Usage(format!("--shrinkage takes none, ledoit-wolf or a number in [0, 1], not '{v}'"))
+            Error::Usage(format!("--diagonal-weight takes none, ledoit-wolf or a number in [0, 1], not '{v}'"))
         }),
     }
 }
 
-/// Parses `--class-weight`.
+/// Parses `--reweight`.
 pub fn parse_class_weight(text: Option<&str>) -> baserate::Result<ClassWeight> {
     match text {
         None => Ok(ClassWeight::None),
-        Some("equal") => Ok(ClassWeight::Equal),
+        Some("equal-totals") => Ok(ClassWeight::Equal),
         Some(spec) => spec
             .split(',')
             .map(|part| {
-                let (class, w) = part
-                    .rsplit_once('=')
-                    .ok_or_else(|| Error::Usage(format!("--class-weight takes equal or CLASS=W,..., not '{part}'")))?;
+                let (class, w) = part.rsplit_once('=').ok_or_else(|| {
+                    Error::Usage(format!("--reweight takes equal-totals or CLASS=W,..., not '{part}'"))
+                })?;
                 let w: f64 =
-                    w.trim().parse().map_err(|_| Error::Usage(format!("'{w}' in --class-weight is not a number")))?;
+                    w.trim().parse().map_err(|_| Error::Usage(format!("'{w}' in --reweight is not a number")))?;
                 Ok((class.trim().to_string(), w))
             })
             .collect::<baserate::Result<Vec<_>>>()
@@ -327,8 +329,8 @@ pub fn parse_candidate(spec: &str) -> baserate::Result<Candidate> {
                 .map_err(|_| Error::Usage(format!("--family {spec}: {key} takes a whole number; got '{v}'")))
         };
         match key {
-            "l2" => options.l2 = Some(number(value)?),
-            "class-weight" => options.class_weight = Some(value.to_string()),
+            "newton-ridge" => options.newton_ridge = Some(number(value)?),
+            "reweight" => options.reweight = Some(value.to_string()),
             "max-iterations" => options.max_iterations = Some(count(value)?),
             "tolerance" => options.tolerance = Some(number(value)?),
             "penalty" => options.penalty = Some(value.to_string()),
@@ -339,8 +341,8 @@ pub fn parse_candidate(spec: &str) -> baserate::Result<Candidate> {
             "cv-folds" => options.cv_folds = Some(count(value)?),
             "smoothing" => options.smoothing = Some(number(value)?),
             "variance-floor" => options.variance_floor = Some(number(value)?),
-            "shrinkage" => options.shrinkage = Some(value.to_string()),
-            "reg" => options.reg = Some(number(value)?),
+            "diagonal-weight" => options.diagonal_weight = Some(value.to_string()),
+            "pooled-weight" => options.pooled_weight = Some(number(value)?),
             "covariance-divisor" => {
                 options.covariance_divisor = Some(match value {
                     "rows" => DivisorArg::Rows,

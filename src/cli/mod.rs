@@ -11,7 +11,6 @@ use std::process::ExitCode;
 use baserate::error::Setting;
 use clap::{Parser, Subcommand};
 
-pub mod assess;
 pub mod compare;
 pub mod data_args;
 pub mod demo;
@@ -20,6 +19,7 @@ pub mod export_sql;
 pub mod family_args;
 pub mod fit;
 pub mod inspect;
+pub mod judge;
 pub mod memory_arg;
 pub mod model_arg;
 pub mod output;
@@ -49,7 +49,7 @@ pub enum Command {
     /// Fit families side by side on the same splits and evaluate them out of sample.
     Compare(compare::Args),
     /// Evaluate scores made elsewhere (columns of a file) the same way.
-    Assess(assess::Args),
+    Judge(judge::Args),
     /// Fit one family and write a model file.
     Fit(fit::Args),
     /// Show what a model file holds.
@@ -120,8 +120,8 @@ pub fn flag(setting: Setting, value: Option<&str>) -> String {
         Setting::Predictions => "--predictions",
         Setting::Summary => "--summary",
         Setting::Reasons => "--reasons",
-        Setting::L2 => "--l2",
-        Setting::ClassWeight => "--class-weight",
+        Setting::L2 => "--newton-ridge",
+        Setting::ClassWeight => "--reweight",
         Setting::MaxIterations => "--max-iterations",
         Setting::Tolerance => "--tolerance",
         Setting::Penalty => "--penalty",
@@ -131,8 +131,8 @@ pub fn flag(setting: Setting, value: Option<&str>) -> String {
         Setting::CvFolds => "--cv-folds",
         Setting::Smoothing => "--smoothing",
         Setting::VarianceFloor => "--variance-floor",
-        Setting::Shrinkage => "--shrinkage",
-        Setting::Reg => "--reg",
+        Setting::Shrinkage => "--diagonal-weight",
+        Setting::Reg => "--pooled-weight",
         Setting::FromAggregates => "--from-stats",
         Setting::Family => "--family",
         Setting::Folds => "--folds",
@@ -170,7 +170,7 @@ pub fn run(cli: Cli) -> Result<ExitCode, Failure> {
         Command::Demo(args) => demo::run(args),
         Command::Describe(args) => describe::run(args),
         Command::Compare(args) => compare::run(args),
-        Command::Assess(args) => assess::run(args),
+        Command::Judge(args) => judge::run(args),
         Command::Fit(args) => fit::run(args),
         Command::Inspect(args) => inspect::run(args),
         Command::Score(args) => score::run(args),

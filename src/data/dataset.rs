@@ -14,7 +14,7 @@ use crate::data::summary::summarize;
 use crate::error::{Error, Message, Position, Result, Setting, SettingNames};
 
 /// The level name given to missing categorical values under `--missing impute`.
-pub const MISSING_LEVEL: &str = "(missing)";
+pub const MISSING_LEVEL: &str = "<missing>";
 
 /// Suffix of the 0/1 indicator input added for an imputed numeric column.
 pub const MISSING_INDICATOR_SUFFIX: &str = "_is_missing";

@@ -60,7 +60,7 @@ pub struct ReadOptions {
     pub model_columns: Option<Vec<String>>,
     /// The longest record, in bytes (see [`crate::records::Dialect`]).
     pub max_record_bytes: usize,
-    /// Score columns made elsewhere (`AssessRequest::scores`): read as
+    /// Score columns made elsewhere (`JudgeRequest::scores`): read as
     /// numbers, like `numeric`, and named as scores in errors.
     pub score_columns: Vec<String>,
     /// The score columns hold probabilities: a value outside [0, 1] is an

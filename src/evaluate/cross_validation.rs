@@ -21,7 +21,7 @@ use crate::rng::Rng;
 /// One family (with its options) to compare, under a unique name.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Candidate {
-    /// Unique label, e.g. `qda:reg=0.1`.
+    /// Unique label, e.g. `qda:pooled-weight=0.1`.
     pub name: String,
     /// What to fit.
     pub params: FamilyParams,

@@ -1,7 +1,7 @@
 //! Evaluation out of sample: rank metrics with DeLong's variance, the
 //! probability metrics and calibration, paired comparisons, and the
 //! side-by-side comparison of families on shared splits, and
-//! [`study`]: a whole comparison or assessment as one call.
+//! [`study`]: a whole comparison or judgement of outside scores as one call.
 
 pub mod compare;
 pub mod cost_figures;

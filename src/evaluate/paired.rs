@@ -26,7 +26,7 @@ use crate::evaluate::cross_validation::Predictions;
 pub struct ResultEntry {
     /// Unique label.
     pub name: String,
-    /// The family (absent for `assess`).
+    /// The family (absent for `judge`).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub family: Option<String>,
     /// Binary metrics (on the first repeat's out-of-fold predictions; with
@@ -151,7 +151,7 @@ impl TestedScore {
     }
 }
 
-/// Everything `compare` and `assess` report.
+/// Everything `compare` and `judge` report.
 #[derive(Debug, Clone, Serialize)]
 pub struct Evaluation {
     /// The positive class.

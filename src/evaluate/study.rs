@@ -1,6 +1,6 @@
 //! A whole evaluation as one call: families compared on the same splits
 //! ([`compare_families`]), or scores made elsewhere judged the same way
-//! ([`assess_scores`]). Each returns a [`Study`]: the evaluation with its
+//! ([`judge_scores`]). Each returns a [`Study`]: the evaluation with its
 //! cost figures, the figures reweighted to a target class mix, the learning
 //! curve, the penalised fits' paths, and the out-of-fold predictions as CSV
 //! when asked for. Rendering is the caller's (see `report::evaluation`).
@@ -29,7 +29,7 @@ pub const PROBABILITY_CLIP: f64 = 1e-15;
 /// Learning-curve points drawn when a curve is asked for.
 const LEARNING_CURVE_POINTS: usize = 8;
 
-/// What a comparison and an assessment share.
+/// What a comparison and a judgement of outside scores share.
 #[derive(Debug, Clone, Default)]
 pub struct StudyOptions {
     /// Seed of the splits and the bootstrap.
@@ -127,7 +127,7 @@ impl ScoreScale {
 
 /// Scores made elsewhere, to be judged like a comparison's candidates.
 #[derive(Debug, Clone)]
-pub struct AssessRequest {
+pub struct JudgeRequest {
     /// Numeric score columns of the dataset.
     pub scores: Vec<String>,
     /// What the scores are: probabilities or log odds (every metric), or
@@ -408,7 +408,7 @@ fn predictions_csv(dataset: &Dataset, predictions: &[Predictions], assignment: &
     header.push(target.column.clone());
     let positive = target.positive_index();
     for p in predictions {
-        header.extend(target.classes.iter().map(|c| format!("{}:p_{c}", p.name)));
+        header.extend(target.classes.iter().map(|c| format!("{}:{}", p.name, crate::model::posterior_column(c))));
         if k == 2 {
             header.push(format!("{}:log_odds", p.name));
         } else {
@@ -598,7 +598,7 @@ fn judge(
 /// Judges score columns made elsewhere (a bureau score, another team's
 /// model) on every row of `dataset`, with the paired tests between them.
 /// Rank scores get the rank metrics only.
-pub fn assess_scores(dataset: &Dataset, request: &AssessRequest) -> Result<Study> {
+pub fn judge_scores(dataset: &Dataset, request: &JudgeRequest) -> Result<Study> {
     let options = &request.options;
     let target = &dataset.schema.target;
     let positive = target.positive_index();

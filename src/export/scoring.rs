@@ -221,7 +221,7 @@ fn header(file: &ModelFile, request: &ScoringRequest) -> Vec<String> {
             file.checksum.as_deref().unwrap_or("none")
         ),
         format!("prior: {}; dialect: {}", prior.join(", "), request.dialect.name()),
-        "output: the id columns, p_<class> per class, action and expected_cost with costs, reject_reason (NULL when scored)".into(),
+        "output: the id columns, posterior_<class> per class, action and expected_cost with costs, reject_reason (NULL when scored)".into(),
     ];
     lines.extend(ties);
     lines.push(crate::CAUTION.to_string());

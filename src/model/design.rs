@@ -12,6 +12,11 @@ use crate::data::Inputs;
 /// second-level cache, large enough that per-tile overhead vanishes.
 pub const TILE_ROWS: usize = 512;
 
+/// The name of the intercept among a linear model's inputs, in tables and
+/// JSON; the angle brackets keep it apart from any column name a file can
+/// give without quoting.
+pub const INTERCEPT: &str = "<intercept>";
+
 /// A categorical input's one-hot columns.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct OneHot {

@@ -5,14 +5,14 @@
 //! - LDA pools the within-class cross-products by weight, never by the
 //!   prior (priors move only the intercepts), and divides by n − K (the
 //!   unbiased pooled estimate; `Divisor::Rows` divides by n).
-//!   `--shrinkage` shrinks the pooled covariance S toward the scaled
+//!   `--diagonal-weight` shrinks the pooled covariance S toward the scaled
 //!   identity on the standardised scale, i.e. toward its own diagonal D:
 //!   (1 − α)S + αD, so that changing a column's units changes nothing.
 //!   `ledoit-wolf` sets α by Ledoit & Wolf (2004), "A well-conditioned
 //!   estimator for large-dimensional covariance matrices", J. Multivariate
 //!   Analysis 88(2), applied to the standardised within-class residuals.
 //! - QDA divides each class's cross-products by nₖ − 1 (as R's MASS::qda;
-//!   `Divisor::Rows` divides by nₖ); `--reg γ` shrinks each toward the
+//!   `Divisor::Rows` divides by nₖ); `--pooled-weight γ` shrinks each toward the
 //!   pooled covariance, (1 − γ)Σₖ + γΣ (Friedman 1989, "Regularized
 //!   discriminant analysis", JASA 84(405)).
 //!
@@ -799,7 +799,7 @@ fn near_singular_warning(class: &str, encoding: &Encoding, covariance: &DMatrix<
     let named: Vec<String> = weakest.columns.iter().map(|&j| format!("'{}'", terms[j])).collect();
     let one_hot = weakest.columns.iter().any(|&j| j >= encoding.numeric.len());
     Some(format!(
-        "the covariance of class '{class}' is nearly singular along {}: its smallest eigenvalue on the correlation scale is {} of its largest (the warning is given below {}), so rows a little off that direction get posteriors near 0 or 1; mix in the pooled covariance with --reg (e.g. 0.1){}",
+        "the covariance of class '{class}' is nearly singular along {}: its smallest eigenvalue on the correlation scale is {} of its largest (the warning is given below {}), so rows a little off that direction get posteriors near 0 or 1; mix in the pooled covariance with --pooled-weight (e.g. 0.1){}",
         named.join(", "),
         crate::format::number(weakest.smallest / weakest.largest, 3),
         NEAR_SINGULAR_RATIO,

@@ -76,7 +76,7 @@ pub struct LogisticParams {
     /// Points on the λ path.
     #[serde(default = "default_path_length")]
     pub path_length: usize,
-    /// Which cross-validated λ: one-se or min.
+    /// Which cross-validated λ: sparsest-within-se or min.
     #[serde(default)]
     pub lambda_rule: LambdaRule,
     /// Folds for `--lambda auto`.
@@ -115,7 +115,7 @@ impl Default for LogisticParams {
             mixing: None,
             lambda: auto_lambda(),
             path_length: default_path_length(),
-            lambda_rule: LambdaRule::OneSe,
+            lambda_rule: LambdaRule::SparsestWithinSe,
             cv_folds: default_cv_folds(),
             cv_seed: default_cv_seed(),
             refuse_aliased: false,
@@ -653,7 +653,11 @@ pub fn fit(
     };
     let parameter_name = |i: usize| {
         let class = &classes[order[i / width]];
-        let term = if i.is_multiple_of(width) { "(intercept)".to_string() } else { terms[i % width - 1].clone() };
+        let term = if i.is_multiple_of(width) {
+            crate::model::design::INTERCEPT.to_string()
+        } else {
+            terms[i % width - 1].clone()
+        };
         if q > 1 {
             format!("{term} [{class}]")
         } else {
@@ -838,7 +842,7 @@ pub fn fit(
         let names: Vec<String> = involved.iter().map(|&i| format!("'{}'", parameter_name(i))).collect();
         warnings.push(format!(
             "{kind} separation by {}: {} rows are fitted with probability 0 or 1, and the maximum-likelihood estimates do not exist (those coefficients grow without bound, however many iterations); \
-             the estimates are where the fit stopped and have no standard errors. Fit with a penalty (--l2 0.01, or --penalty ridge), or look at what separates the classes",
+             the estimates are where the fit stopped and have no standard errors. Fit with a penalty (--newton-ridge 0.01, or --penalty ridge), or look at what separates the classes",
             names.join(", "),
             current.extreme_rows
         ));

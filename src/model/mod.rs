@@ -220,6 +220,13 @@ impl<'de> Deserialize<'de> for FittedModel {
     }
 }
 
+/// The name of a class's posterior column wherever posteriors are written:
+/// `score`'s output, the SQL export and `compare --predictions`
+/// (`NAME:posterior_<class>` there).
+pub fn posterior_column(class: &str) -> String {
+    format!("posterior_{class}")
+}
+
 /// Fits a family on a dataset, with the dataset's own row weights.
 pub fn fit(dataset: &Dataset, params: &FamilyParams) -> Result<(FittedModel, Diagnostics)> {
     fit_weighted(dataset, params, dataset.weights.as_deref(), None)

@@ -10,7 +10,7 @@
 //!
 //!   (1/N)·Σᵢ vᵢ·(−log p(yᵢ | xᵢ)) + λ·(α‖β‖₁ + (1−α)/2·‖β‖²₂),  intercepts unpenalised.
 //!
-//! With α = 0 this is the objective of the Newton fit's `--l2`. Classes are
+//! With α = 0 this is the objective of the Newton fit's `--newton-ridge`. Classes are
 //! compared with the reference class, as in [`crate::model::logistic`]; a
 //! multinomial fit cycles over the non-reference classes, each step a
 //! penalised weighted least-squares problem in that class's coefficients
@@ -40,7 +40,7 @@ use crate::model::linalg::dot;
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
 #[serde(rename_all = "kebab-case")]
 pub enum Penalty {
-    /// No penalty from this solver (the Newton fit, with its `--l2`).
+    /// No penalty from this solver (the Newton fit, with its `--newton-ridge`).
     #[default]
     None,
     /// α = 0.
@@ -88,19 +88,21 @@ pub enum LambdaChoice {
 #[serde(rename_all = "kebab-case")]
 pub enum LambdaRule {
     /// The largest λ whose mean deviance is within one standard error of
-    /// the minimum (a sparser, steadier model).
+    /// the minimum (a sparser, steadier model): the one-standard-error
+    /// rule of Breiman, Friedman, Olshen & Stone (1984), "Classification
+    /// and Regression Trees", §3.4.3, from memory.
     #[default]
-    OneSe,
+    SparsestWithinSe,
     /// The λ of the smallest mean deviance.
-    Min,
+    LowestDeviance,
 }
 
 impl LambdaRule {
     /// The name on the command line.
     pub fn name(self) -> &'static str {
         match self {
-            LambdaRule::OneSe => "one-se",
-            LambdaRule::Min => "min",
+            LambdaRule::SparsestWithinSe => "sparsest-within-se",
+            LambdaRule::LowestDeviance => "lowest-deviance",
         }
     }
 }
@@ -159,10 +161,10 @@ pub struct PenaltyFit {
     pub rule: Option<LambdaRule>,
     /// The λ of the smallest cross-validated deviance.
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub lambda_min: Option<f64>,
+    pub lambda_lowest_deviance: Option<f64>,
     /// The largest λ within one standard error of it.
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub lambda_1se: Option<f64>,
+    pub lambda_sparsest_within_se: Option<f64>,
     /// The smallest λ with every slope zero.
     pub lambda_max: f64,
     /// Folds used to choose λ (0 when it was given).
@@ -762,7 +764,7 @@ pub fn fit(
             slopes: slopes.clone(),
         })
         .collect();
-    let (chosen, rule, lambda_min, lambda_1se, folds) = match settings.lambda {
+    let (chosen, rule, lambda_lowest_deviance, lambda_sparsest_within_se, folds) = match settings.lambda {
         LambdaChoice::Value(_) => (lambdas.len() - 1, None, None, None, 0),
         LambdaChoice::Auto => {
             let mean = |l: usize| path[l].cv_deviance.unwrap_or(f64::INFINITY);
@@ -770,7 +772,7 @@ pub fn fit(
             let bound = mean(best) + path[best].cv_se.unwrap_or(0.0);
             // Largest λ (earliest on the path) within one SE of the minimum.
             let one_se = (0..=best).find(|&l| mean(l) <= bound).unwrap_or(best);
-            let chosen = if settings.rule == LambdaRule::Min { best } else { one_se };
+            let chosen = if settings.rule == LambdaRule::LowestDeviance { best } else { one_se };
             (chosen, Some(settings.rule), Some(lambdas[best]), Some(lambdas[one_se]), folds_used)
         }
     };
@@ -786,8 +788,8 @@ pub fn fit(
             mixing: alpha,
             lambda: lambdas[chosen],
             rule,
-            lambda_min,
-            lambda_1se,
+            lambda_lowest_deviance,
+            lambda_sparsest_within_se,
             lambda_max,
             folds,
             scale: scaled.scale.clone(),

@@ -6,6 +6,7 @@ use std::collections::BTreeMap;
 use serde::Serialize;
 
 use crate::format::{count, number, percent};
+use crate::model::design::INTERCEPT;
 use crate::model::discriminant::{CategoryModel, DiscriminantModel};
 use crate::model::levels::CategoricalLikelihood;
 use crate::model::logistic::{reference_class, LogisticModel};
@@ -21,16 +22,18 @@ pub use crate::tails::{two_sided_p, NORMAL_975};
 /// reference class).
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Coefficient {
-    /// `(intercept)`, a numeric input, or `COLUMN=LEVEL`.
+    /// `<intercept>`, a numeric input, or `COLUMN=LEVEL`.
+    #[serde(rename = "input")]
     pub term: String,
     /// The class this row belongs to (multinomial fits and LDA with more
     /// than two classes).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub class: Option<String>,
     /// The estimate, on the original scale.
+    #[serde(rename = "coefficient")]
     pub estimate: f64,
     /// Standard error from the inverse Fisher information.
-    #[serde(skip_serializing_if = "Option::is_none")]
+    #[serde(rename = "se", skip_serializing_if = "Option::is_none")]
     pub std_error: Option<f64>,
     /// estimate / std_error.
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -39,10 +42,10 @@ pub struct Coefficient {
     #[serde(skip_serializing_if = "Option::is_none")]
     pub p_value: Option<f64>,
     /// Lower end of the 95% Wald interval.
-    #[serde(skip_serializing_if = "Option::is_none")]
+    #[serde(rename = "interval_low", skip_serializing_if = "Option::is_none")]
     pub ci_low: Option<f64>,
     /// Upper end of the 95% Wald interval.
-    #[serde(skip_serializing_if = "Option::is_none")]
+    #[serde(rename = "interval_high", skip_serializing_if = "Option::is_none")]
     pub ci_high: Option<f64>,
     /// exp(estimate), for logistic slopes (absent where it diverges).
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -120,15 +123,15 @@ pub struct PenaltyJson {
     pub mixing: f64,
     /// The λ used.
     pub lambda: f64,
-    /// The rule that chose it: one-se or min (absent when λ was given).
+    /// The rule that chose it: sparsest-within-se or min (absent when λ was given).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub rule: Option<String>,
     /// The λ of the smallest cross-validated deviance.
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub lambda_min: Option<f64>,
+    pub lambda_lowest_deviance: Option<f64>,
     /// The largest λ within one standard error of it.
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub lambda_1se: Option<f64>,
+    pub lambda_sparsest_within_se: Option<f64>,
     /// The smallest λ with every slope zero.
     pub lambda_max: f64,
     /// Folds of the cross-validation (0 when λ was given).
@@ -148,8 +151,8 @@ fn penalty_json(m: &LogisticModel) -> Option<PenaltyJson> {
         mixing: record.mixing,
         lambda: record.lambda,
         rule: record.rule.map(|r| r.name().to_string()),
-        lambda_min: record.lambda_min,
-        lambda_1se: record.lambda_1se,
+        lambda_lowest_deviance: record.lambda_lowest_deviance,
+        lambda_sparsest_within_se: record.lambda_sparsest_within_se,
         lambda_max: record.lambda_max,
         folds: record.folds,
         path_length: record.path.len(),
@@ -166,7 +169,7 @@ pub fn logistic_coefficients(model: &LogisticModel) -> Vec<Coefficient> {
     let mut out = Vec::new();
     for (q, c) in model.coefficients.iter().enumerate() {
         let values = std::iter::once(c.intercept).chain(c.slopes.iter().copied());
-        let names = std::iter::once("(intercept)".to_string()).chain(terms.iter().cloned());
+        let names = std::iter::once(INTERCEPT.to_string()).chain(terms.iter().cloned());
         for (a, (term, estimate)) in names.zip(values).enumerate() {
             let diverges = a > 0 && model.diverging.contains(&term);
             let aliased = a > 0 && model.aliased.contains(&term);
@@ -202,7 +205,7 @@ pub fn discriminant_coefficients(model: &DiscriminantModel, prior: &[f64], posit
     let several = functions.len() > 1;
     let mut out = Vec::new();
     for (class, intercept, w) in functions {
-        let names = std::iter::once("(intercept)".to_string()).chain(terms.iter().cloned());
+        let names = std::iter::once(INTERCEPT.to_string()).chain(terms.iter().cloned());
         for (term, estimate) in names.zip(std::iter::once(intercept).chain(w)) {
             let aliased = model.aliased.contains(&term);
             out.push(Coefficient {
@@ -345,7 +348,7 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
         FittedModel::Logistic(m) => {
             let reference = &m.classes[m.reference];
             if let Some(p) = &json.penalty {
-                let chosen = match (&p.rule, p.lambda_min, p.lambda_1se) {
+                let chosen = match (&p.rule, p.lambda_lowest_deviance, p.lambda_sparsest_within_se) {
                     (Some(rule), Some(min), Some(one_se)) => format!(
                         "chosen by {}-fold cross-validated deviance, {} rule (λ_min {}, λ_1se {})",
                         p.folds,
@@ -368,17 +371,17 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
             }
             out.push_str(&format!("coefficients (log-odds against '{reference}', original scale):\n"));
             let mut table = Table::new(&[
-                ("term", Align::Left),
+                ("input", Align::Left),
                 ("class", Align::Left),
-                ("estimate", Align::Right),
-                ("std error", Align::Right),
+                ("coefficient", Align::Right),
+                ("se", Align::Right),
                 ("z", Align::Right),
                 ("p", Align::Right),
                 ("95% interval", Align::Right),
                 ("odds ratio", Align::Right),
             ]);
             for c in &json.coefficients {
-                if json.penalty.is_some() && c.term != "(intercept)" && c.estimate == 0.0 {
+                if json.penalty.is_some() && c.term != INTERCEPT && c.estimate == 0.0 {
                     continue;
                 }
                 if c.aliased {
@@ -411,7 +414,7 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
                         (true, _) => "diverges".to_string(),
                         // exp overflows or underflows a double: an input on
                         // an extreme scale, per unit of it.
-                        (false, None) if c.term != "(intercept)" => {
+                        (false, None) if c.term != INTERCEPT => {
                             if c.estimate > 0.0 { "> 1e308" } else { "< 1e-308" }.to_string()
                         }
                         (false, ratio) => optional(ratio, 4),
@@ -424,11 +427,11 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
                 out.push_str("(penalised fit: no standard errors; a penalised estimate's sampling error is not the inverse information)\n");
             } else if !m.diverging.is_empty() {
                 out.push_str(&format!(
-                    "(separation: the estimates of {} grow without bound, so the maximum-likelihood fit does not exist and no standard errors are given; fit with a penalty, --l2 or --penalty)\n",
+                    "(separation: the estimates of {} grow without bound, so the maximum-likelihood fit does not exist and no standard errors are given; fit with a penalty, --newton-ridge or --penalty)\n",
                     m.diverging.iter().map(|t| format!("'{t}'")).collect::<Vec<_>>().join(", ")
                 ));
             } else if m.covariance.is_none() && m.l2 > 0.0 {
-                out.push_str(&format!("(penalised fit, --l2 {}: no standard errors)\n", m.l2));
+                out.push_str(&format!("(penalised fit, --newton-ridge {}: no standard errors)\n", m.l2));
             } else if m.covariance.is_none() {
                 out.push_str("(no standard errors: the fit's warnings say why)\n");
             }
@@ -438,7 +441,8 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
                 "linear discriminant (log posterior odds = intercept + Σ coefficient × input, at the prior above){}:\n",
                 if m.shrinkage > 0.0 { format!("; shrinkage α = {:.4}", m.shrinkage) } else { String::new() }
             ));
-            let mut table = Table::new(&[("term", Align::Left), ("class", Align::Left), ("coefficient", Align::Right)]);
+            let mut table =
+                Table::new(&[("input", Align::Left), ("class", Align::Left), ("coefficient", Align::Right)]);
             for c in &json.discriminant_coefficients {
                 table.row(vec![
                     c.term.clone(),

@@ -100,7 +100,7 @@ pub fn sql_written(
     shown: &str,
 ) -> String {
     let mut columns: Vec<String> = request.ids.clone();
-    columns.extend(file.classes.iter().map(|c| format!("p_{c}")));
+    columns.extend(file.classes.iter().map(|c| crate::model::posterior_column(c)));
     if request.costs.is_some() {
         columns.extend(["action".to_string(), "expected_cost".to_string()]);
     }

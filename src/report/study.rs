@@ -1,4 +1,4 @@
-//! A study (comparison or assessment) for the terminal and the HTML
+//! A study (comparison or judgement of outside scores) for the terminal and the HTML
 //! report: the evaluation screen with the decisions table under costs, and
 //! the one-line description of the data the report opens with.
 

