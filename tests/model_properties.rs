@@ -238,3 +238,38 @@ fn fold_moments_equal_direct_fold_fits() {
         assert!(max_difference(&a, &b) < 1e-12);
     }
 }
+
+/// Naive Bayes floors a class variance at `--variance-floor` times the
+/// feature's pooled within-class variance (Σₖ scatterₖ / Σₖ Wₖ): a feature
+/// constant within one class gets exactly that variance there, and the other
+/// class keeps its own.
+#[test]
+fn naive_bayes_floors_a_class_variance_at_a_share_of_the_pooled_within_class_variance() {
+    use baserate::data::{Dataset, ReadOptions};
+    use baserate::model::naive_bayes::{NaiveBayesParams, DEFAULT_VARIANCE_FLOOR};
+    let dir = tempfile::tempdir().expect("dir");
+    let path = dir.path().join("floor.csv");
+    // Class a: x is 5 throughout; class b: x is 0, 1, 2, 3 (variance 1.25).
+    let mut text = String::from("x,y\n");
+    for _ in 0..4 {
+        text.push_str("5,a\n");
+    }
+    for v in 0..4 {
+        text.push_str(&format!("{v},b\n"));
+    }
+    std::fs::write(&path, text).expect("write");
+    let (data, _) = Dataset::read(&path, &ReadOptions::new("y")).expect("read");
+    let (model, diagnostics) =
+        baserate::model::fit(&data, &baserate::model::FamilyParams::NaiveBayes(NaiveBayesParams::default()))
+            .expect("fit");
+    let baserate::model::FittedModel::NaiveBayes(nb) = model else { panic!("naive bayes") };
+    // Pooled within-class variance: (0 + 4·1.25) / 8 = 0.625.
+    let expected = DEFAULT_VARIANCE_FLOOR * 0.625;
+    assert!((nb.variances[0][0] - expected).abs() <= 1e-12 * expected, "{:?}", nb.variances);
+    assert!((nb.variances[1][0] - 1.25).abs() <= 1e-12, "{:?}", nb.variances);
+    assert!(
+        diagnostics.warnings.iter().any(|w| w.contains("nearly) constant in class 'a'")),
+        "{:?}",
+        diagnostics.warnings
+    );
+}

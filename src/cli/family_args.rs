@@ -98,7 +98,7 @@ pub struct FamilyOptions {
     /// naive-bayes: additive smoothing of categorical likelihoods [default: 1].
     #[arg(long, value_name = "ALPHA")]
     pub smoothing: Option<f64>,
-    /// naive-bayes: floor on class variances as a share of the overall variance [default: 1e-9].
+    /// naive-bayes: floor on class variances as a share of each feature's pooled within-class variance [default: 1e-6].
     #[arg(long, value_name = "F")]
     pub variance_floor: Option<f64>,
     /// lda: none, ledoit-wolf, or α in [0, 1] (toward the diagonal of the pooled covariance).

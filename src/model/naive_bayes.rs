@@ -3,10 +3,12 @@
 //! one model.
 //!
 //! - Numeric: μₖⱼ and σ²ₖⱼ by weighted maximum likelihood (divisor the class
-//!   weight Wₖ), with a variance floor: σ²ₖⱼ ≥ f·Vⱼ, Vⱼ the variance of
-//!   feature j over all rows (divisor n), f = `--variance-floor` (default
-//!   1e-9). The floor only binds when a feature is (nearly) constant within
-//!   a class; it keeps the likelihood finite there.
+//!   weight Wₖ), with a variance floor: σ²ₖⱼ ≥ f·Pⱼ, Pⱼ the pooled
+//!   within-class variance of feature j (Σₖ scatterₖⱼ / Σₖ Wₖ; the overall
+//!   variance where every class is constant), f = `--variance-floor`
+//!   (default [`DEFAULT_VARIANCE_FLOOR`], 1e-6). The floor only binds when a
+//!   feature is (nearly) constant within a class; it keeps the likelihood
+//!   finite there.
 //! - Categorical: P(level l | k) = (cₖₗ + α)/(Wₖ + α·L), cₖₗ the weighted
 //!   count, L the number of levels, α = `--smoothing` (default 1, Laplace).
 //!   With α = 0 a level never seen in a class gets probability 2.2e-308
@@ -29,23 +31,31 @@ use crate::model::levels::{level_counts, level_likelihoods, SMALLEST_PROBABILITY
 use crate::model::moments::{class_moments, Moments};
 use crate::model::Diagnostics;
 
+/// Default floor on a class variance, as a share of the feature's pooled
+/// within-class variance: a class's standard deviation is never below a
+/// thousandth of the pooled one. The floor exists for a feature constant
+/// within a class, whose evidence would otherwise be unbounded; 1e-6 leaves
+/// every class whose spread is a measurable part of the pooled spread
+/// untouched (our choice).
+pub const DEFAULT_VARIANCE_FLOOR: f64 = 1e-6;
+
 /// Naive Bayes hyperparameters.
 ///
 /// | name | default | meaning | range |
 /// |---|---|---|---|
 /// | smoothing | 1 | additive smoothing α of categorical likelihoods | ≥ 0 |
-/// | variance_floor | 1e-9 | floor on class variances, as a share of the overall variance | [0, 1) |
+/// | variance_floor | 1e-6 | floor on class variances, as a share of the feature's pooled within-class variance | [0, 1) |
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct NaiveBayesParams {
     /// Additive smoothing α.
     pub smoothing: f64,
-    /// Floor f on σ²ₖⱼ / Vⱼ.
+    /// Floor f on σ²ₖⱼ / Pⱼ, Pⱼ the pooled within-class variance.
     pub variance_floor: f64,
 }
 
 impl Default for NaiveBayesParams {
     fn default() -> Self {
-        NaiveBayesParams { smoothing: 1.0, variance_floor: 1e-9 }
+        NaiveBayesParams { smoothing: 1.0, variance_floor: DEFAULT_VARIANCE_FLOOR }
     }
 }
 
@@ -284,7 +294,13 @@ pub fn fit_summaries(
                 });
             }
             let variance = m.scatter[j] / m.weight;
-            let floor = params.variance_floor * total_variance;
+            // The floor is a share of the pooled within-class variance (the
+            // overall variance where every class is constant): a feature's
+            // spread about its class means, which the class means cannot
+            // inflate.
+            let pooled =
+                moments.iter().map(|c| c.scatter[j]).sum::<f64>() / moments.iter().map(|c| c.weight).sum::<f64>();
+            let floor = params.variance_floor * if pooled > 0.0 { pooled } else { total_variance };
             if variance < floor {
                 warnings.push(format!(
                     "column '{}' is (nearly) constant in class '{}'; its variance was floored at {floor:.3e}",

@@ -138,7 +138,7 @@ pub fn evaluation_text(e: &Evaluation, failed: &[FailedRow]) -> String {
         ]);
         for s in &e.segments {
             table.row(vec![
-                s.segment.chars().take(24).collect(),
+                s.segment.clone(),
                 s.name.clone(),
                 crate::format::fixed(s.rows, 0),
                 crate::format::fixed(s.base_rate, 4),
@@ -201,16 +201,17 @@ pub fn caution_text() -> String {
     format!("{}\n", wrap(CAUTION, 100, 0))
 }
 
-const PALETTE: [RGBColor; 8] = [
-    RGBColor(31, 95, 140),
-    RGBColor(196, 100, 30),
-    RGBColor(60, 140, 70),
-    RGBColor(150, 50, 120),
-    RGBColor(110, 110, 110),
-    RGBColor(170, 40, 40),
-    RGBColor(40, 150, 160),
-    RGBColor(130, 110, 30),
-];
+/// The colour of line `i` of `n` in one chart: hues spaced evenly round
+/// the wheel from a deep teal, so no two lines of a chart share a colour
+/// however many there are, and with more than eight lines neighbours
+/// alternate between a dark and a mid lightness to stay apart. Our own
+/// scheme.
+fn series_colour(i: usize, n: usize) -> HSLColor {
+    let n = n.max(1) as f64;
+    let hue = (0.47 + i as f64 / n).fract();
+    let lightness = if n > 8.0 && i % 2 == 1 { 0.52 } else { 0.36 };
+    HSLColor(hue, 0.72, lightness)
+}
 
 type Lines = Vec<(String, Vec<(f64, f64)>)>;
 
@@ -249,7 +250,7 @@ fn line_chart(
                         .map_err(|e| e.to_string())?;
                 }
                 for (i, (name, points)) in lines.iter().enumerate() {
-                    let color = PALETTE[i % PALETTE.len()];
+                    let color = series_colour(i, lines.len());
                     chart
                         .draw_series(LineSeries::new(points.iter().copied(), color.stroke_width(2)))
                         .map_err(|e| e.to_string())?
@@ -678,4 +679,21 @@ pub fn evaluation_html(
         env!("CARGO_PKG_VERSION")
     ));
     html
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// No two lines of one chart share a colour, up to more lines than any
+    /// chart draws (a coefficient path over 60 inputs).
+    #[test]
+    fn no_colour_is_reused_within_a_chart() {
+        for n in 1..=60 {
+            let mut colours: Vec<(u8, u8, u8)> = (0..n).map(|i| series_colour(i, n).to_backend_color().rgb).collect();
+            colours.sort_unstable();
+            colours.dedup();
+            assert_eq!(colours.len(), n, "{n} lines");
+        }
+    }
 }

@@ -33,17 +33,52 @@ impl Table {
     }
 
     /// Renders with two spaces between columns; trailing spaces trimmed.
+    /// A table wider than [`WIDTH`] wraps its left-aligned text columns,
+    /// widest first, onto continuation lines: a name is never cut.
     pub fn render(&self) -> String {
-        let width = |i: usize| {
-            self.rows
-                .iter()
-                .filter_map(|r| r.get(i))
-                .chain(std::iter::once(&self.headers[i]))
-                .map(|c| c.chars().count())
-                .max()
-                .unwrap_or(0)
-        };
-        let widths: Vec<usize> = (0..self.headers.len()).map(width).collect();
+        let columns = self.headers.len();
+        let mut widths: Vec<usize> = (0..columns)
+            .map(|i| {
+                self.rows
+                    .iter()
+                    .filter_map(|r| r.get(i))
+                    .chain(std::iter::once(&self.headers[i]))
+                    .map(|c| c.chars().count())
+                    .max()
+                    .unwrap_or(0)
+            })
+            .collect();
+        let total = |widths: &[usize]| widths.iter().sum::<usize>() + 2 * widths.len().saturating_sub(1);
+        // Narrow the widest text column a character at a time, never below
+        // its header or MIN_WRAPPED: prose (cells with spaces) first, which
+        // breaks between words, then names.
+        // A column is never narrower than its longest unbreakable piece (a
+        // word, or a name's part between separators), so nothing is cut
+        // mid-word; a table of long unbreakable names may stay wider.
+        let prose: Vec<bool> =
+            (0..columns).map(|i| self.rows.iter().any(|r| r.get(i).is_some_and(|c| c.contains(' ')))).collect();
+        let narrowest: Vec<usize> = (0..columns)
+            .map(|i| {
+                let longest = self
+                    .rows
+                    .iter()
+                    .filter_map(|r| r.get(i))
+                    .flat_map(|c| unbreakable(c).into_iter())
+                    .max()
+                    .unwrap_or(0);
+                longest.max(MIN_WRAPPED).max(self.headers[i].chars().count())
+            })
+            .collect();
+        while total(&widths) > WIDTH {
+            let narrowable = (0..columns)
+                .filter(|&i| self.align[i] == Align::Left)
+                .filter(|&i| widths[i] > narrowest[i])
+                .max_by_key(|&i| (prose[i], widths[i], std::cmp::Reverse(i)));
+            match narrowable {
+                Some(i) => widths[i] -= 1,
+                None => break,
+            }
+        }
         let line = |cells: &[String]| {
             let mut out = String::new();
             for (i, w) in widths.iter().enumerate() {
@@ -65,15 +100,114 @@ impl Table {
             }
             out.trim_end().to_string()
         };
-        let mut out = line(&self.headers);
-        out.push('\n');
-        // The rule spans the table, up to 100 columns.
-        out.push_str(&"-".repeat((widths.iter().sum::<usize>() + 2 * widths.len().saturating_sub(1)).min(100)));
+        // A row as one or more lines: each cell in pieces of its width.
+        let lines = |cells: &[String]| {
+            let pieces: Vec<Vec<String>> =
+                (0..columns).map(|i| pieces(cells.get(i).map(String::as_str).unwrap_or(""), widths[i])).collect();
+            let height = pieces.iter().map(Vec::len).max().unwrap_or(1);
+            let mut out = String::new();
+            for l in 0..height {
+                let row: Vec<String> = pieces.iter().map(|p| p.get(l).cloned().unwrap_or_default()).collect();
+                out.push_str(&line(&row));
+                out.push('\n');
+            }
+            out
+        };
+        let mut out = lines(&self.headers);
+        // The rule spans the table, up to WIDTH columns.
+        out.push_str(&"-".repeat(total(&widths).min(WIDTH)));
         out.push('\n');
         for row in &self.rows {
-            out.push_str(&line(row));
-            out.push('\n');
+            out.push_str(&lines(row));
         }
         out
+    }
+}
+
+/// The widest a table is drawn, in characters.
+pub const WIDTH: usize = 100;
+
+/// The narrowest a wrapped text column becomes.
+const MIN_WRAPPED: usize = 12;
+
+/// Where a cell may break: prose between words only (never inside
+/// "1,618"), a name after its separators.
+fn breaks(prose: bool, c: char) -> bool {
+    if prose {
+        c == ' '
+    } else {
+        matches!(c, ':' | ',' | '=' | '+')
+    }
+}
+
+/// The lengths of a cell's unbreakable pieces (see [`breaks`]).
+fn unbreakable(cell: &str) -> Vec<usize> {
+    let prose = cell.contains(' ');
+    let mut lengths = vec![0];
+    for c in cell.chars() {
+        if let Some(last) = lengths.last_mut() {
+            *last += 1;
+        }
+        if breaks(prose, c) {
+            lengths.push(0);
+        }
+    }
+    lengths
+}
+
+/// A cell cut into pieces of at most `width` characters, each ending at the
+/// last break (see [`breaks`]) that fits; a cell that fits is one piece. The
+/// column widths keep every unbreakable piece whole.
+fn pieces(cell: &str, width: usize) -> Vec<String> {
+    let chars: Vec<char> = cell.chars().collect();
+    if chars.len() <= width || width == 0 {
+        return vec![cell.to_string()];
+    }
+    let mut out = Vec::new();
+    let mut start = 0;
+    while start < chars.len() {
+        let mut end = (start + width).min(chars.len());
+        if end < chars.len() {
+            let prose = chars.contains(&' ');
+            // A space may fall just past the piece (it is dropped); a
+            // separator ends its piece.
+            let last = if prose { end } else { end - 1 };
+            if let Some(cut) = (start + 1..=last).rev().find(|&j| breaks(prose, chars[j])) {
+                end = cut + 1;
+            }
+        }
+        let piece: String = chars[start..end].iter().collect();
+        out.push(if start == 0 { piece.trim_end() } else { piece.trim() }.to_string());
+        start = end;
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A table too wide for WIDTH wraps its name column onto continuation
+    /// lines: every line fits, and the name is all there.
+    #[test]
+    fn wide_tables_wrap_names_instead_of_cutting_them() {
+        let name = "logistic:penalty=elastic-net,mixing=0.25,lambda-rule=lowest-deviance,cv-folds=10";
+        let mut table = Table::new(&[("name", Align::Left), ("AUC", Align::Right), ("log loss", Align::Right)]);
+        table.row(vec![name.into(), "0.8429".into(), "0.2547".into()]);
+        table.row(vec!["lda".into(), "0.8376".into(), "0.2581".into()]);
+        let text = table.render();
+        assert!(text.lines().all(|l| l.chars().count() <= WIDTH), "{text}");
+        let first: String = text
+            .lines()
+            .skip(2)
+            .take_while(|l| !l.starts_with("lda"))
+            .map(|l| l.split("  ").next().unwrap_or(""))
+            .collect();
+        assert_eq!(first, name, "{text}");
+        assert!(text.lines().nth(2).is_some_and(|l| l.ends_with("0.2547")), "{text}");
+        // A table that fits is unchanged: one line per row.
+        let mut small = Table::new(&[("name", Align::Left), ("AUC", Align::Right)]);
+        small.row(vec!["lda".into(), "0.8376".into()]);
+        assert_eq!(small.render(), "name     AUC\n------------\nlda   0.8376\n");
     }
 }
