@@ -535,3 +535,48 @@ fn costs_drive_decisions_in_score_and_compare() {
     let html = std::fs::read_to_string(dir.path().join("r.html")).unwrap_or_default();
     assert!(html.contains("Decisions under the costs") && html.contains("data-chart=\"cost curves\""));
 }
+
+/// The fit summary gives a figure every family shares: the training log
+/// loss of the posteriors. For logistic regression without class weights it
+/// is −(log-likelihood)/n exactly (the same sum, 1e-12 relative); the
+/// class-conditional families say they are closed forms and show no
+/// joint-density likelihood.
+#[test]
+fn fit_summaries_give_the_training_log_loss() {
+    let dir = temp_dir();
+    let d = dir.path();
+    lending(d);
+    for family in ["logistic", "lda", "qda", "naive-bayes"] {
+        let model = format!("{family}.json");
+        let args = [
+            "fit",
+            "train.csv",
+            "--target",
+            "outcome",
+            "--family",
+            family,
+            "--id",
+            "application_id,application_month",
+            "--missing",
+            "impute",
+            "-o",
+            &model,
+        ];
+        let (code, out, err) = run(d, &args);
+        assert_eq!(code, 0, "{family}: {err}");
+        let line = out.lines().find(|l| l.starts_with("positive class:")).expect("summary");
+        assert!(line.contains("training log loss") && !line.contains("log-likelihood"), "{family}: {line}");
+        assert_eq!(line.contains("closed form"), family != "logistic", "{family}: {line}");
+        let json: Value = serde_json::from_str(&std::fs::read_to_string(d.join(&model)).expect("model")).expect("json");
+        let loss = json["diagnostics"]["training_log_loss"].as_f64().expect("training_log_loss");
+        assert!(loss > 0.0 && loss < 1.0, "{family}: {loss}");
+        if family == "logistic" {
+            let rows = json["training"]["rows"].as_f64().expect("rows");
+            let ll = json["diagnostics"]["log_likelihood"].as_f64().expect("log-likelihood");
+            assert!(((loss * rows) + ll).abs() <= 1e-12 * ll.abs(), "{loss} × {rows} against {ll}");
+        }
+        let (code, shown, _) = run(d, &["inspect", &model]);
+        assert_eq!(code, 0);
+        assert!(shown.contains("training log loss"), "{family}: {shown}");
+    }
+}

@@ -62,3 +62,19 @@ fn the_demo_command_is_deterministic() {
     }
     assert!(first.contains("decision support, not a decision"));
 }
+
+/// Each note about the training file is printed once, with the first step
+/// that reads it.
+#[test]
+fn the_demo_prints_each_training_note_once() {
+    let dir = common::temp_dir();
+    let output = common::baserate(dir.path(), &["demo", "--out", "d", "--rows", "600"]);
+    assert!(output.status.success(), "{}", String::from_utf8_lossy(&output.stderr));
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    let notes: Vec<&str> = stderr.lines().filter(|l| l.contains("set to the median")).collect();
+    let mut unique = notes.clone();
+    unique.sort_unstable();
+    unique.dedup();
+    assert!(!notes.is_empty(), "{stderr}");
+    assert_eq!(notes.len(), unique.len(), "{stderr}");
+}

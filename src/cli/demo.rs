@@ -209,7 +209,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let shift_path = args.out.join("lending/shift.json");
     // A stale estimate from an earlier run must not be shown.
     let _ = std::fs::remove_file(&shift_path);
-    print_notices(&lending_notices);
+    // The training file's notes were printed with its comparison above.
     let source = TrainingSource { input_path: lending_training.display().to_string(), input_sha256: lending_sha256 };
     if let Err(e) = base_rate_steps(&args, &lending, source, &model_path, &shift_path) {
         println!("base-rate step skipped: {}\n", wrap(&crate::cli::error_text(&e), 100, 2));

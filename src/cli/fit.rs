@@ -11,7 +11,7 @@ use crate::cli::family_args::{prior_spec, FamilyArg, FamilyOptions};
 use crate::cli::Failure;
 use baserate::data::Dataset;
 use baserate::error::Error;
-use baserate::format::{count, number, percent};
+use baserate::format::{count, percent};
 use baserate::model::{Family, FamilyParams};
 use baserate::prior::PriorSpec;
 use baserate::report::{wrap, CAUTION};
@@ -177,14 +177,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     file.save(&args.out)?;
     let mix = class_mix_text(target);
     println!("fitted {} on {} rows of {}: {}", family.name(), count(dataset.rows()), args.data.display(), mix);
-    println!(
-        "positive class: {}; {} iteration{}, {}, log-likelihood {}",
-        target.positive,
-        file.diagnostics.iterations,
-        if file.diagnostics.iterations == 1 { "" } else { "s" },
-        if file.diagnostics.converged { "converged" } else { "NOT converged" },
-        number(file.diagnostics.log_likelihood, 8)
-    );
+    println!("positive class: {}; fit: {}", target.positive, baserate::report::model::fit_summary(&file));
     for w in &file.diagnostics.warnings {
         eprintln!("warning: {}", wrap(w, 100, 9));
     }

@@ -690,7 +690,7 @@ pub fn lda_from_moments(
         factors: OnceLock::new(),
     };
     let _ = model.factors.set(vec![factor]);
-    Ok((model, Diagnostics { iterations: 1, converged: true, log_likelihood, warnings }))
+    Ok((model, Diagnostics { iterations: 1, converged: true, log_likelihood, warnings, ..Diagnostics::default() }))
 }
 
 /// Fits QDA; `weights` as for [`fit_lda`].
@@ -784,7 +784,7 @@ pub fn qda_from_moments(
         factors: OnceLock::new(),
     };
     let _ = model.factors.set(factors);
-    Ok((model, Diagnostics { iterations: 1, converged: true, log_likelihood, warnings }))
+    Ok((model, Diagnostics { iterations: 1, converged: true, log_likelihood, warnings, ..Diagnostics::default() }))
 }
 
 /// The warning for a class covariance whose smallest correlation

@@ -605,8 +605,13 @@ pub fn fit(
             diverging: Vec::new(),
             aliased: Vec::new(),
         };
-        let diagnostics =
-            Diagnostics { iterations, converged: fitted.converged, log_likelihood: fitted.log_likelihood, warnings };
+        let diagnostics = Diagnostics {
+            iterations,
+            converged: fitted.converged,
+            log_likelihood: fitted.log_likelihood,
+            warnings,
+            ..Diagnostics::default()
+        };
         return Ok((model, diagnostics));
     }
     let mut slot = vec![None; k];
@@ -921,5 +926,14 @@ pub fn fit(
         diverging,
         aliased: aliased.iter().map(|a| terms[a.column].clone()).collect(),
     };
-    Ok((model, Diagnostics { iterations, converged, log_likelihood: current.log_likelihood, warnings }))
+    Ok((
+        model,
+        Diagnostics {
+            iterations,
+            converged,
+            log_likelihood: current.log_likelihood,
+            warnings,
+            ..Diagnostics::default()
+        },
+    ))
 }

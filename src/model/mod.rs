@@ -169,6 +169,26 @@ pub struct Diagnostics {
     pub log_likelihood: f64,
     /// Warnings a user must see: non-convergence, separation, shrinkage used.
     pub warnings: Vec<String>,
+    /// Weighted mean −ln p(y | x) of the training rows' posteriors at the
+    /// training class mix: the one in-sample fit figure every family shares
+    /// (absent for fits from aggregates, which never see the rows).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub training_log_loss: Option<f64>,
+}
+
+/// The weighted mean −ln p(yᵢ | xᵢ) of a dataset's rows under a model, at
+/// the class mix `prior`; posteriors below the smallest normal double
+/// count as that, so one row cannot make the figure infinite.
+pub fn training_log_loss(model: &FittedModel, dataset: &Dataset, prior: &[f64]) -> f64 {
+    let log_posteriors = model.log_posteriors(&dataset.inputs(), prior);
+    let (mut total, mut weight) = (0.0, 0.0);
+    for (i, row) in log_posteriors.rows().into_iter().enumerate() {
+        let w = dataset.weights.as_ref().map_or(1.0, |w| w[i]);
+        let class = dataset.target[i] as usize;
+        total -= w * row[class].max(f64::MIN_POSITIVE.ln());
+        weight += w;
+    }
+    total / weight
 }
 
 /// A fitted model of any family. Written with its `family` first, and read

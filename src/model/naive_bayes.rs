@@ -332,5 +332,5 @@ pub fn fit_summaries(
         categorical,
         bernoulli,
     };
-    Ok((model, Diagnostics { iterations: 1, converged: true, log_likelihood, warnings }))
+    Ok((model, Diagnostics { iterations: 1, converged: true, log_likelihood, warnings, ..Diagnostics::default() }))
 }

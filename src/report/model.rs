@@ -333,13 +333,7 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
             " (logistic posteriors are corrected from the training class mix by the odds ratio)"
         }
     ));
-    out.push_str(&format!(
-        "fit: {} iteration{}, {}, log-likelihood {}\n",
-        file.diagnostics.iterations,
-        if file.diagnostics.iterations == 1 { "" } else { "s" },
-        if file.diagnostics.converged { "converged" } else { "NOT converged" },
-        number(file.diagnostics.log_likelihood, 8)
-    ));
+    out.push_str(&format!("fit: {}\n", fit_summary(file)));
     for w in &file.diagnostics.warnings {
         out.push_str(&format!("warning: {}\n", wrap(w, 100, 9)));
     }
@@ -512,6 +506,29 @@ fn level_tables(classes: &[String], tables: &[CategoricalLikelihood]) -> String 
 }
 
 /// The line saying how LDA or QDA takes its categorical inputs.
+/// How the fit went, in figures every family shares: the training log
+/// loss of the posteriors (comparable across families), and for logistic
+/// regression its iterations and convergence. The class-conditional
+/// families are closed forms; their joint-density likelihood is not shown
+/// here, since it cannot be set beside logistic regression's.
+pub fn fit_summary(file: &ModelFile) -> String {
+    let d = &file.diagnostics;
+    let how = if file.family.is_class_conditional() {
+        "closed form".to_string()
+    } else {
+        format!(
+            "{} iteration{}, {}",
+            d.iterations,
+            if d.iterations == 1 { "" } else { "s" },
+            if d.converged { "converged" } else { "NOT converged" }
+        )
+    };
+    match d.training_log_loss {
+        Some(loss) => format!("{how}; training log loss {}", number(loss, 4)),
+        None => format!("{how} (from aggregates: no training log loss)"),
+    }
+}
+
 fn category_model_line(model: &DiscriminantModel) -> String {
     match model.category_model() {
         Some(CategoryModel::Frequencies) => format!(

@@ -127,11 +127,12 @@ pub fn train(dataset: &Dataset, request: &TrainRequest) -> Result<ModelFile> {
         return Err(Error::Usage("calibration is for two classes".into()));
     }
     crate::model::check_memory(dataset, params, request.memory_limit)?;
-    let (model, diagnostics) = crate::model::fit(dataset, params)?;
+    let (model, mut diagnostics) = crate::model::fit(dataset, params)?;
     let training_class_mix = match &model {
         FittedModel::Logistic(m) => m.class_mix.clone(),
         _ => target.class_mix(),
     };
+    diagnostics.training_log_loss = Some(crate::model::training_log_loss(&model, dataset, &training_class_mix));
     // With sampling rates, the default prior is the population mix they
     // imply; the posteriors stay calibrated to the training mix.
     let (default_mix, sampling_rates) = if request.sampling_rates.is_empty() {
