@@ -5,6 +5,7 @@
 
 pub mod postgres;
 
+use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
@@ -44,7 +45,7 @@ pub fn write(dir: &Path, name: &str, contents: &[u8]) -> PathBuf {
 }
 
 /// Whether an outside tool a test needs is present. When it is absent the
-/// test prints a notice and skips — unless `BASERATE_REQUIRE_EXTERNAL=1`
+/// test prints a notice (shown by a plain `cargo test`) and skips — unless `BASERATE_REQUIRE_EXTERNAL=1`
 /// (as CI sets), when a missing tool fails the test.
 pub fn external_tool(what: &str, probe: &mut Command) -> bool {
     let present = probe.output().map(|o| o.status.success()).unwrap_or(false);
@@ -52,7 +53,10 @@ pub fn external_tool(what: &str, probe: &mut Command) -> bool {
         if std::env::var("BASERATE_REQUIRE_EXTERNAL").as_deref() == Ok("1") {
             panic!("{what} is required (BASERATE_REQUIRE_EXTERNAL=1) but not available");
         }
-        eprintln!("notice: {what} not available; test skipped");
+        // Written to the process's stderr directly, not through eprintln!,
+        // which the test harness captures and shows only for failures: a
+        // skipped test must look skipped in a plain `cargo test`.
+        let _ = writeln!(std::io::stderr(), "notice: {what} not available; test skipped");
     }
     present
 }
