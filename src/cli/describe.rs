@@ -46,6 +46,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     )?;
     let options = args.data_args.to_options()?;
     let (dataset, mut notices) = Dataset::read(&args.data, &options)?;
+    notices.extend(baserate::data::integer_coded::integer_coded_notices(&dataset));
     notices.extend(baserate::model::collinearity::collinearity_notices(&dataset));
     let path = args.data.display().to_string();
     if let Some(json_path) = &args.json {

@@ -14,6 +14,7 @@ pub mod arrays;
 pub mod csv_chunk;
 pub mod csv_read;
 pub mod dataset;
+pub mod integer_coded;
 pub mod join;
 pub mod number;
 pub mod options;
