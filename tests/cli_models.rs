@@ -580,3 +580,47 @@ fn fit_summaries_give_the_training_log_loss() {
         assert!(shown.contains("training log loss"), "{family}: {shown}");
     }
 }
+
+/// The drift line shows the five largest PSIs and says how many more are in
+/// the summary; on fewer than 500 scored rows it says PSI means little.
+#[test]
+fn the_drift_line_shows_five_and_marks_too_few_rows() {
+    let dir = temp_dir();
+    let d = dir.path();
+    lending(d);
+    let mut fit = vec!["fit"];
+    fit.extend(LENDING);
+    fit.extend(["--family", "lda", "-o", "m.json"]);
+    let (code, _, err) = run(d, &fit);
+    assert_eq!(code, 0, "{err}");
+    // Every feature moved: numbers scaled, each category one level.
+    let text = std::fs::read_to_string(d.join("new.csv")).expect("new");
+    let mut moved = String::new();
+    for (i, line) in text.lines().enumerate() {
+        if i == 0 {
+            moved.push_str(line);
+        } else {
+            let f: Vec<&str> = line.split(',').collect();
+            let scaled = |v: &str| v.parse::<f64>().map_or(v.to_string(), |x| format!("{}", x * 1.9));
+            let numbers: Vec<String> = f[5..].iter().map(|v| scaled(v)).collect();
+            moved.push_str(&format!("{},{},broker,rent,car,{}", f[0], f[1], numbers.join(",")));
+        }
+        moved.push('\n');
+    }
+    write(d, "moved.csv", moved.as_bytes());
+    let score = ["score", "m.json", "moved.csv", "-o", "s.csv", "--id", "application_id"];
+    let (code, _, err) = run(d, &score);
+    assert_eq!(code, 0, "{err}");
+    let line = err.lines().find(|l| l.starts_with("drift")).expect("a drift line");
+    let features = line.split_once("; ").map_or("", |(_, f)| f);
+    assert_eq!(features.matches(" act").count() + features.matches(" watch").count(), 5, "{line}");
+    assert!(line.contains("and 3 more not stable"), "{line}");
+    assert!(!line.contains("too few"), "{line}");
+    // 100 rows: marked.
+    let few: String = moved.lines().take(101).map(|l| format!("{l}\n")).collect();
+    write(d, "few.csv", few.as_bytes());
+    let (code, _, err) = run(d, &["score", "m.json", "few.csv", "-o", "f.csv", "--id", "application_id"]);
+    assert_eq!(code, 0, "{err}");
+    let line = err.lines().find(|l| l.starts_with("drift")).expect("a drift line");
+    assert!(line.contains("on 100 rows, too few for PSI to mean much"), "{line}");
+}

@@ -5,6 +5,14 @@
 use crate::batch::{ScoreJob, Summary};
 use crate::train::file::ModelFile;
 
+/// Features shown on the drift line, largest PSI first; the run summary has
+/// them all.
+const DRIFT_SHOWN: usize = 5;
+
+/// Scored rows below which the drift line says PSI means little: with ten
+/// bins, about 50 rows a bin (our rule).
+const FEWEST_ROWS_FOR_PSI: u64 = 500;
+
 /// The end-of-run summary of `score` (`target` names where the posteriors
 /// went).
 pub fn render_score_summary(file: &ModelFile, job: &ScoreJob, summary: &Summary, target: &str) -> String {
@@ -51,17 +59,32 @@ pub fn render_score_summary(file: &ModelFile, job: &ScoreJob, summary: &Summary,
         let features = if flagged.is_empty() {
             "every feature stable".to_string()
         } else {
-            flagged
+            let shown: Vec<String> = flagged
                 .iter()
+                .take(DRIFT_SHOWN)
                 .map(|s| format!("{} {:.3} {}", s.feature.as_deref().unwrap_or(""), s.psi, s.band))
-                .collect::<Vec<_>>()
-                .join(", ")
+                .collect();
+            let rest = flagged.len().saturating_sub(DRIFT_SHOWN);
+            let more = if rest > 0 {
+                format!(" and {rest} more not stable (every feature's PSI is in the run summary, --summary)")
+            } else {
+                String::new()
+            };
+            format!("{}{more}", shown.join(", "))
+        };
+        let few = if summary.rows_scored < FEWEST_ROWS_FOR_PSI {
+            format!(
+                " — on {} rows, too few for PSI to mean much (below {FEWEST_ROWS_FOR_PSI} rows, about 50 a bin, it is mostly sampling noise)",
+                summary.rows_scored
+            )
+        } else {
+            String::new()
         };
         let score = match &drift.score {
             Some(s) => format!("score {:.3} {}", s.psi, s.band),
             None => "score not available (no training score distribution in the model)".into(),
         };
-        lines.push(format!("drift (PSI vs training): {score}; {features}"));
+        lines.push(format!("drift (PSI vs training): {score}; {features}{few}"));
     }
     if let (Some(spec), Some(actions), Some(total)) = (&job.costs, &summary.actions, summary.total_expected_cost) {
         let counts: Vec<String> =
