@@ -199,9 +199,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         }
         None => Dataset::read(&args.data, &options)?,
     };
-    for n in &notices {
-        eprintln!("note: {}", n.describe(&crate::cli::flag));
-    }
+    crate::cli::output::print_notices(&notices);
     let description = compared_data_description(&args.data.display().to_string(), &dataset);
     let request = ComparisonRequest {
         candidates,

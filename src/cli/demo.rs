@@ -12,7 +12,7 @@ use crate::cli::Failure;
 use baserate::apply::in_memory::{estimate_portfolio_shift, ScoringRequest};
 use baserate::apply::UnseenPolicy;
 use baserate::batch::{Outputs, ScoreJob};
-use baserate::data::{DataNotice, Dataset, MissingPolicy, ReadOptions};
+use baserate::data::{Dataset, MissingPolicy, ReadOptions};
 use baserate::demo::{lending, payments, DemoSize, DEFAULT_SEED};
 use baserate::evaluate::compare::{compare_families, Candidate, ComparisonRequest, SplitChoice, StudyOptions};
 use baserate::export::scoring::{scoring_sql, ScoringRequest as SqlRequest};
@@ -112,36 +112,19 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     );
     println!("{}\n", wrap(&lending_text, 100, 2));
     println!("{}\n", wrap(&payments_text, 100, 2));
-    println!(
-        "{}\n",
-        wrap(
-            &format!(
-                "(Bayes errors by Monte Carlo over {} draws of each true model, ± one standard error; \
-                 the generating models are documented in the source, src/demo/.)",
-                count(BAYES_ERROR_DRAWS)
-            ),
-            100,
-            0
-        )
+    let method = format!(
+        "(Bayes errors by Monte Carlo over {} draws of each true model, ± one standard error; \
+         the generating models are documented in the source, src/demo/.)",
+        count(BAYES_ERROR_DRAWS)
     );
+    println!("{}\n", wrap(&method, 100, 0));
     // The families side by side on both scenarios, with a report each.
     let lending_report = args.out.join("lending/report.html");
     let payments_report = args.out.join("payments/report.html");
-    let families = |names: &[&str]| -> Vec<Candidate> {
-        names
-            .iter()
-            .map(|name| {
-                let family = match *name {
-                    "logistic" => Family::Logistic,
-                    "naive-bayes" => Family::NaiveBayes,
-                    "lda" => Family::Lda,
-                    _ => Family::Qda,
-                };
-                Candidate::new(*name, FamilyParams::defaults(family))
-            })
-            .collect()
+    let families = || -> Vec<Candidate> {
+        Family::ALL.into_iter().map(|f| Candidate::new(f.name(), FamilyParams::defaults(f))).collect()
     };
-    let mut payments_candidates = families(&["logistic", "naive-bayes", "lda", "qda"]);
+    let mut payments_candidates = families();
     payments_candidates.push(Candidate::new(
         "qda:pooled-weight=0.2",
         FamilyParams::Qda(QdaParams { reg: 0.2, ..QdaParams::default() }),
@@ -153,7 +136,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             &lending,
             &lending_notices,
             ComparisonRequest {
-                candidates: families(&["logistic", "naive-bayes", "lda", "qda"]),
+                candidates: families(),
                 split: SplitChoice::KFold { folds: 5, repeats: 1 },
                 options: StudyOptions {
                     seed: args.seed,
@@ -191,7 +174,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     ];
     for (title, path, dataset, notices, request, report) in studies {
         println!("== {title}");
-        print_notices(notices);
+        crate::cli::output::print_notices(notices);
         let description = compared_data_description(&path.display().to_string(), dataset);
         // A small --rows can leave too few events for every family: say so
         // and go on with the rest of the demo.
@@ -238,13 +221,6 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     );
     println!("{}", wrap(CAUTION, 100, 0));
     Ok(ExitCode::SUCCESS)
-}
-
-/// The data layer's notices on stderr, as the commands print them.
-fn print_notices(notices: &[DataNotice]) {
-    for n in notices {
-        eprintln!("note: {}", wrap(&n.describe(&crate::cli::flag), 100, 6));
-    }
 }
 
 /// The lending scenario's deployment: fit LDA with Platt calibration,

@@ -4,8 +4,8 @@
 
 use baserate::error::Error;
 use baserate::evaluate::compare::Candidate;
-use baserate::model::discriminant::{CategoryModel, Divisor, LdaParams, QdaParams, Shrinkage};
-use baserate::model::logistic::{ClassWeight, LogisticParams};
+use baserate::model::discriminant::{CategoryModel, Divisor, LdaParams, QdaParams};
+use baserate::model::logistic::LogisticParams;
 use baserate::model::naive_bayes::NaiveBayesParams;
 use baserate::model::penalised::{LambdaChoice, LambdaRule, Penalty};
 use baserate::model::{Family, FamilyParams};
@@ -31,33 +31,6 @@ impl From<FamilyArg> for Family {
             FamilyArg::NaiveBayes => Family::NaiveBayes,
             FamilyArg::Lda => Family::Lda,
             FamilyArg::Qda => Family::Qda,
-        }
-    }
-}
-
-/// `--covariance-divisor` values.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
-pub enum DivisorArg {
-    /// n − K for LDA, nₖ − 1 for QDA.
-    Unbiased,
-    /// n for LDA, nₖ for QDA (maximum likelihood).
-    Rows,
-}
-
-/// `--category-model` values.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
-pub enum CategoryModelArg {
-    /// 0/1 columns, Gaussian with the numeric inputs.
-    OneHot,
-    /// Smoothed class-conditional level frequencies beside the numeric inputs' Gaussian.
-    Frequencies,
-}
-
-impl From<CategoryModelArg> for CategoryModel {
-    fn from(c: CategoryModelArg) -> CategoryModel {
-        match c {
-            CategoryModelArg::OneHot => CategoryModel::OneHot,
-            CategoryModelArg::Frequencies => CategoryModel::Frequencies,
         }
     }
 }
@@ -108,11 +81,11 @@ pub struct FamilyOptions {
     #[arg(long, value_name = "G")]
     pub pooled_weight: Option<f64>,
     /// lda, qda: covariance divisor.
-    #[arg(long, value_enum, value_name = "D")]
-    pub covariance_divisor: Option<DivisorArg>,
+    #[arg(long, value_name = "unbiased|rows")]
+    pub covariance_divisor: Option<Divisor>,
     /// lda, qda: how categorical inputs enter [default: one-hot for lda, frequencies for qda].
-    #[arg(long, value_enum, value_name = "M")]
-    pub category_model: Option<CategoryModelArg>,
+    #[arg(long, value_name = "one-hot|frequencies")]
+    pub category_model: Option<CategoryModel>,
     /// logistic, lda: refuse inputs that are exact linear combinations of others, instead of dropping them from the fit.
     #[arg(long)]
     pub refuse_aliased: bool,
@@ -148,11 +121,8 @@ impl FamilyOptions {
         check(&nb_flags, "naive-bayes", family == Family::NaiveBayes)?;
         check(&[("--diagonal-weight", self.diagonal_weight.is_some())], "lda", family == Family::Lda)?;
         check(&[("--pooled-weight", self.pooled_weight.is_some())], "qda", family == Family::Qda)?;
-        check(
-            &[("--refuse-aliased", self.refuse_aliased)],
-            "logistic and lda",
-            matches!(family, Family::Logistic | Family::Lda),
-        )?;
+        let logistic_or_lda = matches!(family, Family::Logistic | Family::Lda);
+        check(&[("--refuse-aliased", self.refuse_aliased)], "logistic and lda", logistic_or_lda)?;
         check(
             &[
                 ("--covariance-divisor", self.covariance_divisor.is_some()),
@@ -161,11 +131,7 @@ impl FamilyOptions {
             "lda and qda",
             matches!(family, Family::Lda | Family::Qda),
         )?;
-        let divisor = match self.covariance_divisor {
-            Some(DivisorArg::Rows) => Divisor::Rows,
-            _ => Divisor::Unbiased,
-        };
-        let categories = self.category_model.map(CategoryModel::from);
+        let (divisor, categories) = (self.covariance_divisor.unwrap_or_default(), self.category_model);
         let params = match family {
             Family::Logistic => {
                 let defaults = LogisticParams::default();
@@ -219,7 +185,7 @@ impl FamilyOptions {
                 };
                 FamilyParams::Logistic(LogisticParams {
                     l2: self.newton_ridge.unwrap_or(defaults.l2),
-                    class_weight: parse_class_weight(self.reweight.as_deref())?,
+                    class_weight: flag_value("--reweight", self.reweight.as_deref())?,
                     max_iterations: self.max_iterations.unwrap_or(defaults.max_iterations),
                     tolerance: self.tolerance.unwrap_or(defaults.tolerance),
                     penalty,
@@ -240,7 +206,7 @@ impl FamilyOptions {
                 })
             }
             Family::Lda => FamilyParams::Lda(LdaParams {
-                shrinkage: parse_shrinkage(self.diagonal_weight.as_deref())?,
+                shrinkage: flag_value("--diagonal-weight", self.diagonal_weight.as_deref())?,
                 divisor,
                 refuse_aliased: self.refuse_aliased,
                 categories: categories.unwrap_or(LdaParams::default().categories),
@@ -256,37 +222,6 @@ impl FamilyOptions {
     }
 }
 
-/// Parses `--diagonal-weight`.
-pub fn parse_shrinkage(text: Option<&str>) -> baserate::Result<Shrinkage> {
-    match text {
-        None | Some("none") => Ok(Shrinkage::None),
-        Some("ledoit-wolf") => Ok(Shrinkage::LedoitWolf),
-        Some(v) => v.parse::<f64>().ok().filter(|a| (0.0..=1.0).contains(a)).map(Shrinkage::Value).ok_or_else(|| {
-            Error::Usage(format!("--diagonal-weight takes none, ledoit-wolf or a number in [0, 1], not '{v}'"))
-        }),
-    }
-}
-
-/// Parses `--reweight`.
-pub fn parse_class_weight(text: Option<&str>) -> baserate::Result<ClassWeight> {
-    match text {
-        None => Ok(ClassWeight::None),
-        Some("equal-totals") => Ok(ClassWeight::Equal),
-        Some(spec) => spec
-            .split(',')
-            .map(|part| {
-                let (class, w) = part.rsplit_once('=').ok_or_else(|| {
-                    Error::Usage(format!("--reweight takes equal-totals or CLASS=W,..., not '{part}'"))
-                })?;
-                let w: f64 =
-                    w.trim().parse().map_err(|_| Error::Usage(format!("'{w}' in --reweight is not a number")))?;
-                Ok((class.trim().to_string(), w))
-            })
-            .collect::<baserate::Result<Vec<_>>>()
-            .map(ClassWeight::Explicit),
-    }
-}
-
 /// Parses `--prior` / `--base-rate` (at most one).
 pub fn prior_spec(prior: Option<&str>, base_rate: Option<f64>) -> baserate::Result<Option<PriorSpec>> {
     match (prior, base_rate) {
@@ -295,6 +230,16 @@ pub fn prior_spec(prior: Option<&str>, base_rate: Option<f64>) -> baserate::Resu
         (None, Some(b)) => Ok(Some(PriorSpec::BaseRate(b))),
         (None, None) => Ok(None),
     }
+}
+
+/// A flag's value by the library's rule for it (its default when absent).
+fn flag_value<T: std::str::FromStr<Err = String> + Default>(flag: &str, text: Option<&str>) -> baserate::Result<T> {
+    text.map_or(Ok(T::default()), |t| t.parse().map_err(|e| Error::Usage(format!("{flag} {e}"))))
+}
+
+/// A family option's named value, by the rule its flag uses.
+fn named<T: std::str::FromStr<Err = String>>(spec: &str, key: &str, value: &str) -> baserate::Result<T> {
+    value.parse().map_err(|e| Error::Usage(format!("--family {spec}: {key} {e}")))
 }
 
 /// Parses `F[:OPTION=VALUE,...][+platt|+isotonic]` into a named candidate.
@@ -343,28 +288,9 @@ pub fn parse_candidate(spec: &str) -> baserate::Result<Candidate> {
             "variance-floor" => options.variance_floor = Some(number(value)?),
             "diagonal-weight" => options.diagonal_weight = Some(value.to_string()),
             "pooled-weight" => options.pooled_weight = Some(number(value)?),
-            "covariance-divisor" => {
-                options.covariance_divisor = Some(match value {
-                    "rows" => DivisorArg::Rows,
-                    "unbiased" => DivisorArg::Unbiased,
-                    v => {
-                        return Err(Error::Usage(format!(
-                            "--family {spec}: covariance-divisor '{v}' is not unbiased or rows"
-                        )))
-                    }
-                })
-            }
-            "category-model" => {
-                options.category_model = Some(match value {
-                    "one-hot" => CategoryModelArg::OneHot,
-                    "frequencies" => CategoryModelArg::Frequencies,
-                    v => {
-                        return Err(Error::Usage(format!(
-                            "--family {spec}: category-model '{v}' is not one-hot or frequencies"
-                        )))
-                    }
-                })
-            }
+            // The words `fit`'s flags take, parsed by the same rule.
+            "covariance-divisor" => options.covariance_divisor = Some(named(spec, key, value)?),
+            "category-model" => options.category_model = Some(named(spec, key, value)?),
             other => return Err(Error::Usage(format!("--family {spec}: unknown option '{other}'"))),
         }
     }

@@ -156,9 +156,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     }
     let options = args.data_args.to_options()?;
     let (dataset, notices, input_sha256) = Dataset::read_with_hash(&args.data, &options)?;
-    for n in &notices {
-        eprintln!("note: {}", wrap(&n.describe(&crate::cli::flag), 100, 6));
-    }
+    crate::cli::output::print_notices(&notices);
     let target = &dataset.schema.target;
     let request = TrainRequest {
         params,

@@ -43,3 +43,10 @@ pub fn warn_stale(removed: &[std::path::PathBuf]) {
 pub fn create_dir(path: &Path) -> Result<()> {
     std::fs::create_dir_all(path).map_err(|e| Error::io(path.display().to_string(), e))
 }
+
+/// The data layer's notices on stderr, as every command prints them.
+pub fn print_notices(notices: &[baserate::data::DataNotice]) {
+    for n in notices {
+        eprintln!("note: {}", baserate::report::wrap(&n.describe(&crate::cli::flag), 100, 6));
+    }
+}

@@ -61,6 +61,24 @@ pub enum Shrinkage {
     Value(f64),
 }
 
+impl std::str::FromStr for Shrinkage {
+    type Err = String;
+
+    /// `none`, `ledoit-wolf` or a stated α in [0, 1] (`--diagonal-weight`).
+    fn from_str(text: &str) -> std::result::Result<Self, String> {
+        match text {
+            "none" => Ok(Shrinkage::None),
+            "ledoit-wolf" => Ok(Shrinkage::LedoitWolf),
+            v => v
+                .parse::<f64>()
+                .ok()
+                .filter(|a| (0.0..=1.0).contains(a))
+                .map(Shrinkage::Value)
+                .ok_or_else(|| format!("takes none, ledoit-wolf or a number in [0, 1], not '{v}'")),
+        }
+    }
+}
+
 /// The divisor of the covariance estimates.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
 #[serde(rename_all = "kebab-case")]
@@ -70,6 +88,29 @@ pub enum Divisor {
     Unbiased,
     /// n for LDA, nₖ for QDA (maximum likelihood).
     Rows,
+}
+
+impl Divisor {
+    /// The name `--covariance-divisor` takes.
+    pub fn name(self) -> &'static str {
+        match self {
+            Divisor::Unbiased => "unbiased",
+            Divisor::Rows => "rows",
+        }
+    }
+}
+
+impl std::str::FromStr for Divisor {
+    type Err = String;
+
+    /// A divisor by its name, as `fit`'s flag and `compare`'s family
+    /// options both give it.
+    fn from_str(text: &str) -> std::result::Result<Self, String> {
+        [Divisor::Unbiased, Divisor::Rows]
+            .into_iter()
+            .find(|d| d.name() == text)
+            .ok_or_else(|| format!("'{text}' is not unbiased or rows"))
+    }
 }
 
 /// How LDA and QDA take categorical inputs.
@@ -103,6 +144,18 @@ impl CategoryModel {
             CategoryModel::OneHot => "one-hot",
             CategoryModel::Frequencies => "frequencies",
         }
+    }
+}
+
+impl std::str::FromStr for CategoryModel {
+    type Err = String;
+
+    /// A treatment by its name (see [`CategoryModel::name`]).
+    fn from_str(text: &str) -> std::result::Result<Self, String> {
+        [CategoryModel::OneHot, CategoryModel::Frequencies]
+            .into_iter()
+            .find(|c| c.name() == text)
+            .ok_or_else(|| format!("'{text}' is not one-hot or frequencies"))
     }
 }
 

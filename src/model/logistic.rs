@@ -45,6 +45,26 @@ pub enum ClassWeight {
     Explicit(Vec<(String, f64)>),
 }
 
+impl std::str::FromStr for ClassWeight {
+    type Err = String;
+
+    /// `equal-totals` or `CLASS=W,...` (`--reweight`).
+    fn from_str(text: &str) -> std::result::Result<Self, String> {
+        if text == "equal-totals" {
+            return Ok(ClassWeight::Equal);
+        }
+        text.split(',')
+            .map(|part| {
+                let (class, w) =
+                    part.rsplit_once('=').ok_or_else(|| format!("takes equal-totals or CLASS=W,..., not '{part}'"))?;
+                let w: f64 = w.trim().parse().map_err(|_| format!("has '{w}', which is not a number"))?;
+                Ok((class.trim().to_string(), w))
+            })
+            .collect::<std::result::Result<Vec<_>, String>>()
+            .map(ClassWeight::Explicit)
+    }
+}
+
 /// Logistic regression hyperparameters.
 ///
 /// | name | default | meaning | range |

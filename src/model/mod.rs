@@ -52,6 +52,9 @@ pub enum Family {
 }
 
 impl Family {
+    /// Every family, in the order commands list them.
+    pub const ALL: [Family; 4] = [Family::Logistic, Family::NaiveBayes, Family::Lda, Family::Qda];
+
     /// The command-line name.
     pub fn name(self) -> &'static str {
         match self {

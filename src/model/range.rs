@@ -4,7 +4,7 @@
 //! exported SQL — stays a finite double.
 //!
 //! A row with a value beyond its input's bound is set aside as
-//! `out-of-range` (see [`crate::apply::RejectReason::OutOfRange`]) instead
+//! `out-of-range` (the reject reason the scoring layer gives it) instead
 //! of being given a posterior computed from an overflow. The rule is one
 //! per input, not per row, so that SQL can apply it before any arithmetic:
 //! PostgreSQL aborts the whole query on a floating-point overflow, and no
