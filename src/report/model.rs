@@ -47,9 +47,18 @@ pub struct Coefficient {
     /// Upper end of the 95% Wald interval.
     #[serde(rename = "interval_high", skip_serializing_if = "Option::is_none")]
     pub ci_high: Option<f64>,
-    /// exp(estimate), for logistic slopes (absent where it diverges).
+    /// exp(estimate × step), for logistic slopes: the factor on the odds
+    /// when the input rises by `odds_ratio_step` (absent where it diverges).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub odds_ratio: Option<f64>,
+    /// The rise in the input the odds ratio is for: one training standard
+    /// deviation by default, a step the user gave, or 1 for a level.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub odds_ratio_step: Option<f64>,
+    /// What the step is: `sd`, `given`, `level` (against the column's first
+    /// level) or `indicator` (a missing-value indicator from 0 to 1).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub odds_ratio_per: Option<&'static str>,
     /// Under separation: the estimate grows without bound, so it and its
     /// odds ratio are where the fit stopped, not values.
     #[serde(skip_serializing_if = "std::ops::Not::not")]
@@ -161,8 +170,85 @@ fn penalty_json(m: &LogisticModel) -> Option<PenaltyJson> {
     })
 }
 
-/// The logistic coefficient table.
-pub fn logistic_coefficients(model: &LogisticModel) -> Vec<Coefficient> {
+/// The rise in each input that an odds ratio is stated for, by input
+/// name: `inspect --odds-ratio-per COL=STEP,...`. Inputs not named get
+/// one training standard deviation, since a per-unit odds ratio of an
+/// amount in currency units prints as 1.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct OddsRatioSteps(pub BTreeMap<String, f64>);
+
+impl std::str::FromStr for OddsRatioSteps {
+    type Err = String;
+
+    fn from_str(text: &str) -> Result<Self, String> {
+        let mut steps = BTreeMap::new();
+        for part in text.split(',').map(str::trim).filter(|p| !p.is_empty()) {
+            let (column, value) = part.rsplit_once('=').ok_or_else(|| format!("'{part}' is not COLUMN=STEP"))?;
+            let step: f64 = value
+                .trim()
+                .parse()
+                .ok()
+                .filter(|s: &f64| s.is_finite() && *s > 0.0)
+                .ok_or_else(|| format!("'{part}': the step must be a positive number"))?;
+            if steps.insert(column.trim().to_string(), step).is_some() {
+                return Err(format!("'{}' is named twice", column.trim()));
+            }
+        }
+        Ok(OddsRatioSteps(steps))
+    }
+}
+
+/// What `inspect` is asked to show beyond the file itself.
+#[derive(Debug, Clone, Default)]
+pub struct InspectOptions {
+    /// Steps for the logistic odds ratios.
+    pub odds_ratio_per: OddsRatioSteps,
+}
+
+impl InspectOptions {
+    /// Refuses a step for a column that is not a numeric input of the model.
+    pub fn check(&self, file: &ModelFile) -> crate::Result<()> {
+        let numeric = file.schema.numeric_inputs();
+        for column in self.odds_ratio_per.0.keys() {
+            if !numeric.contains(column) {
+                return Err(crate::Error::Usage(format!(
+                    "--odds-ratio-per: '{column}' is not a numeric input of this model{}",
+                    match crate::data::suggest::closest(column, &numeric) {
+                        Some(near) => format!(" (did you mean '{near}'?)"),
+                        None => format!(" (numeric inputs: {})", numeric.join(", ")),
+                    }
+                )));
+            }
+        }
+        Ok(())
+    }
+}
+
+/// The step an odds ratio of `term` is for, and what kind of step it is.
+fn odds_ratio_step(
+    term: &str,
+    file_schema: &crate::data::schema::Schema,
+    steps: &OddsRatioSteps,
+) -> (f64, &'static str) {
+    if let Some(step) = steps.0.get(term) {
+        return (*step, "given");
+    }
+    match file_schema.columns.iter().find(|c| c.name == term).and_then(|c| c.numeric.as_ref()) {
+        Some(summary) if summary.std_dev.is_finite() && summary.std_dev > 0.0 => (summary.std_dev, "sd"),
+        Some(_) => (1.0, "given"),
+        // A missing-value indicator the imputation added, or COLUMN=LEVEL.
+        None if term.contains('=') => (1.0, "level"),
+        None => (1.0, "indicator"),
+    }
+}
+
+/// The logistic coefficient table, odds ratios per the steps of `steps`
+/// (one training standard deviation for inputs it does not name).
+pub fn logistic_coefficients(
+    model: &LogisticModel,
+    schema: &crate::data::schema::Schema,
+    steps: &OddsRatioSteps,
+) -> Vec<Coefficient> {
     let terms = model.encoding.terms();
     let standard_errors = model.standard_errors();
     let multinomial = model.coefficients.len() > 1;
@@ -175,6 +261,8 @@ pub fn logistic_coefficients(model: &LogisticModel) -> Vec<Coefficient> {
             let aliased = a > 0 && model.aliased.contains(&term);
             let se = standard_errors.as_ref().map(|s| s[q][a]).filter(|_| !aliased);
             let z = se.map(|s| estimate / s);
+            let (step, per) = odds_ratio_step(&term, schema, steps);
+            let has_ratio = a > 0 && !aliased;
             out.push(Coefficient {
                 term,
                 class: multinomial.then(|| model.classes[c.class].clone()),
@@ -184,9 +272,11 @@ pub fn logistic_coefficients(model: &LogisticModel) -> Vec<Coefficient> {
                 p_value: z.map(two_sided_p),
                 ci_low: se.map(|s| estimate - NORMAL_975 * s),
                 ci_high: se.map(|s| estimate + NORMAL_975 * s),
-                odds_ratio: (a > 0 && !diverges && !aliased)
-                    .then(|| estimate.exp())
+                odds_ratio: (has_ratio && !diverges)
+                    .then(|| (estimate * step).exp())
                     .filter(|r| r.is_finite() && *r > 0.0),
+                odds_ratio_step: has_ratio.then_some(step),
+                odds_ratio_per: has_ratio.then_some(per),
                 diverges,
                 aliased,
             });
@@ -218,6 +308,8 @@ pub fn discriminant_coefficients(model: &DiscriminantModel, prior: &[f64], posit
                 ci_low: None,
                 ci_high: None,
                 odds_ratio: None,
+                odds_ratio_step: None,
+                odds_ratio_per: None,
                 diverges: false,
                 aliased,
             });
@@ -243,10 +335,10 @@ fn by_class<T: Clone>(classes: &[String], values: &[T]) -> BTreeMap<String, T> {
 }
 
 /// The JSON view of a model file.
-pub fn inspect_json(file: &ModelFile, integrity: Integrity) -> InspectJson {
+pub fn inspect_json(file: &ModelFile, integrity: Integrity, options: &InspectOptions) -> InspectJson {
     let positive = file.positive_index();
     let (coefficients, discriminant) = match &file.model {
-        FittedModel::Logistic(m) => (logistic_coefficients(m), Vec::new()),
+        FittedModel::Logistic(m) => (logistic_coefficients(m, &file.schema, &options.odds_ratio_per), Vec::new()),
         FittedModel::Lda(m) => (Vec::new(), discriminant_coefficients(m, &file.prior, positive)),
         _ => (Vec::new(), Vec::new()),
     };
@@ -294,8 +386,8 @@ fn p_text(p: Option<f64>) -> String {
 }
 
 /// The text view of a model file.
-pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> String {
-    let json = inspect_json(file, integrity);
+pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity, options: &InspectOptions) -> String {
+    let json = inspect_json(file, integrity, options);
     let mut out = format!(
         "{path}: {} model, format {} (written by baserate {} on {})\n",
         json.family, json.format_version, json.tool_version, json.created
@@ -314,25 +406,35 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
         .zip(&file.training_class_mix)
         .map(|((c, n), share)| format!("{c} {} ({})", count(*n), percent(*share)))
         .collect();
-    out.push_str(&format!(
-        "trained on {} rows of {} (sha256 {}…): {}\n",
-        count(file.training.rows),
-        file.training.input_path,
-        &file.training.input_sha256.chars().take(12).collect::<String>(),
-        mix.join(", ")
+    out.push_str(&wrap(
+        &format!(
+            "trained on {} rows of {} (sha256 {}…): {}",
+            count(file.training.rows),
+            file.training.input_path,
+            &file.training.input_sha256.chars().take(12).collect::<String>(),
+            mix.join(", ")
+        ),
+        100,
+        0,
     ));
+    out.push('\n');
     let prior: Vec<String> =
         file.classes.iter().zip(&file.prior).map(|(c, p)| format!("{c} {}", number(*p, 4))).collect();
-    out.push_str(&format!(
-        "positive class: {}; prior when scoring: {}{}\n",
-        file.positive,
-        prior.join(", "),
-        if file.family.is_class_conditional() {
-            " (applied by Bayes' rule)"
-        } else {
-            " (logistic posteriors are corrected from the training class mix by the odds ratio)"
-        }
+    out.push_str(&wrap(
+        &format!(
+            "positive class: {}; prior when scoring: {}{}",
+            file.positive,
+            prior.join(", "),
+            if file.family.is_class_conditional() {
+                " (applied by Bayes' rule)"
+            } else {
+                " (logistic posteriors are corrected from the training class mix by the odds ratio)"
+            }
+        ),
+        100,
+        0,
     ));
+    out.push('\n');
     out.push_str(&format!("fit: {}\n", fit_summary(file)));
     for w in &file.diagnostics.warnings {
         out.push_str(&format!("warning: {}\n", wrap(w, 100, 9)));
@@ -344,7 +446,7 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
             if let Some(p) = &json.penalty {
                 let chosen = match (&p.rule, p.lambda_lowest_deviance, p.lambda_sparsest_within_se) {
                     (Some(rule), Some(min), Some(one_se)) => format!(
-                        "chosen by {}-fold cross-validated deviance, {} rule (λ_min {}, λ_1se {})",
+                        "chosen by {}-fold cross-validated deviance, {} rule (lowest deviance at λ {}, sparsest within one SE at λ {})",
                         p.folds,
                         rule,
                         number(min, 6),
@@ -363,59 +465,12 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
                 ));
                 out.push_str("objective: (1/N)·Σ weighted negative log-likelihood + λ·(α‖β‖₁ + (1−α)/2·‖β‖²₂), β on standardised inputs\n");
             }
-            out.push_str(&format!("coefficients (log-odds against '{reference}', original scale):\n"));
-            let mut table = Table::new(&[
-                ("input", Align::Left),
-                ("class", Align::Left),
-                ("coefficient", Align::Right),
-                ("se", Align::Right),
-                ("z", Align::Right),
-                ("p", Align::Right),
-                ("95% interval", Align::Right),
-                ("odds ratio", Align::Right),
-            ]);
-            for c in &json.coefficients {
-                if json.penalty.is_some() && c.term != INTERCEPT && c.estimate == 0.0 {
-                    continue;
-                }
-                if c.aliased {
-                    let class = c.class.clone().unwrap_or_else(|| file.positive.clone());
-                    table.row(vec![
-                        c.term.clone(),
-                        class,
-                        "aliased".into(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                    ]);
-                    continue;
-                }
-                let interval = match (c.ci_low, c.ci_high) {
-                    (Some(a), Some(b)) => format!("{} … {}", number(a, 4), number(b, 4)),
-                    _ => String::new(),
-                };
-                table.row(vec![
-                    c.term.clone(),
-                    c.class.clone().unwrap_or_else(|| file.positive.clone()),
-                    number(c.estimate, 6),
-                    optional(c.std_error, 4),
-                    optional(c.z, 4),
-                    p_text(c.p_value),
-                    interval,
-                    match (c.diverges, c.odds_ratio) {
-                        (true, _) => "diverges".to_string(),
-                        // exp overflows or underflows a double: an input on
-                        // an extreme scale, per unit of it.
-                        (false, None) if c.term != INTERCEPT => {
-                            if c.estimate > 0.0 { "> 1e308" } else { "< 1e-308" }.to_string()
-                        }
-                        (false, ratio) => optional(ratio, 4),
-                    },
-                ]);
-            }
-            out.push_str(&table.render());
+            out.push_str(&logistic_tables(
+                &json.coefficients,
+                json.penalty.is_some(),
+                reference,
+                m.coefficients.len() > 1,
+            ));
             out.push_str(&aliased_note(&m.aliased, false));
             if m.penalty.is_some() {
                 out.push_str("(penalised fit: no standard errors; a penalised estimate's sampling error is not the inverse information)\n");
@@ -483,6 +538,93 @@ pub fn inspect_text(path: &str, file: &ModelFile, integrity: Integrity) -> Strin
     out.push('\n');
     out.push_str(&wrap(CAUTION, 100, 0));
     out.push('\n');
+    out
+}
+
+/// The logistic coefficient table, then the odds-ratio table: each odds
+/// ratio for a rise of one training standard deviation unless the user
+/// gave a step, with its 95% interval (the Wald interval's ends,
+/// exponentiated). A penalised fit hides its zero slopes; the class
+/// column shows only for multinomial fits.
+fn logistic_tables(coefficients: &[Coefficient], penalised: bool, reference: &str, multinomial: bool) -> String {
+    let shown: Vec<&Coefficient> =
+        coefficients.iter().filter(|c| !(penalised && c.term != INTERCEPT && c.estimate == 0.0)).collect();
+    let with_class = |mut headers: Vec<(&'static str, Align)>| {
+        if multinomial {
+            headers.insert(1, ("class", Align::Left));
+        }
+        headers
+    };
+    let class_cell = |c: &Coefficient, row: &mut Vec<String>| {
+        if multinomial {
+            row.insert(1, c.class.clone().unwrap_or_default());
+        }
+    };
+    let mut table = Table::new(&with_class(vec![
+        ("input", Align::Left),
+        ("coefficient", Align::Right),
+        ("se", Align::Right),
+        ("z", Align::Right),
+        ("p", Align::Right),
+        ("95% interval", Align::Right),
+    ]));
+    for c in &shown {
+        let mut row = if c.aliased {
+            vec![c.term.clone(), "aliased".into()]
+        } else {
+            let interval = match (c.ci_low, c.ci_high) {
+                (Some(a), Some(b)) => format!("{} … {}", number(a, 4), number(b, 4)),
+                _ => String::new(),
+            };
+            vec![
+                c.term.clone(),
+                number(c.estimate, 6),
+                optional(c.std_error, 4),
+                optional(c.z, 4),
+                p_text(c.p_value),
+                interval,
+            ]
+        };
+        class_cell(c, &mut row);
+        table.row(row);
+    }
+    let mut out = format!("coefficients (log-odds against '{reference}', original scale):\n{}", table.render());
+    let mut ratios = Table::new(&with_class(vec![
+        ("input", Align::Left),
+        ("per", Align::Right),
+        ("odds ratio", Align::Right),
+        ("95% interval", Align::Right),
+    ]));
+    for c in shown.iter().filter(|c| c.term != INTERCEPT && !c.aliased) {
+        let step = c.odds_ratio_step.unwrap_or(1.0);
+        let ratio = match (c.diverges, c.odds_ratio) {
+            (true, _) => "diverges".to_string(),
+            // exp overflows or underflows a double: an input on an
+            // extreme scale, per its step.
+            (false, None) => if c.estimate > 0.0 { "> 1e308" } else { "< 1e-308" }.to_string(),
+            (false, Some(r)) => number(r, 4),
+        };
+        let interval = match (c.diverges, c.ci_low, c.ci_high) {
+            (false, Some(a), Some(b)) => format!("{} … {}", number((a * step).exp(), 4), number((b * step).exp(), 4)),
+            _ => String::new(),
+        };
+        let per = match c.odds_ratio_per {
+            Some("sd") => format!("sd {}", number(step, 4)),
+            Some("level") => "level".to_string(),
+            Some("indicator") => "0 → 1".to_string(),
+            _ => number(step, 6),
+        };
+        let mut row = vec![c.term.clone(), per, ratio, interval];
+        class_cell(c, &mut row);
+        ratios.row(row);
+    }
+    if !ratios.is_empty() {
+        out.push_str(&format!(
+            "\n{}\n{}",
+            wrap("odds ratios: the factor on the odds when the input rises by 'per' — one training standard deviation (sd) unless --odds-ratio-per gives a step; a level against the column's first level:", 100, 0),
+            ratios.render()
+        ));
+    }
     out
 }
 

@@ -27,14 +27,19 @@ impl Table {
         }
     }
 
+    /// Whether the table has no rows.
+    pub fn is_empty(&self) -> bool {
+        self.rows.is_empty()
+    }
+
     /// Adds a row (missing cells are blank).
     pub fn row(&mut self, cells: Vec<String>) {
         self.rows.push(cells);
     }
 
     /// Renders with two spaces between columns; trailing spaces trimmed.
-    /// A table wider than [`WIDTH`] wraps its left-aligned prose columns,
-    /// widest first, between words onto continuation lines: nothing is cut.
+    /// A table wider than [`WIDTH`] wraps its prose columns (cells with
+    /// spaces, such as an interval "a … b"), widest first, between words onto continuation lines: nothing is cut.
     pub fn render(&self) -> String {
         let columns = self.headers.len();
         let mut widths: Vec<usize> = (0..columns)
@@ -71,7 +76,7 @@ impl Table {
             .collect();
         while total(&widths) > WIDTH {
             let narrowable = (0..columns)
-                .filter(|&i| self.align[i] == Align::Left && prose[i])
+                .filter(|&i| prose[i])
                 .filter(|&i| widths[i] > narrowest[i])
                 .max_by_key(|&i| (widths[i], std::cmp::Reverse(i)));
             match narrowable {
