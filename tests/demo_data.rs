@@ -78,3 +78,24 @@ fn the_demo_prints_each_training_note_once() {
     assert!(!notes.is_empty(), "{stderr}");
     assert_eq!(notes.len(), unique.len(), "{stderr}");
 }
+
+/// The demo's scored portfolio carries the decisions, as the SQL job for
+/// the same work returns them.
+#[test]
+fn the_demo_scores_carry_the_actions_of_the_sql_job() {
+    let dir = common::temp_dir();
+    let output = common::baserate(dir.path(), &["demo", "--out", "d", "--rows", "600"]);
+    assert!(output.status.success(), "{}", String::from_utf8_lossy(&output.stderr));
+    let scores = std::fs::read_to_string(dir.path().join("d/lending/new_portfolio_scores.csv")).expect("scores");
+    let header: Vec<&str> = scores.lines().next().unwrap_or("").split(',').collect();
+    let sql = std::fs::read_to_string(dir.path().join("d/lending/new_portfolio_scoring.sql")).expect("sql");
+    for column in ["application_id", "posterior_defaulted", "posterior_repaid", "action", "expected_cost"] {
+        assert!(header.contains(&column), "{column} in {header:?}");
+        assert!(sql.contains(column), "{column} in the SQL");
+    }
+    let actions = header.iter().position(|c| *c == "action").expect("action");
+    assert!(scores
+        .lines()
+        .skip(1)
+        .all(|l| ["approve", "refer", "decline"].contains(&l.split(',').nth(actions).unwrap_or(""))));
+}

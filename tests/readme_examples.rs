@@ -12,6 +12,7 @@ fn readme_excerpts_match_the_program() {
     let dir = common::temp_dir();
     let made = common::baserate(dir.path(), &["demo"]);
     assert!(made.status.success());
+    let demo_text = format!("{}{}", String::from_utf8_lossy(&made.stdout), String::from_utf8_lossy(&made.stderr));
     // Fenced blocks, as lists of lines.
     let mut blocks: Vec<Vec<&str>> = Vec::new();
     let mut current: Option<Vec<&str>> = None;
@@ -43,8 +44,28 @@ fn readme_excerpts_match_the_program() {
             }
         }
         checked += 1;
+        tour_matches_the_demo(command, block, &demo_text);
     }
     assert!(checked >= 3, "expected at least three command excerpts, found {checked}");
+}
+
+/// The tour runs with the demo's seed, so its figures are the ones the
+/// demo printed: the lending comparison's table and the base-rate estimate.
+fn tour_matches_the_demo(command: &str, block: &[&str], demo: &str) {
+    let demo_lines: Vec<&str> = demo.lines().map(str::trim_end).collect();
+    if command.starts_with("compare baserate-demo/lending/train.csv") && command.contains("--report") {
+        assert!(command.contains("--seed 20261201"), "the tour's comparison uses the demo's seed: {command}");
+        for line in &block[1..] {
+            assert!(demo_lines.contains(&line.trim_end()), "the demo does not print the tour's line:\n{line}\n{demo}");
+        }
+    }
+    if command.starts_with("shift ") {
+        let em = block.iter().find(|l| l.trim_start().starts_with("em ")).expect("the EM line");
+        let share = em.split_whitespace().nth(1).expect("the EM share");
+        let interval = em.split("interval ").nth(1).and_then(|r| r.split(',').next()).expect("the interval");
+        let expected = format!("share {share} (95% interval {interval})");
+        assert!(demo.contains(&expected), "the demo's estimate is not the tour's ({expected}):\n{demo}");
+    }
 }
 
 /// The README's Rust example is the crate documentation's doctest, which

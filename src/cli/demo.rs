@@ -249,11 +249,13 @@ fn base_rate_steps(
     let shift_spec = shift_path.display().to_string();
     let prior = baserate::prior::shift::prior_from_shift_file(&shift_spec, &file.classes)?;
 
+    // The decisions go beside the posteriors, as in the SQL job below.
+    let costs = file.read_costs(&args.out.join("lending/costs.toml"))?;
     let scores_path = args.out.join("lending/new_portfolio_scores.csv");
     let job = ScoreJob {
         data: new_portfolio,
         prior: prior.clone(),
-        costs: None,
+        costs: Some(costs.clone()),
         ids: vec!["application_id".into()],
         keep: Vec::new(),
         delimiter: b',',
@@ -283,7 +285,7 @@ fn base_rate_steps(
         table: "new_portfolio".into(),
         dialect: SqlDialect::Ansi,
         prior,
-        costs: Some(file.read_costs(&args.out.join("lending/costs.toml"))?),
+        costs: Some(costs),
         ids: vec!["application_id".into()],
         missing: None,
         unseen: UnseenPolicy::Error,
