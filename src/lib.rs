@@ -101,6 +101,7 @@ pub mod interop;
 pub mod io;
 pub mod model;
 pub mod prior;
+pub mod progress;
 pub mod records;
 pub mod report;
 pub mod rng;

@@ -17,6 +17,7 @@ use std::path::Path;
 const FLOORS: &[(&str, u32)] = &[
     ("error", 0),    // the library's error type
     ("rng", 0),      // small utility: seeded random numbers
+    ("progress", 0), // small utility: counts of finished work for a callback
     ("format", 1),   // number formatting
     ("io", 1),       // small utility: atomic files, hashes and timestamps
     ("tails", 1),    // tail probabilities of the normal and chi-square distributions

@@ -14,6 +14,7 @@ use baserate::demo::gaussian::Gaussian;
 use baserate::evaluate::compare::{cross_predict, Candidate};
 use baserate::model::{fit, Family, FamilyParams};
 use baserate::prior::{bbse, bootstrap_interval, em_probabilities};
+use baserate::progress::Progress;
 use baserate::rng::Rng;
 use rayon::prelude::*;
 
@@ -49,7 +50,9 @@ fn intervals_cover_the_true_new_base_rate() {
             // Held-out confusion of the training rows (5-fold, out of fold).
             let assignment =
                 assign(&SplitPlan::KFold { folds: 5, repeats: 1 }, &train.target, 2, repeat).expect("folds");
-            let predictions = cross_predict(&train, &[Candidate::new("lda", lda)], &assignment, None).expect("oof");
+            let predictions =
+                cross_predict(&train, &[Candidate::new("lda", lda)], &assignment, None, &Progress::silent())
+                    .expect("oof");
             let mut confusion = vec![vec![0.0; 2]; 2];
             for (i, row) in predictions[0].log_posteriors[0].rows().into_iter().enumerate() {
                 let predicted = usize::from(row[1] > row[0]);

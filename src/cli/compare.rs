@@ -173,7 +173,9 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             (baserate::error::Setting::Predictions, args.predictions.as_deref()),
         ],
     )?;
+    let bar = crate::cli::progress::TerminalProgress::start(false);
     let mut options = args.data_args.to_options()?;
+    options.progress = bar.sink();
     // The split column is not a feature: read it as an identifier.
     if let Some(c) = &args.split_by {
         if !options.ids.contains(c) {
@@ -199,7 +201,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         }
         None => Dataset::read(&args.data, &options)?,
     };
-    crate::cli::output::print_notices(&notices);
+    bar.suspend(|| crate::cli::output::print_notices(&notices));
     let description = compared_data_description(&args.data.display().to_string(), &dataset);
     let request = ComparisonRequest {
         candidates,
@@ -210,8 +212,11 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         predictions: args.predictions.is_some(),
 
         memory_limit: args.memory.memory_limit,
+        progress: bar.sink(),
     };
-    let study = compare_families(dataset, &request)?;
+    let study = compare_families(dataset, &request);
+    drop(bar);
+    let study = study?;
     for note in &study.notes {
         eprintln!("note: {note}");
     }

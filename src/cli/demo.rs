@@ -147,6 +147,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
                 penalised_paths: true,
                 predictions: false,
                 memory_limit: None,
+                progress: baserate::progress::Progress::silent(),
             },
             &lending_report,
         ),
@@ -168,6 +169,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
                 penalised_paths: true,
                 predictions: false,
                 memory_limit: None,
+                progress: baserate::progress::Progress::silent(),
             },
             &payments_report,
         ),
@@ -242,7 +244,7 @@ fn base_rate_steps(
     // Scored as written, checksum and all.
     let (file, integrity) = baserate::train::file::ModelFile::open(model_path, false)?;
 
-    let shift_options = ShiftOptions { bootstrap: 200, seed: args.seed };
+    let shift_options = ShiftOptions { bootstrap: 200, seed: args.seed, ..ShiftOptions::default() };
     let (estimate, _) = estimate_portfolio_shift(&file, &new_portfolio, &ScoringRequest::default(), &shift_options)?;
     let text = serde_json::to_string_pretty(&estimate).map_err(|e| baserate::Error::Usage(e.to_string()))?;
     write_atomic(shift_path, format!("{text}\n").as_bytes())?;

@@ -154,9 +154,11 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     if args.from_stats {
         return fit_from_stats(&args, params, spec);
     }
-    let options = args.data_args.to_options()?;
+    let bar = crate::cli::progress::TerminalProgress::start(false);
+    let mut options = args.data_args.to_options()?;
+    options.progress = bar.sink();
     let (dataset, notices, input_sha256) = Dataset::read_with_hash(&args.data, &options)?;
-    crate::cli::output::print_notices(&notices);
+    bar.suspend(|| crate::cli::output::print_notices(&notices));
     let target = &dataset.schema.target;
     let request = TrainRequest {
         params,
@@ -170,8 +172,11 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         source: TrainingSource { input_path: args.data.display().to_string(), input_sha256 },
 
         memory_limit: args.memory.memory_limit,
+        progress: bar.sink(),
     };
-    let file = train(&dataset, &request)?;
+    let file = train(&dataset, &request);
+    drop(bar);
+    let file = file?;
     file.save(&args.out)?;
     let mix = class_mix_text(target);
     println!("fitted {} on {} rows of {}: {}", family.name(), count(dataset.rows()), args.data.display(), mix);

@@ -23,6 +23,7 @@ pub mod judge;
 pub mod memory_arg;
 pub mod model_arg;
 pub mod output;
+pub mod progress;
 pub mod score;
 pub mod shift;
 pub mod stats_sql;

@@ -75,13 +75,15 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
             (baserate::error::Setting::Rejects, args.apply.rejects.as_deref()),
         ],
     )?;
-    let options = ShiftOptions { bootstrap: args.bootstrap, seed: args.seed };
+    let bar = crate::cli::progress::TerminalProgress::start(false);
+    let options = ShiftOptions { bootstrap: args.bootstrap, seed: args.seed, progress: bar.sink() };
     let delimiter = parse_delimiter(&args.apply.delimiter)?;
     let estimate = match (args.files.as_slice(), &args.score) {
         ([model, data], None) => model_form(&args, model, data, delimiter, &options)?,
         ([data], Some(column)) => scores_form(&args, data, column, delimiter, &options)?,
         _ => return Err(Error::Usage("give MODEL NEWDATA, or NEWDATA with --score".into()).into()),
     };
+    drop(bar);
     if let Some(path) = &args.json {
         let text = serde_json::to_string_pretty(&estimate).map_err(|e| Error::Usage(e.to_string()))?;
         write_atomic(path, format!("{text}\n").as_bytes())?;

@@ -198,11 +198,12 @@ pub(crate) fn read_bytes_chunked(
             parse_chunk(&context, &data[range.clone()], first_lines[0], &plan, column_slices(&mut scratch, capacity));
         plan = first.plan;
     }
-    let (mut outs, mut matrix) = parse_all(&context, data, &chunks, &first_lines, &capacities, &plan);
+    let (mut outs, mut matrix) =
+        parse_all(&context, data, &chunks, &first_lines, &capacities, &plan, &options.progress);
     let settled = settle(&plan, &outs);
     if settled != plan && !outs.iter().any(|o| o.fatal.is_some()) {
         plan = settled;
-        (outs, matrix) = parse_all(&context, data, &chunks, &first_lines, &capacities, &plan);
+        (outs, matrix) = parse_all(&context, data, &chunks, &first_lines, &capacities, &plan, &options.progress);
     }
 
     // The first fatal problem in file order: a chunk's own fatal error, or
@@ -262,6 +263,7 @@ fn parse_all(
     first_lines: &[u64],
     capacities: &[usize],
     plan: &[Parse],
+    progress: &crate::progress::Progress,
 ) -> (Vec<ChunkOut>, Vec<f64>) {
     let (_, width, _, _) = slots(plan);
     let total: usize = capacities.iter().sum();
@@ -276,6 +278,7 @@ fn parse_all(
             rest = tail;
         }
     }
+    let parsed = progress.counter("reading the file (chunks)", Some(chunks.len() as u64));
     let outs = chunks
         .par_iter()
         .zip(first_lines.par_iter())
@@ -286,6 +289,7 @@ fn parse_all(
             if let Some(release) = context.release {
                 release(bytes);
             }
+            parsed.step();
             out
         })
         .collect();

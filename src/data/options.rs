@@ -66,6 +66,8 @@ pub struct ReadOptions {
     /// The score columns hold probabilities: a value outside [0, 1] is an
     /// error naming its line.
     pub scores_are_probabilities: bool,
+    /// Where the count of parsed chunks goes (a large file's read).
+    pub progress: crate::progress::Progress,
 }
 
 impl ReadOptions {
@@ -86,6 +88,7 @@ impl ReadOptions {
             max_record_bytes: crate::records::DEFAULT_MAX_RECORD_BYTES,
             score_columns: Vec::new(),
             scores_are_probabilities: false,
+            progress: crate::progress::Progress::silent(),
         }
     }
 

@@ -16,6 +16,7 @@ use crate::evaluate::paired::log_odds_of;
 use crate::model::discriminant::{fit_lda_from_moments, fit_qda_from_moments, CategoryModel, Shrinkage};
 use crate::model::moments::{grouped_class_moments, Moments};
 use crate::model::{fit_weighted, Family, FamilyParams, FittedModel};
+use crate::progress::Progress;
 use crate::rng::Rng;
 
 /// One family (with its options) to compare, under a unique name.
@@ -112,12 +113,13 @@ type FoldPrediction = (usize, usize, Vec<usize>, Array2<f64>, Vec<String>);
 /// rows. `prior`: the class mix posteriors are stated at (each training
 /// fold's own class mix when `None`). A candidate whose fit fails in some
 /// fold comes back with its [`Predictions::failure`]; the others are
-/// unaffected.
+/// unaffected. Each finished (candidate, fold) fit is a step of `progress`.
 pub fn cross_predict(
     dataset: &Dataset,
     candidates: &[Candidate],
     assignment: &Assignment,
     prior: Option<&[f64]>,
+    progress: &Progress,
 ) -> Result<Vec<Predictions>> {
     let n = dataset.rows();
     let k = dataset.schema.target.classes.len();
@@ -127,7 +129,9 @@ pub fn cross_predict(
         .par_iter()
         .map(|c| match c.params {
             FamilyParams::Logistic(_) => {
-                fit_weighted(dataset, &c.params, dataset.weights.as_deref(), None).ok().map(|(m, _)| m)
+                fit_weighted(dataset, &c.params, dataset.weights.as_deref(), None, &Progress::silent())
+                    .ok()
+                    .map(|(m, _)| m)
             }
             _ => None,
         })
@@ -208,7 +212,7 @@ pub fn cross_predict(
                         }
                     })
                     .collect();
-                fit_weighted(dataset, params, Some(&weights), starts[c].as_ref())?
+                fit_weighted(dataset, params, Some(&weights), starts[c].as_ref(), &Progress::silent())?
             }
         };
         let rows = assignment.test_rows(repeat, fold);
@@ -232,7 +236,7 @@ pub fn cross_predict(
             let positive = dataset.schema.target.positive_index();
             let inner = inner_assignment(assignment, repeat, fold, &dataset.target, k, 17);
             let plain = Candidate::new(candidates[c].name.clone(), candidates[c].params.clone());
-            let inner_predictions = cross_predict(dataset, &[plain], &inner, Some(&prior))?;
+            let inner_predictions = cross_predict(dataset, &[plain], &inner, Some(&prior), &Progress::silent())?;
             if let Some(failed) = &inner_predictions[0].failure {
                 return Err(crate::Error::FitFailed {
                     family: candidates[c].params.family().name().into(),
@@ -265,12 +269,17 @@ pub fn cross_predict(
         }
         Ok((c, repeat, rows, predictions, diagnostics.warnings))
     };
+    let fits = progress.counter("fits (families × folds)", Some((splits.len() * candidates.len()) as u64));
     let fitted: Vec<(usize, usize, usize, Result<FoldPrediction>)> = splits
         .iter()
         .flat_map(|&(repeat, fold)| {
             (0..candidates.len())
                 .into_par_iter()
-                .map(|c| (c, repeat, fold, fit_fold(c, repeat, fold)))
+                .map(|c| {
+                    let result = fit_fold(c, repeat, fold);
+                    fits.step();
+                    (c, repeat, fold, result)
+                })
                 .collect::<Vec<_>>()
         })
         .collect();

@@ -35,6 +35,7 @@ pub fn learning_curve(
     assignment: &Assignment,
     seed: u64,
     points: usize,
+    progress: &crate::progress::Progress,
 ) -> Vec<LearningPoint> {
     let n = dataset.rows();
     let k = dataset.schema.target.classes.len();
@@ -61,6 +62,7 @@ pub fn learning_curve(
     let labels: Vec<bool> = test.iter().map(|&r| dataset.target[r] as usize == positive).collect();
     let mut out = Vec::new();
     let tasks: Vec<(usize, usize)> = (0..candidates.len()).flat_map(|c| sizes.iter().map(move |&s| (c, s))).collect();
+    let fits = progress.counter("learning-curve fits", Some(tasks.len() as u64));
     let computed: Vec<LearningPoint> = tasks
         .par_iter()
         .map(|&(c, size)| {
@@ -72,7 +74,15 @@ pub fn learning_curve(
                 }
             }
             let used = weights.iter().filter(|&&w| w > 0.0).count();
-            match fit_weighted(dataset, &candidates[c].params, Some(&weights), None) {
+            let fitted = fit_weighted(
+                dataset,
+                &candidates[c].params,
+                Some(&weights),
+                None,
+                &crate::progress::Progress::silent(),
+            );
+            fits.step();
+            match fitted {
                 Ok((model, _)) => {
                     let lp = model.log_posteriors_of(&dataset.inputs(), &test, &dataset.schema.target.class_mix());
                     let lo: Vec<f64> = lp.rows().into_iter().map(|r| log_odds_of(&r.to_vec(), positive)).collect();

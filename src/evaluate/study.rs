@@ -99,6 +99,8 @@ pub struct ComparisonRequest {
     /// The most memory one candidate's fit may take, in bytes (`None`:
     /// half the machine's); a candidate estimated above it fails at once.
     pub memory_limit: Option<u64>,
+    /// Where the counts of finished fits go.
+    pub progress: crate::progress::Progress,
 }
 
 /// How external scores are written.
@@ -438,14 +440,19 @@ fn predictions_csv(dataset: &Dataset, predictions: &[Predictions], assignment: &
 }
 
 /// Penalised logistic candidates fitted on all rows, for their path charts.
-fn penalised_paths(dataset: &Dataset, candidates: &[Candidate], notes: &mut Vec<String>) -> Vec<PenalisedPath> {
+fn penalised_paths(
+    dataset: &Dataset,
+    candidates: &[Candidate],
+    notes: &mut Vec<String>,
+    progress: &crate::progress::Progress,
+) -> Vec<PenalisedPath> {
     let mut paths = Vec::new();
     for candidate in candidates {
         let FamilyParams::Logistic(p) = &candidate.params else { continue };
         if p.penalty == Penalty::None {
             continue;
         }
-        match crate::model::fit(dataset, &candidate.params) {
+        match crate::model::fit_weighted(dataset, &candidate.params, dataset.weights.as_deref(), None, progress) {
             Ok((FittedModel::Logistic(m), _)) => {
                 if let Some(record) = m.penalty {
                     paths.push((candidate.name.clone(), m.encoding.terms(), record));
@@ -487,7 +494,7 @@ pub fn compare_families(mut dataset: Dataset, request: &ComparisonRequest) -> Re
         }
     }
     let (predictions, failed_in_folds): (Vec<Predictions>, Vec<Predictions>) =
-        cross_predict(&dataset, &runnable, &assignment, target_prior.as_deref())?
+        cross_predict(&dataset, &runnable, &assignment, target_prior.as_deref(), &request.progress)?
             .into_iter()
             .partition(|p| p.failure.is_none());
     failed.extend(
@@ -509,7 +516,7 @@ pub fn compare_families(mut dataset: Dataset, request: &ComparisonRequest) -> Re
     let amounts = options.amount.as_deref().map(|c| amounts(&dataset, c)).transpose()?;
     let segments = options.by.as_deref().map(|c| segments(&dataset, c)).transpose()?;
     let learning = if request.learning_curve {
-        learning_curve(&dataset, candidates, &assignment, options.seed, LEARNING_CURVE_POINTS)
+        learning_curve(&dataset, candidates, &assignment, options.seed, LEARNING_CURVE_POINTS, &request.progress)
     } else {
         Vec::new()
     };
@@ -519,8 +526,11 @@ pub fn compare_families(mut dataset: Dataset, request: &ComparisonRequest) -> Re
     let multiclass_figures = if k > 2 { multiclass(&predictions, &dataset) } else { Vec::new() };
     let scores: Vec<TestedScore> = predictions.iter().map(|p| TestedScore::from_predictions(p, positive)).collect();
     let mut notes = Vec::new();
-    let penalised =
-        if request.penalised_paths { penalised_paths(&dataset, candidates, &mut notes) } else { Vec::new() };
+    let penalised = if request.penalised_paths {
+        penalised_paths(&dataset, candidates, &mut notes, &request.progress)
+    } else {
+        Vec::new()
+    };
     // What the evaluation does not need is freed first: the inputs matrix
     // and the full posterior tables (the scores keep the log odds).
     drop(predictions);

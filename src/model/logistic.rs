@@ -534,6 +534,7 @@ pub fn fit(
     params: &LogisticParams,
     row_weights: Option<&[f64]>,
     start: Option<&LogisticModel>,
+    progress: &crate::progress::Progress,
 ) -> Result<(LogisticModel, Diagnostics)> {
     let weights = row_weights;
     let schema = &dataset.schema;
@@ -597,7 +598,8 @@ pub fn fit(
             // In gradient units: the largest coordinate step times its curvature.
             tolerance: params.tolerance / 100.0,
         };
-        let fitted = crate::model::penalised::fit(dataset, &encoding, reference, &weights, params.penalty, &settings)?;
+        let fitted =
+            crate::model::penalised::fit(dataset, &encoding, reference, &weights, params.penalty, &settings, progress)?;
         let order: Vec<usize> = (0..k).filter(|&c| c != reference).collect();
         let coefficients = order
             .iter()
@@ -760,6 +762,7 @@ pub fn fit(
             break;
         }
         iterations += 1;
+        progress.report("Newton iterations", iterations as u64, None);
         // Newton system on F: (H/N + λI′)Δ = g/N − λβ′.
         let mut rhs = DVector::from_iterator(size, current.gradient.iter().map(|g| g / total_weight));
         for i in (0..size).filter(|i| i % width != 0) {
@@ -788,7 +791,7 @@ pub fn fit(
             // From a warm start the information can be singular because
             // the start already separates the rows; the fit from the usual
             // start tells collinearity from separation, as `fit` does.
-            Err(_) if iterations == 1 && start.is_some() => return fit(dataset, params, row_weights, None),
+            Err(_) if iterations == 1 && start.is_some() => return fit(dataset, params, row_weights, None, progress),
             Err(s) if iterations == 1 => {
                 return Err(Error::SingularCovariance {
                     family: "logistic".into(),

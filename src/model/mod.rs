@@ -36,6 +36,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::data::{Dataset, Inputs};
 use crate::error::{Error, Result, Setting};
+use crate::progress::Progress;
 
 /// The families, by their command-line names.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -252,7 +253,7 @@ pub fn posterior_column(class: &str) -> String {
 
 /// Fits a family on a dataset, with the dataset's own row weights.
 pub fn fit(dataset: &Dataset, params: &FamilyParams) -> Result<(FittedModel, Diagnostics)> {
-    fit_weighted(dataset, params, dataset.weights.as_deref(), None)
+    fit_weighted(dataset, params, dataset.weights.as_deref(), None, &Progress::silent())
 }
 
 /// What can be refused from the schema and the counts alone, before any
@@ -426,11 +427,14 @@ fn check_gaussian_scale(dataset: &Dataset, family: &str) -> Result<()> {
 /// a training fold (a weight of 0 leaves a row out exactly) — optionally
 /// starting from an earlier fit of the same family (used by logistic
 /// regression as a warm start; ignored by the closed-form families).
+/// Logistic regression reports its Newton iterations or its λ path to
+/// `progress`; the closed forms take one pass and report nothing.
 pub fn fit_weighted(
     dataset: &Dataset,
     params: &FamilyParams,
     weights: Option<&[f64]>,
     start: Option<&FittedModel>,
+    progress: &Progress,
 ) -> Result<(FittedModel, Diagnostics)> {
     params.check()?;
     check_before_fitting(dataset, params, weights)?;
@@ -440,7 +444,7 @@ pub fn fit_weighted(
                 Some(FittedModel::Logistic(m)) => Some(m),
                 _ => None,
             };
-            let (m, d) = logistic::fit(dataset, p, weights, start)?;
+            let (m, d) = logistic::fit(dataset, p, weights, start, progress)?;
             Ok((FittedModel::Logistic(m), d))
         }
         FamilyParams::NaiveBayes(p) => {

@@ -656,6 +656,7 @@ pub fn fit(
     v: &[f64],
     penalty: Penalty,
     settings: &PathSettings,
+    progress: &crate::progress::Progress,
 ) -> Result<PenalisedFit> {
     let failed = |message: String| Error::FitFailed { family: "logistic".into(), message: message.into() };
     let design = Design::new(dataset, encoding, reference);
@@ -710,6 +711,10 @@ pub fn fit(
     let mut solutions: Vec<Solution> = Vec::new();
     let mut cv: Vec<(f64, f64)> = Vec::new();
     let mut last_deviance = f64::INFINITY;
+    let points = progress.counter(
+        if fold_tasks.is_empty() { "λ path" } else { "λ path, with the cross-validation folds" },
+        Some(lambdas.len() as u64),
+    );
     for &lambda in &lambdas {
         let steps: Vec<(Solution, f64)> = walkers
             .par_iter_mut()
@@ -726,6 +731,7 @@ pub fn fit(
                 (solution, deviance)
             })
             .collect();
+        points.step();
         let mut steps = steps.into_iter();
         let Some((solution, training_deviance)) = steps.next() else { break };
         solutions.push(solution);

@@ -39,17 +39,19 @@ pub struct ShiftInput<'a> {
 pub const MIN_BOOTSTRAP: usize = 40;
 
 /// How the intervals are drawn.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone)]
 pub struct ShiftOptions {
     /// Bootstrap draws for the intervals.
     pub bootstrap: usize,
     /// Seed of the bootstrap (BBSE's draws use `seed + 1`).
     pub seed: u64,
+    /// Where the count of bootstrap draws goes.
+    pub progress: crate::progress::Progress,
 }
 
 impl Default for ShiftOptions {
     fn default() -> Self {
-        ShiftOptions { bootstrap: 200, seed: 1 }
+        ShiftOptions { bootstrap: 200, seed: 1, progress: crate::progress::Progress::silent() }
     }
 }
 
@@ -198,7 +200,9 @@ fn estimate(input: &ShiftInput<'_>, options: &ShiftOptions) -> Result<ShiftEstim
         ]));
     }
     let em = em_probabilities(posteriors, k, training, None, EM_TOLERANCE, None);
+    let draws = options.progress.counter("bootstrap draws (EM)", Some(options.bootstrap as u64));
     let em_ci = bootstrap_interval(n, k, options.bootstrap, options.seed, |rows| {
+        draws.step();
         Some(em_probabilities(posteriors, k, training, Some(rows), 1e-8, Some(&em.prior)).prior)
     });
     let interval =
@@ -226,7 +230,9 @@ fn estimate(input: &ShiftInput<'_>, options: &ShiftOptions) -> Result<ShiftEstim
     let mut bbse_note = String::new();
     if let Some(c) = input.confusion {
         if let Some(b) = bbse(c, &predicted_mix(&all), training) {
+            let draws = options.progress.counter("bootstrap draws (BBSE)", Some(options.bootstrap as u64));
             let ci = bootstrap_interval(n, k, options.bootstrap, options.seed + 1, |rows| {
+                draws.step();
                 bbse(c, &predicted_mix(rows), training).map(|e| e.prior)
             });
             if b.condition_number > ILL_CONDITIONED {

@@ -59,6 +59,9 @@ pub struct TrainRequest {
     /// The most memory the fit may take, in bytes (`None`: half the
     /// machine's); a fit estimated above it is refused before it starts.
     pub memory_limit: Option<u64>,
+    /// Where the counts of finished work go (Newton iterations or λ path
+    /// points, then the out-of-fold fits).
+    pub progress: crate::progress::Progress,
 }
 
 impl TrainRequest {
@@ -72,6 +75,7 @@ impl TrainRequest {
             seed: 1,
             source: TrainingSource::default(),
             memory_limit: None,
+            progress: crate::progress::Progress::silent(),
         }
     }
 }
@@ -127,7 +131,8 @@ pub fn train(dataset: &Dataset, request: &TrainRequest) -> Result<ModelFile> {
         return Err(Error::Usage("calibration is for two classes".into()));
     }
     crate::model::check_memory(dataset, params, request.memory_limit)?;
-    let (model, mut diagnostics) = crate::model::fit(dataset, params)?;
+    let (model, mut diagnostics) =
+        crate::model::fit_weighted(dataset, params, dataset.weights.as_deref(), None, &request.progress)?;
     let training_class_mix = match &model {
         FittedModel::Logistic(m) => m.class_mix.clone(),
         _ => target.class_mix(),
@@ -175,7 +180,7 @@ pub fn train(dataset: &Dataset, request: &TrainRequest) -> Result<ModelFile> {
         },
         _ => params.clone(),
     };
-    match held_out_summary(dataset, &fold_params, draft.calibrated_to(), request.seed)? {
+    match held_out_summary(dataset, &fold_params, draft.calibrated_to(), request.seed, &request.progress)? {
         Some((held_out, log_odds)) => {
             if let Some(method) = request.calibration {
                 let labels: Vec<bool> = dataset.target.iter().map(|&y| y as usize == target.positive_index()).collect();
@@ -212,11 +217,12 @@ fn held_out_summary(
     params: &FamilyParams,
     prior: &[f64],
     seed: u64,
+    progress: &crate::progress::Progress,
 ) -> Result<Option<(HeldOut, Vec<f64>)>> {
     let k = dataset.schema.target.classes.len();
     let assignment = assign(&SplitPlan::KFold { folds: HELD_OUT_FOLDS, repeats: 1 }, &dataset.target, k, seed)?;
     let candidate = Candidate::new("held-out", params.clone());
-    let predictions = match cross_predict(dataset, &[candidate], &assignment, Some(prior)) {
+    let predictions = match cross_predict(dataset, &[candidate], &assignment, Some(prior), progress) {
         Ok(p) if p[0].failure.is_none() => p,
         _ => return Ok(None),
     };
