@@ -45,7 +45,8 @@ fn main() {
     let params = LogisticParams {
         penalty: Penalty::Lasso,
         lambda: LambdaChoice::Auto,
-        path_length: 100,
+        path_length: Some(100),
+        lambda_floor: Some(1e-4),
         cv_folds: 5,
         ..LogisticParams::default()
     };

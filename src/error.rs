@@ -70,6 +70,8 @@ pub enum Setting {
     Lambda,
     /// Points on the λ path (`LogisticParams::path_length`).
     PathLength,
+    /// The path's last λ as a share of λ_max (`LogisticParams::lambda_floor`).
+    LambdaFloor,
     /// Folds of the λ cross-validation (`LogisticParams::cv_folds`).
     CvFolds,
     /// Naive Bayes additive smoothing (`NaiveBayesParams::smoothing`).
@@ -164,6 +166,7 @@ impl Setting {
             Setting::Mixing => "mixing",
             Setting::Lambda => "lambda",
             Setting::PathLength => "path_length",
+            Setting::LambdaFloor => "lambda_floor",
             Setting::CvFolds => "cv_folds",
             Setting::Smoothing => "smoothing",
             Setting::VarianceFloor => "variance_floor",

@@ -107,7 +107,7 @@ fn kkt_conditions_hold_at_every_lambda_of_the_path() {
     let (columns, labels) = standardised(&data);
     for (penalty, mixing) in [(Penalty::Lasso, None), (Penalty::ElasticNet, Some(0.5)), (Penalty::Ridge, None)] {
         let model =
-            logistic(&data, LogisticParams { path_length: 40, ..penalised(penalty, mixing, LambdaChoice::Auto) });
+            logistic(&data, LogisticParams { path_length: Some(40), ..penalised(penalty, mixing, LambdaChoice::Auto) });
         let record = model.penalty.as_ref().expect("a penalised fit");
         let alpha = record.mixing;
         // The walk may stop early (the deviance settled, or the
@@ -134,7 +134,7 @@ fn kkt_conditions_hold_at_every_lambda_of_the_path() {
 fn lambda_max_is_where_the_first_slope_enters() {
     let data = breast_cancer();
     let auto =
-        logistic(&data, LogisticParams { path_length: 5, ..penalised(Penalty::Lasso, None, LambdaChoice::Auto) });
+        logistic(&data, LogisticParams { path_length: Some(5), ..penalised(Penalty::Lasso, None, LambdaChoice::Auto) });
     let lambda_max = auto.penalty.as_ref().expect("record").lambda_max;
     let at = logistic(&data, penalised(Penalty::Lasso, None, LambdaChoice::Value(lambda_max)));
     assert!(at.coefficients[0].slopes.iter().all(|b| *b == 0.0));
@@ -251,8 +251,10 @@ fn multinomial_kkt_conditions_hold() {
     let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/data/wine.csv");
     let data = Dataset::read(&path, &ReadOptions::new("target")).expect("read").0;
     let (columns, _) = standardised(&data);
-    let model =
-        logistic(&data, LogisticParams { path_length: 20, ..penalised(Penalty::Lasso, None, LambdaChoice::Auto) });
+    let model = logistic(
+        &data,
+        LogisticParams { path_length: Some(20), ..penalised(Penalty::Lasso, None, LambdaChoice::Auto) },
+    );
     let record = model.penalty.as_ref().expect("record");
     assert!((10..=20).contains(&record.path.len()), "{}", record.path.len());
     let classes = data.schema.target.classes.len();

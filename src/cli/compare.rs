@@ -17,6 +17,7 @@ use baserate::data::Dataset;
 use baserate::error::Error;
 use baserate::evaluate::compare::{compare_families, ComparisonRequest, SplitChoice, StudyOptions};
 use baserate::evaluate::study::Study;
+use baserate::report::header::ReportHeader;
 use baserate::report::study::{compared_data_description, study_html, study_screen};
 
 /// Arguments of `compare`.
@@ -118,14 +119,14 @@ impl EvaluationArgs {
 
     /// Writes the JSON and HTML outputs asked for, then prints the screen
     /// unless the JSON went to stdout; true when the screen was printed.
-    pub fn write_outputs(&self, study: &Study, description: &str) -> Result<bool, Failure> {
+    pub fn write_outputs(&self, study: &Study, description: &str, header: &ReportHeader) -> Result<bool, Failure> {
         if let Some(path) = &self.json {
             let text = serde_json::to_string_pretty(&study.json(&crate::cli::flag)?)
                 .map_err(|e| Error::Usage(e.to_string()))?;
             write_atomic(path, format!("{text}\n").as_bytes())?;
         }
         if let Some(path) = &self.report {
-            write_atomic(path, study_html(study, &crate::cli::flag, description).as_bytes())?;
+            write_atomic(path, study_html(study, &crate::cli::flag, description, header).as_bytes())?;
         }
         if self.json.as_deref().is_some_and(|p| p.as_os_str() == "-") {
             return Ok(false);
@@ -214,6 +215,21 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         memory_limit: args.memory.memory_limit,
         progress: bar.sink(),
     };
+    // The report's header hashes the inputs before the work, so it names
+    // the bytes that were read.
+    let header = match &args.evaluation.report {
+        Some(_) => {
+            let inputs: Vec<&std::path::Path> =
+                [Some(args.data.as_path()), args.holdout.as_deref(), args.evaluation.costs.as_deref()]
+                    .into_iter()
+                    .flatten()
+                    .collect();
+            let mut header = ReportHeader::new(&std::env::args().collect::<Vec<_>>(), &inputs, request.settings())?;
+            header.warnings = notices.iter().map(|n| n.describe(&crate::cli::flag)).collect();
+            header
+        }
+        None => ReportHeader::default(),
+    };
     let study = compare_families(dataset, &request);
     drop(bar);
     let study = study?;
@@ -223,7 +239,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     if let (Some(path), Some(bytes)) = (&args.predictions, &study.predictions_csv) {
         write_atomic(path, bytes)?;
     }
-    let printed = args.evaluation.write_outputs(&study, &description)?;
+    let printed = args.evaluation.write_outputs(&study, &description, &header)?;
     if let (true, Some(path)) = (printed, &args.evaluation.report) {
         println!("report written to {}", path.display());
     }

@@ -180,9 +180,17 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         let description = compared_data_description(&path.display().to_string(), dataset);
         // A small --rows can leave too few events for every family: say so
         // and go on with the rest of the demo.
+        let costs = request.options.costs.clone();
+        let inputs: Vec<&std::path::Path> = std::iter::once(path.as_path()).chain(costs.as_deref()).collect();
+        let mut header = baserate::report::header::ReportHeader::new(
+            &std::env::args().collect::<Vec<_>>(),
+            &inputs,
+            request.settings(),
+        )?;
+        header.warnings = notices.iter().map(|n| n.describe(&crate::cli::flag)).collect();
         match compare_families(dataset.clone(), &request) {
             Ok(study) => {
-                write_atomic(report, study_html(&study, &crate::cli::flag, &description).as_bytes())?;
+                write_atomic(report, study_html(&study, &crate::cli::flag, &description, &header).as_bytes())?;
                 print!("{}", study_screen(&study, &crate::cli::flag, false));
             }
             Err(e) => println!("comparison skipped: {}\n", wrap(&crate::cli::error_text(&e), 100, 2)),

@@ -59,9 +59,15 @@ pub struct FamilyOptions {
     /// logistic: λ of the penalty, or `auto` (K-fold cross-validated deviance) [default: auto].
     #[arg(long, value_name = "VALUE|auto")]
     pub lambda: Option<String>,
-    /// logistic: points on the λ path [default: 100].
+    /// logistic: points on the λ path [default: ten to a decade of λ down to the floor].
     #[arg(long, value_name = "N")]
     pub path_length: Option<usize>,
+    /// logistic: the path's last λ as a share of λ_max [default: 1e-2 with more rows than columns, else 1e-1].
+    #[arg(long, value_name = "R")]
+    pub lambda_floor: Option<f64>,
+    /// logistic: walk the whole λ path instead of stopping once the choice of λ is settled.
+    #[arg(long)]
+    pub full_path: bool,
     /// logistic: which cross-validated λ: sparsest-within-se (largest within one standard error of the minimum) or lowest-deviance [default: sparsest-within-se].
     #[arg(long, value_name = "RULE")]
     pub lambda_rule: Option<String>,
@@ -107,6 +113,8 @@ impl FamilyOptions {
             ("--mixing", self.mixing.is_some()),
             ("--lambda", self.lambda.is_some()),
             ("--path-length", self.path_length.is_some()),
+            ("--lambda-floor", self.lambda_floor.is_some()),
+            ("--full-path", self.full_path),
             ("--lambda-rule", self.lambda_rule.is_some()),
             ("--cv-folds", self.cv_folds.is_some()),
         ];
@@ -150,6 +158,10 @@ impl FamilyOptions {
                     ("--mixing", self.mixing.is_some()),
                     ("--lambda", self.lambda.is_some()),
                     ("--path-length", self.path_length.is_some()),
+                    ("--lambda-floor", self.lambda_floor.is_some()),
+                    ("--full-path", self.full_path),
+                    ("--lambda-floor", self.lambda_floor.is_some()),
+                    ("--full-path", self.full_path),
                     ("--lambda-rule", self.lambda_rule.is_some()),
                     ("--cv-folds", self.cv_folds.is_some()),
                 ];
@@ -191,7 +203,9 @@ impl FamilyOptions {
                     penalty,
                     mixing: self.mixing,
                     lambda,
-                    path_length: self.path_length.unwrap_or(defaults.path_length),
+                    path_length: self.path_length.or(defaults.path_length),
+                    lambda_floor: self.lambda_floor,
+                    full_path: self.full_path,
                     lambda_rule,
                     cv_folds: self.cv_folds.unwrap_or(defaults.cv_folds),
                     cv_seed: defaults.cv_seed,
@@ -282,6 +296,16 @@ pub fn parse_candidate(spec: &str) -> baserate::Result<Candidate> {
             "mixing" => options.mixing = Some(number(value)?),
             "lambda" => options.lambda = Some(value.to_string()),
             "path-length" => options.path_length = Some(count(value)?),
+            "lambda-floor" => options.lambda_floor = Some(number(value)?),
+            "full-path" => {
+                options.full_path = match value {
+                    "yes" | "true" => true,
+                    "no" | "false" => false,
+                    _ => {
+                        return Err(Error::Usage(format!("--family {spec}: full-path takes yes or no; got '{value}'")))
+                    }
+                }
+            }
             "lambda-rule" => options.lambda_rule = Some(value.to_string()),
             "cv-folds" => options.cv_folds = Some(count(value)?),
             "smoothing" => options.smoothing = Some(number(value)?),

@@ -70,7 +70,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let mut options = args.data_args.to_options()?;
     options.score_columns = args.scores.clone();
     options.scores_are_probabilities = args.score_type == ScoreTypeArg::Probability;
-    let (dataset, _) = Dataset::read(&args.data, &options)?;
+    let (dataset, notices) = Dataset::read(&args.data, &options)?;
     let request = JudgeRequest {
         scores: args.scores.clone(),
         scale: match args.score_type {
@@ -84,6 +84,24 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     };
     let study = judge_scores(&dataset, &request)?;
     let description = format!("{}: {} rows; scores {}", args.data.display(), dataset.rows(), args.scores.join(", "));
-    args.evaluation.write_outputs(&study, &description)?;
+    let header = match &args.evaluation.report {
+        Some(_) => {
+            let inputs: Vec<&std::path::Path> =
+                [Some(args.data.as_path()), args.evaluation.costs.as_deref()].into_iter().flatten().collect();
+            let mut settings = vec![
+                ("scores".to_string(), request.scores.join(", ")),
+                ("score scale".to_string(), format!("{:?}", request.scale)),
+                ("lower scores mean positive".to_string(), request.lower_positive.to_string()),
+                ("train prior".to_string(), request.train_prior.map_or_else(|| "none".into(), |p| p.to_string())),
+            ];
+            settings.extend(request.options.settings());
+            let mut header =
+                baserate::report::header::ReportHeader::new(&std::env::args().collect::<Vec<_>>(), &inputs, settings)?;
+            header.warnings = notices.iter().map(|n| n.describe(&crate::cli::flag)).collect();
+            header
+        }
+        None => baserate::report::header::ReportHeader::default(),
+    };
+    args.evaluation.write_outputs(&study, &description, &header)?;
     Ok(ExitCode::SUCCESS)
 }

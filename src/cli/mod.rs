@@ -129,6 +129,7 @@ pub fn flag(setting: Setting, value: Option<&str>) -> String {
         Setting::Mixing => "--mixing",
         Setting::Lambda => "--lambda",
         Setting::PathLength => "--path-length",
+        Setting::LambdaFloor => "--lambda-floor",
         Setting::CvFolds => "--cv-folds",
         Setting::Smoothing => "--smoothing",
         Setting::VarianceFloor => "--variance-floor",

@@ -38,6 +38,16 @@ pub struct CostFigures {
     pub best_cutoff_on_holdout: Option<f64>,
     /// The decisions at a ladder of posterior cutoffs.
     pub cutoff_table: Vec<CutoffRow>,
+    /// The action rows below a cutoff take (the one that costs least for a
+    /// negative row), when every row agrees on it; the cutoff table's
+    /// labels use its name.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub below_cutoff_action: Option<String>,
+    /// Per tested row (the order of the score's first repeat): the decision
+    /// is not the action that costs least for a negative row. Segment flag
+    /// rates use it when costs are given.
+    #[serde(skip)]
+    pub flagged: Vec<bool>,
 }
 
 /// One line of the cutoff table. At cutoff t a row whose posterior of the
@@ -152,6 +162,12 @@ pub fn cost_figures(
                     .min_by(|&a, &b| cost_of(a, class, r).total_cmp(&cost_of(b, class, r)))
                     .unwrap_or(0)
             };
+            let pass: Vec<usize> = rows.iter().map(|&r| cheapest_for(1 - positive, r)).collect();
+            let flagged: Vec<bool> = decisions.action.iter().zip(&pass).map(|(a, p)| a != p).collect();
+            let below_cutoff_action = match pass.first() {
+                Some(&first) if pass.iter().all(|&p| p == first) => Some(spec.actions[first].name.clone()),
+                _ => None,
+            };
             let mut cutoffs: Vec<f64> = CUTOFF_LADDER.to_vec();
             cutoffs.extend(theoretical.as_ref().map(|(_, c)| *c));
             cutoffs.extend(best);
@@ -193,6 +209,8 @@ pub fn cost_figures(
                 theoretical_cutoff: theoretical.map(|(_, c)| c),
                 best_cutoff_on_holdout: best,
                 cutoff_table,
+                below_cutoff_action,
+                flagged,
             }
         })
         .collect()

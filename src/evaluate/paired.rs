@@ -183,6 +183,9 @@ pub struct Evaluation {
     pub caution: String,
 }
 
+/// The segment table's flag rule without costs.
+pub const FLAG_AT_HALF: &str = "posterior of the positive class at least 0.5";
+
 /// Figures of one result in one segment.
 #[derive(Debug, Clone, Serialize)]
 pub struct SegmentEntry {
@@ -200,6 +203,8 @@ pub struct SegmentEntry {
     pub auc: Option<f64>,
     /// Share of rows flagged at the 0.5 rule.
     pub flag_rate: f64,
+    /// What counts as flagged: the 0.5 rule, or with costs the decisions.
+    pub flag_rule: String,
     /// Mean predicted probability.
     pub mean_predicted: f64,
 }
@@ -365,6 +370,7 @@ pub fn evaluate(scores: &[TestedScore], options: &EvaluationOptions<'_>) -> Eval
                     base_rate: events / total,
                     auc,
                     flag_rate: flagged / total,
+                    flag_rule: FLAG_AT_HALF.to_string(),
                     mean_predicted: mean,
                 });
             }

@@ -347,6 +347,28 @@ fn apply_costs(
 ) {
     let value = |c: &str, r: usize| inputs.columns.iter().find(|(n, _)| n == c).map_or(0.0, |(_, v)| v[r]);
     let figures: Vec<CostFigures> = cost_figures(scores, options, &inputs.spec, &value, fold_of);
+    // With costs, a segment's flag rate is the share its decisions flag
+    // (any action but the one that costs least for a negative row).
+    if let Some((_, values)) = options.segments {
+        for (f, s) in figures.iter().zip(scores) {
+            let rows = &s.rows[0];
+            let w = |i: usize| options.weights.map_or(1.0, |w| w[rows[i]]);
+            for entry in evaluation.segments.iter_mut().filter(|e| e.name == f.name) {
+                let (mut total, mut flagged) = (0.0, 0.0);
+                for i in (0..rows.len()).filter(|&i| values[rows[i]] == entry.segment) {
+                    total += w(i);
+                    if f.flagged.get(i).copied().unwrap_or(false) {
+                        flagged += w(i);
+                    }
+                }
+                entry.flag_rate = if total > 0.0 { flagged / total } else { 0.0 };
+                entry.flag_rule = match &f.below_cutoff_action {
+                    Some(pass) => format!("the decisions under the costs: any action but {pass}"),
+                    None => "the decisions under the costs: any action but the cheapest for a negative row".into(),
+                };
+            }
+        }
+    }
     for f in &figures {
         if let Some(r) = evaluation.results.iter_mut().find(|r| r.name == f.name) {
             if let (Some(object), Ok(serde_json::Value::Object(extra))) =

@@ -93,9 +93,17 @@ pub struct LogisticParams {
     /// λ, or `auto` (cross-validated).
     #[serde(default = "auto_lambda")]
     pub lambda: LambdaChoice,
-    /// Points on the λ path.
-    #[serde(default = "default_path_length")]
-    pub path_length: usize,
+    /// Points on the λ path; `None`: ten to a decade of λ down to the floor
+    /// ([`crate::model::penalised::default_path_length`]).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub path_length: Option<usize>,
+    /// The path's last λ as a share of λ_max; `None` takes the default for
+    /// the data's shape ([`crate::model::penalised::default_floor`]).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub lambda_floor: Option<f64>,
+    /// Walk the whole path: no early stop (`--full-path`).
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub full_path: bool,
     /// Which cross-validated λ: sparsest-within-se or min.
     #[serde(default)]
     pub lambda_rule: LambdaRule,
@@ -114,9 +122,6 @@ pub struct LogisticParams {
 fn auto_lambda() -> LambdaChoice {
     LambdaChoice::Auto
 }
-fn default_path_length() -> usize {
-    100
-}
 fn default_cv_folds() -> usize {
     5
 }
@@ -134,7 +139,9 @@ impl Default for LogisticParams {
             penalty: Penalty::None,
             mixing: None,
             lambda: auto_lambda(),
-            path_length: default_path_length(),
+            path_length: None,
+            lambda_floor: None,
+            full_path: false,
             lambda_rule: LambdaRule::SparsestWithinSe,
             cv_folds: default_cv_folds(),
             cv_seed: default_cv_seed(),
@@ -592,6 +599,8 @@ pub fn fit(
             mixing: params.penalty.mixing(params.mixing),
             lambda: params.lambda,
             path_length: params.path_length,
+            floor: params.lambda_floor,
+            stop_early: !params.full_path,
             folds: params.cv_folds,
             rule: params.lambda_rule,
             seed: params.cv_seed,

@@ -127,8 +127,13 @@ impl FamilyParams {
                         return bad(Setting::Mixing, " must lie strictly between 0 and 1 (ridge is 0, lasso is 1)");
                     }
                 }
-                if p.path_length == 0 || p.path_length > 10_000 {
+                if p.path_length.is_some_and(|n| n == 0 || n > 10_000) {
                     return bad(Setting::PathLength, " must be between 1 and 10000");
+                }
+                if let Some(floor) = p.lambda_floor {
+                    if !(floor > 0.0 && floor < 1.0) {
+                        return bad(Setting::LambdaFloor, " must lie strictly between 0 and 1 (a share of λ_max)");
+                    }
                 }
                 if p.cv_folds < 2 {
                     return bad(Setting::CvFolds, " must be at least 2");

@@ -23,9 +23,12 @@
 //! confirm; the standardisation is applied on the fly to the raw columns,
 //! so each fold of a cross-validation standardises by its own rows. λ_max
 //! = maxⱼ |(1/N)Σ vᵢ x̃ᵢⱼ(yᵢ − ȳ)|/α is the smallest λ at which every slope
-//! is zero (α floored at 0.001 for ridge, as Friedman et al. do); the path
-//! runs from it down to ε·λ_max on a log scale (ε = 1e-4 when rows exceed
-//! columns, else 1e-2).
+//! is zero; with α below 0.1 (ridge above all, where no λ zeroes a slope)
+//! the path starts at that of α = 0.1, ten times the lasso's λ_max, where
+//! every standardised slope is already small (our rule: a start at
+//! α = 0.001 spends three decades of the path on slopes near zero); the path
+//! runs from it down to ε·λ_max on a log scale ([`default_floor`]), and the
+//! walk stops early by [`path_settled`].
 
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
@@ -114,8 +117,13 @@ pub struct PathSettings {
     pub mixing: f64,
     /// λ as given, or chosen.
     pub lambda: LambdaChoice,
-    /// Points on the path.
-    pub path_length: usize,
+    /// Points on the path (`None`: [`default_path_length`]).
+    pub path_length: Option<usize>,
+    /// The last λ as a share of λ_max (`None`: [`default_floor`]).
+    pub floor: Option<f64>,
+    /// Stop the walk once the rest of the path cannot change the choice
+    /// (the module's stopping rule); `false` walks every point.
+    pub stop_early: bool,
     /// Folds for the choice of λ.
     pub folds: usize,
     /// The rule.
@@ -165,7 +173,8 @@ pub struct PenaltyFit {
     /// The largest λ within one standard error of it.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub lambda_sparsest_within_se: Option<f64>,
-    /// The smallest λ with every slope zero.
+    /// The path's first λ: the smallest with every slope zero, or with α
+    /// below 0.1 (ridge) that of α = 0.1.
     pub lambda_max: f64,
     /// Folds used to choose λ (0 when it was given).
     pub folds: usize,
@@ -375,10 +384,11 @@ impl<'a> Scaled<'a> {
         loss + lambda * (alpha * l1 + 0.5 * (1.0 - alpha) * l2)
     }
 
-    /// λ_max: the smallest λ at which every slope is zero.
+    /// λ_max: the smallest λ at which every slope is zero, or with α below
+    /// 0.1 that of α = 0.1 (the module's rule).
     pub(crate) fn lambda_max(&self, alpha: f64) -> f64 {
         let (slopes, _) = self.gradient(&self.null_solution());
-        slopes.iter().fold(0.0f64, |m, g| m.max(g.abs())) / alpha.max(1e-3)
+        slopes.iter().fold(0.0f64, |m, g| m.max(g.abs())) / alpha.max(0.1)
     }
 
     /// Minimises the objective at `lambda`, starting from `start`, over the
@@ -590,6 +600,55 @@ fn intercept_step(intercept: &mut f64, eta_c: &mut [f64], w: &[f64], wr: &mut [f
     }
 }
 
+/// Points to a decade of λ by default. With [`default_floor`], chosen on
+/// the benchmark datasets by `benches/lambda_defaults.rs`: the sparsest
+/// density at which it and every denser one tried keep the chosen λ and
+/// its cross-validated deviance within one standard error of a 600-point
+/// path's, on every dataset, penalty and rule, at every floor tried.
+pub const DEFAULT_POINTS_PER_DECADE: usize = 10;
+
+/// The default length of a path down to `floor`·λ_max: ten points to a
+/// decade, and λ_max itself.
+pub fn default_path_length(floor: f64) -> usize {
+    (DEFAULT_POINTS_PER_DECADE as f64 * -floor.log10()).round().max(1.0) as usize + 1
+}
+
+/// The path's default last λ as a share of λ_max: 1e-2 with more rows
+/// than design columns, 1e-1 otherwise; the highest floors that passed
+/// the test of [`DEFAULT_POINTS_PER_DECADE`] on the benchmark datasets.
+pub fn default_floor(rows: usize, width: usize) -> f64 {
+    if rows > width {
+        1e-2
+    } else {
+        1e-1
+    }
+}
+
+/// Our stopping rule, in decades of λ so that it means the same at any
+/// density of the path. Given the path so far (λ, training deviance, and
+/// the cross-validated deviance with its standard error), the walk stops
+/// once a whole decade of λ has passed (the current λ at most a tenth of
+/// an earlier one) and either
+/// - every point of that last decade lies above the lowest cross-validated
+///   deviance plus its standard error: neither rule's choice can move back
+///   unless the held-out deviance turns down again after a decade of rising;
+/// - or the training deviance fell by less than 1e-4 of the null deviance
+///   over that decade: the fits have stopped changing, so the held-out
+///   deviance has too.
+pub(crate) fn path_settled(lambdas: &[f64], training: &[f64], cv: &[(f64, f64)]) -> bool {
+    let (Some(&current), Some(&null)) = (lambdas.last(), training.first()) else { return false };
+    let last = lambdas.len() - 1;
+    // The latest point at least a decade above the current λ.
+    let Some(decade_start) = (0..last).rev().find(|&l| lambdas[l] >= 10.0 * current) else { return false };
+    let flat = training[decade_start] - training[last] < 1e-4 * null;
+    let rising = !cv.is_empty() && {
+        let best = (0..cv.len()).min_by(|&a, &b| cv[a].0.total_cmp(&cv[b].0)).unwrap_or(0);
+        let bound = cv[best].0 + cv[best].1;
+        best < decade_start && cv[decade_start..=last].iter().all(|c| c.0 > bound)
+    };
+    flat || rising
+}
+
 /// The λ path: `length` values from `lambda_max` down to `ratio`·λ_max on
 /// a log scale.
 pub(crate) fn lambda_path(lambda_max: f64, ratio: f64, length: usize) -> Vec<f64> {
@@ -663,24 +722,27 @@ pub fn fit(
     let scaled = Scaled::new(&design, v).map_err(failed)?;
     let alpha = settings.mixing;
     let lambda_max = scaled.lambda_max(alpha);
-    let ratio = if design.rows > design.width { 1e-4 } else { 1e-2 };
+    let ratio = settings.floor.unwrap_or_else(|| default_floor(design.rows, design.width));
     let lambdas = match settings.lambda {
         LambdaChoice::Value(lambda) if lambda >= lambda_max => vec![lambda],
         LambdaChoice::Value(lambda) => {
-            let mut path = lambda_path(lambda_max, lambda / lambda_max, settings.path_length.max(2));
+            let mut path = lambda_path(
+                lambda_max,
+                lambda / lambda_max,
+                settings.path_length.unwrap_or(DEFAULT_POINTS_PER_DECADE + 1).max(2),
+            );
             if let Some(last) = path.last_mut() {
                 *last = lambda;
             }
             path
         }
-        LambdaChoice::Auto => lambda_path(lambda_max, ratio, settings.path_length),
+        LambdaChoice::Auto => {
+            lambda_path(lambda_max, ratio, settings.path_length.unwrap_or_else(|| default_path_length(ratio)))
+        }
     };
     // Per λ: the fit on every row and, with `auto`, the fits of the folds,
-    // walked down the path together so the walk can stop early: once the
-    // training deviance changes by less than 1e-5 of itself from one λ to
-    // the next (Friedman et al.'s rule), or once the cross-validated
-    // deviance has stayed above its minimum plus one standard error for ten
-    // λ in a row (past there the path only fits noise, at the most cost).
+    // walked down the path together so the walk can stop early by the
+    // module's stopping rule ([`path_settled`]).
     let mut folds_used = 0;
     let mut fold_tasks: Vec<(Scaled<'_>, Vec<f64>)> = Vec::new();
     if settings.lambda == LambdaChoice::Auto {
@@ -710,7 +772,7 @@ pub fn fit(
     let everything: Vec<f64> = scaled.weights.clone();
     let mut solutions: Vec<Solution> = Vec::new();
     let mut cv: Vec<(f64, f64)> = Vec::new();
-    let mut last_deviance = f64::INFINITY;
+    let mut training: Vec<f64> = Vec::new();
     let points = progress.counter(
         if fold_tasks.is_empty() { "λ path" } else { "λ path, with the cross-validation folds" },
         Some(lambdas.len() as u64),
@@ -745,12 +807,8 @@ pub fn fit(
         if fold_tasks.is_empty() {
             continue;
         }
-        let settled = solutions.len() >= 5 && (last_deviance - training_deviance).abs() < 1e-5 * training_deviance;
-        last_deviance = training_deviance;
-        let best = (0..cv.len()).min_by(|&a, &b| cv[a].0.total_cmp(&cv[b].0)).unwrap_or(0);
-        let rising =
-            cv.len() >= best + 11 && cv[best + 1..].iter().rev().take(10).all(|c| c.0 > cv[best].0 + cv[best].1);
-        if settled || rising {
+        training.push(training_deviance);
+        if settings.stop_early && path_settled(&lambdas[..training.len()], &training, &cv) {
             break;
         }
     }

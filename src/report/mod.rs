@@ -4,6 +4,7 @@
 
 pub mod describe;
 pub mod evaluation;
+pub mod header;
 pub mod model;
 pub mod score;
 pub mod shift;

@@ -7,7 +7,8 @@ use crate::data::Dataset;
 use crate::error::SettingNames;
 use crate::evaluate::cost_figures::CostFigures;
 use crate::evaluate::study::Study;
-use crate::report::evaluation::{evaluation_html, evaluation_screen, FailedRow};
+use crate::report::evaluation::{evaluation_html, evaluation_screen, FailedRow, ReportContext};
+use crate::report::header::ReportHeader;
 use crate::report::table::{Align, Table};
 
 /// The decisions table for the terminal.
@@ -49,11 +50,28 @@ pub fn study_screen(study: &Study, names: SettingNames<'_>, caution: bool) -> St
     evaluation_screen(&study.evaluation, study.reweighted_view(), &cost_table, &failed_rows(study, names), caution)
 }
 
-/// The study as a self-contained HTML page; `data_description` opens it.
-/// Failed candidates are listed under the results table.
-pub fn study_html(study: &Study, names: SettingNames<'_>, data_description: &str) -> String {
+/// The study as a self-contained HTML page: the governance `header`
+/// (given its warnings and the study's own notes and warnings here), then
+/// `data_description`. Failed candidates are listed in the header and under
+/// the results table.
+pub fn study_html(study: &Study, names: SettingNames<'_>, data_description: &str, header: &ReportHeader) -> String {
     let failed = failed_rows(study, names);
-    evaluation_html(&study.evaluation, &study.learning, &study.penalised, &failed, data_description)
+    let mut header = header.clone();
+    header.warnings.extend(study.notes.iter().cloned());
+    for r in &study.evaluation.results {
+        header.warnings.extend(r.warnings.iter().map(|w| format!("{}: {w}", r.name)));
+    }
+    evaluation_html(
+        &study.evaluation,
+        &ReportContext {
+            header: &header,
+            learning: &study.learning,
+            penalised: &study.penalised,
+            failed: &failed,
+            data_description,
+            classes: &study.classes,
+        },
+    )
 }
 
 fn failed_rows(study: &Study, names: SettingNames<'_>) -> Vec<FailedRow> {
