@@ -108,9 +108,15 @@ pub fn sha256_file(path: &Path) -> Result<String> {
 /// `SOURCE_DATE_EPOCH` environment variable, when set, fixes it (for
 /// reproducible outputs).
 pub fn utc_timestamp() -> String {
-    let seconds = std::env::var("SOURCE_DATE_EPOCH").ok().and_then(|v| v.parse::<i64>().ok()).unwrap_or_else(|| {
-        std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map_or(0, |d| d.as_secs() as i64)
-    });
+    let seconds =
+        std::env::var("SOURCE_DATE_EPOCH").ok().and_then(|v| v.trim().parse::<i64>().ok()).unwrap_or_else(|| {
+            std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map_or(0, |d| d.as_secs() as i64)
+        });
+    utc_timestamp_at(seconds)
+}
+
+/// Seconds since 1970-01-01 as RFC 3339 UTC.
+pub(crate) fn utc_timestamp_at(seconds: i64) -> String {
     let days = seconds.div_euclid(86_400);
     let second_of_day = seconds.rem_euclid(86_400);
     // Civil date from days since 1970-01-01 (Hinnant's algorithm).

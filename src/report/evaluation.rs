@@ -469,13 +469,18 @@ fn penalty_charts(name: &str, terms: &[String], record: &crate::model::penalised
     let values = lines.iter().flat_map(|(_, p)| p.iter().map(|q| q.1));
     let (y0, y1) = (values.clone().fold(0.0f64, f64::min), values.fold(0.0f64, f64::max));
     let pad = ((y1 - y0) * 0.05).max(1e-9);
-    let title = format!("coefficient path: {name}");
-    out.push(figure(
-        line_chart(&ChartSpec {
-            log_x: true,
-            ..plain(&title, "λ (log scale)", "slope on the standardised input", lo..hi, y0 - pad..y1 + pad, &lines)
-        }),
-        &title,
+    // Both charts run along λ on a log scale.
+    let along_lambda = |title: String, y_label: &str, y: std::ops::Range<f64>, lines: &Lines| {
+        figure(
+            line_chart(&ChartSpec { log_x: true, ..plain(&title, "λ (log scale)", y_label, lo..hi, y, lines) }),
+            &title,
+        )
+    };
+    out.push(along_lambda(
+        format!("coefficient path: {name}"),
+        "slope on the standardised input",
+        y0 - pad..y1 + pad,
+        &lines,
     ));
     let cv: Vec<(f64, f64, f64)> =
         record.path.iter().filter_map(|p| Some((p.lambda, p.cv_deviance?, p.cv_se.unwrap_or(0.0)))).collect();
@@ -497,13 +502,11 @@ fn penalty_charts(name: &str, terms: &[String], record: &crate::model::penalised
                 lines.push((format!("{label}: {l:.4e}"), vec![(l, y0 - pad), (l, y1 + pad)]));
             }
         }
-        let title = format!("cross-validation: {name}");
-        out.push(figure(
-            line_chart(&ChartSpec {
-                log_x: true,
-                ..plain(&title, "λ (log scale)", "deviance per row, held out", lo..hi, y0 - pad..y1 + pad, &lines)
-            }),
-            &title,
+        out.push(along_lambda(
+            format!("cross-validation: {name}"),
+            "deviance per row, held out",
+            y0 - pad..y1 + pad,
+            &lines,
         ));
     }
     out

@@ -28,22 +28,17 @@ pub struct ReportHeader {
 impl ReportHeader {
     /// The header for `arguments` (the program's own arguments, program
     /// name first) over `inputs`, hashed here. The time is now, or
-    /// `SOURCE_DATE_EPOCH` when set (the reproducible-builds convention), so
-    /// that the same inputs and seed can give the same bytes.
+    /// `SOURCE_DATE_EPOCH` when set (the reproducible-builds convention;
+    /// [`crate::io::utc_timestamp`]), so that the same inputs and seed can
+    /// give the same bytes.
     pub fn new(arguments: &[String], inputs: &[&Path], options: Vec<(String, String)>) -> Result<ReportHeader> {
         let hashed = inputs
             .iter()
             .map(|path| Ok((path.display().to_string(), crate::io::sha256_file(path)?)))
             .collect::<Result<Vec<_>>>()?;
-        let seconds =
-            std::env::var("SOURCE_DATE_EPOCH").ok().and_then(|v| v.trim().parse::<i64>().ok()).unwrap_or_else(|| {
-                std::time::SystemTime::now()
-                    .duration_since(std::time::UNIX_EPOCH)
-                    .map_or(0, |d| i64::try_from(d.as_secs()).unwrap_or(i64::MAX))
-            });
         Ok(ReportHeader {
             command_line: arguments.iter().map(|a| shell_quoted(a)).collect::<Vec<_>>().join(" "),
-            generated: utc_timestamp(seconds),
+            generated: crate::io::utc_timestamp(),
             inputs: hashed,
             options,
             warnings: Vec::new(),
@@ -185,29 +180,6 @@ fn shell_quoted(argument: &str) -> String {
     }
 }
 
-/// Seconds since 1970 as `YYYY-MM-DDTHH:MM:SSZ`; the date by the
-/// days-to-civil algorithm of Hinnant (2013, "chrono-Compatible Low-Level
-/// Date Algorithms", civil_from_days).
-fn utc_timestamp(seconds: i64) -> String {
-    let days = seconds.div_euclid(86_400);
-    let second_of_day = seconds.rem_euclid(86_400);
-    let z = days + 719_468;
-    let era = z.div_euclid(146_097);
-    let day_of_era = z.rem_euclid(146_097);
-    let year_of_era = (day_of_era - day_of_era / 1460 + day_of_era / 36_524 - day_of_era / 146_096) / 365;
-    let day_of_year = day_of_era - (365 * year_of_era + year_of_era / 4 - year_of_era / 100);
-    let mp = (5 * day_of_year + 2) / 153;
-    let day = day_of_year - (153 * mp + 2) / 5 + 1;
-    let month = if mp < 10 { mp + 3 } else { mp - 9 };
-    let year = year_of_era + era * 400 + i64::from(month <= 2);
-    format!(
-        "{year:04}-{month:02}-{day:02}T{:02}:{:02}:{:02}Z",
-        second_of_day / 3600,
-        second_of_day % 3600 / 60,
-        second_of_day % 60
-    )
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -215,10 +187,11 @@ mod tests {
     /// Known instants: the epoch, a leap day, and one from `date -u -d @…`.
     #[test]
     fn timestamps_are_civil_utc() {
-        assert_eq!(utc_timestamp(0), "1970-01-01T00:00:00Z");
-        assert_eq!(utc_timestamp(951_782_400), "2000-02-29T00:00:00Z");
-        assert_eq!(utc_timestamp(1_796_346_197), "2026-12-04T01:03:17Z");
-        assert_eq!(utc_timestamp(-1), "1969-12-31T23:59:59Z");
+        use crate::io::utc_timestamp_at;
+        assert_eq!(utc_timestamp_at(0), "1970-01-01T00:00:00Z");
+        assert_eq!(utc_timestamp_at(951_782_400), "2000-02-29T00:00:00Z");
+        assert_eq!(utc_timestamp_at(1_796_346_197), "2026-12-04T01:03:17Z");
+        assert_eq!(utc_timestamp_at(-1), "1969-12-31T23:59:59Z");
     }
 
     #[test]
