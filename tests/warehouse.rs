@@ -4,11 +4,14 @@
 //! exactly — for every family, calibration map, prior and cost option;
 //! hostile names must stay names; a model fitted from PostgreSQL's
 //! aggregates must score as the model fitted on the file does. DuckDB
-//! (through its Python package) checks the ANSI dialect a second time.
+//! (through its Python package) checks the ANSI dialect a second time, and
+//! Apache Spark (pyspark, local mode, one session per test binary) runs
+//! the same scoring, policy, extreme-value, hostile-name and aggregate
+//! cases from the Spark dialect.
 //!
 //! The data are the demo scenarios (our own invented lending and payments
-//! portfolios). Skipped with a notice when PostgreSQL or DuckDB is absent,
-//! unless BASERATE_REQUIRE_EXTERNAL=1 (as CI sets).
+//! portfolios). Skipped with a notice when PostgreSQL, DuckDB or pyspark is
+//! absent, unless BASERATE_REQUIRE_EXTERNAL=1 (as CI sets).
 
 mod common;
 
@@ -17,6 +20,7 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 
 use common::postgres::Postgres;
+use common::spark::Spark;
 use common::{external_tool, python_with, run, temp_dir, write};
 
 /// Posteriors from the SQL and from `score` agree to this, absolutely: the
@@ -31,6 +35,58 @@ fn postgres() -> Option<Postgres> {
         external_tool("PostgreSQL (initdb)", &mut Command::new("false"));
     }
     started
+}
+
+/// An engine the exported statements run in.
+trait Engine {
+    /// The `--dialect` its statements are written in.
+    fn dialect(&self) -> &'static str;
+    /// Loads a CSV file as a table, `numeric` columns as doubles.
+    fn load(&mut self, table: &str, csv: &Path, numeric: &[String]);
+    /// Runs one statement; its rows as CSV with a header.
+    fn query_csv(&mut self, sql: &str) -> String;
+    /// The dialects to write scoring statements in, in turn, and the one
+    /// for aggregate queries (with deciles).
+    fn dialects(&self) -> (&'static [&'static str], &'static str);
+    /// Creates the table `keepme` with one row, which hostile names try
+    /// to drop.
+    fn plant_keepme(&mut self);
+}
+
+impl Engine for Postgres {
+    fn dialect(&self) -> &'static str {
+        "ansi"
+    }
+    fn load(&mut self, table: &str, csv: &Path, numeric: &[String]) {
+        Postgres::load(self, table, csv, numeric);
+    }
+    fn query_csv(&mut self, sql: &str) -> String {
+        Postgres::query_csv(self, sql)
+    }
+    fn dialects(&self) -> (&'static [&'static str], &'static str) {
+        (&["postgres", "ansi"], "postgres")
+    }
+    fn plant_keepme(&mut self) {
+        self.psql("CREATE TABLE keepme (x INTEGER); INSERT INTO keepme VALUES (1);");
+    }
+}
+
+impl Engine for Spark {
+    fn dialect(&self) -> &'static str {
+        "spark"
+    }
+    fn load(&mut self, table: &str, csv: &Path, numeric: &[String]) {
+        Spark::load(self, table, csv, numeric);
+    }
+    fn query_csv(&mut self, sql: &str) -> String {
+        Spark::query_csv(self, sql)
+    }
+    fn dialects(&self) -> (&'static [&'static str], &'static str) {
+        (&["spark"], "spark")
+    }
+    fn plant_keepme(&mut self) {
+        self.query_csv("CREATE OR REPLACE TEMPORARY VIEW keepme AS SELECT 1 AS x");
+    }
 }
 
 /// Rows of a CSV text keyed by `key`.
@@ -162,7 +218,7 @@ struct Prepared {
 
 /// Fits the case's model, scores its data and exports the statement, all
 /// under file names ending in `tag`.
-fn prepare(dir: &Path, case: &Case<'_>, tag: &str) -> Prepared {
+fn prepare(dir: &Path, case: &Case<'_>, tag: &str, dialect: &str) -> Prepared {
     let name = format!("{} ({})", case.name, case.table);
     let file = |stem: &str, extension: &str| dir.join(format!("{stem}{tag}.{extension}"));
     let (model, scores, rejects, sql) =
@@ -176,7 +232,7 @@ fn prepare(dir: &Path, case: &Case<'_>, tag: &str) -> Prepared {
     score.extend(case.flags.iter().copied());
     let (code, _, stderr) = run(dir, &score);
     assert_eq!(code, 0, "{name}: score: {stderr}");
-    let mut export = vec!["export-sql", model.to_str().expect("path"), "--table", case.table];
+    let mut export = vec!["export-sql", model.to_str().expect("path"), "--table", case.table, "--dialect", dialect];
     export.extend(["-o", sql.to_str().expect("path")]);
     export.extend(case.flags.iter().copied());
     let (code, _, stderr) = run(dir, &export);
@@ -197,15 +253,28 @@ fn check(prepared: &Prepared, engine: &str, key: &str) -> (usize, f64) {
     result
 }
 
-fn run_case(pg: &Postgres, dir: &Path, case: &Case<'_>) -> (usize, f64) {
-    let prepared = prepare(dir, case, "");
-    let engine = pg.query_csv(&std::fs::read_to_string(&prepared.sql).expect("sql"));
-    check(&prepared, &engine, case.key)
+fn run_case(engine: &mut dyn Engine, dir: &Path, case: &Case<'_>) -> (usize, f64) {
+    let prepared = prepare(dir, case, "", engine.dialect());
+    let result = engine.query_csv(&std::fs::read_to_string(&prepared.sql).expect("sql"));
+    check(&prepared, &result, case.key)
 }
 
 #[test]
 fn exported_sql_reproduces_score_in_postgresql() {
-    let Some(pg) = postgres() else { return };
+    let Some(mut pg) = postgres() else { return };
+    exported_sql_reproduces_score(&mut pg);
+}
+
+/// The same cases in Apache Spark (local mode is the engine a cluster
+/// runs), from statements in the Spark dialect.
+#[test]
+fn exported_sql_reproduces_score_in_spark() {
+    let Some(mut spark) = Spark::shared() else { return };
+    exported_sql_reproduces_score(&mut *spark);
+}
+
+/// Every family, calibration map, prior and cost option, in one engine.
+fn exported_sql_reproduces_score(pg: &mut dyn Engine) {
     let dir = temp_dir();
     let d = dir.path();
     let demo = demo(d);
@@ -390,7 +459,7 @@ fn exported_sql_reproduces_score_in_postgresql() {
     }
     let mut worst = 0.0f64;
     for case in &cases {
-        let (_, w) = run_case(&pg, d, case);
+        let (_, w) = run_case(pg, d, case);
         worst = worst.max(w);
     }
     eprintln!("{} cases, worst posterior difference {worst:.1e}", cases.len());
@@ -413,7 +482,17 @@ fn edited(source: &Path, target: &Path, change: impl Fn(usize, &str, &str) -> St
 
 #[test]
 fn missing_values_and_unseen_categories_follow_the_policy_of_score() {
-    let Some(pg) = postgres() else { return };
+    let Some(mut pg) = postgres() else { return };
+    missing_values_and_unseen_categories(&mut pg);
+}
+
+#[test]
+fn missing_values_and_unseen_categories_follow_the_policy_of_score_in_spark() {
+    let Some(mut spark) = Spark::shared() else { return };
+    missing_values_and_unseen_categories(&mut *spark);
+}
+
+fn missing_values_and_unseen_categories(pg: &mut dyn Engine) {
     let dir = temp_dir();
     let d = dir.path();
     let demo = demo(d);
@@ -467,7 +546,7 @@ fn missing_values_and_unseen_categories_follow_the_policy_of_score() {
     for (name, family, flags) in cases {
         let flags = with(vec!["--id", "application_id", "--costs", costs], &flags);
         let (scored, _) = run_case(
-            &pg,
+            pg,
             d,
             &Case { name, fit: fit(family), flags, table: "damaged", data: damaged_path, key: "application_id" },
         );
@@ -477,7 +556,18 @@ fn missing_values_and_unseen_categories_follow_the_policy_of_score() {
 
 #[test]
 fn hostile_names_are_only_names() {
-    let Some(pg) = postgres() else { return };
+    let Some(mut pg) = postgres() else { return };
+    hostile_names(&mut pg);
+}
+
+/// The same names in Spark: backticks, backslashes in literals.
+#[test]
+fn hostile_names_are_only_names_in_spark() {
+    let Some(mut spark) = Spark::shared() else { return };
+    hostile_names(&mut *spark);
+}
+
+fn hostile_names(pg: &mut dyn Engine) {
     let dir = temp_dir();
     let d = dir.path();
     let demo = demo(d);
@@ -539,9 +629,11 @@ fn hostile_names_are_only_names() {
     ];
     let (code, _, stderr) = run(d, &fit);
     assert_eq!(code, 0, "{stderr}");
-    pg.psql("CREATE TABLE keepme (x INTEGER); INSERT INTO keepme VALUES (1);");
+    pg.plant_keepme();
     pg.load(table, &hostile, &numeric_columns(&model));
-    for (family, dialect) in [("lda", "postgres"), ("naive-bayes", "ansi"), ("qda", "postgres"), ("logistic", "ansi")] {
+    let (dialects, aggregate_dialect) = pg.dialects();
+    for (i, family) in ["lda", "naive-bayes", "qda", "logistic"].into_iter().enumerate() {
+        let dialect = dialects[i % dialects.len()];
         let name = format!("hostile {family} {dialect}");
         let fit = vec![
             "fit",
@@ -605,7 +697,7 @@ fn hostile_names_are_only_names() {
             "--categorical",
             "chan'nel\\,housing",
             "--dialect",
-            "postgres",
+            aggregate_dialect,
             "-o",
             stats_sql.to_str().unwrap(),
             "x\"; DROP TABLE keepme; --",
@@ -618,11 +710,7 @@ fn hostile_names_are_only_names() {
         write(d, "hostile_stats.csv", pg.query_csv(&std::fs::read_to_string(&stats_sql).expect("sql")).as_bytes());
     let from_stats = d.join("hostile_from_stats.json");
     fit_from_stats(d, &stats, "lda", &["--missing", "drop-rows"], &from_stats);
-    assert_eq!(
-        pg.psql("SELECT count(*) FROM keepme;").lines().filter(|l| l.trim() == "1").count(),
-        1,
-        "keepme survived"
-    );
+    assert_eq!(pg.query_csv("SELECT count(*) AS n FROM keepme").lines().nth(1), Some("1"), "keepme survived");
 }
 
 /// Posteriors of two `score` outputs, row by row: the worst difference.
@@ -657,7 +745,19 @@ fn score_difference(dir: &Path, a: &Path, b: &Path, data: &Path, flags: &[&str],
 
 #[test]
 fn fitting_from_postgresql_aggregates_equals_fitting_from_the_file() {
-    let Some(pg) = postgres() else { return };
+    let Some(mut pg) = postgres() else { return };
+    fitting_from_aggregates_equals_fitting_from_the_file(&mut pg);
+}
+
+/// The same in Spark, every query in the Spark dialect (with its exact
+/// `percentile` deciles).
+#[test]
+fn fitting_from_spark_aggregates_equals_fitting_from_the_file() {
+    let Some(mut spark) = Spark::shared() else { return };
+    fitting_from_aggregates_equals_fitting_from_the_file(&mut *spark);
+}
+
+fn fitting_from_aggregates_equals_fitting_from_the_file(pg: &mut dyn Engine) {
     let dir = temp_dir();
     let d = dir.path();
     let demo = demo(d);
@@ -711,6 +811,9 @@ fn fitting_from_postgresql_aggregates_equals_fitting_from_the_file() {
         ("naive-bayes", &["--weight", "w"], &["--smoothing", "0.5"], "ansi"),
     ];
     for (family, weight, options, dialect) in cases {
+        // Spark reads neither dialect's quoting: every query in its own.
+        let dialect = if pg.dialect() == "spark" { "spark" } else { dialect };
+        let with_deciles = dialect != "ansi";
         let name = format!("{family} {weight:?} {options:?} {dialect}");
         let sql = d.join("stats.sql");
         let mut args = vec![
@@ -766,7 +869,7 @@ fn fitting_from_postgresql_aggregates_equals_fitting_from_the_file() {
         let rejects = d.join("r.csv");
         let flags = ["--id", "application_id", "--missing", "drop-rows", "--rejects", rejects.to_str().unwrap()];
         let worst = score_difference(d, &from_stats, &direct, &portfolio, &flags, "application_id");
-        if dialect == "ansi" {
+        if !with_deciles {
             let (_, shown, _) = run(d, &["inspect", from_stats.to_str().unwrap()]);
             assert!(shown.contains("no deciles either"), "{name}: {shown}");
         }
@@ -779,7 +882,7 @@ fn fitting_from_postgresql_aggregates_equals_fitting_from_the_file() {
                 .clone()
         };
         let (ours, theirs) = (drift(&from_stats), drift(&direct));
-        if dialect == "postgres" {
+        if with_deciles {
             assert!(ours["score"].is_null(), "{name}: no score bins from aggregates");
             let features = ours["features"].as_array().expect("features");
             assert_eq!(features.len(), inputs.len() + 3, "{name}");
@@ -802,7 +905,8 @@ fn fitting_from_postgresql_aggregates_equals_fitting_from_the_file() {
         } else {
             assert!(ours.is_null(), "{name}: a drift reference without deciles");
         }
-        // Deciles by percentile_cont are the library's type-7 deciles.
+        // Deciles by PostgreSQL's percentile_cont and Spark's exact
+        // percentile are the library's type-7 deciles.
         let schema = |m: &Path| -> serde_json::Value {
             serde_json::from_str::<serde_json::Value>(&std::fs::read_to_string(m).expect("model")).expect("json")
                 ["schema"]
@@ -820,7 +924,7 @@ fn fitting_from_postgresql_aggregates_equals_fitting_from_the_file() {
         };
         for column in inputs {
             let (x, y) = (deciles(&s, column), deciles(&t, column));
-            if dialect == "postgres" {
+            if with_deciles {
                 assert_eq!(x.len(), 9, "{name}: {column}");
                 for (u, v) in x.iter().zip(&y) {
                     assert!(common::close(*u, *v, 1e-12), "{name}: {column} deciles {x:?} vs {y:?}");
@@ -941,7 +1045,7 @@ fn the_ansi_dialect_runs_in_duckdb_too() {
     let mut arguments = vec![format!("table:new_portfolio={portfolio}"), format!("table:transactions={payments}")];
     let mut expected = Vec::new();
     for (i, case) in cases.iter().enumerate() {
-        let prepared = prepare(d, case, &format!("-duckdb{i}"));
+        let prepared = prepare(d, case, &format!("-duckdb{i}"), "ansi");
         let result = d.join(format!("engine{i}.csv"));
         arguments.push(format!("query:{}={}", prepared.sql.display(), result.display()));
         expected.push((prepared, result, case.key));
@@ -1154,7 +1258,8 @@ fn extreme_values_are_scored_or_set_aside_in_the_engines_as_in_score() {
             key: "application_id",
         }))
         .collect();
-    let prepared: Vec<Prepared> = cases.iter().enumerate().map(|(i, c)| prepare(d, c, &format!("-x{i}"))).collect();
+    let prepared: Vec<Prepared> =
+        cases.iter().enumerate().map(|(i, c)| prepare(d, c, &format!("-x{i}"), "ansi")).collect();
     for (case, p) in cases.iter().zip(&prepared) {
         let rejects = std::fs::read_to_string(&p.rejects).expect("rejects");
         let out_of_range = rejects.lines().filter(|l| l.contains(",out-of-range,")).count();
@@ -1172,6 +1277,21 @@ fn extreme_values_are_scored_or_set_aside_in_the_engines_as_in_score() {
             check(p, &engine, case.key);
         }
     }
+    // Spark from statements in its own dialect, and with ANSI mode on, so
+    // an overflow there would be an error rather than a silent infinity.
+    if let Some(mut spark) = Spark::shared() {
+        spark.load("extreme", &extreme, &numeric_columns(&d.join("case-x0.json")));
+        for (i, case) in cases.iter().enumerate() {
+            let p = prepare(d, case, &format!("-spark{i}"), "spark");
+            let engine = spark.query_csv(&std::fs::read_to_string(&p.sql).expect("sql"));
+            assert!(
+                !engine.contains("nan") && !engine.contains("inf"),
+                "{}: NaN or infinity in Spark's result",
+                case.name
+            );
+            check(&p, &engine, case.key);
+        }
+    }
     if with_duckdb {
         let mut arguments = vec![format!("table:extreme={}", extreme.display())];
         let results: Vec<PathBuf> = (0..prepared.len()).map(|i| d.join(format!("duck-x{i}.csv"))).collect();
@@ -1185,4 +1305,32 @@ fn extreme_values_are_scored_or_set_aside_in_the_engines_as_in_score() {
             check(p, &engine, case.key);
         }
     }
+}
+
+/// Spark resolves column names without regard to case: names that differ
+/// only in case are refused in its dialect, with the names, and pass in
+/// the others.
+#[test]
+fn names_equal_but_for_case_are_refused_in_the_spark_dialect() {
+    let dir = temp_dir();
+    let d = dir.path();
+    let mut text = String::from("Amount,amount,y\n");
+    for i in 0..60 {
+        text.push_str(&format!("{},{},{}\n", i % 7, (i * 3) % 11, if i % 3 == 0 { "b" } else { "a" }));
+    }
+    write(d, "cased.csv", text.as_bytes());
+    assert_eq!(run(d, &["fit", "cased.csv", "--target", "y", "--family", "lda", "-o", "m.json"]).0, 0);
+    refused(
+        d,
+        &["export-sql", "m.json", "--table", "t", "--dialect", "spark"],
+        2,
+        "'Amount' and 'amount' differ only in case",
+    );
+    assert_eq!(run(d, &["export-sql", "m.json", "--table", "t", "--dialect", "postgres"]).0, 0);
+    refused(
+        d,
+        &["stats-sql", "--family", "lda", "--table", "t", "--target", "y", "--dialect", "spark", "Amount", "amount"],
+        2,
+        "differ only in case",
+    );
 }

@@ -29,7 +29,7 @@ pub struct Args {
     /// Columns passed through first (comma-separated; repeatable); they also break ties in a capacity's ranking.
     #[arg(long = "id", value_name = "COLS", value_delimiter = ',')]
     pub ids: Vec<String>,
-    /// The SQL spelling: ansi (standard SQL) or postgres.
+    /// The SQL spelling: ansi (standard SQL), postgres or spark.
     #[arg(long, value_name = "D", default_value = "ansi")]
     pub dialect: Dialect,
     /// The policies for unseen and missing values (in SQL a row that would stop `score` is kept and marked with its reject reason).

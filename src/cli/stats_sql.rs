@@ -36,7 +36,7 @@ pub struct Args {
     /// Text values that count as missing in categorical columns, besides NULL and '' [default: NA,N/A,null,?].
     #[arg(long, value_name = "TOKENS", value_delimiter = ',', allow_hyphen_values = true)]
     pub na: Option<Vec<String>>,
-    /// The SQL spelling: ansi, or postgres (adds deciles by percentile_cont).
+    /// The SQL spelling: ansi, postgres (adds deciles by percentile_cont) or spark (backticks; deciles by exact percentile).
     #[arg(long, value_name = "D", default_value = "ansi")]
     pub dialect: Dialect,
     /// Where to write the SQL (`-` for stdout).

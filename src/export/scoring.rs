@@ -96,11 +96,11 @@ impl Stages {
 }
 
 fn alias(expression: impl AsRef<str>, name: &str) -> String {
-    format!("{} AS \"{name}\"", expression.as_ref())
+    format!("{} AS {name}", expression.as_ref())
 }
 
 fn col(name: &str) -> String {
-    format!("\"{name}\"")
+    name.to_string()
 }
 
 /// The SQL statement that scores `request.table` as `score` would.
@@ -148,6 +148,10 @@ pub fn scoring_sql(file: &ModelFile, request: &ScoringRequest) -> Result<String>
     let shape =
         OutputShape { classes: &file.classes, decisions: request.costs.is_some(), reasons: 0, reject_reason: true };
     let names = output_columns(&request.ids, shape, &[])?;
+    // An engine that folds case cannot tell `Amount` from `amount`, in the
+    // table or among the outputs.
+    sql::distinct_names(dialect, "input columns", plan.names.iter().map(String::as_str))?;
+    sql::distinct_names(dialect, "output columns", names.iter().map(String::as_str))?;
     let mut output = Vec::new();
     for (i, id) in names[..request.ids.len()].iter().enumerate() {
         output.push(format!("{} AS {}", col(&format!("__br_id{i}")), output_ident(dialect, id)?));
@@ -163,11 +167,11 @@ pub fn scoring_sql(file: &ModelFile, request: &ScoringRequest) -> Result<String>
             .enumerate()
             .map(|(a, action)| Ok(format!(" WHEN {a} THEN {}", string(dialect, &action.name)?)))
             .collect::<Result<_>>()?;
-        output.push(format!("CASE {chosen}{} END AS \"action\"", names.concat()));
-        let costs: String = (0..spec.actions.len()).map(|a| format!(" WHEN {a} THEN \"__br_e{a}\"")).collect();
-        output.push(format!("CASE {chosen}{costs} END AS \"expected_cost\""));
+        output.push(format!("CASE {chosen}{} END AS action", names.concat()));
+        let costs: String = (0..spec.actions.len()).map(|a| format!(" WHEN {a} THEN __br_e{a}")).collect();
+        output.push(format!("CASE {chosen}{costs} END AS expected_cost"));
     }
-    output.push("\"__br_reject\" AS \"reject_reason\"".into());
+    output.push("__br_reject AS reject_reason".into());
 
     let mut text = String::new();
     for line in header(file, request) {
@@ -176,15 +180,16 @@ pub fn scoring_sql(file: &ModelFile, request: &ScoringRequest) -> Result<String>
     }
     text.push_str("WITH\n");
     for (i, (name, columns)) in stages.stages.iter().enumerate() {
-        let source = if i == 0 { sql::table(&request.table)? } else { col(&stages.stages[i - 1].0) };
+        let source = if i == 0 { sql::table(dialect, &request.table)? } else { col(&stages.stages[i - 1].0) };
         let all = if i == 0 { Vec::new() } else { vec![format!("{source}.*")] };
         let list: Vec<String> = all.into_iter().chain(columns.iter().cloned()).collect();
-        // OFFSET 0 ROWS keeps each stage a stage: without it PostgreSQL
-        // pulls every subquery up and pastes each column's expression into
-        // every later use, which grows the statement exponentially.
+        // The fence keeps each stage a stage: without it PostgreSQL pulls
+        // every subquery up and pastes each column's expression into every
+        // later use, which grows the statement exponentially.
         text.push_str(&format!(
-            "\"{name}\" AS (\n  SELECT\n    {}\n  FROM {source}\n  OFFSET 0 ROWS\n)",
-            list.join(",\n    ")
+            "{name} AS (\n  SELECT\n    {}\n  FROM {source}{}\n)",
+            list.join(",\n    "),
+            dialect.stage_fence()
         ));
         text.push_str(if i + 1 < stages.stages.len() { ",\n" } else { "\n" });
     }
@@ -244,13 +249,16 @@ fn raw_stage(
     let dialect = request.dialect;
     let mut columns = Vec::new();
     for (i, id) in request.ids.iter().enumerate() {
-        columns.push(alias(ident(id)?, &format!("__br_id{i}")));
+        columns.push(alias(ident(dialect, id)?, &format!("__br_id{i}")));
     }
     for (j, feature) in plan.numeric.iter().enumerate() {
-        columns.push(alias(format!("CAST({} AS DOUBLE PRECISION)", ident(&feature.name)?), &format!("__br_r{j}")));
+        columns.push(alias(
+            format!("CAST({} AS {})", ident(dialect, &feature.name)?, dialect.double_type()),
+            &format!("__br_r{j}"),
+        ));
     }
     for (c, feature) in plan.categorical.iter().enumerate() {
-        let name = ident(&feature.name)?;
+        let name = ident(dialect, &feature.name)?;
         let mut branches = String::new();
         for (code, level) in feature.levels.iter().enumerate() {
             if Some(code as u32) != feature.missing_code {
@@ -264,13 +272,17 @@ fn raw_stage(
         }
         columns.push(alias(
             format!(
-                "CASE WHEN {name} IS NULL THEN -1 ELSE CASE TRIM(CAST({name} AS VARCHAR)){branches} ELSE -2 END END"
+                "CASE WHEN {name} IS NULL THEN -1 ELSE CASE TRIM(CAST({name} AS {})){branches} ELSE -2 END END",
+                dialect.text_type()
             ),
             &format!("__br_c{c}"),
         ));
     }
     for (m, column) in cost_columns.iter().enumerate() {
-        columns.push(alias(format!("CAST({} AS DOUBLE PRECISION)", ident(column)?), &format!("__br_k{m}")));
+        columns.push(alias(
+            format!("CAST({} AS {})", ident(dialect, column)?, dialect.double_type()),
+            &format!("__br_k{m}"),
+        ));
     }
     stages.push("__br_raw", columns);
     Ok(())
@@ -348,9 +360,9 @@ fn input_stage(stages: &mut Stages, plan: &Plan, request: &ScoringRequest, cost_
         ));
     }
     let reject = if reasons.is_empty() {
-        "CAST(NULL AS VARCHAR)".to_string()
+        format!("CAST(NULL AS {})", dialect.text_type())
     } else {
-        format!("CASE {} ELSE CAST(NULL AS VARCHAR) END", reasons.join(" "))
+        format!("CASE {} ELSE CAST(NULL AS {}) END", reasons.join(" "), dialect.text_type())
     };
     columns.push(alias(reject, "__br_reject"));
     stages.push("__br_in", columns);
@@ -375,9 +387,9 @@ fn design_terms(encoding: &Encoding) -> Vec<Term> {
 /// `coefficient × column` for a linear form.
 fn linear_term(term: &Term, coefficient: f64) -> String {
     match term {
-        Term::Numeric(j) => format!("{} * \"__br_x{j}\"", number(coefficient)),
+        Term::Numeric(j) => format!("{} * __br_x{j}", number(coefficient)),
         Term::Level { categorical, level } => {
-            format!("CASE WHEN \"__br_g{categorical}\" = {level} THEN {} ELSE 0E0 END", number(coefficient))
+            format!("CASE WHEN __br_g{categorical} = {level} THEN {} ELSE 0E0 END", number(coefficient))
         }
     }
 }
@@ -385,9 +397,9 @@ fn linear_term(term: &Term, coefficient: f64) -> String {
 /// The value of a design column (for QDA's deviations).
 fn design_value(term: &Term) -> String {
     match term {
-        Term::Numeric(j) => format!("\"__br_x{j}\""),
+        Term::Numeric(j) => format!("__br_x{j}"),
         Term::Level { categorical, level } => {
-            format!("CASE WHEN \"__br_g{categorical}\" = {level} THEN 1E0 ELSE 0E0 END")
+            format!("CASE WHEN __br_g{categorical} = {level} THEN 1E0 ELSE 0E0 END")
         }
     }
 }
@@ -399,7 +411,7 @@ fn linear_form(intercept: f64, terms: &[Term], coefficients: &[f64]) -> String {
 }
 
 fn guarded(expression: String) -> String {
-    format!("CASE WHEN \"__br_reject\" IS NULL THEN {expression} END")
+    format!("CASE WHEN __br_reject IS NULL THEN {expression} END")
 }
 
 /// Stage 3: `__br_s{k}`, each class's log evidence at the mix `base` (up
@@ -458,8 +470,7 @@ fn evidence_stages(stages: &mut Stages, file: &ModelFile, plan: &Plan, base: &[f
                         (0..=i).map(|j| format!("{} * {}", number(inverse[(i, j)]), deviations[j])).collect();
                     whitened.push(alias(guarded(sql::sum(&products)), &format!("__br_z{class}_{i}")));
                 }
-                let squares: Vec<String> =
-                    (0..d).map(|i| format!("\"__br_z{class}_{i}\" * \"__br_z{class}_{i}\"")).collect();
+                let squares: Vec<String> = (0..d).map(|i| format!("__br_z{class}_{i} * __br_z{class}_{i}")).collect();
                 let mut evidence = vec![
                     format!("{} * ({} + ({}))", number(-0.5), number(factor.log_det), sql::sum(&squares)),
                     number(log_base[class]),
@@ -478,7 +489,7 @@ fn evidence_stages(stages: &mut Stages, file: &ModelFile, plan: &Plan, base: &[f
                 for j in (0..p).filter(|&j| gaussian_part.gaussian[j]) {
                     // Scaled before squaring, as in the library.
                     let scaled = format!(
-                        "((\"__br_x{j}\" - {}) * {})",
+                        "((__br_x{j} - {}) * {})",
                         number(m.means[class][j]),
                         number(gaussian_part.scale[class][j])
                     );
@@ -487,7 +498,7 @@ fn evidence_stages(stages: &mut Stages, file: &ModelFile, plan: &Plan, base: &[f
                 for b in &m.bernoulli {
                     let [one, zero] = b.log_probabilities[class];
                     terms.push(format!(
-                        "CASE WHEN \"__br_x{}\" > 5E-1 THEN {} ELSE {} END",
+                        "CASE WHEN __br_x{} > 5E-1 THEN {} ELSE {} END",
                         b.index,
                         number(one),
                         number(zero)
@@ -515,7 +526,7 @@ fn level_terms(tables: &[CategoricalLikelihood], class: usize) -> Vec<String> {
                 .enumerate()
                 .map(|(level, lp)| format!(" WHEN {level} THEN {}", number(*lp)))
                 .collect();
-            format!("CASE \"__br_g{c}\"{branches} END")
+            format!("CASE __br_g{c}{branches} END")
         })
         .collect()
 }
@@ -577,8 +588,8 @@ fn posterior_stages(
             let clamped = clamp(dialect, &probability, Some(1e-300), Some(1.0 - 1e-16));
             stages.push("__br_cal", vec![alias(clamped, "__br_q")]);
             let mut u = vec![String::new(); 2];
-            u[positive] = plus_shift("LN(\"__br_q\")".into(), positive);
-            u[negative] = plus_shift("LN(1E0 - \"__br_q\")".into(), negative);
+            u[positive] = plus_shift("LN(__br_q)".into(), positive);
+            u[negative] = plus_shift("LN(1E0 - __br_q)".into(), negative);
             for (c, expression) in u.into_iter().enumerate() {
                 scores.push(alias(expression, &format!("__br_u{c}")));
             }
@@ -598,7 +609,7 @@ fn posterior_stages(
     // matters when a cost of 1e300 multiplies it.
     let exponents: Vec<String> = (0..k)
         .map(|c| {
-            let exponent = format!("{} - \"__br_max\"", u[c]);
+            let exponent = format!("{} - __br_max", u[c]);
             alias(
                 format!(
                     "CASE WHEN {exponent} < {floor} THEN 0E0 ELSE EXP({exponent}) END",
@@ -613,7 +624,7 @@ fn posterior_stages(
     // Guarded again: a CASE-spelt clamp turns the NULLs of a rejected row
     // into its bound.
     let posteriors: Vec<String> =
-        (0..k).map(|c| alias(guarded(format!("\"__br_w{c}\" / ({total})")), &format!("__br_p{c}"))).collect();
+        (0..k).map(|c| alias(guarded(format!("__br_w{c} / ({total})")), &format!("__br_p{c}"))).collect();
     stages.push("__br_p", posteriors);
     Ok(())
 }
@@ -653,11 +664,11 @@ fn decision_stages(stages: &mut Stages, spec: &CostSpec, dialect: Dialect, k: us
                 let value = match &cost.column {
                     Some(column) => {
                         let slot = columns.iter().position(|x| x == column).unwrap_or(0);
-                        format!("({} + {} * \"__br_k{slot}\")", number(cost.fixed), number(cost.rate))
+                        format!("({} + {} * __br_k{slot})", number(cost.fixed), number(cost.rate))
                     }
                     None => number(cost.fixed),
                 };
-                format!("\"__br_p{c}\" * {value}")
+                format!("__br_p{c} * {value}")
             })
             .collect();
         expected.push(alias(sql::sum(&terms), &format!("__br_e{a}")));
@@ -672,12 +683,12 @@ fn decision_stages(stages: &mut Stages, spec: &CostSpec, dialect: Dialect, k: us
     };
     let all: Vec<usize> = (0..m).collect();
     stages.push("__br_pick", vec![alias(guarded(first_cheapest(&all)), "__br_a0"), alias("0", "__br_pin0")]);
-    let order: String = (0..ids).map(|i| format!(", \"__br_id{i}\"")).collect();
+    let order: String = (0..ids).map(|i| format!(", __br_id{i}")).collect();
     let mut closed: Vec<usize> = Vec::new();
     let mut t = 0;
     for (a, action) in spec.actions.iter().enumerate() {
         let Some(capacity) = action.capacity else { continue };
-        let wanting = format!("(\"__br_pin{t}\" = 0 AND \"__br_a{t}\" = {a})");
+        let wanting = format!("(__br_pin{t} = 0 AND __br_a{t} = {a})");
         let others: Vec<usize> = (0..m).filter(|b| *b != a && !closed.contains(b)).collect();
         let saving = if others.is_empty() {
             "0E0".to_string()
@@ -687,7 +698,7 @@ fn decision_stages(stages: &mut Stages, spec: &CostSpec, dialect: Dialect, k: us
         let limit = match capacity {
             Capacity::Rows(n) => n.to_string(),
             Capacity::Share(share) => {
-                format!("FLOOR({} * SUM(CASE WHEN \"__br_reject\" IS NULL THEN 1 ELSE 0 END) OVER ())", number(share))
+                format!("FLOOR({} * SUM(CASE WHEN __br_reject IS NULL THEN 1 ELSE 0 END) OVER ())", number(share))
             }
         };
         stages.push(
@@ -715,11 +726,11 @@ fn decision_stages(stages: &mut Stages, spec: &CostSpec, dialect: Dialect, k: us
             &format!("__br_cap{}", t + 1),
             vec![
                 alias(
-                    format!("CASE WHEN {want} = 1 AND {rank} > {limit} THEN {moved} ELSE \"__br_a{t}\" END"),
+                    format!("CASE WHEN {want} = 1 AND {rank} > {limit} THEN {moved} ELSE __br_a{t} END"),
                     &format!("__br_a{}", t + 1),
                 ),
                 alias(
-                    format!("CASE WHEN {want} = 1 AND {rank} <= {limit} THEN 1 ELSE \"__br_pin{t}\" END"),
+                    format!("CASE WHEN {want} = 1 AND {rank} <= {limit} THEN 1 ELSE __br_pin{t} END"),
                     &format!("__br_pin{}", t + 1),
                 ),
             ],

@@ -20,16 +20,22 @@ pub enum Dialect {
     /// PostgreSQL: GREATEST/LEAST, escape strings where a backslash
     /// occurs, and `percentile_cont` deciles in the aggregate query.
     Postgres,
+    /// Apache Spark SQL (ANSI mode, the default from Spark 4): identifiers
+    /// in backticks, backslashes in string literals escaped, DOUBLE and
+    /// STRING types, GREATEST/LEAST, exact `percentile` deciles, no
+    /// planner fence; names that differ only in case are refused, since
+    /// Spark resolves columns without regard to case.
+    Spark,
 }
 
 impl std::str::FromStr for Dialect {
     type Err = String;
 
     fn from_str(text: &str) -> std::result::Result<Self, String> {
-        [Dialect::Ansi, Dialect::Postgres]
+        [Dialect::Ansi, Dialect::Postgres, Dialect::Spark]
             .into_iter()
             .find(|d| d.name() == text)
-            .ok_or_else(|| format!("'{text}' is not a SQL dialect baserate writes (ansi or postgres)"))
+            .ok_or_else(|| format!("'{text}' is not a SQL dialect baserate writes (ansi, postgres or spark)"))
     }
 }
 
@@ -39,14 +45,47 @@ impl Dialect {
         match self {
             Dialect::Ansi => "ansi",
             Dialect::Postgres => "postgres",
+            Dialect::Spark => "spark",
         }
+    }
+
+    /// The double-precision type's name.
+    pub fn double_type(self) -> &'static str {
+        match self {
+            Dialect::Spark => "DOUBLE",
+            _ => "DOUBLE PRECISION",
+        }
+    }
+
+    /// The unbounded text type's name.
+    pub fn text_type(self) -> &'static str {
+        match self {
+            Dialect::Spark => "STRING",
+            _ => "VARCHAR",
+        }
+    }
+
+    /// What ends a common table expression that must stay a stage:
+    /// `OFFSET 0 ROWS` keeps PostgreSQL from inlining it (and computing a
+    /// shared subexpression once per use); Spark computes each stage once
+    /// without it, and an offset there could gather the rows in one task.
+    pub fn stage_fence(self) -> &'static str {
+        match self {
+            Dialect::Spark => "",
+            _ => "\n  OFFSET 0 ROWS",
+        }
+    }
+
+    /// True when the engine resolves column names without regard to case.
+    pub fn folds_case(self) -> bool {
+        self == Dialect::Spark
     }
 
     /// The longest identifier the engine keeps whole (PostgreSQL cuts
     /// longer ones to 63 bytes; the standard allows 128 characters).
     pub fn identifier_limit(self) -> usize {
         match self {
-            Dialect::Ansi => 128,
+            Dialect::Ansi | Dialect::Spark => 128,
             Dialect::Postgres => 63,
         }
     }
@@ -62,10 +101,34 @@ fn no_nul(what: &str, text: &str) -> Result<()> {
     Ok(())
 }
 
-/// A quoted identifier: `"name"` with every `"` doubled.
-pub fn ident(name: &str) -> Result<String> {
+/// A quoted identifier: `"name"` with every `"` doubled; in Spark
+/// `` `name` `` with every backtick doubled.
+pub fn ident(dialect: Dialect, name: &str) -> Result<String> {
     no_nul("name", name)?;
-    Ok(format!("\"{}\"", name.replace('"', "\"\"")))
+    Ok(match dialect {
+        Dialect::Spark => format!("`{}`", name.replace('`', "``")),
+        _ => format!("\"{}\"", name.replace('"', "\"\"")),
+    })
+}
+
+/// Refuses names that the dialect's engine could not tell apart: in an
+/// engine that folds case, two names equal but for case.
+pub fn distinct_names<'a>(dialect: Dialect, what: &str, names: impl IntoIterator<Item = &'a str>) -> Result<()> {
+    if !dialect.folds_case() {
+        return Ok(());
+    }
+    let mut seen: std::collections::BTreeMap<String, &str> = std::collections::BTreeMap::new();
+    for name in names {
+        if let Some(earlier) = seen.insert(name.to_lowercase(), name) {
+            if earlier != name {
+                return Err(Error::Usage(format!(
+                    "the {what} '{earlier}' and '{name}' differ only in case, and {} resolves names without regard to case — rename one (e.g. in a view)",
+                    dialect.name()
+                )));
+            }
+        }
+    }
+    Ok(())
 }
 
 /// A quoted identifier for an output column, refused when the dialect
@@ -79,11 +142,11 @@ pub fn output_ident(dialect: Dialect, name: &str) -> Result<String> {
             dialect.identifier_limit()
         )));
     }
-    ident(name)
+    ident(dialect, name)
 }
 
 /// A table name: dotted parts (`schema.table`) each quoted.
-pub fn table(name: &str) -> Result<String> {
+pub fn table(dialect: Dialect, name: &str) -> Result<String> {
     let parts: Vec<&str> = name.split('.').collect();
     if parts.iter().any(|p| p.is_empty()) {
         return Err(Error::invalid(crate::error::message![
@@ -91,18 +154,20 @@ pub fn table(name: &str) -> Result<String> {
             format!(" takes NAME or SCHEMA.NAME (parts joined by single dots), not '{name}'")
         ]));
     }
-    Ok(parts.iter().map(|p| ident(p)).collect::<Result<Vec<_>>>()?.join("."))
+    Ok(parts.iter().map(|p| ident(dialect, p)).collect::<Result<Vec<_>>>()?.join("."))
 }
 
 /// A string literal: `'text'` with every `'` doubled. In the PostgreSQL
 /// dialect a text with a backslash is written as an escape string
 /// (`E'…'`, backslashes doubled), which reads the same whatever
-/// `standard_conforming_strings` says.
+/// `standard_conforming_strings` says; Spark reads a backslash as an
+/// escape in every literal, so there it is doubled.
 pub fn string(dialect: Dialect, text: &str) -> Result<String> {
     no_nul("text", text)?;
     let quoted = text.replace('\'', "''");
     Ok(match dialect {
         Dialect::Postgres if text.contains('\\') => format!("E'{}'", quoted.replace('\\', "\\\\")),
+        Dialect::Spark => format!("'{}'", quoted.replace('\\', "\\\\")),
         _ => format!("'{quoted}'"),
     })
 }
@@ -128,24 +193,24 @@ pub fn comment(text: &str) -> String {
     format!("-- {clean}").trim_end().to_string()
 }
 
-/// The largest of `values` (all non-NULL): GREATEST in PostgreSQL, a
+/// The largest of `values` (all non-NULL): GREATEST in PostgreSQL and Spark, a
 /// CASE elsewhere (the first branch whose value is at least every later
 /// one is the first maximum).
 pub fn greatest(dialect: Dialect, values: &[String]) -> String {
     match (dialect, values.len()) {
         (_, 0) => "NULL".into(),
         (_, 1) => values[0].clone(),
-        (Dialect::Postgres, _) => format!("GREATEST({})", values.join(", ")),
+        (Dialect::Postgres | Dialect::Spark, _) => format!("GREATEST({})", values.join(", ")),
         (Dialect::Ansi, _) => pick_first(values, ">=", values),
     }
 }
 
-/// The smallest of `values`: LEAST in PostgreSQL, a CASE elsewhere.
+/// The smallest of `values`: LEAST in PostgreSQL and Spark, a CASE elsewhere.
 pub fn least(dialect: Dialect, values: &[String]) -> String {
     match (dialect, values.len()) {
         (_, 0) => "NULL".into(),
         (_, 1) => values[0].clone(),
-        (Dialect::Postgres, _) => format!("LEAST({})", values.join(", ")),
+        (Dialect::Postgres | Dialect::Spark, _) => format!("LEAST({})", values.join(", ")),
         (Dialect::Ansi, _) => pick_first(values, "<=", values),
     }
 }
@@ -194,12 +259,17 @@ mod tests {
 
     #[test]
     fn names_and_texts_are_escaped() {
-        assert_eq!(ident(r#"x"; DROP TABLE t; --"#).unwrap(), r#""x""; DROP TABLE t; --""#);
+        assert_eq!(ident(Dialect::Ansi, r#"x"; DROP TABLE t; --"#).unwrap(), r#""x""; DROP TABLE t; --""#);
+        assert_eq!(ident(Dialect::Spark, "a`b\"c").unwrap(), "`a``b\"c`");
+        assert_eq!(string(Dialect::Spark, r"a\'b").unwrap(), r"'a\\''b'");
+        assert!(distinct_names(Dialect::Spark, "columns", ["Amount", "amount"]).is_err());
+        assert!(distinct_names(Dialect::Postgres, "columns", ["Amount", "amount"]).is_ok());
         assert_eq!(string(Dialect::Ansi, "it's").unwrap(), "'it''s'");
         assert_eq!(string(Dialect::Postgres, r"a\'b").unwrap(), r"E'a\\''b'");
-        assert!(ident("a\0b").is_err());
-        assert_eq!(table("mart.loans").unwrap(), r#""mart"."loans""#);
-        assert!(table("mart..loans").is_err());
+        assert!(ident(Dialect::Ansi, "a\0b").is_err());
+        assert_eq!(table(Dialect::Ansi, "mart.loans").unwrap(), r#""mart"."loans""#);
+        assert_eq!(table(Dialect::Spark, "mart.loans").unwrap(), "`mart`.`loans`");
+        assert!(table(Dialect::Ansi, "mart..loans").is_err());
         assert_eq!(comment("one\ntwo;\rDROP"), "-- one two; DROP");
     }
 

@@ -52,11 +52,20 @@ pub fn stats_sql(request: &StatsRequest) -> Result<String> {
         return Err(Error::Usage(format!("{} needs at least one numeric input", request.family.name())));
     }
     let full = request.family != Family::NaiveBayes;
-    let table = sql::table(&request.table)?;
-    let target = ident(&request.target)?;
-    let numeric: Vec<String> = request.numeric.iter().map(|n| ident(n)).collect::<Result<_>>()?;
-    let categorical: Vec<String> = request.categorical.iter().map(|n| ident(n)).collect::<Result<_>>()?;
-    let level = |g: &str| format!("TRIM(CAST({g} AS VARCHAR))");
+    let table = sql::table(dialect, &request.table)?;
+    let target = ident(dialect, &request.target)?;
+    let numeric: Vec<String> = request.numeric.iter().map(|n| ident(dialect, n)).collect::<Result<_>>()?;
+    let categorical: Vec<String> = request.categorical.iter().map(|n| ident(dialect, n)).collect::<Result<_>>()?;
+    sql::distinct_names(
+        dialect,
+        "columns",
+        std::iter::once(request.target.as_str())
+            .chain(request.numeric.iter().map(String::as_str))
+            .chain(request.categorical.iter().map(String::as_str))
+            .chain(request.weight.iter().map(String::as_str)),
+    )?;
+    let (double, text_type) = (dialect.double_type(), dialect.text_type());
+    let level = |g: &str| format!("TRIM(CAST({g} AS {text_type}))");
     let mut missing_level = Vec::new();
     for g in &categorical {
         let tokens: Vec<String> = std::iter::once(String::new())
@@ -70,9 +79,9 @@ pub fn stats_sql(request: &StatsRequest) -> Result<String> {
     complete.extend(missing_level.iter().map(|m| format!("NOT {m}")));
     let weight = match &request.weight {
         Some(w) => {
-            let w = ident(w)?;
+            let w = ident(dialect, w)?;
             complete.push(format!("{w} IS NOT NULL"));
-            format!("CAST({w} AS DOUBLE PRECISION)")
+            format!("CAST({w} AS {double})")
         }
         None => "1E0".into(),
     };
@@ -88,128 +97,134 @@ pub fn stats_sql(request: &StatsRequest) -> Result<String> {
         text.push('\n');
     }
     let p = numeric.len();
-    let shift: Vec<String> =
-        (1..=p).map(|j| format!("CAST({} AS DOUBLE PRECISION) AS \"__br_k{j}\"", numeric[j - 1])).collect();
+    let shift: Vec<String> = (1..=p).map(|j| format!("CAST({} AS {double}) AS __br_k{j}", numeric[j - 1])).collect();
     // With no numeric input the shift row only has to exist.
-    let shift = if shift.is_empty() { vec!["1 AS \"__br_k0\"".to_string()] } else { shift };
+    let shift = if shift.is_empty() { vec!["1 AS __br_k0".to_string()] } else { shift };
     text.push_str(&format!(
-        "WITH\n\"__br_shift\" AS (\n  SELECT\n    {}\n  FROM {table}\n  WHERE {complete}\n  FETCH FIRST 1 ROWS ONLY\n),\n",
-        shift.join(",\n    ")
+        "WITH\n__br_shift AS (\n  SELECT\n    {}\n  FROM {table}\n  WHERE {complete}\n  {}\n),\n",
+        shift.join(",\n    "),
+        if dialect == Dialect::Spark { "LIMIT 1" } else { "FETCH FIRST 1 ROWS ONLY" }
     ));
-    // Two row-wise stages, each ending in OFFSET 0 ROWS so that the engine
+    // Two row-wise stages, each ending in the stage fence so that the engine
     // evaluates every expression once per row: folded into the aggregate,
     // PostgreSQL would evaluate the completeness test and the cast once per
     // use — in every cross-product — which made the LDA query five times
     // slower on a million rows.
     let mut flags = vec![
-        format!("CAST({target} AS VARCHAR) AS \"__br_y\""),
-        format!("CASE WHEN {target} IS NULL THEN 1 ELSE 0 END AS \"__br_nolabel\""),
-        format!("CASE WHEN {complete} THEN 1 ELSE 0 END AS \"__br_ok\""),
-        format!("{weight} AS \"__br_raw_w\""),
+        format!("CAST({target} AS {text_type}) AS __br_y"),
+        format!("CASE WHEN {target} IS NULL THEN 1 ELSE 0 END AS __br_nolabel"),
+        format!("CASE WHEN {complete} THEN 1 ELSE 0 END AS __br_ok"),
+        format!("{weight} AS __br_raw_w"),
     ];
     for (c, g) in categorical.iter().enumerate() {
-        flags.push(format!("{} AS \"__br_g{}\"", level(g), c + 1));
-        flags.push(format!("CASE WHEN {} THEN 1 ELSE 0 END AS \"__br_m{}\"", missing_level[c], c + 1));
+        flags.push(format!("{} AS __br_g{}", level(g), c + 1));
+        flags.push(format!("CASE WHEN {} THEN 1 ELSE 0 END AS __br_m{}", missing_level[c], c + 1));
     }
     for (j, x) in numeric.iter().enumerate() {
         let j = j + 1;
-        flags.push(format!("CAST({x} AS DOUBLE PRECISION) AS \"__br_raw{j}\""));
-        flags.push(format!("\"__br_shift\".\"__br_k{j}\" AS \"__br_s{j}\""));
-        flags.push(format!("CASE WHEN {x} IS NULL THEN 1 ELSE 0 END AS \"__br_n{j}\""));
+        flags.push(format!("CAST({x} AS {double}) AS __br_raw{j}"));
+        flags.push(format!("__br_shift.__br_k{j} AS __br_s{j}"));
+        flags.push(format!("CASE WHEN {x} IS NULL THEN 1 ELSE 0 END AS __br_n{j}"));
     }
     text.push_str(&format!(
-        "\"__br_flags\" AS (\n  SELECT\n    {}\n  FROM {table} CROSS JOIN \"__br_shift\"\n  OFFSET 0 ROWS\n),\n",
-        flags.join(",\n    ")
+        "__br_flags AS (\n  SELECT\n    {}\n  FROM {table} CROSS JOIN __br_shift{}\n),\n",
+        flags.join(",\n    "),
+        dialect.stage_fence()
     ));
-    let mut rows = vec![
-        "\"__br_flags\".*".to_string(),
-        "CASE WHEN \"__br_ok\" = 1 THEN \"__br_raw_w\" ELSE 0E0 END AS \"__br_w\"".to_string(),
-    ];
+    let mut rows =
+        vec!["__br_flags.*".to_string(), "CASE WHEN __br_ok = 1 THEN __br_raw_w ELSE 0E0 END AS __br_w".to_string()];
     if request.weight.is_some() {
-        rows.push("CASE WHEN \"__br_raw_w\" < 0E0 THEN 1 ELSE 0 END AS \"__br_negative\"".into());
+        rows.push("CASE WHEN __br_raw_w < 0E0 THEN 1 ELSE 0 END AS __br_negative".into());
     }
     for j in 1..=p {
-        rows.push(format!(
-            "CASE WHEN \"__br_ok\" = 1 THEN \"__br_raw{j}\" - \"__br_s{j}\" ELSE 0E0 END AS \"__br_x{j}\""
-        ));
-        rows.push(format!("CASE WHEN \"__br_ok\" = 1 THEN \"__br_raw{j}\" END AS \"__br_v{j}\""));
+        rows.push(format!("CASE WHEN __br_ok = 1 THEN __br_raw{j} - __br_s{j} ELSE 0E0 END AS __br_x{j}"));
+        rows.push(format!("CASE WHEN __br_ok = 1 THEN __br_raw{j} END AS __br_v{j}"));
     }
     text.push_str(&format!(
-        "\"__br_rows\" AS (\n  SELECT\n    {}\n  FROM \"__br_flags\"\n  OFFSET 0 ROWS\n),\n",
-        rows.join(",\n    ")
+        "__br_rows AS (\n  SELECT\n    {}\n  FROM __br_flags{}\n),\n",
+        rows.join(",\n    "),
+        dialect.stage_fence()
     ));
 
     let mut select = vec![
-        format!("{} AS \"format\"", string(dialect, STATS_FORMAT)?),
-        format!("{} AS \"family\"", string(dialect, request.family.name())?),
-        format!("{} AS \"target\"", string(dialect, &request.target)?),
-        "\"__br_y\" AS \"class\"".to_string(),
+        format!("{} AS format", string(dialect, STATS_FORMAT)?),
+        format!("{} AS family", string(dialect, request.family.name())?),
+        format!("{} AS target", string(dialect, &request.target)?),
+        "__br_y AS class".to_string(),
     ];
     for (c, name) in request.categorical.iter().enumerate() {
         let c = c + 1;
-        select.push(format!("{} AS \"categorical_{c}\"", string(dialect, name)?));
-        select.push(format!("1 - GROUPING(\"__br_g{c}\") AS \"grouped_{c}\""));
-        select.push(format!("\"__br_g{c}\" AS \"level_{c}\""));
-        select.push(format!("SUM(\"__br_m{c}\") AS \"level_missing_{c}\""));
+        select.push(format!("{} AS categorical_{c}", string(dialect, name)?));
+        select.push(format!("1 - GROUPING(__br_g{c}) AS grouped_{c}"));
+        select.push(format!("__br_g{c} AS level_{c}"));
+        select.push(format!("SUM(__br_m{c}) AS level_missing_{c}"));
     }
     for (j, name) in request.numeric.iter().enumerate() {
-        select.push(format!("{} AS \"feature_{}\"", string(dialect, name)?, j + 1));
+        select.push(format!("{} AS feature_{}", string(dialect, name)?, j + 1));
     }
-    select.push("SUM(CASE WHEN \"__br_w\" > 0E0 THEN 1 ELSE 0 END) AS \"rows\"".into());
-    select.push("SUM(1 - \"__br_ok\") AS \"incomplete\"".into());
-    select.push("SUM(\"__br_nolabel\") AS \"unlabelled\"".into());
-    select.push("SUM(\"__br_w\") AS \"weight\"".into());
+    select.push("SUM(CASE WHEN __br_w > 0E0 THEN 1 ELSE 0 END) AS rows".into());
+    select.push("SUM(1 - __br_ok) AS incomplete".into());
+    select.push("SUM(__br_nolabel) AS unlabelled".into());
+    select.push("SUM(__br_w) AS weight".into());
     if request.weight.is_some() {
-        select.push("SUM(\"__br_negative\") AS \"negative_weights\"".into());
+        select.push("SUM(__br_negative) AS negative_weights".into());
     }
     for j in 1..=p {
-        select.push(format!("SUM(\"__br_w\" * \"__br_x{j}\") AS \"sum_{j}\""));
+        select.push(format!("SUM(__br_w * __br_x{j}) AS sum_{j}"));
     }
     for i in 1..=p {
         for j in i..=p {
             if full || i == j {
-                select.push(format!("SUM(\"__br_w\" * \"__br_x{i}\" * \"__br_x{j}\") AS \"cross_{i}_{j}\""));
+                select.push(format!("SUM(__br_w * __br_x{i} * __br_x{j}) AS cross_{i}_{j}"));
             }
         }
     }
     for j in 1..=p {
-        select.push(format!("MIN(\"__br_v{j}\") AS \"min_{j}\""));
-        select.push(format!("MAX(\"__br_v{j}\") AS \"max_{j}\""));
-        select.push(format!("MIN(\"__br_s{j}\") AS \"shift_{j}\""));
-        select.push(format!("SUM(\"__br_n{j}\") AS \"missing_{j}\""));
+        select.push(format!("MIN(__br_v{j}) AS min_{j}"));
+        select.push(format!("MAX(__br_v{j}) AS max_{j}"));
+        select.push(format!("MIN(__br_s{j}) AS shift_{j}"));
+        select.push(format!("SUM(__br_n{j}) AS missing_{j}"));
         if request.weight.is_some() {
-            select.push(format!("SUM(\"__br_ok\" * \"__br_x{j}\") AS \"plain_sum_{j}\""));
-            select.push(format!("SUM(\"__br_ok\" * \"__br_x{j}\" * \"__br_x{j}\") AS \"plain_square_{j}\""));
+            select.push(format!("SUM(__br_ok * __br_x{j}) AS plain_sum_{j}"));
+            select.push(format!("SUM(__br_ok * __br_x{j} * __br_x{j}) AS plain_square_{j}"));
         }
     }
     let c = categorical.len();
-    let mut sets = vec!["(\"__br_y\")".to_string()];
-    sets.extend((1..=c).map(|g| format!("(\"__br_y\", \"__br_g{g}\")")));
+    let mut sets = vec!["(__br_y)".to_string()];
+    sets.extend((1..=c).map(|g| format!("(__br_y, __br_g{g})")));
     if full {
         for a in 1..=c {
             for b in a + 1..=c {
-                sets.push(format!("(\"__br_y\", \"__br_g{a}\", \"__br_g{b}\")"));
+                sets.push(format!("(__br_y, __br_g{a}, __br_g{b})"));
             }
         }
     }
     let aggregate = format!(
-        "SELECT\n    {}\n  FROM \"__br_rows\"\n  GROUP BY GROUPING SETS ({})",
+        "SELECT\n    {}\n  FROM __br_rows\n  GROUP BY GROUPING SETS ({})",
         select.join(",\n    "),
         sets.join(", ")
     );
     match dialect {
-        Dialect::Postgres if p > 0 => {
+        Dialect::Postgres | Dialect::Spark if p > 0 => {
+            let spark = dialect == Dialect::Spark;
             let fractions: Vec<String> = (1..10).map(|i| number(i as f64 / 10.0)).collect();
+            // Exact deciles with linear interpolation between order
+            // statistics in both engines: PostgreSQL's percentile_cont and
+            // Spark's percentile (not its percentile_approx).
             let deciles: Vec<String> = (1..=p)
                 .map(|j| {
-                    format!(
-                        "percentile_cont(CAST(ARRAY[{}] AS DOUBLE PRECISION[])) WITHIN GROUP (ORDER BY \"__br_v{j}\") AS \"deciles_{j}\"",
-                        fractions.join(", ")
-                    )
+                    if spark {
+                        format!("percentile(__br_v{j}, array({})) AS deciles_{j}", fractions.join(", "))
+                    } else {
+                        format!(
+                            "percentile_cont(CAST(ARRAY[{}] AS DOUBLE PRECISION[])) WITHIN GROUP (ORDER BY __br_v{j}) AS deciles_{j}",
+                            fractions.join(", ")
+                        )
+                    }
                 })
                 .collect();
             text.push_str(&format!(
-                "\"__br_deciles\" AS (\n  SELECT\n    {}\n  FROM \"__br_rows\"\n  WHERE \"__br_ok\" = 1\n),\n",
+                "__br_deciles AS (\n  SELECT\n    {}\n  FROM __br_rows\n  WHERE __br_ok = 1\n),\n",
                 deciles.join(",\n    ")
             ));
             // Each row's decile bin (the count of deciles below its value, as
@@ -219,31 +234,60 @@ pub fn stats_sql(request: &StatsRequest) -> Result<String> {
                 .map(|j| {
                     let above: Vec<String> = (1..10)
                         .map(|i| {
-                            format!(
-                                "CASE WHEN \"__br_v{j}\" > (\"__br_deciles\".\"deciles_{j}\")[{i}] THEN 1 ELSE 0 END"
-                            )
+                            // Spark indexes arrays from 0, PostgreSQL from 1.
+                            let element = if spark {
+                                format!("__br_deciles.deciles_{j}[{}]", i - 1)
+                            } else {
+                                format!("(__br_deciles.deciles_{j})[{i}]")
+                            };
+                            format!("CASE WHEN __br_v{j} > {element} THEN 1 ELSE 0 END")
                         })
                         .collect();
-                    format!("{} AS \"__br_b{j}\"", above.join(" + "))
+                    format!("{} AS __br_b{j}", above.join(" + "))
                 })
                 .collect();
             let counts: Vec<String> = (1..=p)
                 .map(|j| {
                     let bins: Vec<String> =
-                        (0..10).map(|b| format!("SUM(CASE WHEN \"__br_b{j}\" = {b} THEN 1 ELSE 0 END)")).collect();
-                    format!("ARRAY[{}] AS \"bins_{j}\"", bins.join(", "))
+                        (0..10).map(|b| format!("SUM(CASE WHEN __br_b{j} = {b} THEN 1 ELSE 0 END)")).collect();
+                    if spark {
+                        format!("array({}) AS bins_{j}", bins.join(", "))
+                    } else {
+                        format!("ARRAY[{}] AS bins_{j}", bins.join(", "))
+                    }
                 })
                 .collect();
             text.push_str(&format!(
-                "\"__br_binned\" AS (\n  SELECT\n    {}\n  FROM \"__br_rows\" CROSS JOIN \"__br_deciles\"\n  WHERE \"__br_ok\" = 1\n  OFFSET 0 ROWS\n),\n\"__br_bins\" AS (\n  SELECT\n    {}\n  FROM \"__br_binned\"\n),\n",
+                "__br_binned AS (\n  SELECT\n    {}\n  FROM __br_rows CROSS JOIN __br_deciles\n  WHERE __br_ok = 1{}\n),\n__br_bins AS (\n  SELECT\n    {}\n  FROM __br_binned\n),\n",
                 binned.join(",\n    "),
+                dialect.stage_fence(),
                 counts.join(",\n    ")
             ));
-            text.push_str(&format!("\"__br_sums\" AS (\n  {aggregate}\n)\n"));
-            text.push_str("SELECT \"__br_sums\".*, \"__br_deciles\".*, \"__br_bins\".*\nFROM \"__br_sums\" CROSS JOIN \"__br_deciles\" CROSS JOIN \"__br_bins\";\n");
+            text.push_str(&format!("__br_sums AS (\n  {aggregate}\n)\n"));
+            if spark {
+                // Spark's CSV writer takes no arrays: each list is written as
+                // PostgreSQL writes one, `{a,b,…}`, which the reader parses.
+                let braced = |name: String| {
+                    format!("CONCAT('{{', ARRAY_JOIN(TRANSFORM({name}, v -> CAST(v AS STRING)), ','), '}}')")
+                };
+                let lists: Vec<String> = (1..=p)
+                    .flat_map(|j| {
+                        [
+                            format!("{} AS deciles_{j}", braced(format!("__br_deciles.deciles_{j}"))),
+                            format!("{} AS bins_{j}", braced(format!("__br_bins.bins_{j}"))),
+                        ]
+                    })
+                    .collect();
+                text.push_str(&format!(
+                    "SELECT __br_sums.*, {}\nFROM __br_sums CROSS JOIN __br_deciles CROSS JOIN __br_bins;\n",
+                    lists.join(", ")
+                ));
+            } else {
+                text.push_str("SELECT __br_sums.*, __br_deciles.*, __br_bins.*\nFROM __br_sums CROSS JOIN __br_deciles CROSS JOIN __br_bins;\n");
+            }
         }
         _ => {
-            text.push_str(&format!("\"__br_sums\" AS (\n  {aggregate}\n)\nSELECT * FROM \"__br_sums\";\n"));
+            text.push_str(&format!("__br_sums AS (\n  {aggregate}\n)\nSELECT * FROM __br_sums;\n"));
         }
     }
     Ok(text)

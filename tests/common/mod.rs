@@ -4,6 +4,7 @@
 #![allow(dead_code)]
 
 pub mod postgres;
+pub mod spark;
 
 use std::io::Write;
 use std::path::{Path, PathBuf};

@@ -98,10 +98,10 @@ impl Postgres {
             .iter()
             .map(|h| {
                 let kind = if numeric.iter().any(|n| n == h) { "DOUBLE PRECISION" } else { "TEXT" };
-                format!("{} {kind}", ident(h).expect("name"))
+                format!("{} {kind}", ident(baserate::export::Dialect::Postgres, h).expect("name"))
             })
             .collect();
-        let name = ident(table).expect("table");
+        let name = ident(baserate::export::Dialect::Postgres, table).expect("table");
         let copy = format!(
             "COPY {name} FROM STDIN WITH (FORMAT csv, HEADER true);\n{}\\.\n",
             std::fs::read_to_string(csv).expect("read csv")

@@ -1,0 +1,123 @@
+//! A local Apache Spark session (`local[2]`, through the `pyspark`
+//! package) for tests: one long-lived Python process per test binary,
+//! started on first use, fed one JSON command per line on stdin and
+//! answering one line on stdout. Spark's own ANSI mode is on (the default
+//! from Spark 4), so a failed cast is an error, not a NULL.
+
+use std::io::{BufRead, BufReader, Write};
+use std::path::Path;
+use std::process::{Child, ChildStdin, ChildStdout, Command, Stdio};
+use std::sync::{Mutex, MutexGuard, OnceLock};
+
+/// The server: loads CSV files as tables (named columns as DOUBLE, the
+/// rest as STRING, empty fields NULL, RFC 4180 quoting) and runs SQL
+/// files, writing each result as CSV (doubles in their shortest
+/// round-trip form, NULL as an empty field).
+const SERVER: &str = r#"
+import csv, json, sys
+from pyspark.sql import SparkSession
+from pyspark.sql.types import StructType, StructField, DoubleType, StringType
+spark = (SparkSession.builder.master("local[2]").appName("baserate-tests")
+         .config("spark.ui.enabled", "false").config("spark.sql.shuffle.partitions", "2")
+         .config("spark.sql.ansi.enabled", "true").getOrCreate())
+spark.sparkContext.setLogLevel("ERROR")
+print("ready", flush=True)
+for line in sys.stdin:
+    command = json.loads(line)
+    try:
+        if command["op"] == "table":
+            with open(command["csv"], newline="") as f:
+                header = next(csv.reader(f))
+            numeric = set(command["numeric"])
+            schema = StructType([StructField(h, DoubleType() if h in numeric else StringType(), True) for h in header])
+            frame = (spark.read.option("header", "true").option("escape", '"').option("multiLine", "true")
+                     .schema(schema).csv(command["csv"]))
+            frame.createOrReplaceTempView("`" + command["name"].replace("`", "``") + "`")
+        else:
+            statement = open(command["sql"]).read().rstrip().rstrip(";")
+            result = spark.sql(statement)
+            with open(command["out"], "w", newline="") as out:
+                writer = csv.writer(out)
+                writer.writerow(result.columns)
+                for row in result.toLocalIterator():
+                    writer.writerow(["" if v is None else repr(v) if isinstance(v, float) else v for v in row])
+        print("ok", flush=True)
+    except Exception as error:
+        print("error " + " ".join(str(error).split())[:2000], flush=True)
+"#;
+
+/// The running session.
+pub struct Spark {
+    _child: Child,
+    stdin: ChildStdin,
+    stdout: BufReader<ChildStdout>,
+    dir: tempfile::TempDir,
+    queries: usize,
+}
+
+static SESSION: OnceLock<Option<Mutex<Spark>>> = OnceLock::new();
+
+impl Spark {
+    /// The binary's one session, or `None` when pyspark (or Java) is absent.
+    pub fn shared() -> Option<MutexGuard<'static, Spark>> {
+        SESSION
+            .get_or_init(|| {
+                if !super::python_with("pyspark") {
+                    return None;
+                }
+                let mut child = Command::new("python3")
+                    .args(["-c", SERVER])
+                    .stdin(Stdio::piped())
+                    .stdout(Stdio::piped())
+                    .stderr(Stdio::null())
+                    .spawn()
+                    .ok()?;
+                let stdin = child.stdin.take()?;
+                let mut stdout = BufReader::new(child.stdout.take()?);
+                let mut line = String::new();
+                stdout.read_line(&mut line).ok()?;
+                assert_eq!(line.trim(), "ready", "the Spark session did not start");
+                let dir = tempfile::tempdir().ok()?;
+                Some(Mutex::new(Spark { _child: child, stdin, stdout, dir, queries: 0 }))
+            })
+            .as_ref()
+            .map(|m| m.lock().unwrap_or_else(|poisoned| poisoned.into_inner()))
+    }
+
+    fn send(&mut self, command: serde_json::Value) -> Result<(), String> {
+        writeln!(self.stdin, "{command}").map_err(|e| e.to_string())?;
+        self.stdin.flush().map_err(|e| e.to_string())?;
+        let mut line = String::new();
+        self.stdout.read_line(&mut line).map_err(|e| e.to_string())?;
+        match line.trim_end() {
+            "ok" => Ok(()),
+            other => Err(other.trim_start_matches("error ").to_string()),
+        }
+    }
+
+    /// Registers a CSV file as table `name`: `numeric` columns as DOUBLE,
+    /// the rest as STRING.
+    pub fn load(&mut self, name: &str, csv: &Path, numeric: &[String]) {
+        let command = serde_json::json!({"op": "table", "name": name, "csv": csv, "numeric": numeric});
+        if let Err(message) = self.send(command) {
+            panic!("Spark could not load {}: {message}", csv.display());
+        }
+    }
+
+    /// Runs one statement; its rows as CSV with a header, or Spark's error.
+    pub fn try_query_csv(&mut self, sql: &str) -> Result<String, String> {
+        self.queries += 1;
+        let (file, out) = (
+            self.dir.path().join(format!("q{}.sql", self.queries)),
+            self.dir.path().join(format!("q{}.csv", self.queries)),
+        );
+        std::fs::write(&file, sql).map_err(|e| e.to_string())?;
+        self.send(serde_json::json!({"op": "query", "sql": file, "out": out}))?;
+        std::fs::read_to_string(&out).map_err(|e| e.to_string())
+    }
+
+    /// Runs one statement; its rows as CSV with a header.
+    pub fn query_csv(&mut self, sql: &str) -> String {
+        self.try_query_csv(sql).unwrap_or_else(|message| panic!("Spark refused the statement: {message}"))
+    }
+}
