@@ -1334,3 +1334,36 @@ fn names_equal_but_for_case_are_refused_in_the_spark_dialect() {
         "differ only in case",
     );
 }
+
+/// In Spark's ANSI mode a text in a numeric input stops the statement with
+/// Spark's own message (naming the value), rather than scoring the row as
+/// if the value were missing; the README says so.
+#[test]
+fn a_text_in_a_numeric_column_stops_the_spark_statement() {
+    let Some(mut spark) = Spark::shared() else { return };
+    let dir = temp_dir();
+    let d = dir.path();
+    let demo = demo(d);
+    let lending = demo.join("lending");
+    let model = d.join("m.json");
+    let train = lending.join("train.csv");
+    let mut fit = fit_lending(train.to_str().unwrap(), "lda");
+    fit.extend(["-o", model.to_str().unwrap()]);
+    assert_eq!(run(d, &fit).0, 0);
+    let typed = d.join("typed.csv");
+    edited(&lending.join("new_portfolio.csv"), &typed, |i, column, value| match column {
+        "income" if i == 17 => "n/a".into(),
+        _ => value.to_string(),
+    });
+    // income loaded as text, as a table whose column holds the odd word is.
+    let numeric: Vec<String> = numeric_columns(&model).into_iter().filter(|c| c != "income").collect();
+    spark.load("typed", &typed, &numeric);
+    let sql = d.join("typed.sql");
+    let (code, _, stderr) = run(
+        d,
+        &["export-sql", model.to_str().unwrap(), "--table", "typed", "--dialect", "spark", "-o", sql.to_str().unwrap()],
+    );
+    assert_eq!(code, 0, "{stderr}");
+    let error = spark.try_query_csv(&std::fs::read_to_string(&sql).expect("sql")).expect_err("the cast must fail");
+    assert!(error.contains("CAST_INVALID_INPUT") && error.contains("n/a"), "{error}");
+}

@@ -14,7 +14,7 @@ use std::sync::{Mutex, MutexGuard, OnceLock};
 /// files, writing each result as CSV (doubles in their shortest
 /// round-trip form, NULL as an empty field).
 const SERVER: &str = r#"
-import csv, json, sys
+import csv, json, re, sys
 from pyspark.sql import SparkSession
 from pyspark.sql.types import StructType, StructField, DoubleType, StringType
 spark = (SparkSession.builder.master("local[2]").appName("baserate-tests")
@@ -43,7 +43,11 @@ for line in sys.stdin:
                     writer.writerow(["" if v is None else repr(v) if isinstance(v, float) else v for v in row])
         print("ok", flush=True)
     except Exception as error:
-        print("error " + " ".join(str(error).split())[:2000], flush=True)
+        # Spark's own message (`[ERROR_CLASS] text`) first, wherever the
+        # Java trace put it.
+        text = str(error)
+        found = re.search(r"\[[A-Z][A-Z_.]+\][^\n]*", text)
+        print("error " + " ".join((found.group(0) if found else text).split())[:2000], flush=True)
 "#;
 
 /// The running session.
