@@ -4,12 +4,26 @@
 //! the same rows, in one run, medians of three. There is no target: the
 //! figures say what moving the job into the database costs or saves.
 //!
+//! Spark (pyspark, local mode on one and on two cores) runs the LDA and
+//! QDA scoring and aggregate statements of its dialect on the same rows,
+//! read from the CSV file by each statement.
+//!
 //! Run: `cargo bench --bench warehouse` (needs PostgreSQL from Debian's
-//! packages; rows: `BASERATE_BENCH_ROWS`).
+//! packages, and pyspark for the Spark figures; rows: `BASERATE_BENCH_ROWS`;
+//! repeats per figure: `BASERATE_BENCH_REPEATS`, default 3).
 
 mod common;
 #[path = "../tests/common/postgres.rs"]
 mod postgres;
+#[path = "../tests/common/spark.rs"]
+#[allow(dead_code)]
+mod spark;
+
+/// What the shared Spark session module asks of its crate.
+#[allow(dead_code)]
+fn python_with(modules: &str) -> bool {
+    common::python_has(modules)
+}
 
 use std::process::Command;
 use std::time::Instant;
@@ -19,9 +33,15 @@ fn median(mut v: Vec<f64>) -> f64 {
     v[v.len() / 2]
 }
 
+/// Repeats per figure: `BASERATE_BENCH_REPEATS`, default 3 (the median is
+/// reported); 1 for the 10,000,000-row run.
+fn repeats() -> usize {
+    std::env::var("BASERATE_BENCH_REPEATS").ok().and_then(|v| v.parse().ok()).unwrap_or(3).max(1)
+}
+
 fn timed(mut f: impl FnMut()) -> f64 {
     median(
-        (0..3)
+        (0..repeats())
             .map(|_| {
                 let start = Instant::now();
                 f();
@@ -119,6 +139,42 @@ fn main() {
                 sql / direct,
                 from
             );
+        }
+    }
+    // The same jobs in Spark local mode, on one and on two cores, each
+    // statement reading the CSV file (a cluster would read its own
+    // columnar tables, faster); every statement in the Spark dialect.
+    if !common::python_has("pyspark") {
+        println!("pyspark absent: no Spark figures");
+        return;
+    }
+    for cores in [1usize, 2] {
+        let Some(mut spark) = spark::Spark::start(cores, "8g") else {
+            println!("Spark did not start");
+            return;
+        };
+        let load = Instant::now();
+        spark.load_table("reference", &path, &numeric, false);
+        println!("Spark local[{cores}]: registering the CSV file as a table {:.2} s", load.elapsed().as_secs_f64());
+        for family in ["lda", "qda"] {
+            let model = file(&format!("{family}.json"));
+            let sql_path = file("job.sql");
+            run(&["export-sql", &model, "--table", "reference", "--dialect", "spark", "-o", &sql_path]);
+            let statement = std::fs::read_to_string(&sql_path).expect("sql");
+            let scoring = timed(|| {
+                let _ = spark.query_csv(&statement);
+            });
+            let stats_path = file("stats.sql");
+            let mut args =
+                vec!["stats-sql", "--family", family, "--table", "reference", "--target", "y", "--dialect", "spark"];
+            args.extend(["-o", &stats_path]);
+            args.extend(numeric.iter().map(String::as_str));
+            run(&args);
+            let statement = std::fs::read_to_string(&stats_path).expect("sql");
+            let aggregates = timed(|| {
+                let _ = spark.query_csv(&statement);
+            });
+            println!("Spark local[{cores}] {family}: scoring query {scoring:.2} s, aggregate query {aggregates:.2} s");
         }
     }
 }

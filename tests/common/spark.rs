@@ -1,5 +1,5 @@
-//! A local Apache Spark session (`local[2]`, through the `pyspark`
-//! package) for tests: one long-lived Python process per test binary,
+//! A local Apache Spark session (`local[N]`, through the `pyspark`
+//! package) for tests and benchmarks: one long-lived Python process per test binary,
 //! started on first use, fed one JSON command per line on stdin and
 //! answering one line on stdout. Spark's own ANSI mode is on (the default
 //! from Spark 4), so a failed cast is an error, not a NULL.
@@ -17,9 +17,9 @@ const SERVER: &str = r#"
 import csv, json, re, sys
 from pyspark.sql import SparkSession
 from pyspark.sql.types import StructType, StructField, DoubleType, StringType
-spark = (SparkSession.builder.master("local[2]").appName("baserate-tests")
+spark = (SparkSession.builder.master("local[" + sys.argv[1] + "]").appName("baserate")
          .config("spark.ui.enabled", "false").config("spark.sql.shuffle.partitions", "2")
-         .config("spark.sql.ansi.enabled", "true").getOrCreate())
+         .config("spark.sql.ansi.enabled", "true").config("spark.driver.memory", sys.argv[2]).getOrCreate())
 spark.sparkContext.setLogLevel("ERROR")
 print("ready", flush=True)
 for line in sys.stdin:
@@ -32,6 +32,9 @@ for line in sys.stdin:
             schema = StructType([StructField(h, DoubleType() if h in numeric else StringType(), True) for h in header])
             frame = (spark.read.option("header", "true").option("escape", '"').option("multiLine", "true")
                      .schema(schema).csv(command["csv"]))
+            if command.get("cache"):
+                frame = frame.cache()
+                frame.count()
             frame.createOrReplaceTempView("`" + command["name"].replace("`", "``") + "`")
         else:
             statement = open(command["sql"]).read().rstrip().rstrip(";")
@@ -39,7 +42,7 @@ for line in sys.stdin:
             with open(command["out"], "w", newline="") as out:
                 writer = csv.writer(out)
                 writer.writerow(result.columns)
-                for row in result.toLocalIterator():
+                for row in result.collect():
                     writer.writerow(["" if v is None else repr(v) if isinstance(v, float) else v for v in row])
         print("ok", flush=True)
     except Exception as error:
@@ -62,30 +65,36 @@ pub struct Spark {
 static SESSION: OnceLock<Option<Mutex<Spark>>> = OnceLock::new();
 
 impl Spark {
-    /// The binary's one session, or `None` when pyspark (or Java) is absent.
+    /// The test binary's one session (`local[2]`), or `None` when pyspark
+    /// (or Java) is absent.
     pub fn shared() -> Option<MutexGuard<'static, Spark>> {
         SESSION
-            .get_or_init(|| {
-                if !super::python_with("pyspark") {
-                    return None;
-                }
-                let mut child = Command::new("python3")
-                    .args(["-c", SERVER])
-                    .stdin(Stdio::piped())
-                    .stdout(Stdio::piped())
-                    .stderr(Stdio::null())
-                    .spawn()
-                    .ok()?;
-                let stdin = child.stdin.take()?;
-                let mut stdout = BufReader::new(child.stdout.take()?);
-                let mut line = String::new();
-                stdout.read_line(&mut line).ok()?;
-                assert_eq!(line.trim(), "ready", "the Spark session did not start");
-                let dir = tempfile::tempdir().ok()?;
-                Some(Mutex::new(Spark { _child: child, stdin, stdout, dir, queries: 0 }))
-            })
+            .get_or_init(|| if super::python_with("pyspark") { Spark::start(2, "2g").map(Mutex::new) } else { None })
             .as_ref()
             .map(|m| m.lock().unwrap_or_else(|poisoned| poisoned.into_inner()))
+    }
+
+    /// A session of its own on `cores` local cores (`local[cores]`), its
+    /// one JVM (driver and executors in local mode) given `memory` of heap
+    /// (`2g`, say; Spark's default of 1g is too little to hold a
+    /// million-row table in memory and plan a long statement beside it).
+    pub fn start(cores: usize, memory: &str) -> Option<Spark> {
+        let mut child = Command::new("python3")
+            .args(["-c", SERVER, &cores.to_string(), memory])
+            .stdin(Stdio::piped())
+            .stdout(Stdio::piped())
+            .stderr(Stdio::null())
+            .spawn()
+            .ok()?;
+        let stdin = child.stdin.take()?;
+        let mut stdout = BufReader::new(child.stdout.take()?);
+        let mut line = String::new();
+        stdout.read_line(&mut line).ok()?;
+        if line.trim() != "ready" {
+            return None;
+        }
+        let dir = tempfile::tempdir().ok()?;
+        Some(Spark { _child: child, stdin, stdout, dir, queries: 0 })
     }
 
     fn send(&mut self, command: serde_json::Value) -> Result<(), String> {
@@ -102,7 +111,14 @@ impl Spark {
     /// Registers a CSV file as table `name`: `numeric` columns as DOUBLE,
     /// the rest as STRING.
     pub fn load(&mut self, name: &str, csv: &Path, numeric: &[String]) {
-        let command = serde_json::json!({"op": "table", "name": name, "csv": csv, "numeric": numeric});
+        self.load_table(name, csv, numeric, false);
+    }
+
+    /// As [`Spark::load`]; with `cache`, the table is read once into
+    /// Spark's memory (as a warehouse's columnar table would be read
+    /// fast), not from the CSV file at every query.
+    pub fn load_table(&mut self, name: &str, csv: &Path, numeric: &[String], cache: bool) {
+        let command = serde_json::json!({"op": "table", "name": name, "csv": csv, "numeric": numeric, "cache": cache});
         if let Err(message) = self.send(command) {
             panic!("Spark could not load {}: {message}", csv.display());
         }
