@@ -7,7 +7,7 @@ use baserate::evaluate::compare::Candidate;
 use baserate::model::discriminant::{CategoryModel, Divisor, LdaParams, QdaParams};
 use baserate::model::logistic::LogisticParams;
 use baserate::model::naive_bayes::NaiveBayesParams;
-use baserate::model::penalised::{LambdaChoice, LambdaRule, Penalty};
+use baserate::model::penalised::Penalty;
 use baserate::model::{Family, FamilyParams};
 use baserate::prior::PriorSpec;
 
@@ -143,23 +143,11 @@ impl FamilyOptions {
         let params = match family {
             Family::Logistic => {
                 let defaults = LogisticParams::default();
-                let penalty = match self.penalty.as_deref() {
-                    None | Some("none") => Penalty::None,
-                    Some("ridge") => Penalty::Ridge,
-                    Some("lasso") => Penalty::Lasso,
-                    Some("elastic-net") => Penalty::ElasticNet,
-                    Some(other) => {
-                        return Err(Error::Usage(format!(
-                            "--penalty takes none, ridge, lasso or elastic-net, not '{other}'"
-                        )))
-                    }
-                };
+                let penalty: Penalty = flag_value("--penalty", self.penalty.as_deref())?;
                 let path_flags = [
                     ("--mixing", self.mixing.is_some()),
                     ("--lambda", self.lambda.is_some()),
                     ("--path-length", self.path_length.is_some()),
-                    ("--lambda-floor", self.lambda_floor.is_some()),
-                    ("--full-path", self.full_path),
                     ("--lambda-floor", self.lambda_floor.is_some()),
                     ("--full-path", self.full_path),
                     ("--lambda-rule", self.lambda_rule.is_some()),
@@ -177,24 +165,6 @@ impl FamilyOptions {
                 if self.mixing.is_some() && penalty != Penalty::ElasticNet {
                     return Err(Error::Usage("--mixing is for --penalty elastic-net (ridge is 0, lasso is 1)".into()));
                 }
-                let lambda = match self.lambda.as_deref() {
-                    None | Some("auto") => LambdaChoice::Auto,
-                    Some(v) => LambdaChoice::Value(
-                        v.parse::<f64>()
-                            .ok()
-                            .filter(|x| *x >= 0.0 && x.is_finite())
-                            .ok_or_else(|| Error::Usage(format!("--lambda takes a number ≥ 0 or auto, not '{v}'")))?,
-                    ),
-                };
-                let lambda_rule = match self.lambda_rule.as_deref() {
-                    None | Some("sparsest-within-se") => LambdaRule::SparsestWithinSe,
-                    Some("lowest-deviance") => LambdaRule::LowestDeviance,
-                    Some(other) => {
-                        return Err(Error::Usage(format!(
-                            "--lambda-rule takes sparsest-within-se or lowest-deviance, not '{other}'"
-                        )))
-                    }
-                };
                 FamilyParams::Logistic(LogisticParams {
                     l2: self.newton_ridge.unwrap_or(defaults.l2),
                     class_weight: flag_value("--reweight", self.reweight.as_deref())?,
@@ -202,11 +172,11 @@ impl FamilyOptions {
                     tolerance: self.tolerance.unwrap_or(defaults.tolerance),
                     penalty,
                     mixing: self.mixing,
-                    lambda,
+                    lambda: flag_value("--lambda", self.lambda.as_deref())?,
                     path_length: self.path_length.or(defaults.path_length),
                     lambda_floor: self.lambda_floor,
                     full_path: self.full_path,
-                    lambda_rule,
+                    lambda_rule: flag_value("--lambda-rule", self.lambda_rule.as_deref())?,
                     cv_folds: self.cv_folds.unwrap_or(defaults.cv_folds),
                     cv_seed: defaults.cv_seed,
                     refuse_aliased: self.refuse_aliased,

@@ -91,7 +91,7 @@ pub struct LogisticParams {
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub mixing: Option<f64>,
     /// λ, or `auto` (cross-validated).
-    #[serde(default = "auto_lambda")]
+    #[serde(default)]
     pub lambda: LambdaChoice,
     /// Points on the λ path; `None`: ten to a decade of λ down to the floor
     /// ([`crate::model::penalised::default_path_length`]).
@@ -119,9 +119,6 @@ pub struct LogisticParams {
     pub refuse_aliased: bool,
 }
 
-fn auto_lambda() -> LambdaChoice {
-    LambdaChoice::Auto
-}
 fn default_cv_folds() -> usize {
     5
 }
@@ -138,7 +135,7 @@ impl Default for LogisticParams {
             tolerance: 1e-8,
             penalty: Penalty::None,
             mixing: None,
-            lambda: auto_lambda(),
+            lambda: LambdaChoice::Auto,
             path_length: None,
             lambda_floor: None,
             full_path: false,

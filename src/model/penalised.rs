@@ -76,13 +76,54 @@ impl Penalty {
     }
 }
 
+impl std::str::FromStr for Penalty {
+    type Err = String;
+
+    /// `none`, `ridge`, `lasso` or `elastic-net` (`--penalty`).
+    fn from_str(text: &str) -> std::result::Result<Self, String> {
+        [Penalty::None, Penalty::Ridge, Penalty::Lasso, Penalty::ElasticNet]
+            .into_iter()
+            .find(|p| p.name() == text)
+            .ok_or_else(|| format!("takes none, ridge, lasso or elastic-net, not '{text}'"))
+    }
+}
+
+impl std::str::FromStr for LambdaChoice {
+    type Err = String;
+
+    /// `auto` or a finite number ≥ 0 (`--lambda`).
+    fn from_str(text: &str) -> std::result::Result<Self, String> {
+        if text == "auto" {
+            return Ok(LambdaChoice::Auto);
+        }
+        text.parse::<f64>()
+            .ok()
+            .filter(|x| *x >= 0.0 && x.is_finite())
+            .map(LambdaChoice::Value)
+            .ok_or_else(|| format!("takes a number ≥ 0 or auto, not '{text}'"))
+    }
+}
+
+impl std::str::FromStr for LambdaRule {
+    type Err = String;
+
+    /// `sparsest-within-se` or `lowest-deviance` (`--lambda-rule`).
+    fn from_str(text: &str) -> std::result::Result<Self, String> {
+        [LambdaRule::SparsestWithinSe, LambdaRule::LowestDeviance]
+            .into_iter()
+            .find(|r| r.name() == text)
+            .ok_or_else(|| format!("takes sparsest-within-se or lowest-deviance, not '{text}'"))
+    }
+}
+
 /// How λ is chosen.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, Default)]
 #[serde(rename_all = "kebab-case")]
 pub enum LambdaChoice {
     /// As given.
     Value(f64),
     /// By K-fold cross-validated deviance.
+    #[default]
     Auto,
 }
 
