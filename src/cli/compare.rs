@@ -218,16 +218,13 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     // The report's header hashes the inputs before the work, so it names
     // the bytes that were read.
     let header = match &args.evaluation.report {
-        Some(_) => {
-            let inputs: Vec<&std::path::Path> =
-                [Some(args.data.as_path()), args.holdout.as_deref(), args.evaluation.costs.as_deref()]
-                    .into_iter()
-                    .flatten()
-                    .collect();
-            let mut header = ReportHeader::new(&std::env::args().collect::<Vec<_>>(), &inputs, request.settings())?;
-            header.warnings = notices.iter().map(|n| n.describe(&crate::cli::flag)).collect();
-            header
-        }
+        Some(_) => ReportHeader::new(
+            &std::env::args().collect::<Vec<_>>(),
+            &[Some(args.data.as_path()), args.holdout.as_deref(), args.evaluation.costs.as_deref()],
+            request.settings(),
+            &notices,
+            &crate::cli::flag,
+        )?,
         None => ReportHeader::default(),
     };
     let study = compare_families(dataset, &request);

@@ -13,7 +13,7 @@ use baserate::apply::in_memory::{estimate_portfolio_shift, ScoringRequest};
 use baserate::apply::UnseenPolicy;
 use baserate::batch::{Outputs, ScoreJob};
 use baserate::data::{Dataset, MissingPolicy, ReadOptions};
-use baserate::demo::{lending, payments, DemoSize, DEFAULT_SEED};
+use baserate::demo::{DemoSize, DEFAULT_SEED};
 use baserate::evaluate::compare::{compare_families, Candidate, ComparisonRequest, SplitChoice, StudyOptions};
 use baserate::export::scoring::{scoring_sql, ScoringRequest as SqlRequest};
 use baserate::export::sql::Dialect as SqlDialect;
@@ -25,10 +25,6 @@ use baserate::report::study::{compared_data_description, study_html, study_scree
 use baserate::report::table::{Align, Table};
 use baserate::report::{wrap, CAUTION};
 use baserate::train::{train, CalibrationMethod, TrainRequest, TrainingSource};
-
-/// Monte-Carlo draws for the Bayes-error figures printed by the demo.
-const BAYES_ERROR_DRAWS: usize = 400_000;
-
 /// Arguments of `demo`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
@@ -75,48 +71,10 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let payments_path = args.out.join("payments/transactions.csv");
     let (payments_data, payments_notices) = Dataset::read(&payments_path, &options)?;
 
-    let (lending_error, lending_se) =
-        lending::bayes_error(lending::TRAINING_DEFAULT_RATE, BAYES_ERROR_DRAWS, args.seed);
-    let (new_error, new_se) = lending::bayes_error(lending::NEW_PORTFOLIO_DEFAULT_RATE, BAYES_ERROR_DRAWS, args.seed);
-    let (payments_error, payments_se) = payments::bayes_error(payments::FRAUD_RATE, BAYES_ERROR_DRAWS, args.seed);
-
-    let share = |d: &Dataset| {
-        let t = &d.schema.target;
-        t.class_mix()[t.positive_index()]
-    };
-    let events = |d: &Dataset| count(d.schema.target.counts[d.schema.target.positive_index()]);
-    let lending_text = format!(
-        "lending: {} training applications, default rate {} ({} defaults); the new portfolio's rate \
-         is withheld (the answers file holds it). Bayes-optimal error of the true model: {:.4} ± {:.4} \
-         at the {} training rate, {:.4} ± {:.4} at the new portfolio's {}.",
-        count(lending.rows()),
-        percent(share(&lending)),
-        events(&lending),
-        lending_error,
-        lending_se,
-        percent(lending::TRAINING_DEFAULT_RATE),
-        new_error,
-        new_se,
-        percent(lending::NEW_PORTFOLIO_DEFAULT_RATE),
-    );
-    let payments_text = format!(
-        "payments: {} transactions, fraud rate {} ({} frauds). Bayes-optimal error of the true model: \
-         {:.5} ± {:.5}, against {:.5} for calling every transaction genuine: at this base rate the \
-         error rate hardly tells models apart; ranking, calibration and cost do.",
-        count(payments_data.rows()),
-        percent(share(&payments_data)),
-        events(&payments_data),
-        payments_error,
-        payments_se,
-        payments::FRAUD_RATE,
-    );
-    println!("{}\n", wrap(&lending_text, 100, 2));
-    println!("{}\n", wrap(&payments_text, 100, 2));
-    let method = format!(
-        "(Bayes errors by Monte Carlo over {} draws of each true model, ± one standard error; \
-         the generating models are documented in the source, src/demo/.)",
-        count(BAYES_ERROR_DRAWS)
-    );
+    let (scenarios, method) = baserate::report::demo::scenario_summary(&lending, &payments_data, args.seed);
+    for paragraph in scenarios {
+        println!("{}\n", wrap(&paragraph, 100, 2));
+    }
     println!("{}\n", wrap(&method, 100, 0));
     // The families side by side on both scenarios, with a report each.
     let lending_report = args.out.join("lending/report.html");
@@ -180,14 +138,13 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         let description = compared_data_description(&path.display().to_string(), dataset);
         // A small --rows can leave too few events for every family: say so
         // and go on with the rest of the demo.
-        let costs = request.options.costs.clone();
-        let inputs: Vec<&std::path::Path> = std::iter::once(path.as_path()).chain(costs.as_deref()).collect();
-        let mut header = baserate::report::header::ReportHeader::new(
+        let header = baserate::report::header::ReportHeader::new(
             &std::env::args().collect::<Vec<_>>(),
-            &inputs,
+            &[Some(path.as_path()), request.options.costs.as_deref()],
             request.settings(),
+            notices,
+            &crate::cli::flag,
         )?;
-        header.warnings = notices.iter().map(|n| n.describe(&crate::cli::flag)).collect();
         match compare_families(dataset.clone(), &request) {
             Ok(study) => {
                 write_atomic(report, study_html(&study, &crate::cli::flag, &description, &header).as_bytes())?;

@@ -85,21 +85,13 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
     let study = judge_scores(&dataset, &request)?;
     let description = format!("{}: {} rows; scores {}", args.data.display(), dataset.rows(), args.scores.join(", "));
     let header = match &args.evaluation.report {
-        Some(_) => {
-            let inputs: Vec<&std::path::Path> =
-                [Some(args.data.as_path()), args.evaluation.costs.as_deref()].into_iter().flatten().collect();
-            let mut settings = vec![
-                ("scores".to_string(), request.scores.join(", ")),
-                ("score scale".to_string(), format!("{:?}", request.scale)),
-                ("lower scores mean positive".to_string(), request.lower_positive.to_string()),
-                ("train prior".to_string(), request.train_prior.map_or_else(|| "none".into(), |p| p.to_string())),
-            ];
-            settings.extend(request.options.settings());
-            let mut header =
-                baserate::report::header::ReportHeader::new(&std::env::args().collect::<Vec<_>>(), &inputs, settings)?;
-            header.warnings = notices.iter().map(|n| n.describe(&crate::cli::flag)).collect();
-            header
-        }
+        Some(_) => baserate::report::header::ReportHeader::new(
+            &std::env::args().collect::<Vec<_>>(),
+            &[Some(args.data.as_path()), args.evaluation.costs.as_deref()],
+            request.settings(),
+            &notices,
+            &crate::cli::flag,
+        )?,
         None => baserate::report::header::ReportHeader::default(),
     };
     args.evaluation.write_outputs(&study, &description, &header)?;

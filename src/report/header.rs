@@ -6,8 +6,9 @@
 
 use std::path::Path;
 
-use crate::error::Result;
-use crate::evaluate::compare::{ComparisonRequest, StudyOptions};
+use crate::data::DataNotice;
+use crate::error::{Result, SettingNames};
+use crate::evaluate::compare::{ComparisonRequest, JudgeRequest, StudyOptions};
 use crate::report::evaluation::escape;
 
 /// The header's facts, gathered before the report is written.
@@ -27,13 +28,22 @@ pub struct ReportHeader {
 
 impl ReportHeader {
     /// The header for `arguments` (the program's own arguments, program
-    /// name first) over `inputs`, hashed here. The time is now, or
+    /// name first) over the `inputs` given (hashed here), with the
+    /// `notices` reading the data gave among its warnings (settings named
+    /// by `names`). The time is now, or
     /// `SOURCE_DATE_EPOCH` when set (the reproducible-builds convention;
     /// [`crate::io::utc_timestamp`]), so that the same inputs and seed can
     /// give the same bytes.
-    pub fn new(arguments: &[String], inputs: &[&Path], options: Vec<(String, String)>) -> Result<ReportHeader> {
+    pub fn new(
+        arguments: &[String],
+        inputs: &[Option<&Path>],
+        options: Vec<(String, String)>,
+        notices: &[DataNotice],
+        names: SettingNames<'_>,
+    ) -> Result<ReportHeader> {
         let hashed = inputs
             .iter()
+            .flatten()
             .map(|path| Ok((path.display().to_string(), crate::io::sha256_file(path)?)))
             .collect::<Result<Vec<_>>>()?;
         Ok(ReportHeader {
@@ -41,7 +51,7 @@ impl ReportHeader {
             generated: crate::io::utc_timestamp(),
             inputs: hashed,
             options,
-            warnings: Vec::new(),
+            warnings: notices.iter().map(|n| n.describe(names)).collect(),
         })
     }
 
@@ -137,6 +147,21 @@ impl ComparisonRequest {
             }
             out.push((format!("family {}", c.name), value));
         }
+        out
+    }
+}
+
+impl JudgeRequest {
+    /// The options in force, for a report's header: how the scores are
+    /// read, and the study's options.
+    pub fn settings(&self) -> Vec<(String, String)> {
+        let mut out = vec![
+            ("scores".to_string(), self.scores.join(", ")),
+            ("score scale".to_string(), format!("{:?}", self.scale)),
+            ("lower scores mean positive".to_string(), self.lower_positive.to_string()),
+            ("train prior".to_string(), self.train_prior.map_or_else(|| "none".into(), |p| p.to_string())),
+        ];
+        out.extend(self.options.settings());
         out
     }
 }

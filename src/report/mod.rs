@@ -2,6 +2,7 @@
 //! are formatted by [`crate::format`]).
 //! (JSON output is the serialization of the library's own types.)
 
+pub mod demo;
 pub mod describe;
 pub mod evaluation;
 pub mod header;
