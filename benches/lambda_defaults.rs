@@ -23,38 +23,10 @@
 
 mod common;
 
-use std::io::Write;
-
 use baserate::data::{Dataset, ReadOptions};
 use baserate::model::logistic::LogisticParams;
 use baserate::model::penalised::{LambdaChoice, LambdaRule, Penalty, PenaltyFit};
 use baserate::model::{fit, FamilyParams, FittedModel};
-
-/// A dataset of independent standard normal features, the first `effects`
-/// with alternating slopes of 0.5 to 1.0, the rest noise.
-fn sparse_file(rows: usize, p: usize, effects: usize, seed: u64) -> std::path::PathBuf {
-    let directory = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("benches/data");
-    std::fs::create_dir_all(&directory).expect("benches/data");
-    let path = directory.join(format!("sparse_{rows}x{p}_{effects}_{seed}.csv"));
-    if path.exists() {
-        return path;
-    }
-    let mut rng = baserate::rng::Rng::new(seed);
-    let slopes: Vec<f64> = (0..effects)
-        .map(|j| (0.5 + 0.5 * j as f64 / (effects.max(2) - 1) as f64) * if j % 2 == 0 { 1.0 } else { -1.0 })
-        .collect();
-    let mut out = std::io::BufWriter::new(std::fs::File::create(&path).expect("create"));
-    let header: Vec<String> = (1..=p).map(|j| format!("x{j}")).collect();
-    writeln!(out, "{},y", header.join(",")).expect("write");
-    for _ in 0..rows {
-        let x: Vec<f64> = (0..p).map(|_| rng.normal()).collect();
-        let eta: f64 = -1.0 + slopes.iter().zip(&x).map(|(b, v)| b * v).sum::<f64>();
-        let y = u8::from(rng.uniform() < 1.0 / (1.0 + (-eta).exp()));
-        let fields: Vec<String> = x.iter().map(|v| format!("{v:.6}")).collect();
-        writeln!(out, "{},{y}", fields.join(",")).expect("write");
-    }
-    path
-}
 
 fn path_fit(data: &Dataset, penalty: Penalty, rule: LambdaRule, floor: f64, length: usize, full: bool) -> PenaltyFit {
     let params = LogisticParams {
@@ -97,10 +69,10 @@ fn main() {
     let workload = common::workload_file(20_000);
     let wide_rows = [
         ("reference workload 20,000 × 20", workload),
-        ("2,000 × 200, 10 effects", sparse_file(2_000, 200, 10, 7)),
-        ("400 × 40, 5 effects", sparse_file(400, 40, 5, 11)),
+        ("2,000 × 200, 10 effects", common::sparse_logistic_file(2_000, 200, 10, -1.0, 7)),
+        ("400 × 40, 5 effects", common::sparse_logistic_file(400, 40, 5, -1.0, 11)),
     ];
-    let narrow_rows = [("150 × 300, 5 effects", sparse_file(150, 300, 5, 13))];
+    let narrow_rows = [("150 × 300, 5 effects", common::sparse_logistic_file(150, 300, 5, -1.0, 13))];
     let penalties = [Penalty::Lasso, Penalty::Ridge, Penalty::ElasticNet];
     let rules = [LambdaRule::SparsestWithinSe, LambdaRule::LowestDeviance];
     let densities = [4usize, 5, 6, 8, 10];

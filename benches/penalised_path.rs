@@ -11,7 +11,6 @@
 
 mod common;
 
-use std::io::Write;
 use std::time::Instant;
 
 use baserate::data::{Dataset, ReadOptions};
@@ -22,24 +21,8 @@ use baserate::model::{fit, FamilyParams, FittedModel};
 fn main() {
     let rows: usize = std::env::var("BASERATE_BENCH_ROWS").ok().and_then(|v| v.parse().ok()).unwrap_or(100_000);
     let (p, effects) = (200, 10);
-    let directory = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("benches/data");
-    std::fs::create_dir_all(&directory).expect("benches/data");
-    let path = directory.join(format!("wide_{rows}x{p}.csv"));
-    if !path.exists() {
-        let mut rng = baserate::rng::Rng::new(2010);
-        let slopes: Vec<f64> =
-            (0..effects).map(|j| (0.5 + 0.5 * j as f64 / 9.0) * if j % 2 == 0 { 1.0 } else { -1.0 }).collect();
-        let mut out = std::io::BufWriter::new(std::fs::File::create(&path).expect("create"));
-        let header: Vec<String> = (1..=p).map(|j| format!("x{j}")).collect();
-        writeln!(out, "{},y", header.join(",")).expect("write");
-        for _ in 0..rows {
-            let x: Vec<f64> = (0..p).map(|_| rng.normal()).collect();
-            let eta: f64 = -2.0 + slopes.iter().zip(&x).map(|(b, v)| b * v).sum::<f64>();
-            let y = u8::from(rng.uniform() < 1.0 / (1.0 + (-eta).exp()));
-            let fields: Vec<String> = x.iter().map(|v| format!("{v:.6}")).collect();
-            writeln!(out, "{},{y}", fields.join(",")).expect("write");
-        }
-    }
+    let path = common::sparse_logistic_file(rows, p, effects, -2.0, 2010);
+    let directory = path.parent().expect("benches/data").to_path_buf();
     let data = Dataset::read(&path, &ReadOptions::new("y")).expect("read").0;
     println!("file: {} ({rows} rows × {p} features), 2 cores", path.display());
     let params = LogisticParams {

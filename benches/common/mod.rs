@@ -156,3 +156,33 @@ print(elapsed, resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0)
     let mut parts = text.split_whitespace();
     Some((parts.next()?.parse().ok()?, parts.next()?.parse().ok()?))
 }
+
+/// A sparse logistic design made once under `benches/data/`: `p`
+/// independent standard normal inputs `x1..xp`, the first `effects` with
+/// alternating slopes from 0.5 to 1.0, the rest noise, the label drawn
+/// from the logistic model with this `intercept`, all from our seeded
+/// generator.
+pub fn sparse_logistic_file(rows: usize, p: usize, effects: usize, intercept: f64, seed: u64) -> PathBuf {
+    use std::io::Write;
+    let directory = Path::new(env!("CARGO_MANIFEST_DIR")).join("benches/data");
+    std::fs::create_dir_all(&directory).expect("create benches/data");
+    let path = directory.join(format!("sparse_{rows}x{p}_{effects}_{intercept}_{seed}.csv"));
+    if path.exists() {
+        return path;
+    }
+    let mut rng = Rng::new(seed);
+    let slopes: Vec<f64> = (0..effects)
+        .map(|j| (0.5 + 0.5 * j as f64 / (effects.max(2) - 1) as f64) * if j % 2 == 0 { 1.0 } else { -1.0 })
+        .collect();
+    let mut out = std::io::BufWriter::new(std::fs::File::create(&path).expect("create"));
+    let header: Vec<String> = (1..=p).map(|j| format!("x{j}")).collect();
+    writeln!(out, "{},y", header.join(",")).expect("write");
+    for _ in 0..rows {
+        let x: Vec<f64> = (0..p).map(|_| rng.normal()).collect();
+        let eta: f64 = intercept + slopes.iter().zip(&x).map(|(b, v)| b * v).sum::<f64>();
+        let y = u8::from(rng.uniform() < 1.0 / (1.0 + (-eta).exp()));
+        let fields: Vec<String> = x.iter().map(|v| format!("{v:.6}")).collect();
+        writeln!(out, "{},{y}", fields.join(",")).expect("write");
+    }
+    path
+}
