@@ -17,77 +17,14 @@ mod common;
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
-use std::process::Command;
 
-use common::postgres::Postgres;
+use common::engine::{postgres, Engine};
 use common::spark::Spark;
-use common::{external_tool, python_with, run, temp_dir, write};
+use common::{python_with, run, temp_dir, write};
 
 /// Posteriors from the SQL and from `score` agree to this, absolutely: the
 /// two compute the same formulas in double precision in different orders.
 const POSTERIOR_TOLERANCE: f64 = 1e-9;
-
-/// The cluster, or `None` (a notice, or a failure under
-/// BASERATE_REQUIRE_EXTERNAL=1) when PostgreSQL is not installed.
-fn postgres() -> Option<Postgres> {
-    let started = Postgres::start();
-    if started.is_none() {
-        external_tool("PostgreSQL (initdb)", &mut Command::new("false"));
-    }
-    started
-}
-
-/// An engine the exported statements run in.
-trait Engine {
-    /// The `--dialect` its statements are written in.
-    fn dialect(&self) -> &'static str;
-    /// Loads a CSV file as a table, `numeric` columns as doubles.
-    fn load(&mut self, table: &str, csv: &Path, numeric: &[String]);
-    /// Runs one statement; its rows as CSV with a header.
-    fn query_csv(&mut self, sql: &str) -> String;
-    /// The dialects to write scoring statements in, in turn, and the one
-    /// for aggregate queries (with deciles).
-    fn dialects(&self) -> (&'static [&'static str], &'static str);
-    /// Creates the table `keepme` with one row, which hostile names try
-    /// to drop.
-    fn plant_keepme(&mut self);
-}
-
-impl Engine for Postgres {
-    fn dialect(&self) -> &'static str {
-        "ansi"
-    }
-    fn load(&mut self, table: &str, csv: &Path, numeric: &[String]) {
-        Postgres::load(self, table, csv, numeric);
-    }
-    fn query_csv(&mut self, sql: &str) -> String {
-        Postgres::query_csv(self, sql)
-    }
-    fn dialects(&self) -> (&'static [&'static str], &'static str) {
-        (&["postgres", "ansi"], "postgres")
-    }
-    fn plant_keepme(&mut self) {
-        self.psql("CREATE TABLE keepme (x INTEGER); INSERT INTO keepme VALUES (1);");
-    }
-}
-
-impl Engine for Spark {
-    fn dialect(&self) -> &'static str {
-        "spark"
-    }
-    fn load(&mut self, table: &str, csv: &Path, numeric: &[String]) {
-        Spark::load(self, table, csv, numeric);
-    }
-    fn query_csv(&mut self, sql: &str) -> String {
-        Spark::query_csv(self, sql)
-    }
-    fn dialects(&self) -> (&'static [&'static str], &'static str) {
-        (&["spark"], "spark")
-    }
-    fn plant_keepme(&mut self) {
-        self.query_csv("CREATE OR REPLACE TEMPORARY VIEW keepme AS SELECT 1 AS x");
-    }
-}
 
 /// Rows of a CSV text keyed by `key`.
 fn rows_by(text: &str, key: &str) -> (Vec<String>, BTreeMap<String, BTreeMap<String, String>>) {
@@ -937,30 +874,7 @@ fn fitting_from_aggregates_equals_fitting_from_the_file(pg: &mut dyn Engine) {
     }
 }
 
-/// Loads CSV files into DuckDB tables and runs SQL files, each result
-/// written as CSV (floats in their shortest round-trip form).
-const DUCKDB_RUNNER: &str = r#"
-import csv, sys, duckdb
-con = duckdb.connect()
-for arg in sys.argv[1:]:
-    kind, rest = arg.split(':', 1)
-    left, right = rest.split('=', 1)
-    if kind == 'table':
-        con.execute('CREATE TABLE "' + left.replace('"', '""') + '" AS SELECT * FROM read_csv(?, header = true)', [right])
-    else:
-        statement = open(left).read().rstrip().rstrip(';')
-        cursor = con.execute(statement)
-        with open(right, 'w', newline='') as out:
-            writer = csv.writer(out)
-            writer.writerow([d[0] for d in cursor.description])
-            for row in cursor.fetchall():
-                writer.writerow(['' if v is None else repr(v) if isinstance(v, float) else v for v in row])
-"#;
-
-fn duckdb(arguments: &[String]) {
-    let output = Command::new("python3").arg("-c").arg(DUCKDB_RUNNER).args(arguments).output().expect("python3");
-    assert!(output.status.success(), "duckdb: {}", String::from_utf8_lossy(&output.stderr));
-}
+use common::engine::duckdb;
 
 #[test]
 fn the_ansi_dialect_runs_in_duckdb_too() {

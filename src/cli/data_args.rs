@@ -94,6 +94,17 @@ pub fn parse_delimiter(text: &str) -> Result<u8> {
 }
 
 impl DataArgs {
+    /// `--missing` for a fit from aggregates, where imputing is not (yet) a stage of the query.
+    pub fn missing_policy_from_aggregates(&self) -> Result<baserate::data::MissingPolicy> {
+        match self.missing {
+            MissingArg::Error => Ok(baserate::data::MissingPolicy::Error),
+            MissingArg::DropRows => Ok(baserate::data::MissingPolicy::DropRows),
+            MissingArg::Impute => Err(Error::Usage(
+                "--missing impute needs each column's median before the sums, which one aggregate pass cannot give; use drop-rows or error".into(),
+            )),
+        }
+    }
+
     /// Turns the raw arguments into the library's read options.
     pub fn to_options(&self) -> Result<ReadOptions> {
         let target = self

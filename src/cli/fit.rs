@@ -22,9 +22,12 @@ use baserate::train::{parse_sampling_rates, train, CalibrationMethod, TrainReque
 pub struct Args {
     /// The training CSV file (with --from-stats: the aggregates stats-sql's query returned, as CSV).
     pub data: PathBuf,
-    /// DATA is the result of `baserate stats-sql`: fit lda, qda or naive-bayes from those aggregates.
+    /// DATA is the result of `baserate stats-sql`: fit lda, qda or naive-bayes from those aggregates, or take one logistic Newton step from --start.
     #[arg(long)]
     pub from_stats: bool,
+    /// With --from-stats --family logistic: the model the step query was written at; NEXT (-o) is the model after the step.
+    #[arg(long, value_name = "MODEL", requires = "from_stats")]
+    pub start: Option<PathBuf>,
     /// Data options.
     #[command(flatten)]
     pub data_args: DataArgs,
@@ -78,6 +81,15 @@ fn fit_from_stats(args: &Args, params: FamilyParams, spec: Option<PriorSpec>) ->
         )
         .into());
     }
+    if let (Some(start), FamilyParams::Logistic(params)) = (&args.start, &params) {
+        return newton_from_stats(args, start, params.clone(), spec);
+    }
+    if args.start.is_some() || params.family() == Family::Logistic {
+        return Err(Error::Usage(
+            "from aggregates, logistic regression takes one Newton step per query: --family logistic with --start MODEL (the model the query was written at); the class-conditional families take no --start".into(),
+        )
+        .into());
+    }
     let (aggregates, input_sha256) = read_stats_with_hash(&args.data)?;
     if let Some(target) = &args.data_args.target {
         if *target != aggregates.target {
@@ -88,16 +100,7 @@ fn fit_from_stats(args: &Args, params: FamilyParams, spec: Option<PriorSpec>) ->
             .into());
         }
     }
-    let missing = match args.data_args.missing {
-        crate::cli::data_args::MissingArg::Error => baserate::data::MissingPolicy::Error,
-        crate::cli::data_args::MissingArg::DropRows => baserate::data::MissingPolicy::DropRows,
-        crate::cli::data_args::MissingArg::Impute => {
-            return Err(Error::Usage(
-                "--missing impute needs each column's median before the sums, which one aggregate pass cannot give; use drop-rows or error".into(),
-            )
-            .into())
-        }
-    };
+    let missing = args.data_args.missing_policy_from_aggregates()?;
     let request =
         FromStats {
             fit: FromAggregates {
@@ -126,6 +129,63 @@ fn fit_from_stats(args: &Args, params: FamilyParams, spec: Option<PriorSpec>) ->
         eprintln!("note: {}", wrap(w, 100, 6));
     }
     println!("model written to {} (see it with: baserate inspect {})", args.out.display(), args.out.display());
+    println!("\n{}", wrap(CAUTION, 100, 0));
+    Ok(ExitCode::SUCCESS)
+}
+
+/// `fit STEP.csv --from-stats --family logistic --start MODEL -o NEXT`: one Newton step.
+fn newton_from_stats(
+    args: &Args,
+    start: &std::path::Path,
+    params: baserate::model::logistic::LogisticParams,
+    prior: Option<PriorSpec>,
+) -> Result<ExitCode, Failure> {
+    use baserate::model::logistic_aggregates::StepVerdict;
+    use baserate::train::newton::{newton_from_aggregates, NewtonRequest};
+    let (start_file, integrity) = baserate::train::file::ModelFile::open(start, false)?;
+    if let Some(warning) = integrity.warning(&start.display().to_string()) {
+        eprintln!("warning: {warning}");
+    }
+    let (sums, input_sha256) = baserate::export::newton_reader::read_newton_with_hash(&args.data, &start_file)?;
+    let missing = args.data_args.missing_policy_from_aggregates()?;
+    let request = NewtonRequest { params, missing, prior };
+    let (file, outcome) = newton_from_aggregates(&start_file, &sums, &request, input_sha256)?;
+    file.save(&args.out)?;
+    let state = &outcome.state;
+    println!(
+        "query {}: deviance {:.10e} at {} over {} rows ({})",
+        state.queries,
+        outcome.deviance,
+        start.display(),
+        count(file.training.rows),
+        class_mix_text(&file.schema.target)
+    );
+    let next = args.out.display();
+    match outcome.verdict {
+        StepVerdict::Converged => println!(
+            "converged: the Newton step was {:.1e} (tolerance {:.0e}); {next} is the fit, standard errors from this query's information",
+            state.largest_step,
+            request.params.tolerance
+        ),
+        StepVerdict::Stepped => println!(
+            "Newton step {:.1e} (tolerance {:.0e}): to go on, write the query at {next} (stats-sql --start {next}) and run it",
+            state.largest_step,
+            request.params.tolerance
+        ),
+        StepVerdict::Halved { before, after } => println!(
+            "the objective rose ({before:.10e} before the step, {after:.10e} after): {next} is the step halved (halving {}; each costs one query); run the query at {next}",
+            state.halvings
+        ),
+        StepVerdict::Restarted { objective, null } => println!(
+            "the start is worse than no inputs (objective {objective:.4e}, intercept-only {null:.4e}): {next} is the intercept-only model, from which the steps go on; run the query at {next}"
+        ),
+    }
+    for level in &outcome.new_levels {
+        println!("new level {level}: enters {next} with coefficient 0");
+    }
+    for w in &file.diagnostics.warnings {
+        eprintln!("note: {}", wrap(w, 100, 6));
+    }
     println!("\n{}", wrap(CAUTION, 100, 0));
     Ok(ExitCode::SUCCESS)
 }

@@ -47,9 +47,7 @@ use crate::model::levels::CategoricalLikelihood;
 use crate::model::FittedModel;
 use crate::train::file::ModelFile;
 
-/// The floor on exponents: exp(−700) ≈ 1e−304 is still a normal double,
-/// so engines that refuse to underflow (PostgreSQL) never see one.
-const EXPONENT_FLOOR: f64 = -700.0;
+use crate::export::sql::EXPONENT_FLOOR;
 
 /// The largest finite double: a value outside ±this is not finite.
 const FINITE: f64 = f64::MAX;
@@ -610,13 +608,7 @@ fn posterior_stages(
     let exponents: Vec<String> = (0..k)
         .map(|c| {
             let exponent = format!("{} - __br_max", u[c]);
-            alias(
-                format!(
-                    "CASE WHEN {exponent} < {floor} THEN 0E0 ELSE EXP({exponent}) END",
-                    floor = number(EXPONENT_FLOOR)
-                ),
-                &format!("__br_w{c}"),
-            )
+            alias(sql::floored_exp(&exponent), &format!("__br_w{c}"))
         })
         .collect();
     stages.push("__br_x", exponents);

@@ -186,6 +186,16 @@ pub fn number(value: f64) -> String {
     }
 }
 
+/// The floor on exponents: exp(−700) ≈ 1e−304 is still a normal double,
+/// so engines that refuse to underflow (PostgreSQL) never see one.
+pub const EXPONENT_FLOOR: f64 = -700.0;
+
+/// `EXP(x)` for x ≤ 0, as 0 below [`EXPONENT_FLOOR`] (as the library's exp
+/// gives 0 there, where PostgreSQL would raise an underflow error).
+pub fn floored_exp(exponent: &str) -> String {
+    format!("CASE WHEN {exponent} < {} THEN 0E0 ELSE EXP({exponent}) END", number(EXPONENT_FLOOR))
+}
+
 /// A comment line: `-- text`, with line breaks and other control
 /// characters turned into spaces so nothing after them can become SQL.
 pub fn comment(text: &str) -> String {

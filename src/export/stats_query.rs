@@ -52,41 +52,6 @@ pub fn stats_sql(request: &StatsRequest) -> Result<String> {
         return Err(Error::Usage(format!("{} needs at least one numeric input", request.family.name())));
     }
     let full = request.family != Family::NaiveBayes;
-    let table = sql::table(dialect, &request.table)?;
-    let target = ident(dialect, &request.target)?;
-    let numeric: Vec<String> = request.numeric.iter().map(|n| ident(dialect, n)).collect::<Result<_>>()?;
-    let categorical: Vec<String> = request.categorical.iter().map(|n| ident(dialect, n)).collect::<Result<_>>()?;
-    sql::distinct_names(
-        dialect,
-        "columns",
-        std::iter::once(request.target.as_str())
-            .chain(request.numeric.iter().map(String::as_str))
-            .chain(request.categorical.iter().map(String::as_str))
-            .chain(request.weight.iter().map(String::as_str)),
-    )?;
-    let (double, text_type) = (dialect.double_type(), dialect.text_type());
-    let level = |g: &str| format!("TRIM(CAST({g} AS {text_type}))");
-    let mut missing_level = Vec::new();
-    for g in &categorical {
-        let tokens: Vec<String> = std::iter::once(String::new())
-            .chain(request.na_tokens.iter().cloned())
-            .map(|t| string(dialect, &t))
-            .collect::<Result<_>>()?;
-        missing_level.push(format!("({g} IS NULL OR {} IN ({}))", level(g), tokens.join(", ")));
-    }
-    let mut complete: Vec<String> = vec![format!("{target} IS NOT NULL")];
-    complete.extend(numeric.iter().map(|x| format!("{x} IS NOT NULL")));
-    complete.extend(missing_level.iter().map(|m| format!("NOT {m}")));
-    let weight = match &request.weight {
-        Some(w) => {
-            let w = ident(dialect, w)?;
-            complete.push(format!("{w} IS NOT NULL"));
-            format!("CAST({w} AS {double})")
-        }
-        None => "1E0".into(),
-    };
-    let complete = complete.join(" AND ");
-
     let mut text = String::new();
     for line in [
         format!("baserate {} aggregates for fitting {} on table {}", env!("CARGO_PKG_VERSION"), request.family.name(), request.table),
@@ -96,41 +61,17 @@ pub fn stats_sql(request: &StatsRequest) -> Result<String> {
         text.push_str(&sql::comment(&line));
         text.push('\n');
     }
-    let p = numeric.len();
-    let shift: Vec<String> = (1..=p).map(|j| format!("CAST({} AS {double}) AS __br_k{j}", numeric[j - 1])).collect();
-    // With no numeric input the shift row only has to exist.
-    let shift = if shift.is_empty() { vec!["1 AS __br_k0".to_string()] } else { shift };
-    text.push_str(&format!(
-        "WITH\n__br_shift AS (\n  SELECT\n    {}\n  FROM {table}\n  WHERE {complete}\n  {}\n),\n",
-        shift.join(",\n    "),
-        if dialect == Dialect::Spark { "LIMIT 1" } else { "FETCH FIRST 1 ROWS ONLY" }
-    ));
-    // Two row-wise stages, each ending in the stage fence so that the engine
-    // evaluates every expression once per row: folded into the aggregate,
-    // PostgreSQL would evaluate the completeness test and the cast once per
-    // use — in every cross-product — which made the LDA query five times
-    // slower on a million rows.
-    let mut flags = vec![
-        format!("CAST({target} AS {text_type}) AS __br_y"),
-        format!("CASE WHEN {target} IS NULL THEN 1 ELSE 0 END AS __br_nolabel"),
-        format!("CASE WHEN {complete} THEN 1 ELSE 0 END AS __br_ok"),
-        format!("{weight} AS __br_raw_w"),
-    ];
-    for (c, g) in categorical.iter().enumerate() {
-        flags.push(format!("{} AS __br_g{}", level(g), c + 1));
-        flags.push(format!("CASE WHEN {} THEN 1 ELSE 0 END AS __br_m{}", missing_level[c], c + 1));
-    }
-    for (j, x) in numeric.iter().enumerate() {
-        let j = j + 1;
-        flags.push(format!("CAST({x} AS {double}) AS __br_raw{j}"));
-        flags.push(format!("__br_shift.__br_k{j} AS __br_s{j}"));
-        flags.push(format!("CASE WHEN {x} IS NULL THEN 1 ELSE 0 END AS __br_n{j}"));
-    }
-    text.push_str(&format!(
-        "__br_flags AS (\n  SELECT\n    {}\n  FROM {table} CROSS JOIN __br_shift{}\n),\n",
-        flags.join(",\n    "),
-        dialect.stage_fence()
-    ));
+    let inputs = RowInputs {
+        table: &request.table,
+        target: &request.target,
+        numeric: &request.numeric,
+        categorical: &request.categorical,
+        weight: request.weight.as_deref(),
+        na_tokens: &request.na_tokens,
+    };
+    text.push_str(&inputs.stages(dialect)?);
+    let p = request.numeric.len();
+    let categorical = &request.categorical;
     let mut rows =
         vec!["__br_flags.*".to_string(), "CASE WHEN __br_ok = 1 THEN __br_raw_w ELSE 0E0 END AS __br_w".to_string()];
     if request.weight.is_some() {
@@ -291,4 +232,99 @@ pub fn stats_sql(request: &StatsRequest) -> Result<String> {
         }
     }
     Ok(text)
+}
+
+/// The columns a table's rows are read from, and the two row-wise stages
+/// every aggregate query starts with: `__br_shift` (one complete row's
+/// numeric values, the shift) and `__br_flags` (per row: the label as text
+/// `__br_y`, `__br_nolabel`, the completeness flag `__br_ok`, the raw
+/// weight `__br_raw_w`; per categorical input c its trimmed level
+/// `__br_g{c}` and missing flag `__br_m{c}`; per numeric input j its value
+/// `__br_raw{j}`, shift `__br_s{j}` and missing flag `__br_n{j}`).
+pub(crate) struct RowInputs<'a> {
+    pub(crate) table: &'a str,
+    pub(crate) target: &'a str,
+    pub(crate) numeric: &'a [String],
+    pub(crate) categorical: &'a [String],
+    pub(crate) weight: Option<&'a str>,
+    pub(crate) na_tokens: &'a [String],
+}
+
+impl RowInputs<'_> {
+    /// `WITH __br_shift AS (...), __br_flags AS (...),` in `dialect`.
+    pub(crate) fn stages(&self, dialect: Dialect) -> Result<String> {
+        let table = sql::table(dialect, self.table)?;
+        let target = ident(dialect, self.target)?;
+        let numeric: Vec<String> = self.numeric.iter().map(|n| ident(dialect, n)).collect::<Result<_>>()?;
+        let categorical: Vec<String> = self.categorical.iter().map(|n| ident(dialect, n)).collect::<Result<_>>()?;
+        sql::distinct_names(
+            dialect,
+            "columns",
+            std::iter::once(self.target)
+                .chain(self.numeric.iter().map(String::as_str))
+                .chain(self.categorical.iter().map(String::as_str))
+                .chain(self.weight),
+        )?;
+        let (double, text_type) = (dialect.double_type(), dialect.text_type());
+        let level = |g: &str| format!("TRIM(CAST({g} AS {text_type}))");
+        let mut missing_level = Vec::new();
+        for g in &categorical {
+            let tokens: Vec<String> = std::iter::once(String::new())
+                .chain(self.na_tokens.iter().cloned())
+                .map(|t| string(dialect, &t))
+                .collect::<Result<_>>()?;
+            missing_level.push(format!("({g} IS NULL OR {} IN ({}))", level(g), tokens.join(", ")));
+        }
+        let mut complete: Vec<String> = vec![format!("{target} IS NOT NULL")];
+        complete.extend(numeric.iter().map(|x| format!("{x} IS NOT NULL")));
+        complete.extend(missing_level.iter().map(|m| format!("NOT {m}")));
+        let weight = match self.weight {
+            Some(w) => {
+                let w = ident(dialect, w)?;
+                complete.push(format!("{w} IS NOT NULL"));
+                format!("CAST({w} AS {double})")
+            }
+            None => "1E0".into(),
+        };
+        let complete = complete.join(" AND ");
+
+        let p = numeric.len();
+        let shift: Vec<String> =
+            (1..=p).map(|j| format!("CAST({} AS {double}) AS __br_k{j}", numeric[j - 1])).collect();
+        // With no numeric input the shift row only has to exist.
+        let shift = if shift.is_empty() { vec!["1 AS __br_k0".to_string()] } else { shift };
+        let mut text = String::new();
+        text.push_str(&format!(
+            "WITH\n__br_shift AS (\n  SELECT\n    {}\n  FROM {table}\n  WHERE {complete}\n  {}\n),\n",
+            shift.join(",\n    "),
+            if dialect == Dialect::Spark { "LIMIT 1" } else { "FETCH FIRST 1 ROWS ONLY" }
+        ));
+        // Two row-wise stages, each ending in the stage fence so that the engine
+        // evaluates every expression once per row: folded into the aggregate,
+        // PostgreSQL would evaluate the completeness test and the cast once per
+        // use — in every cross-product — which made the LDA query five times
+        // slower on a million rows.
+        let mut flags = vec![
+            format!("CAST({target} AS {text_type}) AS __br_y"),
+            format!("CASE WHEN {target} IS NULL THEN 1 ELSE 0 END AS __br_nolabel"),
+            format!("CASE WHEN {complete} THEN 1 ELSE 0 END AS __br_ok"),
+            format!("{weight} AS __br_raw_w"),
+        ];
+        for (c, g) in categorical.iter().enumerate() {
+            flags.push(format!("{} AS __br_g{}", level(g), c + 1));
+            flags.push(format!("CASE WHEN {} THEN 1 ELSE 0 END AS __br_m{}", missing_level[c], c + 1));
+        }
+        for (j, x) in numeric.iter().enumerate() {
+            let j = j + 1;
+            flags.push(format!("CAST({x} AS {double}) AS __br_raw{j}"));
+            flags.push(format!("__br_shift.__br_k{j} AS __br_s{j}"));
+            flags.push(format!("CASE WHEN {x} IS NULL THEN 1 ELSE 0 END AS __br_n{j}"));
+        }
+        text.push_str(&format!(
+            "__br_flags AS (\n  SELECT\n    {}\n  FROM {table} CROSS JOIN __br_shift{}\n),\n",
+            flags.join(",\n    "),
+            dialect.stage_fence()
+        ));
+        Ok(text)
+    }
 }

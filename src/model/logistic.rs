@@ -262,7 +262,24 @@ fn combined_weights(dataset: &Dataset, weights: Option<&[f64]>, class_weight: &C
     for (r, &y) in dataset.target.iter().enumerate() {
         weighted_counts[y as usize] += weights.map_or(1.0, |w| w[r]);
     }
-    let multipliers: Vec<f64> = match class_weight {
+    let multipliers = class_multipliers(&target.classes, &weighted_counts, class_weight)?;
+    Ok(dataset
+        .target
+        .iter()
+        .enumerate()
+        .map(|(r, &y)| weights.map_or(1.0, |w| w[r]) * multipliers[y as usize])
+        .collect())
+}
+
+/// Each class's weight multiplier under `class_weight`, from the classes'
+/// total row weights.
+pub(crate) fn class_multipliers(
+    classes: &[String],
+    weighted_counts: &[f64],
+    class_weight: &ClassWeight,
+) -> Result<Vec<f64>> {
+    let k = classes.len();
+    Ok(match class_weight {
         ClassWeight::None => vec![1.0; k],
         ClassWeight::Equal => {
             let total: f64 = weighted_counts.iter().sum();
@@ -271,10 +288,10 @@ fn combined_weights(dataset: &Dataset, weights: Option<&[f64]>, class_weight: &C
         ClassWeight::Explicit(entries) => {
             let mut m = vec![1.0; k];
             for (class, w) in entries {
-                let Some(i) = target.classes.iter().position(|c| c == class) else {
+                let Some(i) = classes.iter().position(|c| c == class) else {
                     return Err(Error::invalid(crate::error::message![
                         Setting::ClassWeight,
-                        format!(" names class '{class}', which is not one of {}", target.classes.join(", "))
+                        format!(" names class '{class}', which is not one of {}", classes.join(", "))
                     ]));
                 };
                 if !(*w > 0.0 && w.is_finite()) {
@@ -287,13 +304,7 @@ fn combined_weights(dataset: &Dataset, weights: Option<&[f64]>, class_weight: &C
             }
             m
         }
-    };
-    Ok(dataset
-        .target
-        .iter()
-        .enumerate()
-        .map(|(r, &y)| weights.map_or(1.0, |w| w[r]) * multipliers[y as usize])
-        .collect())
+    })
 }
 
 /// What one pass over the rows gives at a parameter vector.
@@ -530,6 +541,138 @@ fn scaled_mean_sd(values: impl Iterator<Item = f64> + Clone, weights: &[f64], to
     (mean, square.sqrt())
 }
 
+/// Original-scale coefficients on the standardised scale of `centre` and
+/// `scale`: θ₀ = β₀ + Σ βⱼ·mⱼ, θⱼ = βⱼ·sⱼ, block after block.
+pub(crate) fn standardised(coefficients: &[ClassCoefficients], centre: &[f64], scale: &[f64]) -> Vec<f64> {
+    let d = centre.len();
+    let mut theta = Vec::with_capacity(coefficients.len() * (d + 1));
+    for c in coefficients {
+        theta.push(c.intercept + (0..d).map(|j| c.slopes[j] * centre[j]).sum::<f64>());
+        theta.extend((0..d).map(|j| c.slopes[j] * scale[j]));
+    }
+    theta
+}
+
+/// Back to the original scale (β = β_s/s, β₀ = β₀_s − Σ β_s·m/s) for the
+/// classes of `order`, with the linear map that does it (for carrying the
+/// covariance along).
+pub(crate) fn original_scale(
+    theta: &[f64],
+    order: &[usize],
+    centre: &[f64],
+    scale: &[f64],
+) -> (Vec<ClassCoefficients>, DMatrix<f64>) {
+    let d = centre.len();
+    let width = d + 1;
+    let size = order.len() * width;
+    let mut coefficients = Vec::with_capacity(order.len());
+    let mut transform = DMatrix::zeros(size, size);
+    for (position, &c) in order.iter().enumerate() {
+        let block = &theta[position * width..(position + 1) * width];
+        let slopes: Vec<f64> = (0..d).map(|j| block[j + 1] / scale[j]).collect();
+        let intercept = block[0] - (0..d).map(|j| slopes[j] * centre[j]).sum::<f64>();
+        coefficients.push(ClassCoefficients { class: c, intercept, slopes });
+        let o = position * width;
+        transform[(o, o)] = 1.0;
+        for j in 0..d {
+            transform[(o, o + j + 1)] = -centre[j] / scale[j];
+            transform[(o + j + 1, o + j + 1)] = 1.0 / scale[j];
+        }
+    }
+    (coefficients, transform)
+}
+
+/// The objective F = −ℓ/N + (λ/2)·‖β_s‖² (intercepts unpenalised).
+pub(crate) fn objective(log_likelihood: f64, theta: &[f64], width: usize, total_weight: f64, lambda: f64) -> f64 {
+    let penalty: f64 = (0..theta.len()).filter(|i| i % width != 0).map(|i| theta[i] * theta[i]).sum();
+    -log_likelihood / total_weight + 0.5 * lambda * penalty
+}
+
+/// The right-hand side of the Newton system on F: g/N − λβ′.
+pub(crate) fn newton_rhs(
+    gradient: &[f64],
+    theta: &[f64],
+    width: usize,
+    total_weight: f64,
+    lambda: f64,
+) -> DVector<f64> {
+    let mut rhs = DVector::from_iterator(gradient.len(), gradient.iter().map(|g| g / total_weight));
+    for i in (0..gradient.len()).filter(|i| i % width != 0) {
+        rhs[i] -= lambda * theta[i];
+    }
+    rhs
+}
+
+/// The Newton system's matrix on F, H/N + λI′, with an inert (aliased)
+/// slope's row and column left as the identity's so that its step is 0.
+pub(crate) fn newton_system(
+    hessian: &[f64],
+    width: usize,
+    total_weight: f64,
+    lambda: f64,
+    inert: &[bool],
+) -> DMatrix<f64> {
+    let size = (hessian.len() as f64).sqrt().round() as usize;
+    let mut system = DMatrix::from_row_slice(size, size, hessian) / total_weight;
+    for i in (0..size).filter(|i| i % width != 0) {
+        system[(i, i)] += lambda;
+    }
+    for i in (0..size).filter(|&i| is_inert(inert, width, i)) {
+        system.row_mut(i).fill(0.0);
+        system.column_mut(i).fill(0.0);
+        system[(i, i)] = 1.0;
+    }
+    system
+}
+
+/// Whether parameter `i` is the slope of an inert (aliased) design column.
+fn is_inert(inert: &[bool], width: usize, i: usize) -> bool {
+    !i.is_multiple_of(width) && inert[i % width - 1]
+}
+
+/// The covariance of the original-scale coefficients from the information
+/// (the Hessian of −ℓ on the standardised scale), row-major; `None`, with
+/// a warning, where a variance lies beyond a double.
+pub(crate) fn covariance_from_information(
+    hessian: &[f64],
+    width: usize,
+    inert: &[bool],
+    transform: &DMatrix<f64>,
+    terms: &[String],
+    warnings: &mut Vec<String>,
+) -> Option<Vec<f64>> {
+    let size = transform.nrows();
+    let mut information = DMatrix::from_row_slice(size, size, hessian);
+    for i in (0..size).filter(|&i| is_inert(inert, width, i)) {
+        information.row_mut(i).fill(0.0);
+        information.column_mut(i).fill(0.0);
+        information[(i, i)] = 1.0;
+    }
+    let factor = cholesky(&information).ok()?;
+    let mut standardised = factor.inverse();
+    // An aliased slope is fixed at 0: no variance, no covariance.
+    for i in (0..size).filter(|&i| is_inert(inert, width, i)) {
+        standardised.row_mut(i).fill(0.0);
+        standardised.column_mut(i).fill(0.0);
+    }
+    let original = transform * standardised * transform.transpose();
+    // At an input's extreme scale its slope's variance (the square of a
+    // standard error of 1e200, say) may lie beyond a double.
+    let mut beyond: Vec<&str> = (0..size)
+        .filter(|&i| i % width > 0 && !original.row(i).iter().all(|v| v.is_finite()))
+        .map(|i| terms[i % width - 1].as_str())
+        .collect();
+    if beyond.is_empty() {
+        return Some(original.transpose().as_slice().to_vec());
+    }
+    beyond.dedup();
+    warnings.push(format!(
+        "no standard errors are stored: at the scale of {} the coefficients' variances lie beyond what a double holds; rescale the column for them",
+        beyond.iter().map(|t| format!("'{t}'")).collect::<Vec<_>>().join(", ")
+    ));
+    None
+}
+
 /// Fits a logistic regression with the given row weights (the dataset's
 /// own, or those of a training fold), starting from `start` (a previous
 /// fit on similar rows: a warm start) or from the intercept-only solution.
@@ -671,19 +814,11 @@ pub fn fit(
     let warm = start.filter(|m| m.encoding == encoding && m.reference == reference);
     // A warm start: the previous fit's coefficients on this fit's standardised scale.
     if let Some(previous) = warm {
-        for (position, c) in previous.coefficients.iter().enumerate() {
-            let block = &mut theta[position * width..(position + 1) * width];
-            let slopes: Vec<f64> = (0..d).map(|j| c.slopes[j] * problem.scale[j]).collect();
-            block[0] = c.intercept + (0..d).map(|j| c.slopes[j] * problem.centre[j]).sum::<f64>();
-            block[1..].copy_from_slice(&slopes);
-        }
+        theta = standardised(&previous.coefficients, &problem.centre, &problem.scale);
     }
     let lambda = params.l2;
     let mut warnings = Vec::new();
-    let objective = |log_likelihood: f64, theta: &[f64]| {
-        let penalty: f64 = (0..size).filter(|i| i % width != 0).map(|i| theta[i] * theta[i]).sum();
-        -log_likelihood / total_weight + 0.5 * lambda * penalty
-    };
+    let objective = |log_likelihood: f64, theta: &[f64]| objective(log_likelihood, theta, width, total_weight, lambda);
     let parameter_name = |i: usize| {
         let class = &classes[order[i / width]];
         let term = if i.is_multiple_of(width) {
@@ -743,7 +878,6 @@ pub fn fit(
         }
         current = problem.pass(&theta, Derivatives::Hessian);
     }
-    let inert_parameter = |i: usize| !i.is_multiple_of(width) && problem.inert[i % width - 1];
     // From a warm start (a fit on similar rows, as in cross-validation) the
     // information matrix at the start is kept for every step: a
     // fixed-Hessian Newton iteration, which converges to the same optimum
@@ -769,23 +903,10 @@ pub fn fit(
         }
         iterations += 1;
         progress.report("Newton iterations", iterations as u64, None);
-        // Newton system on F: (H/N + λI′)Δ = g/N − λβ′.
-        let mut rhs = DVector::from_iterator(size, current.gradient.iter().map(|g| g / total_weight));
-        for i in (0..size).filter(|i| i % width != 0) {
-            rhs[i] -= lambda * theta[i];
-        }
+        let rhs = newton_rhs(&current.gradient, &theta, width, total_weight, lambda);
         let factor = match (&fixed, current.hessian.is_empty()) {
             (Some(f), true) => Ok(f.clone()),
-            _ => {
-                let mut system = DMatrix::from_row_slice(size, size, &current.hessian) / total_weight;
-                for i in (0..size).filter(|i| i % width != 0) {
-                    system[(i, i)] += lambda;
-                }
-                for i in (0..size).filter(|&i| inert_parameter(i)) {
-                    system[(i, i)] = 1.0;
-                }
-                cholesky(&system)
-            }
+            _ => cholesky(&newton_system(&current.hessian, width, total_weight, lambda, &problem.inert)),
         };
         let factor = match factor {
             Ok(f) => {
@@ -886,57 +1007,14 @@ pub fn fit(
         ));
     }
 
-    // Back to the original scale: β = β_s/s, β₀ = β₀_s − Σ β_s·m/s.
-    let mut coefficients = Vec::with_capacity(q);
-    let mut transform = DMatrix::zeros(size, size);
-    for (position, &c) in order.iter().enumerate() {
-        let block = &theta[position * width..(position + 1) * width];
-        let slopes: Vec<f64> = (0..d).map(|j| block[j + 1] / problem.scale[j]).collect();
-        let intercept = block[0] - (0..d).map(|j| slopes[j] * problem.centre[j]).sum::<f64>();
-        coefficients.push(ClassCoefficients { class: c, intercept, slopes });
-        let o = position * width;
-        transform[(o, o)] = 1.0;
-        for j in 0..d {
-            transform[(o, o + j + 1)] = -problem.centre[j] / problem.scale[j];
-            transform[(o + j + 1, o + j + 1)] = 1.0 / problem.scale[j];
-        }
-    }
+    let (coefficients, transform) = original_scale(&theta, &order, &problem.centre, &problem.scale);
     // Standard errors for unpenalised fits (a warm-started fit, as in
     // cross-validation folds, has none: nobody reads them there).
     if lambda == 0.0 && start.is_none() && current.hessian.is_empty() {
         current = problem.pass(&theta, Derivatives::Hessian);
     }
     let covariance = if lambda == 0.0 && !current.hessian.is_empty() {
-        let mut information = DMatrix::from_row_slice(size, size, &current.hessian);
-        for i in (0..size).filter(|&i| inert_parameter(i)) {
-            information[(i, i)] = 1.0;
-        }
-        cholesky(&information).ok().and_then(|f| {
-            let mut standardised = f.inverse();
-            // An aliased slope is fixed at 0: no variance, no covariance.
-            for i in (0..size).filter(|&i| inert_parameter(i)) {
-                standardised.row_mut(i).fill(0.0);
-                standardised.column_mut(i).fill(0.0);
-            }
-            let original = &transform * standardised * transform.transpose();
-            // At an input's extreme scale its slope's variance (the square
-            // of a standard error of 1e200, say) may lie beyond a double.
-            let beyond: Vec<&str> = (0..size)
-                .filter(|&i| i % width > 0 && !original.row(i).iter().all(|v| v.is_finite()))
-                .map(|i| terms[i % width - 1].as_str())
-                .collect();
-            if beyond.is_empty() {
-                Some(original.transpose().as_slice().to_vec())
-            } else {
-                let mut named = beyond;
-                named.dedup();
-                warnings.push(format!(
-                    "no standard errors are stored: at the scale of {} the coefficients' variances lie beyond what a double holds; rescale the column for them",
-                    named.iter().map(|t| format!("'{t}'")).collect::<Vec<_>>().join(", ")
-                ));
-                None
-            }
-        })
+        covariance_from_information(&current.hessian, width, &problem.inert, &transform, &terms, &mut warnings)
     } else {
         None
     };

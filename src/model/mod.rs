@@ -25,6 +25,7 @@ pub mod drift;
 pub mod levels;
 pub mod linalg;
 pub mod logistic;
+pub mod logistic_aggregates;
 pub mod moments;
 pub mod naive_bayes;
 pub mod penalised;

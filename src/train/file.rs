@@ -168,6 +168,10 @@ pub struct ModelFile {
     /// scoring (absent in files written before it was kept).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub drift_reference: Option<crate::model::drift::DriftReference>,
+    /// A logistic fit from in-engine aggregates: where its Newton steps
+    /// stand, for the next query's step.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub newton: Option<crate::model::logistic_aggregates::NewtonState>,
     /// `sha256:` and the hash of the canonical form (see the module
     /// documentation); set when the file is written, checked when loaded.
     #[serde(default, skip_serializing_if = "Option::is_none")]
@@ -233,6 +237,7 @@ impl ModelFile {
                 calibration: None,
                 sampling_rates: None,
                 drift_reference: None,
+                newton: None,
                 checksum: None,
             },
         }
@@ -273,6 +278,12 @@ impl ModelFileBuilder {
     /// The training distribution for drift checks.
     pub fn drift_reference(mut self, reference: crate::model::drift::DriftReference) -> Self {
         self.file.drift_reference = Some(reference);
+        self
+    }
+
+    /// Where a fit from aggregates' Newton steps stand.
+    pub fn newton(mut self, state: crate::model::logistic_aggregates::NewtonState) -> Self {
+        self.file.newton = Some(state);
         self
     }
 

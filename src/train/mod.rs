@@ -6,6 +6,7 @@
 
 pub mod checksum;
 pub mod file;
+pub mod newton;
 
 use crate::data::split::{assign, SplitPlan};
 use crate::data::Dataset;

@@ -3,6 +3,7 @@
 
 #![allow(dead_code)]
 
+pub mod engine;
 pub mod postgres;
 pub mod spark;
 
