@@ -872,6 +872,69 @@ fn fitting_from_aggregates_equals_fitting_from_the_file(pg: &mut dyn Engine) {
         }
         eprintln!("{name}: worst posterior difference against the direct fit {worst:.1e}");
     }
+    if pg.dialect() == "spark" {
+        approximate_deciles_in_spark(pg, d, &weighted, &inputs);
+    }
+}
+
+/// Spark's `percentile_approx` (`--deciles approximate`, bounded memory):
+/// each decile is a value of the column whose rank among the complete rows
+/// is within 1/10,000 of the rows (plus one row) of the decile's, and the
+/// model says its deciles are approximate.
+fn approximate_deciles_in_spark(spark: &mut dyn Engine, d: &Path, table: &Path, inputs: &[&str]) {
+    let sql = d.join("approximate.sql");
+    let mut args = vec!["stats-sql", "--family", "lda", "--table", "train", "--target", "outcome"];
+    args.extend(["--categorical", "channel,housing,purpose", "--dialect", "spark", "--deciles", "approximate"]);
+    args.extend(["-o", sql.to_str().unwrap()]);
+    args.extend(inputs);
+    let (code, _, stderr) = run(d, &args);
+    assert_eq!(code, 0, "{stderr}");
+    let stats = write(d, "approximate.csv", spark.query_csv(&std::fs::read_to_string(&sql).expect("sql")).as_bytes());
+    let model = d.join("approximate.json");
+    let args = ["fit", stats.to_str().unwrap(), "--from-stats", "--family", "lda", "--missing", "drop-rows"];
+    let (code, _, stderr) = run(d, &[&args[..], &["-o", model.to_str().unwrap()]].concat());
+    assert_eq!(code, 0, "{stderr}");
+    let json: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&model).expect("model")).expect("json");
+    let warnings = json["diagnostics"]["warnings"].to_string();
+    assert!(warnings.contains("the deciles are approximate"), "{warnings}");
+    // The complete rows' values of each input, sorted.
+    let mut reader = csv::Reader::from_path(table).expect("table");
+    let header: Vec<String> = reader.headers().expect("header").iter().map(String::from).collect();
+    let needed: Vec<usize> = ["outcome", "channel", "housing", "purpose"]
+        .iter()
+        .chain(inputs)
+        .map(|c| header.iter().position(|h| h == c).expect("column"))
+        .collect();
+    let missing = |v: &str| ["", "NA", "N/A", "null", "?"].contains(&v.trim());
+    let rows: Vec<csv::StringRecord> =
+        reader.records().map(|r| r.expect("row")).filter(|r| needed.iter().all(|&i| !missing(&r[i]))).collect();
+    let n = rows.len() as f64;
+    for column in inputs {
+        let at = header.iter().position(|h| h == column).expect("column");
+        let mut values: Vec<f64> = rows.iter().map(|r| r[at].trim().parse().expect("number")).collect();
+        values.sort_by(f64::total_cmp);
+        let summary = json["schema"]["columns"]
+            .as_array()
+            .expect("columns")
+            .iter()
+            .find(|c| c["name"] == *column)
+            .expect("column")["numeric"]
+            .clone();
+        let deciles: Vec<f64> =
+            summary["deciles"].as_array().expect("deciles").iter().map(|v| v.as_f64().expect("number")).collect();
+        assert_eq!(deciles.len(), 9, "{column}");
+        for (i, decile) in deciles.iter().enumerate() {
+            let p = (i + 1) as f64 / 10.0;
+            let below = values.partition_point(|v| v < decile) as f64;
+            let through = values.partition_point(|v| v <= decile) as f64;
+            assert!(through > below, "{column}: decile {decile} is not a value of the column");
+            let slack = n / 10_000.0 + 1.0;
+            assert!(
+                below <= p * n + slack && through >= p * n - slack,
+                "{column}: decile {p} at {decile} has ranks {below}..{through} of {n}"
+            );
+        }
+    }
 }
 
 use common::engine::duckdb;

@@ -41,6 +41,9 @@ pub struct Args {
     /// The SQL spelling: ansi, postgres (adds deciles by percentile_cont) or spark (backticks; deciles by exact percentile).
     #[arg(long, value_name = "D", default_value = "ansi")]
     pub dialect: Dialect,
+    /// Deciles of the numeric inputs: exact (postgres, spark; the default there), approximate (spark: percentile_approx, bounded memory) or none (the ansi default).
+    #[arg(long, value_name = "HOW")]
+    pub deciles: Option<baserate::export::stats_query::Deciles>,
     /// Logistic: the model whose coefficients the step query is at (a fit on a sample, or the last step's NEXT).
     #[arg(long, value_name = "MODEL")]
     pub start: Option<PathBuf>,
@@ -121,6 +124,7 @@ pub fn run(args: Args) -> Result<ExitCode, Failure> {
         weight: args.weight.clone(),
         na_tokens: args.na.clone().unwrap_or_else(|| DEFAULT_NA_TOKENS.iter().map(|s| s.to_string()).collect()),
         dialect: args.dialect,
+        deciles: args.deciles,
     };
     let text = stats_sql(&request)?;
     write_atomic(&args.out, text.as_bytes())?;

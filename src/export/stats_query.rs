@@ -28,6 +28,58 @@ pub struct StatsRequest {
     pub na_tokens: Vec<String>,
     /// The SQL spelling.
     pub dialect: Dialect,
+    /// Which deciles to compute; `None`: the dialect's default
+    /// ([`Deciles::default_for`]).
+    pub deciles: Option<Deciles>,
+}
+
+/// Rank accuracy of Spark's `percentile_approx` for approximate deciles:
+/// Spark's own default, a rank error of at most 1/10,000 of the rows.
+pub const APPROXIMATE_ACCURACY: u32 = crate::model::aggregates::APPROXIMATE_RANK_ACCURACY;
+
+/// Which deciles of each numeric input the aggregate query computes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Deciles {
+    /// Type-7 deciles, as `fit` computes them from the rows
+    /// (`percentile_cont` in PostgreSQL, `percentile` in Spark). Spark's
+    /// exact `percentile` holds every distinct value of a column in memory.
+    Exact,
+    /// Spark's `percentile_approx`: values of the column whose rank is
+    /// within 1/[`APPROXIMATE_ACCURACY`] of the decile's, in bounded memory.
+    Approximate,
+    /// No deciles: no medians for `--missing impute` and no drift reference.
+    None,
+}
+
+impl Deciles {
+    /// Exact where the dialect has a percentile function, none in `ansi`.
+    pub fn default_for(dialect: Dialect) -> Deciles {
+        match dialect {
+            Dialect::Ansi => Deciles::None,
+            Dialect::Postgres | Dialect::Spark => Deciles::Exact,
+        }
+    }
+
+    /// The name in `--deciles` and in the result's `decile_method` column.
+    pub fn name(self) -> &'static str {
+        match self {
+            Deciles::Exact => "exact",
+            Deciles::Approximate => "approximate",
+            Deciles::None => "none",
+        }
+    }
+}
+
+impl std::str::FromStr for Deciles {
+    type Err = String;
+    fn from_str(text: &str) -> std::result::Result<Self, String> {
+        match text {
+            "exact" => Ok(Deciles::Exact),
+            "approximate" => Ok(Deciles::Approximate),
+            "none" => Ok(Deciles::None),
+            other => Err(format!("'{other}' is not exact, approximate or none")),
+        }
+    }
 }
 
 /// The aggregate query for `request`.
@@ -50,6 +102,20 @@ pub fn stats_sql(request: &StatsRequest) -> Result<String> {
     }
     if request.family != Family::NaiveBayes && request.numeric.is_empty() {
         return Err(Error::Usage(format!("{} needs at least one numeric input", request.family.name())));
+    }
+    let deciles = request.deciles.unwrap_or(Deciles::default_for(dialect));
+    match (deciles, dialect) {
+        (Deciles::Exact, Dialect::Ansi) => {
+            return Err(Error::Usage(
+                "the ansi dialect has no percentile function every engine shares: --deciles exact needs --dialect postgres or spark".into(),
+            ))
+        }
+        (Deciles::Approximate, Dialect::Ansi | Dialect::Postgres) => {
+            return Err(Error::Usage(
+                "--deciles approximate is Spark's percentile_approx (--dialect spark); PostgreSQL's deciles are exact".into(),
+            ))
+        }
+        _ => {}
     }
     let full = request.family != Family::NaiveBayes;
     let mut text = String::new();
@@ -145,16 +211,22 @@ pub fn stats_sql(request: &StatsRequest) -> Result<String> {
         select.join(",\n    "),
         sets.join(", ")
     );
-    match dialect {
-        Dialect::Postgres | Dialect::Spark if p > 0 => {
+    match deciles {
+        Deciles::Exact | Deciles::Approximate if p > 0 => {
             let spark = dialect == Dialect::Spark;
             let fractions: Vec<String> = (1..10).map(|i| number(i as f64 / 10.0)).collect();
             // Exact deciles with linear interpolation between order
             // statistics in both engines: PostgreSQL's percentile_cont and
             // Spark's percentile (not its percentile_approx).
+            let method = deciles;
             let deciles: Vec<String> = (1..=p)
                 .map(|j| {
-                    if spark {
+                    if method == Deciles::Approximate {
+                        format!(
+                            "percentile_approx(__br_v{j}, array({}), {APPROXIMATE_ACCURACY}) AS deciles_{j}",
+                            fractions.join(", ")
+                        )
+                    } else if spark {
                         format!("percentile(__br_v{j}, array({})) AS deciles_{j}", fractions.join(", "))
                     } else {
                         format!(
@@ -220,11 +292,12 @@ pub fn stats_sql(request: &StatsRequest) -> Result<String> {
                     })
                     .collect();
                 text.push_str(&format!(
-                    "SELECT __br_sums.*, {}\nFROM __br_sums CROSS JOIN __br_deciles CROSS JOIN __br_bins;\n",
+                    "SELECT __br_sums.*, '{}' AS decile_method, {}\nFROM __br_sums CROSS JOIN __br_deciles CROSS JOIN __br_bins;\n",
+                    method.name(),
                     lists.join(", ")
                 ));
             } else {
-                text.push_str("SELECT __br_sums.*, __br_deciles.*, __br_bins.*\nFROM __br_sums CROSS JOIN __br_deciles CROSS JOIN __br_bins;\n");
+                text.push_str("SELECT __br_sums.*, 'exact' AS decile_method, __br_deciles.*, __br_bins.*\nFROM __br_sums CROSS JOIN __br_deciles CROSS JOIN __br_bins;\n");
             }
         }
         _ => {
@@ -326,5 +399,38 @@ impl RowInputs<'_> {
             dialect.stage_fence()
         ));
         Ok(text)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn request(dialect: Dialect, deciles: Option<Deciles>) -> StatsRequest {
+        StatsRequest {
+            family: Family::Lda,
+            table: "t".into(),
+            target: "y".into(),
+            numeric: vec!["x".into()],
+            categorical: Vec::new(),
+            weight: None,
+            na_tokens: Vec::new(),
+            dialect,
+            deciles,
+        }
+    }
+
+    /// Deciles are asked of a dialect only where it has them.
+    #[test]
+    fn deciles_follow_the_dialect() {
+        assert!(stats_sql(&request(Dialect::Ansi, Some(Deciles::Exact))).is_err());
+        assert!(stats_sql(&request(Dialect::Postgres, Some(Deciles::Approximate))).is_err());
+        let approximate = stats_sql(&request(Dialect::Spark, Some(Deciles::Approximate))).expect("spark");
+        assert!(approximate.contains("percentile_approx(") && approximate.contains("'approximate' AS decile_method"));
+        let exact = stats_sql(&request(Dialect::Spark, None)).expect("spark");
+        assert!(exact.contains("percentile(__br_v1") && !exact.contains("percentile_approx"));
+        let none = stats_sql(&request(Dialect::Spark, Some(Deciles::None))).expect("spark");
+        assert!(!none.contains("percentile") && !none.contains("decile_method"));
+        assert!(!stats_sql(&request(Dialect::Ansi, None)).expect("ansi").contains("percentile"));
     }
 }

@@ -72,6 +72,7 @@ fn parse_stats(path: &Path, bytes: &[u8]) -> Result<Aggregates> {
         levels: BTreeMap::new(),
         pairs: BTreeMap::new(),
         deciles: None,
+        approximate_deciles: false,
         bins: None,
     };
     let mut first = true;
@@ -127,6 +128,7 @@ fn parse_stats(path: &Path, bytes: &[u8]) -> Result<Aggregates> {
                     })
                     .collect()
             };
+            aggregates.approximate_deciles = text("decile_method") == "approximate";
             if has_deciles {
                 // Deciles are cut points: finite and in ascending order
                 // (ties allowed, a constant stretch has equal deciles).

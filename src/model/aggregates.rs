@@ -48,6 +48,10 @@ use crate::model::moments::Moments;
 use crate::model::naive_bayes::{fit_summaries, NaiveBayesSummaries};
 use crate::model::{Diagnostics, Family, FamilyParams, FittedModel};
 
+/// The rank accuracy of approximate deciles (the query's, stated here for
+/// the model's warning).
+pub const APPROXIMATE_RANK_ACCURACY: u32 = 10_000;
+
 /// One class's sums: weight, rows, shifted sums and cross-products.
 #[derive(Debug, Clone, Default)]
 pub(crate) struct Sums {
@@ -93,6 +97,8 @@ pub struct Aggregates {
     /// (class, a, level of a, b, level of b) → weight.
     pub(crate) pairs: BTreeMap<(String, usize, String, usize, String), f64>,
     pub(crate) deciles: Option<Vec<Vec<f64>>>,
+    /// The deciles are Spark's approximate ones (`--deciles approximate`).
+    pub(crate) approximate_deciles: bool,
     /// Per numeric input, the complete rows in each of the ten decile bins.
     pub(crate) bins: Option<Vec<Vec<f64>>>,
 }
@@ -374,6 +380,12 @@ pub fn fit_from_aggregates(aggregates: &Aggregates, request: &FromAggregates) ->
     };
     let level_rows = |g: usize, level: &str| classes.iter().map(|c| level_sums(c, g, level).rows).sum::<f64>();
     let drift = drift_reference(aggregates, &levels, &level_rows, total_rows);
+    if aggregates.approximate_deciles && drift.is_some() {
+        diagnostics.warnings.push(format!(
+            "the deciles are approximate (Spark's percentile_approx, rank within 1/{} of the rows): the medians for --missing impute and the drift bins are values of the column near the exact deciles, not the exact ones",
+            crate::format::count(APPROXIMATE_RANK_ACCURACY as usize)
+        ));
+    }
     diagnostics.warnings.push(format!(
         "fitted from aggregates ({path}): no out-of-fold predictions (so no BBSE shift estimate and no calibration){}",
         match (&drift, p > 0) {
