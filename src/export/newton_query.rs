@@ -200,7 +200,9 @@ pub fn newton_sql(file: &ModelFile, table: &str, dialect: Dialect) -> Result<Str
     for g in 1..=categorical.len() {
         sums.push(column(format!("level_missing_{g}"), format!("SUM(__br_m{g})")));
     }
-    // Per categorical input: the rows of each level among complete rows.
+    // Per categorical input: the rows of each level among complete rows
+    // (counted, not filtered: a WHERE over the aliased stages sets off
+    // Spark's constraint propagation; see the aggregates' deciles).
     let mut levels = Vec::new();
     for g in 1..=categorical.len() {
         levels.push(column(format!("grouped_{g}"), format!("1 - GROUPING(__br_g{g})")));
@@ -226,7 +228,7 @@ pub fn newton_sql(file: &ModelFile, table: &str, dialect: Dialect) -> Result<Str
     if !categorical.is_empty() {
         let sets: Vec<String> = (1..=categorical.len()).map(|g| format!("(__br_g{g})")).collect();
         text.push_str(&format!(
-            ",\n__br_levels AS (\n  SELECT\n    {}\n  FROM __br_rows\n  WHERE __br_ok = 1\n  GROUP BY GROUPING SETS ({})\n)",
+            ",\n__br_levels AS (\n  SELECT\n    {}\n  FROM __br_rows\n  GROUP BY GROUPING SETS ({})\n)",
             listed(&levels),
             sets.join(", ")
         ));

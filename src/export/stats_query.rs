@@ -236,8 +236,13 @@ pub fn stats_sql(request: &StatsRequest) -> Result<String> {
                     }
                 })
                 .collect();
+            // No WHERE here or below: __br_v is NULL outside the complete
+            // rows, and the percentiles skip NULLs. A filter over the
+            // aliased row stages sets off Spark's constraint propagation,
+            // whose sets grow with every alias: at twenty inputs its
+            // planner ran out of an 8 GB heap before reading a row.
             text.push_str(&format!(
-                "__br_deciles AS (\n  SELECT\n    {}\n  FROM __br_rows\n  WHERE __br_ok = 1\n),\n",
+                "__br_deciles AS (\n  SELECT\n    {}\n  FROM __br_rows\n),\n",
                 deciles.join(",\n    ")
             ));
             // Each row's decile bin (the count of deciles below its value, as
@@ -248,15 +253,12 @@ pub fn stats_sql(request: &StatsRequest) -> Result<String> {
                     let above: Vec<String> = (1..10)
                         .map(|i| {
                             // Spark indexes arrays from 0, PostgreSQL from 1.
-                            let element = if spark {
-                                format!("__br_deciles.deciles_{j}[{}]", i - 1)
-                            } else {
-                                format!("(__br_deciles.deciles_{j})[{i}]")
-                            };
+                            let element =
+                                if spark { format!("__br_d{j}[{}]", i - 1) } else { format!("(__br_d{j})[{i}]") };
                             format!("CASE WHEN __br_v{j} > {element} THEN 1 ELSE 0 END")
                         })
                         .collect();
-                    format!("{} AS __br_b{j}", above.join(" + "))
+                    format!("CASE WHEN __br_v{j} IS NULL THEN NULL ELSE {} END AS __br_b{j}", above.join(" + "))
                 })
                 .collect();
             let counts: Vec<String> = (1..=p)
@@ -271,34 +273,40 @@ pub fn stats_sql(request: &StatsRequest) -> Result<String> {
                 })
                 .collect();
             text.push_str(&format!(
-                "__br_binned AS (\n  SELECT\n    {}\n  FROM __br_rows CROSS JOIN __br_deciles\n  WHERE __br_ok = 1{}\n),\n__br_bins AS (\n  SELECT\n    {}\n  FROM __br_binned\n),\n",
+                "__br_edges AS (\n  SELECT\n    __br_rows.*,\n    {}\n  FROM __br_rows{}\n),\n__br_binned AS (\n  SELECT\n    {}\n  FROM __br_edges{}\n),\n__br_bins AS (\n  SELECT\n    {}\n  FROM __br_binned\n),\n",
+                (1..=p).map(|j| format!("(SELECT deciles_{j} FROM __br_deciles) AS __br_d{j}")).collect::<Vec<_>>().join(",\n    "),
+                dialect.stage_fence(),
                 binned.join(",\n    "),
                 dialect.stage_fence(),
                 counts.join(",\n    ")
             ));
             text.push_str(&format!("__br_sums AS (\n  {aggregate}\n)\n"));
-            if spark {
-                // Spark's CSV writer takes no arrays: each list is written as
-                // PostgreSQL writes one, `{a,b,…}`, which the reader parses.
-                let braced = |name: String| {
-                    format!("CONCAT('{{', ARRAY_JOIN(TRANSFORM({name}, v -> CAST(v AS STRING)), ','), '}}')")
-                };
-                let lists: Vec<String> = (1..=p)
-                    .flat_map(|j| {
-                        [
-                            format!("{} AS deciles_{j}", braced(format!("__br_deciles.deciles_{j}"))),
-                            format!("{} AS bins_{j}", braced(format!("__br_bins.bins_{j}"))),
-                        ]
+            // The one-row lists join the sums as scalar subqueries, never
+            // as a join: Spark's planner ran out of memory on the cross
+            // join of the grouped sums with them (constraint propagation
+            // again), where a scalar subquery is planned on its own and run
+            // once, as PostgreSQL runs it as an init plan.
+            let lists: Vec<String> = (1..=p)
+                .flat_map(|j| {
+                    [("deciles", "__br_deciles"), ("bins", "__br_bins")].map(|(what, from)| {
+                        let list = format!("{what}_{j}");
+                        // Spark's CSV writer takes no arrays: each list is
+                        // written as PostgreSQL writes one, `{a,b,…}`,
+                        // which the reader parses.
+                        let value = if spark {
+                            format!("CONCAT('{{', ARRAY_JOIN(TRANSFORM({list}, v -> CAST(v AS STRING)), ','), '}}')")
+                        } else {
+                            list.clone()
+                        };
+                        format!("(SELECT {value} FROM {from}) AS {list}")
                     })
-                    .collect();
-                text.push_str(&format!(
-                    "SELECT __br_sums.*, '{}' AS decile_method, {}\nFROM __br_sums CROSS JOIN __br_deciles CROSS JOIN __br_bins;\n",
-                    method.name(),
-                    lists.join(", ")
-                ));
-            } else {
-                text.push_str("SELECT __br_sums.*, 'exact' AS decile_method, __br_deciles.*, __br_bins.*\nFROM __br_sums CROSS JOIN __br_deciles CROSS JOIN __br_bins;\n");
-            }
+                })
+                .collect();
+            text.push_str(&format!(
+                "SELECT\n  __br_sums.*,\n  '{}' AS decile_method,\n  {}\nFROM __br_sums;\n",
+                method.name(),
+                lists.join(",\n  ")
+            ));
         }
         _ => {
             text.push_str(&format!("__br_sums AS (\n  {aggregate}\n)\nSELECT * FROM __br_sums;\n"));

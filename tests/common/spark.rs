@@ -36,6 +36,10 @@ for line in sys.stdin:
                 frame = frame.cache()
                 frame.count()
             frame.createOrReplaceTempView("`" + command["name"].replace("`", "``") + "`")
+        elif command["op"] == "write":
+            # Spark's own writer, in parallel: how a batch job keeps its output.
+            statement = open(command["sql"]).read().rstrip().rstrip(";")
+            spark.sql(statement).write.mode("overwrite").option("header", "true").csv(command["out"])
         else:
             statement = open(command["sql"]).read().rstrip().rstrip(";")
             result = spark.sql(statement)
@@ -134,6 +138,17 @@ impl Spark {
         std::fs::write(&file, sql).map_err(|e| e.to_string())?;
         self.send(serde_json::json!({"op": "query", "sql": file, "out": out}))?;
         std::fs::read_to_string(&out).map_err(|e| e.to_string())
+    }
+
+    /// Runs one statement and has Spark write its rows as CSV files in
+    /// the directory `out` (replaced).
+    pub fn write_csv(&mut self, sql: &str, out: &Path) {
+        self.queries += 1;
+        let file = self.dir.path().join(format!("q{}.sql", self.queries));
+        std::fs::write(&file, sql).expect("write statement");
+        if let Err(message) = self.send(serde_json::json!({"op": "write", "sql": file, "out": out})) {
+            panic!("Spark refused the statement: {message}");
+        }
     }
 
     /// Runs one statement; its rows as CSV with a header.
